@@ -1,0 +1,625 @@
+"""A design case: its variables, objectives, constraints and model, loaded and checked from TOML."""
+
+from __future__ import annotations
+
+import ast
+import difflib
+import hashlib
+import math
+import re
+import tomllib
+from dataclasses import dataclass, field, replace
+from pathlib import Path
+from typing import Any
+
+from tradewise.errors import CaseError
+
+__all__ = [
+    "Variable",
+    "Objective",
+    "Constraint",
+    "SearchSettings",
+    "Case",
+    "load_case",
+    "bundled_cases",
+    "RESERVED_NAMES",
+]
+
+#: Column names that tradewise itself writes into design tables; no variable,
+#: objective, constraint or output may use them.
+RESERVED_NAMES = frozenset(
+    {
+        "eval_id",
+        "run_id",
+        "status",
+        "message",
+        "generation",
+        "feasible",
+        "violation",
+        "duration",
+        "worker",
+        "design_key",
+        "cached",
+        "rank",
+    }
+)
+
+VARIABLE_TYPES = ("real", "integer", "choice", "flag")
+GOALS = ("min", "max")
+_NAME = re.compile(r"^[A-Za-z_][A-Za-z0-9_\-]{0,63}$")
+
+_TOP_KEYS = (
+    "title",
+    "description",
+    "cautions",
+    "model",
+    "command",
+    "timeout",
+    "variables",
+    "objectives",
+    "constraints",
+    "outputs",
+    "search",
+)
+_VARIABLE_KEYS = {
+    "real": ("type", "low", "high", "unit", "description"),
+    "integer": ("type", "low", "high", "unit", "description"),
+    "choice": ("type", "options", "unit", "description"),
+    "flag": ("type", "description"),
+}
+_OBJECTIVE_KEYS = ("goal", "unit", "worst", "description")
+_CONSTRAINT_KEYS = ("min", "max", "unit", "description")
+_OUTPUT_KEYS = ("unit", "description")
+_SEARCH_KEYS = (
+    "population",
+    "evaluations",
+    "generations",
+    "seed",
+    "time_limit",
+    "stall_generations",
+    "stall_tolerance",
+)
+
+
+@dataclass(frozen=True)
+class Variable:
+    """One design variable.
+
+    ``kind`` is ``"real"``, ``"integer"``, ``"choice"`` or ``"flag"``. Reals and
+    integers have inclusive ``low`` and ``high`` bounds; a choice has its
+    ``options``; a flag is a boolean.
+    """
+
+    name: str
+    kind: str
+    low: float | int | None = None
+    high: float | int | None = None
+    options: tuple[Any, ...] = ()
+    unit: str = ""
+    description: str = ""
+
+    def contains(self, value: Any) -> bool:
+        """Say whether ``value`` is a legal value of this variable."""
+        if self.kind == "flag":
+            return isinstance(value, bool)
+        if self.kind == "choice":
+            return value in self.options
+        if isinstance(value, bool) or not isinstance(value, int | float):
+            return False
+        if self.kind == "integer" and not float(value).is_integer():
+            return False
+        return self.low <= value <= self.high
+
+
+@dataclass(frozen=True)
+class Objective:
+    """One goal: its name, sense (``"min"`` or ``"max"``), unit and optional reference value."""
+
+    name: str
+    goal: str = "min"
+    unit: str = ""
+    worst: float | None = None
+    description: str = ""
+
+    @property
+    def maximise(self) -> bool:
+        return self.goal == "max"
+
+
+@dataclass(frozen=True)
+class Constraint:
+    """A limit on one model result: ``min <= value <= max`` (either end may be absent)."""
+
+    name: str
+    min: float | None = None
+    max: float | None = None
+    unit: str = ""
+    description: str = ""
+
+    def violation(self, value: float) -> float:
+        """Relative amount by which ``value`` breaks the limit (0 when it holds).
+
+        The excess is divided by the size of the limit (or 1 for a zero limit),
+        so constraints of very different units weigh alike in the search.
+        """
+        total = 0.0
+        if self.min is not None and value < self.min:
+            total += (self.min - value) / max(abs(self.min), 1e-12 if self.min else 1.0)
+        if self.max is not None and value > self.max:
+            total += (value - self.max) / max(abs(self.max), 1e-12 if self.max else 1.0)
+        return total
+
+    def describe(self) -> str:
+        unit = f" {self.unit}" if self.unit else ""
+        if self.min is not None and self.max is not None:
+            return f"{self.min:g} <= {self.name} <= {self.max:g}{unit}"
+        if self.min is not None:
+            return f"{self.name} >= {self.min:g}{unit}"
+        return f"{self.name} <= {self.max:g}{unit}"
+
+
+@dataclass(frozen=True)
+class SearchSettings:
+    """How long and how wide the search runs; command-line options override these.
+
+    ``evaluations`` counts model evaluations (designs served from the archive
+    are free). ``stall_generations`` and ``stall_tolerance`` stop a run whose
+    hypervolume gained less than that relative amount over that many
+    generations; ``stall_generations = 0`` turns the rule off.
+    """
+
+    population: int = 60
+    evaluations: int = 6000
+    generations: int | None = None
+    seed: int = 1
+    time_limit: float | None = None
+    stall_generations: int = 40
+    stall_tolerance: float = 1e-4
+
+    def as_dict(self) -> dict[str, Any]:
+        return {
+            "population": self.population,
+            "evaluations": self.evaluations,
+            "generations": self.generations,
+            "seed": self.seed,
+            "time_limit": self.time_limit,
+            "stall_generations": self.stall_generations,
+            "stall_tolerance": self.stall_tolerance,
+        }
+
+
+@dataclass(frozen=True)
+class Case:
+    """A loaded and checked case; build it with :func:`load_case`."""
+
+    path: Path
+    title: str
+    variables: tuple[Variable, ...]
+    objectives: tuple[Objective, ...]
+    constraints: tuple[Constraint, ...] = ()
+    model: str | None = None
+    command: tuple[str, ...] | None = None
+    timeout: float | None = None
+    outputs: dict[str, str] = field(default_factory=dict)
+    search: SearchSettings = field(default_factory=SearchSettings)
+    description: str = ""
+    cautions: str = ""
+    text: str = ""
+    hash: str = ""
+
+    @property
+    def folder(self) -> Path:
+        return self.path.parent
+
+    @property
+    def variable_names(self) -> list[str]:
+        return [v.name for v in self.variables]
+
+    @property
+    def objective_names(self) -> list[str]:
+        return [o.name for o in self.objectives]
+
+    @property
+    def constraint_names(self) -> list[str]:
+        return [c.name for c in self.constraints]
+
+    @property
+    def maximise(self) -> list[bool]:
+        return [o.maximise for o in self.objectives]
+
+    @property
+    def units(self) -> dict[str, str]:
+        """Unit of every named variable, objective, constraint and output ('' when none)."""
+        units = {v.name: v.unit for v in self.variables}
+        units.update({o.name: o.unit for o in self.objectives})
+        units.update({c.name: c.unit for c in self.constraints})
+        for name, unit in self.outputs.items():
+            units.setdefault(name, unit)
+        return units
+
+    def with_search(self, **changes: Any) -> Case:
+        """Return a copy whose search settings have ``changes`` applied (``None`` values are ignored)."""
+        changes = {k: v for k, v in changes.items() if v is not None}
+        unknown = sorted(set(changes) - set(_SEARCH_KEYS))
+        if unknown:
+            raise CaseError(f"unknown search setting {unknown[0]!r}; allowed: {', '.join(_SEARCH_KEYS)}")
+        settings = replace(self.search, **changes)
+        _check_search_values(settings, f"{self.path}: [search]")
+        return replace(self, search=settings)
+
+    def __repr__(self) -> str:
+        return (
+            f"Case({self.title!r}, {len(self.variables)} variables, "
+            f"{len(self.objectives)} objectives, {len(self.constraints)} constraints)"
+        )
+
+
+def bundled_cases() -> dict[str, Path]:
+    """Map the name of every case shipped with tradewise to its ``case.toml``."""
+    root = Path(__file__).parent / "cases"
+    if not root.is_dir():
+        return {}
+    return {p.parent.name: p for p in sorted(root.glob("*/case.toml"))}
+
+
+def load_case(path: str | Path) -> Case:
+    """Load and check a case from a folder, its ``case.toml``, or the name of a bundled case.
+
+    Parameters
+    ----------
+    path : str or Path
+        A case folder, a ``case.toml`` file, or a bundled case name such as ``"heat-sink"``.
+
+    Returns
+    -------
+    Case
+
+    Raises
+    ------
+    CaseError
+        With one line naming the file, the table and the key at fault.
+
+    Examples
+    --------
+    >>> case = load_case("heat-sink")          # doctest: +SKIP
+    >>> case.objective_names                   # doctest: +SKIP
+    ['resistance', 'mass', 'pressure_drop']
+    """
+    file = _find_case_file(path)
+    try:
+        raw = file.read_bytes()
+    except OSError as exc:
+        raise CaseError(f"{file}: cannot be read ({exc.strerror or exc})") from None
+    try:
+        text = raw.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        raise CaseError(f"{file}: is not UTF-8 text (byte {exc.start})") from None
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise CaseError(f"{file}: TOML syntax error: {exc}") from None
+    return _build_case(data, file, text)
+
+
+def _find_case_file(path: str | Path) -> Path:
+    p = Path(path)
+    if p.is_dir():
+        file = p / "case.toml"
+        if not file.is_file():
+            raise CaseError(f"{p}: folder has no case.toml")
+        return file
+    if p.is_file():
+        return p
+    bundled = bundled_cases()
+    if str(path) in bundled:
+        return bundled[str(path)]
+    hint = _suggest(str(path), bundled)
+    names = ", ".join(bundled) or "none"
+    raise CaseError(f"{p}: no such case folder, file or bundled case{hint} (bundled: {names})")
+
+
+def _suggest(name: str, allowed: Any) -> str:
+    close = difflib.get_close_matches(str(name), [str(a) for a in allowed], n=1, cutoff=0.6)
+    return f" (did you mean {close[0]!r}?)" if close else ""
+
+
+def _check_keys(table: dict[str, Any], allowed: tuple[str, ...], where: str) -> None:
+    for key in table:
+        if key not in allowed:
+            raise CaseError(
+                f"{where}: unknown key {key!r}{_suggest(key, allowed)}; allowed: {', '.join(allowed)}"
+            )
+
+
+def _number(value: Any, where: str, *, integer: bool = False) -> float | int:
+    if isinstance(value, bool) or not isinstance(value, int | float):
+        kind = "an integer" if integer else "a number"
+        raise CaseError(f"{where}: expected {kind}, got {value!r}")
+    if integer and not isinstance(value, int):
+        raise CaseError(f"{where}: expected an integer, got {value!r}")
+    if not math.isfinite(value):
+        raise CaseError(f"{where}: expected a finite number, got {value!r}")
+    return value
+
+
+def _text(value: Any, where: str) -> str:
+    if not isinstance(value, str):
+        raise CaseError(f"{where}: expected text, got {value!r}")
+    return value
+
+
+def _table(data: dict[str, Any], key: str, where: str) -> dict[str, Any]:
+    value = data.get(key, {})
+    if not isinstance(value, dict):
+        raise CaseError(f"{where}: [{key}] must be a table, got {type(value).__name__}")
+    return value
+
+
+def _entries(data: dict[str, Any], key: str, file: Path) -> dict[str, dict[str, Any]]:
+    table = _table(data, key, str(file))
+    for name, entry in table.items():
+        where = f"{file}: [{key}] {name}"
+        if not isinstance(entry, dict):
+            raise CaseError(f"{where}: must be an inline table such as {{ ... }}, got {entry!r}")
+        if not _NAME.match(name):
+            raise CaseError(
+                f"{where}: name must start with a letter or '_' and hold only letters, digits, '_' or '-'"
+            )
+        if name in RESERVED_NAMES:
+            raise CaseError(
+                f"{where}: {name!r} is a reserved column name; reserved: {', '.join(sorted(RESERVED_NAMES))}"
+            )
+    return table
+
+
+def _build_case(data: dict[str, Any], file: Path, text: str) -> Case:
+    _check_keys(data, _TOP_KEYS, str(file))
+    title = _text(data.get("title", file.parent.name), f"{file}: title")
+    description = _text(data.get("description", ""), f"{file}: description")
+    cautions = _text(data.get("cautions", ""), f"{file}: cautions")
+
+    variables = tuple(
+        _variable(name, entry, f"{file}: [variables] {name}")
+        for name, entry in _entries(data, "variables", file).items()
+    )
+    if not variables:
+        raise CaseError(f"{file}: [variables] is missing or empty; a case needs at least one variable")
+    objectives = tuple(
+        _objective(name, entry, f"{file}: [objectives] {name}")
+        for name, entry in _entries(data, "objectives", file).items()
+    )
+    if len(objectives) < 2:
+        raise CaseError(
+            f"{file}: [objectives] has {len(objectives)} objective(s); a trade-off needs at least two"
+        )
+    constraints = tuple(
+        _constraint(name, entry, f"{file}: [constraints] {name}")
+        for name, entry in _entries(data, "constraints", file).items()
+    )
+    outputs: dict[str, str] = {}
+    for name, entry in _entries(data, "outputs", file).items():
+        where = f"{file}: [outputs] {name}"
+        _check_keys(entry, _OUTPUT_KEYS, where)
+        outputs[name] = _text(entry.get("unit", ""), f"{where}: unit")
+
+    seen: dict[str, str] = {}
+    for table, items in (
+        ("variables", variables),
+        ("objectives", objectives),
+        ("constraints", constraints),
+    ):
+        for item in items:
+            if item.name in seen:
+                raise CaseError(
+                    f"{file}: [{table}] {item.name}: name already used in [{seen[item.name]}]; "
+                    "names must be unique across variables, objectives and constraints"
+                )
+            seen[item.name] = table
+    for name in outputs:
+        if name in seen and seen[name] == "variables":
+            raise CaseError(f"{file}: [outputs] {name}: name already used in [variables]")
+
+    search = _search(_table(data, "search", str(file)), f"{file}: [search]")
+    model, command, timeout = _model(data, file)
+
+    digest = hashlib.sha256(text.encode("utf-8"))
+    for extra in _model_files(file.parent, model, command):
+        digest.update(b"\0" + extra.name.encode() + b"\0" + extra.read_bytes())
+    return Case(
+        path=file,
+        title=title,
+        variables=variables,
+        objectives=objectives,
+        constraints=constraints,
+        model=model,
+        command=command,
+        timeout=timeout,
+        outputs=outputs,
+        search=search,
+        description=description,
+        cautions=cautions,
+        text=text,
+        hash=digest.hexdigest()[:16],
+    )
+
+
+def _variable(name: str, entry: dict[str, Any], where: str) -> Variable:
+    kind = entry.get("type")
+    if kind is None:
+        raise CaseError(f"{where}: missing 'type'; allowed: {', '.join(VARIABLE_TYPES)}")
+    if kind not in VARIABLE_TYPES:
+        raise CaseError(
+            f"{where}: type {kind!r} is not allowed{_suggest(kind, VARIABLE_TYPES)}; "
+            f"allowed: {', '.join(VARIABLE_TYPES)}"
+        )
+    _check_keys(entry, _VARIABLE_KEYS[kind], where)
+    unit = _text(entry.get("unit", ""), f"{where}: unit")
+    description = _text(entry.get("description", ""), f"{where}: description")
+    if kind == "flag":
+        return Variable(name, kind, description=description)
+    if kind == "choice":
+        options = entry.get("options")
+        if not isinstance(options, list) or not options:
+            raise CaseError(f"{where}: 'options' must be a non-empty list, got {options!r}")
+        for option in options:
+            if isinstance(option, bool) or not isinstance(option, str | int | float):
+                raise CaseError(f"{where}: option {option!r} must be text or a number")
+        repeated = sorted({str(o) for o in options if options.count(o) > 1})
+        if repeated:
+            raise CaseError(f"{where}: option {repeated[0]!r} is repeated; options must be unique")
+        if len(options) < 2:
+            raise CaseError(f"{where}: a choice needs at least two options, got {options!r}")
+        return Variable(name, kind, options=tuple(options), unit=unit, description=description)
+    integer = kind == "integer"
+    for key in ("low", "high"):
+        if key not in entry:
+            raise CaseError(f"{where}: missing {key!r}")
+    low = _number(entry["low"], f"{where}: low", integer=integer)
+    high = _number(entry["high"], f"{where}: high", integer=integer)
+    if low >= high:
+        raise CaseError(f"{where}: 'low' ({low}) must be below 'high' ({high})")
+    if not integer:
+        low, high = float(low), float(high)
+    return Variable(name, kind, low=low, high=high, unit=unit, description=description)
+
+
+def _objective(name: str, entry: dict[str, Any], where: str) -> Objective:
+    _check_keys(entry, _OBJECTIVE_KEYS, where)
+    goal = entry.get("goal")
+    if goal is None:
+        raise CaseError(f"{where}: missing 'goal'; allowed: {', '.join(GOALS)}")
+    if goal not in GOALS:
+        raise CaseError(
+            f"{where}: goal {goal!r} is not allowed{_suggest(goal, GOALS)}; allowed: min, max"
+        )
+    worst = entry.get("worst")
+    if worst is not None:
+        worst = float(_number(worst, f"{where}: worst"))
+    return Objective(
+        name,
+        goal,
+        unit=_text(entry.get("unit", ""), f"{where}: unit"),
+        worst=worst,
+        description=_text(entry.get("description", ""), f"{where}: description"),
+    )
+
+
+def _constraint(name: str, entry: dict[str, Any], where: str) -> Constraint:
+    _check_keys(entry, _CONSTRAINT_KEYS, where)
+    low, high = entry.get("min"), entry.get("max")
+    if low is None and high is None:
+        raise CaseError(f"{where}: needs 'min', 'max' or both")
+    if low is not None:
+        low = float(_number(low, f"{where}: min"))
+    if high is not None:
+        high = float(_number(high, f"{where}: max"))
+    if low is not None and high is not None and low > high:
+        raise CaseError(f"{where}: 'min' ({low:g}) must not exceed 'max' ({high:g})")
+    return Constraint(
+        name,
+        low,
+        high,
+        unit=_text(entry.get("unit", ""), f"{where}: unit"),
+        description=_text(entry.get("description", ""), f"{where}: description"),
+    )
+
+
+def _search(table: dict[str, Any], where: str) -> SearchSettings:
+    _check_keys(table, _SEARCH_KEYS, where)
+    values: dict[str, Any] = {}
+    for key in ("population", "evaluations", "generations", "seed", "stall_generations"):
+        if key in table:
+            values[key] = _number(table[key], f"{where} {key}", integer=True)
+    for key in ("time_limit", "stall_tolerance"):
+        if key in table:
+            values[key] = float(_number(table[key], f"{where} {key}"))
+    settings = SearchSettings(**values)
+    _check_search_values(settings, where)
+    return settings
+
+
+def _check_search_values(settings: SearchSettings, where: str) -> None:
+    checks = (
+        ("population", settings.population, 4, "at least 4"),
+        ("evaluations", settings.evaluations, 1, "at least 1"),
+        ("generations", settings.generations, 1, "at least 1"),
+        ("seed", settings.seed, 0, "0 or more"),
+        ("stall_generations", settings.stall_generations, 0, "0 (off) or more"),
+    )
+    for key, value, least, allowed in checks:
+        if value is not None and value < least:
+            raise CaseError(f"{where} {key}: got {value}, allowed: {allowed}")
+    if settings.time_limit is not None and settings.time_limit <= 0:
+        raise CaseError(f"{where} time_limit: got {settings.time_limit:g}, allowed: seconds above 0")
+    if settings.stall_tolerance < 0:
+        raise CaseError(f"{where} stall_tolerance: got {settings.stall_tolerance:g}, allowed: 0 or more")
+
+
+def _model(data: dict[str, Any], file: Path) -> tuple[str | None, tuple[str, ...] | None, float | None]:
+    model, command = data.get("model"), data.get("command")
+    if model is None and command is None:
+        raise CaseError(
+            f"{file}: needs 'model' (\"file.py:function\") or 'command' ([\"program\", \"{{input}}\", \"{{output}}\"])"
+        )
+    if model is not None and command is not None:
+        raise CaseError(f"{file}: give either 'model' or 'command', not both")
+    timeout = data.get("timeout")
+    if timeout is not None:
+        timeout = float(_number(timeout, f"{file}: timeout"))
+        if timeout <= 0:
+            raise CaseError(f"{file}: timeout: got {timeout:g}, allowed: seconds above 0")
+    if command is not None:
+        if (
+            not isinstance(command, list)
+            or not command
+            or not all(isinstance(a, str) and a for a in command)
+        ):
+            raise CaseError(f"{file}: command must be a non-empty list of text arguments, got {command!r}")
+        if not any("{input}" in a for a in command) or not any("{output}" in a for a in command):
+            raise CaseError(
+                f"{file}: command must contain the placeholders {{input}} and {{output}}, got {command!r}"
+            )
+        return None, tuple(command), timeout
+    model = _text(model, f"{file}: model")
+    if model.count(":") != 1:
+        raise CaseError(f"{file}: model must look like \"model.py:evaluate\", got {model!r}")
+    module_name, function = model.split(":")
+    module_file = file.parent / module_name
+    if not module_name.endswith(".py") or not module_file.is_file():
+        raise CaseError(f"{file}: model file {module_name!r} not found beside the case file")
+    if not function.isidentifier():
+        raise CaseError(f"{file}: model function {function!r} is not a Python name")
+    try:
+        tree = ast.parse(module_file.read_text(encoding="utf-8"), filename=str(module_file))
+    except SyntaxError as exc:
+        raise CaseError(f"{module_file}: Python syntax error at line {exc.lineno}: {exc.msg}") from None
+    defined = _top_level_names(tree)
+    if function not in defined:
+        raise CaseError(
+            f"{file}: model function {function!r} not found in {module_name}{_suggest(function, defined)}"
+        )
+    return model, None, timeout
+
+
+def _top_level_names(tree: ast.Module) -> list[str]:
+    names: list[str] = []
+    for node in tree.body:
+        if isinstance(node, ast.FunctionDef | ast.AsyncFunctionDef | ast.ClassDef):
+            names.append(node.name)
+        elif isinstance(node, ast.Assign):
+            names.extend(t.id for t in node.targets if isinstance(t, ast.Name))
+        elif isinstance(node, ast.ImportFrom | ast.Import):
+            names.extend((a.asname or a.name).split(".")[0] for a in node.names)
+    return names
+
+
+def _model_files(folder: Path, model: str | None, command: tuple[str, ...] | None) -> list[Path]:
+    """Files whose content decides the results, so that they enter the case hash."""
+    if model is not None:
+        return [folder / model.split(":")[0]]
+    files = []
+    for arg in command or ():
+        candidate = folder / arg
+        if "{" not in arg and candidate.is_file():
+            files.append(candidate)
+    return files

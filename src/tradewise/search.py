@@ -1,0 +1,825 @@
+"""The search: a non-dominated sorting genetic search on pymoo, driven generation by generation.
+
+pymoo proposes designs (ask) and is told their values (tell); everything
+around that is ours: the encoding of mixed variables, the evaluation cache,
+failure handling, the archive, the front built from every feasible design
+evaluated so far, hypervolume tracking and the stopping rules.
+"""
+
+from __future__ import annotations
+
+import json
+import math
+import pickle
+import platform
+import time
+from collections.abc import Callable
+from dataclasses import dataclass, field
+from importlib import metadata
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pandas as pd
+from pymoo.algorithms.moo.nsga2 import NSGA2
+from pymoo.algorithms.moo.nsga3 import NSGA3
+from pymoo.core.problem import Problem
+from pymoo.core.repair import Repair
+from pymoo.core.termination import NoTermination
+from pymoo.operators.crossover.sbx import SBX
+from pymoo.operators.mutation.pm import PM
+from pymoo.operators.sampling.rnd import FloatRandomSampling
+from pymoo.problems.static import StaticProblem
+from pymoo.util.ref_dirs import get_reference_directions
+
+from tradewise.case import Case, load_case
+from tradewise.errors import ModelError, StoreError
+from tradewise.executors import InProcess, make_executor
+from tradewise.front import Front, hypervolume, nondominated, reference_point
+from tradewise.models import Outcome, make_model
+from tradewise.store import Store, open_store
+
+__all__ = ["StudyResult", "run_study", "middle_design", "resume_study", "save_run", "design_key", "Space", "STATUS_TEXT"]
+
+#: Why a run stopped, in words for the summary.
+STATUS_TEXT = {
+    "budget": "the evaluation budget was used up",
+    "generations": "the generation limit was reached",
+    "time_limit": "the time limit was reached",
+    "stalled": "the hypervolume stopped improving",
+    "exhausted": "the search proposed no new designs",
+    "interrupted": "the run was interrupted",
+}
+
+_FAILED_PENALTY = 1e6  # violation given to a failed evaluation: always worse than any real violation
+_EXHAUSTED_AFTER = 25  # generations in a row without a new design before giving up
+
+
+# --------------------------------------------------------------------------------------- encoding
+class Space:
+    """Encoding of a case's variables as a real vector for the genetic operators.
+
+    Reals are themselves. Integers, choices (option index) and flags (0/1) are
+    searched on a real axis widened by half a step at each end and rounded, so
+    every legal value has the same share of the axis and no fractional or
+    out-of-range value ever reaches the model.
+    """
+
+    def __init__(self, case: Case) -> None:
+        self.variables = case.variables
+        low, high, discrete = [], [], []
+        for v in case.variables:
+            if v.kind == "real":
+                low.append(float(v.low))
+                high.append(float(v.high))
+                discrete.append(False)
+            else:
+                lo, hi = {"integer": (v.low, v.high), "choice": (0, len(v.options) - 1), "flag": (0, 1)}[v.kind]
+                low.append(lo - 0.4999)
+                high.append(hi + 0.4999)
+                discrete.append(True)
+        self.xl = np.asarray(low, dtype=float)
+        self.xu = np.asarray(high, dtype=float)
+        self.discrete = np.asarray(discrete, dtype=bool)
+        self._round_low = np.where(self.discrete, np.ceil(self.xl), self.xl)
+        self._round_high = np.where(self.discrete, np.floor(self.xu), self.xu)
+
+    @property
+    def size(self) -> float:
+        """Number of distinct designs (``inf`` when any variable is real)."""
+        if not self.discrete.all():
+            return math.inf
+        return float(np.prod(self._round_high - self._round_low + 1))
+
+    def repair(self, X: np.ndarray) -> np.ndarray:
+        X = np.array(X, dtype=float, copy=True)
+        X[:, self.discrete] = np.round(X[:, self.discrete])
+        return np.clip(X, self._round_low, self._round_high)
+
+    def decode(self, x: np.ndarray) -> dict[str, Any]:
+        design: dict[str, Any] = {}
+        for v, value in zip(self.variables, x, strict=True):
+            if v.kind == "real":
+                design[v.name] = float(value)
+            elif v.kind == "integer":
+                design[v.name] = int(round(value))
+            elif v.kind == "choice":
+                design[v.name] = v.options[int(round(value))]
+            else:
+                design[v.name] = bool(round(value))
+        return design
+
+    def encode(self, design: dict[str, Any]) -> np.ndarray:
+        x = []
+        for v in self.variables:
+            value = design[v.name]
+            if v.kind == "choice":
+                x.append(float(v.options.index(value)))
+            else:
+                x.append(float(value))
+        return np.asarray(x, dtype=float)
+
+
+class _Rounding(Repair):
+    """pymoo repair that rounds the discrete columns (module level so that it pickles)."""
+
+    def __init__(self, space: Space) -> None:
+        super().__init__()
+        self.space = space
+
+    def _do(self, problem, X, **kwargs):
+        return self.space.repair(X)
+
+
+def middle_design(case: Case) -> dict[str, Any]:
+    """The design in the middle of every range (first option, flags off): a quick model check."""
+    space = Space(case)
+    return space.decode(space.repair(((space.xl + space.xu) / 2)[None, :])[0])
+
+
+def design_key(design: dict[str, Any]) -> str:
+    """A canonical text key of a design: equal designs give equal keys (reals to 12 significant digits)."""
+    parts = []
+    for name, value in design.items():
+        if isinstance(value, float):
+            value = float(f"{value:.12g}")
+        parts.append([name, value])
+    return json.dumps(parts, separators=(",", ":"))
+
+
+# ----------------------------------------------------------------------------------------- result
+@dataclass(frozen=True)
+class StudyResult:
+    """What a search gives back; ``status`` and ``message`` say why it stopped.
+
+    ``front`` is the non-dominated set of every feasible design evaluated
+    (empty when none was feasible; then ``least_infeasible`` holds the designs
+    closest to feasibility). ``evaluations`` has one row per design the run
+    looked at, ``history`` one row per generation.
+    """
+
+    status: str
+    message: str
+    front: Front
+    evaluations: pd.DataFrame
+    history: pd.DataFrame
+    n_evals: int
+    n_gen: int
+    hypervolume: float
+    seed: int
+    case: Case
+    store_path: Path | None = None
+    run_id: int | None = None
+    reference: tuple[float, ...] | None = None
+    n_failed: int = 0
+    n_cached: int = 0
+    least_infeasible: pd.DataFrame | None = None
+    meta: dict[str, Any] = field(default_factory=dict)
+
+    def __repr__(self) -> str:
+        return (
+            f"StudyResult({self.message!r}, front={len(self.front)} designs, n_evals={self.n_evals}, "
+            f"n_gen={self.n_gen}, hypervolume={self.hypervolume:.6g})"
+        )
+
+
+# ------------------------------------------------------------------------------------------ state
+class _Run:
+    """The bookkeeping of one run: cache, evaluation records, front and history."""
+
+    def __init__(self, case: Case, store: Store | None, run_id: int | None) -> None:
+        self.case = case
+        self.store = store
+        self.run_id = run_id
+        self.objectives = case.objectives
+        self.maximise = case.maximise
+        self.memo: dict[str, dict[str, Any]] = {}
+        self.records: list[dict[str, Any]] = []
+        self.n_evals = 0
+        self.n_failed = 0
+        self.n_cached = 0
+        self.first_failure = ""
+        self.front_rows: list[int] = []  # positions in self.records
+        self.reference: np.ndarray | None = None
+        self.reference_source = ""
+        self.history: list[dict[str, Any]] = []
+        self.next_id = 1
+
+    # -- one evaluation --------------------------------------------------------------------
+    def record(self, design: dict[str, Any], key: str, outcome: Outcome | dict[str, Any], generation: int,
+               *, cached: bool, source_id: int | None = None) -> dict[str, Any]:
+        if isinstance(outcome, Outcome):
+            status, results, message = outcome.status, outcome.results, outcome.message
+            duration, worker = outcome.duration, outcome.worker
+        else:
+            status, results, message = outcome["status"], outcome["results"], outcome["message"]
+            duration, worker = outcome["duration"], outcome["worker"]
+        violation = 0.0
+        if status == "ok":
+            for c in self.case.constraints:
+                violation += c.violation(results[c.name])
+        else:
+            violation = _FAILED_PENALTY
+        if self.store is not None:
+            eval_id = self.store.add_evaluation(
+                self.run_id,
+                case_hash=self.case.hash,
+                design_key=key,
+                design=design,
+                results=results,
+                status=status,
+                message=message,
+                duration=duration,
+                generation=generation,
+                worker=worker,
+                source_id=source_id,
+            )
+        else:
+            eval_id = self.next_id
+            self.next_id += 1
+        row = {
+            "eval_id": eval_id,
+            "generation": generation,
+            "status": status,
+            "feasible": status == "ok" and violation == 0.0,
+            "violation": violation,
+            "cached": cached,
+            "message": message,
+            "duration": duration,
+            "worker": worker,
+            **design,
+            **results,
+        }
+        self.records.append(row)
+        if not cached:
+            self.n_evals += 1
+            self.memo[key] = {"status": status, "results": results, "message": message,
+                              "duration": duration, "worker": worker, "eval_id": eval_id}
+            if status != "ok":
+                self.n_failed += 1
+                self.first_failure = self.first_failure or message
+        else:
+            self.n_cached += 1
+        return row
+
+    # -- one generation ---------------------------------------------------------------------
+    def update_front(self, new_rows: list[int]) -> None:
+        candidates = self.front_rows + [i for i in new_rows if self.records[i]["feasible"]]
+        if not candidates:
+            return
+        points = np.array([[self.records[i][o.name] for o in self.objectives] for i in candidates], dtype=float)
+        if self.reference is None:
+            self.reference = reference_point(points, self.maximise, worst=[o.worst for o in self.objectives])
+            given = [o.name for o in self.objectives if o.worst is not None]
+            self.reference_source = (
+                "worst values from the case" if len(given) == len(self.objectives)
+                else "fixed from the first feasible designs (worst value plus 10% of the range)"
+                + (f"; case values for {', '.join(given)}" if given else "")
+            )
+        mask = nondominated(points, self.maximise)
+        self.front_rows = [i for i, keep in zip(candidates, mask, strict=True) if keep]
+
+    def front_points(self) -> np.ndarray:
+        if not self.front_rows:
+            return np.empty((0, len(self.objectives)))
+        return np.array([[self.records[i][o.name] for o in self.objectives] for i in self.front_rows], dtype=float)
+
+    def hypervolume(self) -> float:
+        if self.reference is None or not self.front_rows:
+            return 0.0
+        return hypervolume(self.front_points(), self.reference, self.maximise)
+
+
+# ---------------------------------------------------------------------------------------- algorithm
+def _make_algorithm(case: Case, space: Space, population: int, seed: int):
+    repair = _Rounding(space)
+    n_obj = len(case.objectives)
+    common = dict(
+        sampling=FloatRandomSampling(),
+        crossover=SBX(prob=0.9, eta=15),
+        mutation=PM(eta=20),
+        repair=repair,
+        eliminate_duplicates=True,
+    )
+    if n_obj <= 3:
+        return NSGA2(pop_size=population, **common), "NSGA-II"
+    directions = get_reference_directions("energy", n_obj, population, seed=seed)
+    return NSGA3(directions, pop_size=population, **common), "NSGA-III"
+
+
+def _problem(case: Case, space: Space) -> Problem:
+    return Problem(
+        n_var=len(case.variables),
+        n_obj=len(case.objectives),
+        n_ieq_constr=len(case.constraints) + 1,
+        xl=space.xl,
+        xu=space.xu,
+    )
+
+
+def _versions() -> dict[str, str]:
+    versions = {"python": platform.python_version()}
+    for package in ("tradewise", "pymoo", "moocore", "numpy", "pandas"):
+        try:
+            versions[package] = metadata.version(package)
+        except metadata.PackageNotFoundError:
+            versions[package] = "unknown"
+    return versions
+
+
+# ------------------------------------------------------------------------------------------ study
+def run_study(
+    case: Case | str | Path,
+    *,
+    seed: int | None = None,
+    evaluations: int | None = None,
+    generations: int | None = None,
+    population: int | None = None,
+    time_limit: float | None = None,
+    store: str | Path | None = None,
+    workers: int | None = None,
+    dask: bool = False,
+    scheduler: str | None = None,
+    executor: InProcess | None = None,
+    progress: Callable[[dict[str, Any]], None] | None = None,
+    on_evaluation: Callable[[dict[str, Any]], None] | None = None,
+) -> StudyResult:
+    """Search a case for its Pareto front.
+
+    Parameters
+    ----------
+    case : Case, str or Path
+        A loaded case, a case folder or ``case.toml``, or a bundled case name.
+    seed, evaluations, generations, population, time_limit :
+        Override the case's ``[search]`` settings; ``None`` keeps them.
+    store : str or Path, optional
+        The SQLite archive to write every evaluation to (and to serve already
+        evaluated designs of the same case from). Without it nothing is written.
+    workers, dask, scheduler :
+        Where evaluations run: ``workers > 1`` a local process pool, ``dask``
+        a local Dask cluster, ``scheduler`` an existing Dask scheduler.
+    executor : optional
+        An executor object from :mod:`tradewise.executors`, instead of the above.
+    progress : callable, optional
+        Called with each generation's history row.
+    on_evaluation : callable, optional
+        Called with each evaluation's record as it completes.
+
+    Returns
+    -------
+    StudyResult
+        Running out of budget is a status, not an error.
+
+    Raises
+    ------
+    ModelError
+        When every design of the first generation fails (quoting the first message).
+
+    Examples
+    --------
+    >>> result = run_study("heat-sink", evaluations=300, seed=2)   # doctest: +SKIP
+    >>> result.status                                              # doctest: +SKIP
+    'budget'
+    """
+    if not isinstance(case, Case):
+        case = load_case(case)
+    case = case.with_search(
+        seed=seed, evaluations=evaluations, generations=generations, population=population, time_limit=time_limit
+    )
+    own_executor = executor is None
+    executor = executor or make_executor(workers, dask=dask, scheduler=scheduler)
+    archive = open_store(store) if store is not None else None
+    try:
+        run_id = None
+        if archive is not None:
+            run_id = archive.start_run(
+                case_hash=case.hash,
+                case_title=case.title,
+                case_path=str(case.path),
+                case_text=case.text,
+                settings=case.search.as_dict(),
+                seed=case.search.seed,
+                versions=_versions(),
+            )
+        run = _Run(case, archive, run_id)
+        space = Space(case)
+        algorithm, name = _make_algorithm(case, space, case.search.population, case.search.seed)
+        algorithm.setup(_problem(case, space), termination=NoTermination(), seed=case.search.seed, verbose=False)
+        return _loop(run, algorithm, name, space, executor, progress, on_evaluation, started=time.time())
+    finally:
+        if own_executor:
+            executor.close()
+        if archive is not None:
+            archive.close()
+
+
+def resume_study(
+    store: str | Path,
+    *,
+    run_id: int | None = None,
+    evaluations: int | None = None,
+    case: Case | str | Path | None = None,
+    workers: int | None = None,
+    dask: bool = False,
+    scheduler: str | None = None,
+    progress: Callable[[dict[str, Any]], None] | None = None,
+    on_evaluation: Callable[[dict[str, Any]], None] | None = None,
+) -> StudyResult:
+    """Continue an interrupted run (or extend a finished one) from its archive.
+
+    The search state saved at the last completed generation is restored, with
+    its random state, so the continuation proposes the designs the
+    uninterrupted run would have; designs the archive already holds for this
+    case are served from it, never evaluated again.
+
+    Parameters
+    ----------
+    store : str or Path
+        The archive file.
+    run_id : int, optional
+        Which run (default: the latest in the file).
+    evaluations : int, optional
+        New total evaluation budget (default: the run's own).
+    case : optional
+        The case to use; by default the case file recorded with the run is
+        reloaded, and it must still have the recorded hash.
+    """
+    path = Path(store)
+    archive = open_store(path, create=False)
+    try:
+        run_id = run_id if run_id is not None else archive.latest_run()
+        record = archive.run(run_id)
+        if case is None:
+            case_path = Path(record["case_path"])
+            if not case_path.exists():
+                raise StoreError(f"{path}: run {run_id}'s case file {case_path} no longer exists; pass the case")
+            case = load_case(case_path)
+        elif not isinstance(case, Case):
+            case = load_case(case)
+        if case.hash != record["case_hash"]:
+            raise StoreError(
+                f"{path}: run {run_id} belongs to case {record['case_title']!r} (hash {record['case_hash']}), "
+                f"not to {case.path} (hash {case.hash}); the case or its model changed"
+            )
+        settings = dict(record["settings"])
+        if evaluations is not None:
+            settings["evaluations"] = evaluations
+        case = case.with_search(**{k: v for k, v in settings.items() if v is not None})
+        saved = archive.state(run_id)
+        if saved is None:
+            raise StoreError(f"{path}: run {run_id} has no saved search state (it stopped before its first generation)")
+        _, blob = saved
+        algorithm = pickle.loads(blob)
+        space = Space(case)
+        algorithm.repair.space = space
+        run = _Run(case, archive, run_id)
+        _restore(run, archive, run_id, record)
+        archive.update_run(run_id, status="running", message="resumed", settings=case.search.as_dict())
+        executor = make_executor(workers, dask=dask, scheduler=scheduler)
+        try:
+            return _loop(run, algorithm, "NSGA-II" if len(case.objectives) <= 3 else "NSGA-III", space, executor,
+                         progress, on_evaluation, started=record["started"] or time.time())
+        finally:
+            executor.close()
+    finally:
+        archive.close()
+
+
+def _restore(run: _Run, archive: Store, run_id: int, record: dict[str, Any]) -> None:
+    """Rebuild the bookkeeping of a run from its archive rows."""
+    table = archive.evaluations(run_id)
+    case = run.case
+    names = case.variable_names
+    for row in table.to_dict("records"):
+        design = {n: _native(row[n]) for n in names}
+        key = design_key(design)
+        results = {k: _native(row[k]) for k in row if k not in design and k not in _EVAL_COLUMNS and not _missing(row[k])}
+        outcome = {"status": row["status"], "results": results, "message": row["message"],
+                   "duration": row["duration"] or 0.0, "worker": row["worker"]}
+        violation = 0.0 if row["status"] == "ok" else _FAILED_PENALTY
+        if row["status"] == "ok":
+            violation = sum(c.violation(results[c.name]) for c in case.constraints)
+        run.records.append({"eval_id": row["eval_id"], "generation": row["generation"], "status": row["status"],
+                            "feasible": row["status"] == "ok" and violation == 0.0, "violation": violation,
+                            "cached": bool(row["cached"]), "message": row["message"],
+                            "duration": row["duration"], "worker": row["worker"], **design, **results})
+        if row["cached"]:
+            run.n_cached += 1
+        else:
+            run.n_evals += 1
+            run.memo[key] = {**outcome, "eval_id": row["eval_id"]}
+            if row["status"] != "ok":
+                run.n_failed += 1
+                run.first_failure = run.first_failure or row["message"]
+    run.update_front(list(range(len(run.records))))
+    if record.get("reference"):
+        run.reference = np.asarray(record["reference"]["point"], dtype=float)
+        run.reference_source = record["reference"]["source"]
+    history = archive.history(run_id)
+    run.history = history.to_dict("records") if len(history) else []
+
+
+_EVAL_COLUMNS = {"eval_id", "run_id", "generation", "status", "message", "duration", "worker", "cached"}
+
+
+def _missing(value: Any) -> bool:
+    return value is None or (isinstance(value, float) and math.isnan(value))
+
+
+def _native(value: Any) -> Any:
+    if isinstance(value, np.generic):
+        value = value.item()
+    return value
+
+
+def _loop(run: _Run, algorithm, algorithm_name: str, space: Space, executor: InProcess,
+          progress, on_evaluation, *, started: float) -> StudyResult:
+    case, settings = run.case, run.case.search
+    problem = algorithm.problem
+    n_obj = len(case.objectives)
+    generation = len(run.history)
+    idle = 0
+    status = ""
+    clock = time.monotonic() - (time.time() - started)
+    try:
+        while True:
+            elapsed = time.monotonic() - clock
+            if run.n_evals >= settings.evaluations:
+                status = "budget"
+            elif settings.generations is not None and generation >= settings.generations:
+                status = "generations"
+            elif settings.time_limit is not None and elapsed >= settings.time_limit:
+                status = "time_limit"
+            elif _stalled(run.history, settings.stall_generations, settings.stall_tolerance):
+                status = "stalled"
+            elif idle >= _EXHAUSTED_AFTER or run.n_evals >= space.size:
+                status = "exhausted"
+            if status:
+                break
+            pop = algorithm.ask()
+            if pop is None or len(pop) == 0:
+                status = "exhausted"
+                break
+            generation += 1
+            X = space.repair(pop.get("X"))
+            pop.set("X", X)
+            designs = [space.decode(x) for x in X]
+            keys = [design_key(d) for d in designs]
+
+            # Which designs are new: not in this run's memo, not in the archive for this case.
+            known = {k for k in keys if k in run.memo}
+            unknown = [k for k in dict.fromkeys(keys) if k not in known]
+            archived = run.store.lookup(case.hash, unknown) if run.store is not None and unknown else {}
+            fresh = [k for k in unknown if k not in archived]
+            room = settings.evaluations - run.n_evals
+            if len(fresh) > room:
+                allowed = set(fresh[:room])
+                keep = [i for i, k in enumerate(keys) if k in known or k in archived or k in allowed]
+                pop = pop[keep]
+                designs = [designs[i] for i in keep]
+                keys = [keys[i] for i in keep]
+                fresh = fresh[:room]
+            first_new = len(run.records)
+
+            outcomes: dict[str, Any] = {}
+            for key in dict.fromkeys(keys):
+                if key in run.memo:
+                    outcomes[key] = run.memo[key]
+                elif key in archived:
+                    outcomes[key] = archived[key]
+            # Served from the memo or the archive: recorded as cached rows, not evaluated again.
+            for key, outcome in list(outcomes.items()):
+                design = designs[keys.index(key)]
+                row = run.record(design, key, outcome, generation, cached=True, source_id=outcome["eval_id"])
+                if key in archived and key not in run.memo:
+                    run.memo[key] = {**outcome}
+                if on_evaluation:
+                    on_evaluation(row)
+            positions = {k: keys.index(k) for k in fresh}
+            batch = [designs[positions[k]] for k in fresh]
+            for i, outcome in executor.run(_model_for(run), batch):
+                key = fresh[i]
+                row = run.record(batch[i], key, outcome, generation, cached=False)
+                outcomes[key] = run.memo[key]
+                if on_evaluation:
+                    on_evaluation(row)
+            if run.store is not None:
+                run.store.flush()
+
+            F = np.zeros((len(keys), n_obj))
+            G = np.zeros((len(keys), len(case.constraints) + 1))
+            for r, key in enumerate(keys):
+                outcome = outcomes[key]
+                if outcome["status"] != "ok":
+                    G[r, -1] = _FAILED_PENALTY
+                    continue
+                results = outcome["results"]
+                for j, o in enumerate(case.objectives):
+                    F[r, j] = -results[o.name] if o.maximise else results[o.name]
+                for j, c in enumerate(case.constraints):
+                    G[r, j] = c.violation(results[c.name])
+            algorithm.evaluator.eval(StaticProblem(problem, F=F, G=G), pop)
+            algorithm.tell(infills=pop)
+
+            new_rows = list(range(first_new, len(run.records)))
+            if generation == 1 and new_rows and all(run.records[i]["status"] != "ok" for i in new_rows):
+                message = (
+                    f"every design of the first generation failed ({len(new_rows)} of {len(new_rows)}); "
+                    f"first error: {run.first_failure}"
+                )
+                if run.store is not None:
+                    run.store.update_run(run.run_id, status="failed", message=message, finished=time.time())
+                raise ModelError(message)
+            had_reference = run.reference is not None
+            run.update_front(new_rows)
+            if run.store is not None and run.reference is not None and not had_reference:
+                run.store.update_run(
+                    run.run_id, reference={"point": run.reference.tolist(), "source": run.reference_source}
+                )
+            idle = idle + 1 if not fresh else 0
+            n_feasible = sum(1 for i in new_rows if run.records[i]["feasible"])
+            row = {
+                "generation": generation,
+                "evaluations": run.n_evals,
+                "new": len(fresh),
+                "cached": len(new_rows) - len(fresh),
+                "failed": run.n_failed,
+                "feasible_share": n_feasible / len(new_rows) if new_rows else 0.0,
+                "front_size": len(run.front_rows),
+                "hypervolume": run.hypervolume(),
+                "elapsed_s": round(time.monotonic() - clock, 3),
+            }
+            run.history.append(row)
+            if run.store is not None:
+                run.store.add_generation(run.run_id, row, state=pickle.dumps(algorithm))
+            if progress:
+                progress(row)
+    except KeyboardInterrupt:
+        status = "interrupted"
+    return _finish(run, status, algorithm_name, started)
+
+
+def _model_for(run: _Run):
+    model = getattr(run, "_model", None)
+    if model is None:
+        model = make_model(run.case)
+        if hasattr(model, "load"):
+            model.load()  # import errors surface once, before any evaluation
+        run._model = model
+    return model
+
+
+def _stalled(history: list[dict[str, Any]], window: int, tolerance: float) -> bool:
+    if window <= 0 or len(history) <= window:
+        return False
+    now, then = history[-1]["hypervolume"], history[-1 - window]["hypervolume"]
+    if now <= 0:
+        return False
+    return (now - then) <= tolerance * abs(now)
+
+
+def _finish(run: _Run, status: str, algorithm_name: str, started: float) -> StudyResult:
+    case = run.case
+    records = pd.DataFrame.from_records(run.records)
+    columns = _ordered_columns(case, records)
+    evaluations = records[columns] if len(records) else records
+    history = pd.DataFrame.from_records(run.history)
+    hv = run.hypervolume()
+    meta = {
+        "title": case.title,
+        "description": case.description,
+        "cautions": case.cautions,
+        "case_file": case.path.name,
+        "case_hash": case.hash,
+        "algorithm": algorithm_name,
+        "status": status,
+        "stop_reason": STATUS_TEXT.get(status, status),
+        "seed": case.search.seed,
+        "settings": case.search.as_dict(),
+        "versions": _versions(),
+        "n_evals": run.n_evals,
+        "n_gen": len(run.history),
+        "n_failed": run.n_failed,
+        "n_cached": run.n_cached,
+        "reference_source": run.reference_source,
+        "started": started,
+        "finished": time.time(),
+        "design_space": [
+            {"name": v.name, "type": v.kind, "low": v.low, "high": v.high, "options": list(v.options), "unit": v.unit}
+            for v in case.variables
+        ],
+        "constraint_limits": [
+            {"name": c.name, "min": c.min, "max": c.max, "unit": c.unit} for c in case.constraints
+        ],
+    }
+    front_table = records.iloc[run.front_rows][columns] if run.front_rows else records.iloc[0:0].reindex(columns=columns)
+    front_table = front_table.drop(columns=[c for c in ("cached", "message", "status", "feasible", "violation", "worker")
+                                            if c in front_table.columns])
+    units = case.units
+    front = Front.from_table(
+        front_table, case.objectives, units=units, variables=case.variable_names,
+        constraints=case.constraint_names, reference=run.reference, meta=meta,
+    ) if len(front_table) else Front(
+        table=front_table.reset_index(drop=True), objectives=case.objectives, units=units,
+        variables=tuple(case.variable_names), constraints=tuple(case.constraint_names),
+        reference=tuple(run.reference) if run.reference is not None else None, meta=meta,
+    )
+    least = None
+    parts = [f"Stopped after {run.n_evals} evaluations in {len(run.history)} generations: "
+             f"{STATUS_TEXT.get(status, status)}."]
+    if run.n_failed:
+        parts.append(f"{run.n_failed} evaluation(s) failed (first: {run.first_failure}).")
+    if len(front):
+        parts.append(f"Front of {len(front)} designs, hypervolume {hv:.6g}.")
+    else:
+        ok = records[records["status"] == "ok"] if len(records) else records
+        parts.append("No feasible design was found" + (": " + _violation_summary(case, ok) if len(ok) else "; no design evaluated successfully."))
+        if len(ok):
+            least = ok.sort_values("violation").drop_duplicates(subset=case.variable_names).head(20)[columns]
+    message = " ".join(parts)
+    if run.store is not None:
+        run.store.update_run(run.run_id, status=status, message=message, finished=time.time())
+    return StudyResult(
+        status=status,
+        message=message,
+        front=front,
+        evaluations=evaluations.reset_index(drop=True),
+        history=history,
+        n_evals=run.n_evals,
+        n_gen=len(run.history),
+        hypervolume=hv,
+        seed=case.search.seed,
+        case=case,
+        store_path=run.store.path if run.store is not None else None,
+        run_id=run.run_id,
+        reference=tuple(float(r) for r in run.reference) if run.reference is not None else None,
+        n_failed=run.n_failed,
+        n_cached=run.n_cached,
+        least_infeasible=least,
+        meta=meta,
+    )
+
+
+def _violation_summary(case: Case, ok: pd.DataFrame) -> str:
+    """Name the constraints broken most often and the least amount each was missed by."""
+    lines = []
+    for c in case.constraints:
+        values = ok[c.name].astype(float)
+        shortfall = pd.Series(0.0, index=values.index)
+        if c.min is not None:
+            shortfall = shortfall + (c.min - values).clip(lower=0)
+        if c.max is not None:
+            shortfall = shortfall + (values - c.max).clip(lower=0)
+        broken = shortfall > 0
+        if broken.any():
+            unit = f" {c.unit}" if c.unit else ""
+            lines.append((broken.mean(), f"{c.describe()} broken by {broken.mean():.0%} of designs, "
+                                          f"missed by {shortfall[broken].min():.4g}{unit} at best"))
+    lines.sort(key=lambda item: -item[0])
+    return "; ".join(text for _, text in lines[:3]) + "."
+
+
+def _ordered_columns(case: Case, records: pd.DataFrame) -> list[str]:
+    first = ["eval_id", "generation"]
+    named = case.variable_names + case.objective_names + case.constraint_names
+    tail = ["feasible", "violation", "status", "cached", "duration", "worker", "message"]
+    outputs = [c for c in records.columns if c not in set(first) | set(named) | set(tail)]
+    return [c for c in first + named + outputs + tail if c in records.columns]
+
+
+# ------------------------------------------------------------------------------------------ files
+def save_run(result: StudyResult, folder: str | Path) -> dict[str, Path]:
+    """Write a run folder: ``front.csv``, ``front.json`` and ``history.csv``.
+
+    When no feasible design was found, ``least_infeasible.csv`` is written
+    instead of an empty front, and ``front.json`` says so.
+    """
+    folder = Path(folder)
+    folder.mkdir(parents=True, exist_ok=True)
+    written: dict[str, Path] = {}
+    meta = dict(result.front.meta)
+    meta.update({"message": result.message, "hypervolume": result.hypervolume,
+                 "store": result.store_path.name if result.store_path else None, "run_id": result.run_id})
+    front = Front(
+        table=result.front.table, objectives=result.front.objectives, units=result.front.units,
+        variables=result.front.variables, constraints=result.front.constraints,
+        reference=result.front.reference, meta=meta,
+    )
+    if len(front):
+        written["front"], written["meta"] = front.to_csv(folder / "front.csv")
+    else:
+        stale = folder / "front.csv"
+        if stale.exists():
+            stale.unlink()
+        meta_path = folder / "front.json"
+        meta_path.write_text(json.dumps(front.metadata() | {"feasible": False}, indent=2, default=str) + "\n",
+                             encoding="utf-8")
+        written["meta"] = meta_path
+        if result.least_infeasible is not None:
+            path = folder / "least_infeasible.csv"
+            result.least_infeasible.to_csv(path, index=False)
+            written["least_infeasible"] = path
+    path = folder / "history.csv"
+    result.history.to_csv(path, index=False)
+    written["history"] = path
+    return written
