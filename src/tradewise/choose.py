@@ -1,0 +1,975 @@
+"""Choosing designs from a front: knee and compromise methods, and limits applied before them."""
+
+from __future__ import annotations
+
+import difflib
+import math
+import re
+import warnings
+from collections.abc import Iterable, Mapping, Sequence
+from dataclasses import dataclass
+
+import numpy as np
+import pandas as pd
+
+from tradewise.errors import DataError
+from tradewise.front import Front, column_header, tradeoff_rates
+
+__all__ = [
+    "METHODS",
+    "KNEE_METHODS",
+    "WEIGHTED_METHODS",
+    "NonConvexWarning",
+    "Limit",
+    "parse_limit",
+    "parse_values",
+    "apply_limits",
+    "normalised",
+    "knee_distance",
+    "tradeoff_measure",
+    "kneedle",
+    "pseudo_weights",
+    "asf",
+    "topsis",
+    "weighted_sum",
+    "supported",
+    "scores",
+    "choose",
+    "all_picks",
+    "knee_agreement",
+    "agreeing_groups",
+    "objective_ranks",
+    "describe_choice",
+]
+
+#: Every method :func:`choose` knows, with a one-line description for users.
+METHODS: dict[str, str] = {
+    "knee": "the design farthest on the ideal side of the plane through the extreme designs "
+    "(normalised objectives; Das 1999, Branke et al. 2004)",
+    "tradeoff": "the design that loses most per unit gained when moving to any other design "
+    "(trade-off measure of Rachmawati and Srinivasan 2009, normalised objectives)",
+    "kneedle": "the confirmed peak of the Kneedle difference curve, two objectives only "
+    "(Satopaa et al. 2011)",
+    "pseudo-weights": "the design whose pseudo-weights are closest to the given weights "
+    "(Deb 2001)",
+    "asf": "the design nearest the target by the achievement scalarizing function, "
+    "weight = importance (Wierzbicki 1980)",
+    "topsis": "closest to the best and farthest from the worst value of every objective "
+    "(TOPSIS, Hwang and Yoon 1981)",
+    "weighted-sum": "smallest weighted sum of normalised objectives; it cannot reach "
+    "designs in non-convex parts of the front",
+}
+
+#: The methods that look for knees and need no preferences.
+KNEE_METHODS = ("knee", "tradeoff", "kneedle")
+#: The methods that take weights (one per objective; weight = importance).
+WEIGHTED_METHODS = ("pseudo-weights", "asf", "topsis", "weighted-sum")
+
+_ASF_RHO = 1e-6
+
+
+class NonConvexWarning(UserWarning):
+    """A weighted sum was asked to choose on a front that it cannot fully reach."""
+
+
+# --------------------------------------------------------------------------- limits
+@dataclass(frozen=True)
+class Limit:
+    """A bound on one column of a front, such as ``mass <= 12``.
+
+    ``op`` is one of ``<=``, ``>=``, ``<``, ``>`` and ``==``. A design whose
+    value is missing fails the limit.
+    """
+
+    column: str
+    op: str
+    value: float
+
+    def __str__(self) -> str:
+        return f"{self.column} {self.op} {self.value:g}"
+
+    def holds(self, values: np.ndarray) -> np.ndarray:
+        """Boolean mask of the ``values`` that keep within the limit."""
+        with np.errstate(invalid="ignore"):
+            return np.asarray(_OPS[self.op](np.asarray(values, dtype=float), self.value), dtype=bool)
+
+
+_OPS = {
+    "<=": np.less_equal,
+    ">=": np.greater_equal,
+    "<": np.less,
+    ">": np.greater,
+    "==": np.equal,
+}
+_LIMIT = re.compile(r"^\s*(?P<column>[^<>=]+?)\s*(?P<op><=|>=|==|=|<|>)\s*(?P<value>[^<>=]*?)\s*$")
+_UNIT_SUFFIX = re.compile(r"\s*\[[^\[\]]*\]$")
+
+
+def parse_limit(text: str) -> Limit:
+    """Read a limit such as ``"mass <= 12"`` or ``"range>=40"``.
+
+    A unit written after the column name (``"mass [g] <= 12"``) is dropped.
+
+    Raises
+    ------
+    DataError
+        When the text is not ``COLUMN OP NUMBER`` with ``OP`` one of
+        ``<=``, ``>=``, ``<``, ``>``, ``=``.
+
+    Examples
+    --------
+    >>> print(parse_limit("mass<=12"))
+    mass <= 12
+    """
+    if isinstance(text, Limit):
+        return text
+    match = _LIMIT.match(str(text))
+    if not match:
+        raise DataError(
+            f"limit {text!r}: expected COLUMN OP NUMBER with OP one of <=, >=, <, >, = (for example 'mass <= 12')"
+        )
+    column = _UNIT_SUFFIX.sub("", match["column"]).strip()
+    try:
+        value = float(match["value"])
+    except ValueError:
+        value = math.nan
+    if not math.isfinite(value):
+        raise DataError(f"limit {text!r}: the bound {match['value']!r} is not a finite number")
+    op = "==" if match["op"] == "=" else match["op"]
+    return Limit(column, op, value)
+
+
+def parse_values(text: str | Mapping[str, float] | None, *, what: str) -> dict[str, float]:
+    """Read ``"cost=2,mass=1"`` into ``{"cost": 2.0, "mass": 1.0}``.
+
+    ``what`` names the option in error messages (``"weights"``, ``"target"``).
+    A mapping is passed through after checking that its values are numbers.
+    """
+    if text is None:
+        return {}
+    if isinstance(text, Mapping):
+        items = list(text.items())
+    else:
+        items = []
+        for part in str(text).split(","):
+            if not part.strip():
+                continue
+            name, sep, value = part.partition("=")
+            if not sep or not name.strip():
+                raise DataError(f"{what} {text!r}: expected NAME=NUMBER pairs separated by commas, got {part.strip()!r}")
+            items.append((_UNIT_SUFFIX.sub("", name.strip()), value.strip()))
+    values: dict[str, float] = {}
+    for name, value in items:
+        try:
+            number = float(value)
+        except (TypeError, ValueError):
+            number = math.nan
+        if not math.isfinite(number):
+            raise DataError(f"{what}: the value {value!r} for {name!r} is not a finite number")
+        values[str(name)] = number
+    return values
+
+
+def apply_limits(front: Front, limits: Iterable[Limit | str]) -> Front:
+    """The designs of ``front`` that meet every limit, as a new front.
+
+    Parameters
+    ----------
+    front : Front
+        Any front; limits may name objectives, variables, constraints or other
+        numeric columns.
+    limits : iterable of Limit or str
+        Limits such as ``"mass <= 12"``.
+
+    Raises
+    ------
+    DataError
+        When a limit is malformed, names an unknown column, or names a column
+        that holds text.
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> from tradewise.case import Objective
+    >>> table = pd.DataFrame({"cost": [1.0, 2.0, 3.0], "mass": [3.0, 2.0, 1.0]})
+    >>> front = Front.from_table(table, [Objective("cost"), Objective("mass")])
+    >>> len(apply_limits(front, ["mass <= 2"]))
+    2
+    """
+    mask = _limit_mask(front, limits)
+    return front.with_table(front.table.loc[mask])
+
+
+def _limit_mask(front: Front, limits: Iterable[Limit | str]) -> np.ndarray:
+    mask = np.ones(len(front), dtype=bool)
+    for limit in limits:
+        limit = parse_limit(limit)
+        if limit.column not in front.table.columns:
+            close = difflib.get_close_matches(limit.column, [str(c) for c in front.table.columns], n=1)
+            hint = f" (did you mean {close[0]!r}?)" if close else ""
+            raise DataError(
+                f"limit '{limit}': no column {limit.column!r} in the front{hint}; "
+                f"columns: {', '.join(map(str, front.table.columns))}"
+            )
+        raw = front.table[limit.column]
+        values = pd.to_numeric(raw, errors="coerce")
+        text = values.isna() & raw.notna()
+        if text.any():
+            row = int(np.flatnonzero(text.to_numpy())[0])
+            raise DataError(
+                f"limit '{limit}': column {limit.column!r} holds {raw.iloc[row]!r} in row {row + 1}, not a number"
+            )
+        mask &= limit.holds(values.to_numpy(dtype=float, na_value=np.nan))
+    return mask
+
+
+# --------------------------------------------------------------------------- scaling
+def normalised(front: Front) -> np.ndarray:
+    """The objectives of ``front`` turned into minimisation and scaled to [0, 1] over the front.
+
+    0 is the best value on the front (the ideal point) and 1 the worst (the
+    nadir point); maximised objectives are flipped. An objective with one
+    value on the whole front becomes 0.
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> from tradewise.case import Objective
+    >>> table = pd.DataFrame({"cost": [10.0, 20.0], "range": [30.0, 50.0]})
+    >>> front = Front.from_table(table, [Objective("cost"), Objective("range", "max")])
+    >>> normalised(front).tolist()
+    [[0.0, 1.0], [1.0, 0.0]]
+    """
+    scaled, _, _ = _scaled(front)
+    return scaled
+
+
+def _scaled(front: Front) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """(normalised F, ideal, nadir), ideal and nadir in the user's units and senses."""
+    points = front.points()
+    flip = np.asarray(front.maximise, dtype=bool)
+    if len(points) == 0:
+        width = len(front.objectives)
+        return np.empty((0, width)), np.full(width, np.nan), np.full(width, np.nan)
+    low, high = points.min(axis=0), points.max(axis=0)
+    ideal = np.where(flip, high, low)
+    nadir = np.where(flip, low, high)
+    return _to_unit(points, ideal, nadir), ideal, nadir
+
+
+def _to_unit(values: np.ndarray, ideal: np.ndarray, nadir: np.ndarray) -> np.ndarray:
+    span = nadir - ideal  # negative for maximised objectives, which flips them
+    safe = np.where(span == 0, 1.0, span)
+    return np.where(span == 0, 0.0, (values - ideal) / safe) + 0.0  # no -0.0 from flipped columns
+
+
+# --------------------------------------------------------------------------- array methods
+def knee_distance(points: np.ndarray) -> np.ndarray:
+    """Signed distance of each point from the plane through the extreme points.
+
+    The extreme point of an objective is the point best in it (ties go to the
+    smallest sum of the others). With ``M`` objectives the ``M`` extreme points
+    span a plane ``n . f = 1``; the distance is ``(1 - n . f) / |n|``, positive
+    on the side of the ideal point. The knee is the point with the largest
+    distance (Das 1999; Branke et al. 2004; used as a knee definition by
+    Zhang, Tian and Jin 2015). When the extreme points do not span a plane with
+    positive intercepts, the plane ``sum(f) = 1`` is used instead.
+
+    Parameters
+    ----------
+    points : (n, M) array
+        Normalised objectives, all minimised (see :func:`normalised`).
+
+    Returns
+    -------
+    numpy.ndarray
+        One distance per point; all are zero or negative on a front that bulges
+        away from the ideal point (no knee).
+
+    References
+    ----------
+    Das, I. (1999). On characterizing the "knee" of the Pareto curve based on
+    normal-boundary intersection. Structural Optimization 18:107-115.
+    Branke, J., Deb, K., Dierolf, H., Osswald, M. (2004). Finding knees in
+    multi-objective optimization. PPSN VIII, LNCS 3242, pp. 722-731.
+
+    Examples
+    --------
+    >>> knee_distance(np.array([[0, 1], [0.2, 0.3], [1, 0]])).round(4).tolist()
+    [0.0, 0.3536, 0.0]
+    """
+    points = np.asarray(points, dtype=float)
+    n, m = points.shape
+    normal = np.ones(m)
+    if n >= m:
+        others = points.sum(axis=1)
+        extremes = np.array(
+            [np.lexsort((others - points[:, j], points[:, j]))[0] for j in range(m)]
+        )
+        if len(set(extremes.tolist())) == m:
+            try:
+                candidate = np.linalg.solve(points[extremes], np.ones(m))
+            except np.linalg.LinAlgError:
+                candidate = None
+            if candidate is not None and np.all(np.isfinite(candidate)) and np.all(candidate > 0):
+                normal = candidate
+    return (1.0 - points @ normal) / np.linalg.norm(normal)
+
+
+def tradeoff_measure(points: np.ndarray, *, radius: float | None = None) -> np.ndarray:
+    """The trade-off measure mu of each point (Rachmawati and Srinivasan 2009).
+
+    Moving from point ``i`` to a neighbour ``j`` loses
+    ``sum_m max(0, f_m(j) - f_m(i))`` and gains ``sum_m max(0, f_m(i) - f_m(j))``;
+    ``T(i, j)`` is loss over gain, and ``mu(i)`` is the least ``T(i, j)`` over the
+    neighbours. A large ``mu`` means every move away from ``i`` costs much more
+    than it brings: a knee. The measure depends on scaling, so pass normalised
+    objectives.
+
+    Parameters
+    ----------
+    points : (n, M) array
+        Normalised objectives, all minimised.
+    radius : float, optional
+        Neighbours are the points within this distance, and at least the
+        ``2 M`` nearest (the neighbourhood pymoo's ``HighTradeoffPoints`` uses
+        with radius 0.125). By default every other point is a neighbour.
+
+    Returns
+    -------
+    numpy.ndarray
+        mu per point; ``nan`` where no neighbour offers any gain.
+
+    References
+    ----------
+    Rachmawati, L., Srinivasan, D. (2009). Multiobjective evolutionary
+    algorithm with controllable focus on the knees of the Pareto front. IEEE
+    Transactions on Evolutionary Computation 13(4):810-824.
+
+    Examples
+    --------
+    >>> F = np.array([[0, 1], [0.1, 0.5], [0.2, 0.3], [0.5, 0.1], [1, 0]])
+    >>> tradeoff_measure(F).round(4).tolist()
+    [0.2, 0.5, 1.5, 0.6667, 0.2]
+    """
+    points = np.asarray(points, dtype=float)
+    n, m = points.shape
+    mu = np.full(n, np.nan)
+    n_min = min(2 * m, n - 1)
+    chunk = max(1, 4_000_000 // max(n * m, 1))
+    for start in range(0, n, chunk):
+        block = points[start : start + chunk]
+        diff = points[None, :, :] - block[:, None, :]  # (b, n, m): from block row i to point j
+        loss = np.maximum(diff, 0.0).sum(axis=2)
+        gain = np.maximum(-diff, 0.0).sum(axis=2)
+        with np.errstate(divide="ignore", invalid="ignore"):
+            ratio = np.where(gain > 0, loss / np.where(gain > 0, gain, 1.0), np.inf)
+        if radius is not None:
+            dist = np.sqrt((diff**2).sum(axis=2))
+            rows = np.arange(len(block))
+            dist[rows, start + rows] = np.inf  # a point is not its own neighbour
+            near = dist <= radius
+            if n_min > 0:
+                nearest = np.argsort(dist, axis=1, kind="stable")[:, :n_min]
+                near[rows[:, None], nearest] = True
+            ratio = np.where(near, ratio, np.inf)
+        best = ratio.min(axis=1)
+        mu[start : start + len(block)] = np.where(np.isfinite(best), best, np.nan)
+    return mu
+
+
+def kneedle(points: np.ndarray, *, sensitivity: float = 1.0) -> tuple[np.ndarray, np.ndarray]:
+    """Kneedle on a two-objective front (Satopaa, Albrecht, Irwin and Raghavan 2011).
+
+    The front is read as a curve of the second objective against the first,
+    both normalised and minimised, so it is convex and decreasing. Its
+    difference curve is ``y_d = (1 - y) - x``; every local maximum of ``y_d``
+    is a candidate, and it is confirmed as a knee when ``y_d`` drops below
+    ``y_d(max) - sensitivity * mean(dx)`` before the next local maximum (the
+    paper's offline form, without smoothing).
+
+    Parameters
+    ----------
+    points : (n, 2) array
+        Normalised objectives, both minimised.
+    sensitivity : float
+        The paper's ``S``; larger values confirm fewer knees.
+
+    Returns
+    -------
+    difference : numpy.ndarray
+        ``y_d`` for each point, in the order given.
+    knees : numpy.ndarray
+        Positions of the confirmed knees, in order of increasing first objective.
+
+    References
+    ----------
+    Satopaa, V., Albrecht, J., Irwin, D., Raghavan, B. (2011). Finding a
+    "Kneedle" in a haystack: detecting knee points in system behavior. 31st
+    ICDCS Workshops, pp. 166-171.
+
+    Examples
+    --------
+    >>> F = np.array([[0, 1], [0.1, 0.5], [0.2, 0.3], [0.5, 0.1], [1, 0]])
+    >>> diff, knees = kneedle(F)
+    >>> knees.tolist()
+    [2]
+    """
+    points = np.asarray(points, dtype=float)
+    if points.ndim != 2 or points.shape[1] != 2:
+        raise DataError(f"kneedle works on two objectives, got {points.shape[-1] if points.ndim == 2 else 0}")
+    n = len(points)
+    order = np.lexsort((points[:, 1], points[:, 0]))
+    x, y = points[order, 0], points[order, 1]
+    x = _unit(x)
+    y = _unit(y)
+    curve = (1.0 - y) - x
+    difference = np.empty(n)
+    difference[order] = curve
+    if n < 3:
+        return difference, np.zeros(0, dtype=int)
+    step = float(np.mean(np.diff(x)))
+    peaks = [i for i in range(1, n - 1) if curve[i] > curve[i - 1] and curve[i] >= curve[i + 1]]
+    knees = []
+    for k, peak in enumerate(peaks):
+        threshold = curve[peak] - sensitivity * step
+        stop = peaks[k + 1] if k + 1 < len(peaks) else n
+        if np.any(curve[peak + 1 : stop] < threshold):
+            knees.append(order[peak])
+    return difference, np.asarray(knees, dtype=int)
+
+
+def _unit(values: np.ndarray) -> np.ndarray:
+    low, high = values.min(), values.max()
+    return np.zeros_like(values) if high == low else (values - low) / (high - low)
+
+
+def pseudo_weights(points: np.ndarray) -> np.ndarray:
+    """Pseudo-weight vector of each point (Deb 2001, section 8.4).
+
+    ``w_i = (f_i^max - f_i) / (f_i^max - f_i^min)``, divided by its sum over the
+    objectives: how near each objective is to its best on the set, as shares.
+
+    Parameters
+    ----------
+    points : (n, M) array
+        Objectives, all minimised (any scale: the result does not depend on it).
+
+    References
+    ----------
+    Deb, K. (2001). Multi-Objective Optimization using Evolutionary
+    Algorithms. Wiley.
+
+    Examples
+    --------
+    >>> pseudo_weights(np.array([[0, 1], [0.2, 0.3], [1, 0]])).round(4).tolist()
+    [[1.0, 0.0], [0.5333, 0.4667], [0.0, 1.0]]
+    """
+    points = np.asarray(points, dtype=float)
+    low, high = points.min(axis=0), points.max(axis=0)
+    span = np.where(high > low, high - low, 1.0)
+    share = np.where(high > low, (high - points) / span, 1.0)
+    total = share.sum(axis=1, keepdims=True)
+    m = points.shape[1]
+    return np.where(total > 0, share / np.where(total > 0, total, 1.0), 1.0 / m)
+
+
+def asf(
+    points: np.ndarray,
+    *,
+    target: Sequence[float] | None = None,
+    weights: Sequence[float] | None = None,
+    rho: float = _ASF_RHO,
+) -> np.ndarray:
+    """Augmented achievement scalarizing function (Wierzbicki 1980); smaller is better.
+
+    ``s(f) = max_i w_i (f_i - z_i) + rho * sum_i w_i (f_i - z_i)`` with the
+    target ``z``. **The weights multiply**: a larger weight means the objective
+    matters more and the chosen design comes closer to the target in it.
+    (pymoo's ``ASF`` divides by the weights, the opposite convention.)
+
+    Parameters
+    ----------
+    points : (n, M) array
+        Normalised objectives, all minimised.
+    target : sequence of float, optional
+        The reference point ``z`` on the same scale; default the ideal point 0.
+    weights : sequence of float, optional
+        Importance of each objective; default equal. They are scaled to sum 1.
+    rho : float
+        The augmentation that breaks ties towards Pareto-optimal designs.
+
+    References
+    ----------
+    Wierzbicki, A. P. (1980). The use of reference objectives in
+    multiobjective optimization. In Fandel, G., Gal, T. (eds.) Multiple
+    Criteria Decision Making Theory and Application, Springer, pp. 468-486.
+
+    Examples
+    --------
+    >>> F = np.array([[0, 1], [0.1, 0.5], [0.2, 0.3], [0.5, 0.1], [1, 0]])
+    >>> asf(F, weights=[0.8, 0.2], rho=0).round(4).tolist()
+    [0.2, 0.1, 0.16, 0.4, 0.8]
+    """
+    points = np.asarray(points, dtype=float)
+    m = points.shape[1]
+    z = np.zeros(m) if target is None else np.asarray(target, dtype=float)
+    w = _unit_weights(weights, m)
+    gap = w * (points - z)
+    return gap.max(axis=1) + rho * gap.sum(axis=1)
+
+
+def topsis(
+    values: np.ndarray,
+    *,
+    weights: Sequence[float] | None = None,
+    benefit: Sequence[bool] | None = None,
+) -> np.ndarray:
+    """TOPSIS relative closeness of each alternative (Hwang and Yoon 1981); larger is better.
+
+    Each column is divided by its root sum of squares and multiplied by its
+    weight; the positive ideal takes the best value of each column (largest
+    for a benefit, smallest for a cost) and the negative ideal the worst.
+    ``C = S- / (S+ + S-)`` with ``S+``, ``S-`` the Euclidean distances to them.
+
+    Parameters
+    ----------
+    values : (n, M) array
+        The raw values in their own units (the vector normalisation assumes a
+        meaningful zero).
+    weights : sequence of float, optional
+        Importance of each criterion; default equal; scaled to sum 1.
+    benefit : sequence of bool, optional
+        True where larger is better; default every criterion is a cost.
+
+    References
+    ----------
+    Hwang, C.-L., Yoon, K. (1981). Multiple Attribute Decision Making: Methods
+    and Applications. Lecture Notes in Economics and Mathematical Systems 186,
+    Springer.
+
+    Examples
+    --------
+    >>> X = np.array([[6, 2], [7, 2.75], [10, 3.5]])
+    >>> topsis(X, benefit=[False, True]).round(4).tolist()
+    [0.4889, 0.6121, 0.5111]
+    """
+    values = np.asarray(values, dtype=float)
+    m = values.shape[1]
+    w = _unit_weights(weights, m)
+    good = np.zeros(m, dtype=bool) if benefit is None else np.asarray(benefit, dtype=bool)
+    norm = np.sqrt((values**2).sum(axis=0))
+    scaled = w * values / np.where(norm > 0, norm, 1.0)
+    best = np.where(good, scaled.max(axis=0), scaled.min(axis=0))
+    worst = np.where(good, scaled.min(axis=0), scaled.max(axis=0))
+    s_best = np.sqrt(((scaled - best) ** 2).sum(axis=1))
+    s_worst = np.sqrt(((scaled - worst) ** 2).sum(axis=1))
+    total = s_best + s_worst
+    return np.where(total > 0, s_worst / np.where(total > 0, total, 1.0), 1.0)
+
+
+def weighted_sum(points: np.ndarray, *, weights: Sequence[float] | None = None) -> np.ndarray:
+    """Weighted sum of normalised, minimised objectives; smaller is better.
+
+    A weighted sum only ever picks designs on the convex hull of the front:
+    designs in non-convex (dented) parts cannot be reached by any weights
+    (Das and Dennis 1997). Use :func:`asf` to reach them; :func:`supported`
+    says which designs a weighted sum can pick.
+
+    References
+    ----------
+    Das, I., Dennis, J. E. (1997). A closer look at drawbacks of minimizing
+    weighted sums of objectives for Pareto set generation in multicriteria
+    optimization problems. Structural Optimization 14:63-69 (from memory).
+
+    Examples
+    --------
+    >>> weighted_sum(np.array([[0, 1], [0.2, 0.3], [1, 0]])).round(4).tolist()
+    [0.5, 0.25, 0.5]
+    """
+    points = np.asarray(points, dtype=float)
+    return points @ _unit_weights(weights, points.shape[1])
+
+
+def supported(points: np.ndarray) -> np.ndarray | None:
+    """Which points some weighted sum with non-negative weights can pick.
+
+    Exact for two objectives: point ``i`` is picked by weights ``(w, 1 - w)``
+    when ``w a_j + (1 - w) b_j <= 0`` for every ``j``, with ``a_j``, ``b_j`` the
+    differences to ``j``; the set of such ``w`` is an interval. For three or
+    more objectives the check needs linear programming and is not done:
+    the result is ``None``.
+    """
+    points = np.asarray(points, dtype=float)
+    n, m = points.shape
+    if m != 2:
+        return None
+    tol = 1e-12
+    result = np.zeros(n, dtype=bool)
+    for i in range(n):
+        d = points[i] - points  # w*d0 + (1-w)*d1 <= 0  <=>  w*(d0 - d1) <= -d1
+        slope = d[:, 0] - d[:, 1]
+        bound = -d[:, 1]
+        low, high = 0.0, 1.0
+        pos, neg, flat = slope > tol, slope < -tol, np.abs(slope) <= tol
+        if np.any(flat & (bound < -tol)):
+            continue
+        if pos.any():
+            high = min(high, float(np.min(bound[pos] / slope[pos])))
+        if neg.any():
+            low = max(low, float(np.max(bound[neg] / slope[neg])))
+        result[i] = low <= high + 1e-9
+    return result
+
+
+def _unit_weights(weights: Sequence[float] | None, m: int) -> np.ndarray:
+    if weights is None:
+        return np.full(m, 1.0 / m)
+    w = np.asarray(weights, dtype=float)
+    return w / w.sum()
+
+
+# --------------------------------------------------------------------------- front level
+def scores(
+    front: Front,
+    method: str,
+    *,
+    weights: Mapping[str, float] | None = None,
+    target: Mapping[str, float] | None = None,
+) -> np.ndarray:
+    """One score per design of ``front`` by ``method``; larger means more preferred.
+
+    Where the published quantity is smaller-is-better (ASF, weighted sum, the
+    distance between pseudo-weights and the asked weights) the score is its
+    negative, so every method ranks the same way.
+
+    Parameters
+    ----------
+    front : Front
+        The designs to score (apply limits first, see :func:`apply_limits`).
+    method : str
+        A key of :data:`METHODS`.
+    weights : dict, optional
+        Importance per objective name, for the methods in
+        :data:`WEIGHTED_METHODS`; objectives left out weigh 1. Default equal.
+    target : dict, optional
+        For ``asf`` only: the target value per objective name in the
+        objective's units; objectives left out take their best value on the
+        front. Default the ideal point.
+
+    Warns
+    -----
+    NonConvexWarning
+        For ``weighted-sum`` on a front with designs no weights can reach.
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> from tradewise.case import Objective
+    >>> table = pd.DataFrame({"cost": [10, 12, 15, 20, 30], "mass": [100, 60, 40, 30, 25]})
+    >>> front = Front.from_table(table, [Objective("cost"), Objective("mass")])
+    >>> int(np.argmax(scores(front, "knee")))
+    2
+    """
+    _check_method(method, front, weights=weights, target=target)
+    scaled, ideal, nadir = _scaled(front)
+    if method == "knee":
+        return knee_distance(scaled)
+    if method == "tradeoff":
+        return tradeoff_measure(scaled)
+    if method == "kneedle":
+        return kneedle(scaled)[0]
+    w = _weight_vector(front, weights)
+    if method == "pseudo-weights":
+        return -np.abs(pseudo_weights(scaled) - w / w.sum()).sum(axis=1)
+    if method == "asf":
+        z = _target_vector(front, target, ideal)
+        return -asf(scaled, target=_to_unit(z, ideal, nadir), weights=w)
+    if method == "topsis":
+        return topsis(front.points(), weights=w, benefit=front.maximise)
+    reachable = supported(scaled)
+    if reachable is None:
+        warnings.warn(
+            "weighted sum: designs in non-convex parts of a front cannot be picked by any weights, "
+            "and with three or more objectives tradewise does not check whether this front has such parts",
+            NonConvexWarning,
+            stacklevel=2,
+        )
+    elif not reachable.all():
+        warnings.warn(
+            f"weighted sum: {int((~reachable).sum())} of {len(reachable)} designs lie in non-convex parts "
+            "of the front and no weights can pick them; use 'asf' to reach them",
+            NonConvexWarning,
+            stacklevel=2,
+        )
+    return -weighted_sum(scaled, weights=w)
+
+
+def choose(
+    front: Front,
+    method: str = "knee",
+    *,
+    weights: Mapping[str, float] | None = None,
+    target: Mapping[str, float] | None = None,
+    limits: Iterable[Limit | str] = (),
+    top: int = 1,
+) -> list[int]:
+    """Row positions in ``front.table`` of the ``top`` designs preferred by ``method``.
+
+    Limits are applied first; the method then sees only the designs that meet
+    them (normalisation included). Kneedle ranks its confirmed knees before
+    every other design. Ties keep table order.
+
+    Parameters
+    ----------
+    front : Front
+        The front to choose from.
+    method : str
+        A key of :data:`METHODS`; default ``"knee"``.
+    weights, target : dict, optional
+        See :func:`scores`.
+    limits : iterable of Limit or str
+        Limits such as ``"mass <= 12"``.
+    top : int
+        How many designs to return, best first.
+
+    Raises
+    ------
+    DataError
+        For an unknown method, bad weights or target, a bad limit, or when no
+        design meets the limits.
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> from tradewise.case import Objective
+    >>> table = pd.DataFrame({"cost": [10, 12, 15, 20, 30], "mass": [100, 60, 40, 30, 25]})
+    >>> front = Front.from_table(table, [Objective("cost"), Objective("mass")])
+    >>> choose(front, "asf", weights={"cost": 4, "mass": 1})
+    [1]
+    """
+    if isinstance(top, bool) or not isinstance(top, int | np.integer) or top < 1:
+        raise DataError(f"top: expected a whole number of at least 1, got {top!r}")
+    limits = [parse_limit(limit) for limit in limits]
+    rows = np.flatnonzero(_limit_mask(front, limits))
+    if len(rows) == 0:
+        if limits:
+            raise DataError(
+                f"no design of {len(front)} meets the limits {' and '.join(map(str, limits))}"
+            )
+        raise DataError("the front holds no designs to choose from")
+    sub = front.with_table(front.table.iloc[rows]) if len(rows) < len(front) else front
+    value = np.nan_to_num(
+        scores(sub, method, weights=weights, target=target), nan=-np.inf, posinf=np.inf
+    )
+    order = np.argsort(-value, kind="stable")
+    if method == "kneedle":
+        knees = set(kneedle(normalised(sub))[1].tolist())
+        order = np.concatenate([[k for k in order if k in knees], [k for k in order if k not in knees]]).astype(int)
+    return [int(rows[k]) for k in order[:top]]
+
+
+def all_picks(
+    front: Front,
+    *,
+    weights: Mapping[str, float] | None = None,
+    target: Mapping[str, float] | None = None,
+    limits: Iterable[Limit | str] = (),
+) -> dict[str, int]:
+    """The first choice of every method that applies to ``front`` (method name to row position).
+
+    ``weights`` go to the weighted methods and ``target`` to ``asf``; Kneedle
+    is left out for more than two objectives.
+    """
+    limits = [parse_limit(limit) for limit in limits]
+    picks = {}
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", NonConvexWarning)
+        for method in METHODS:
+            if method == "kneedle" and len(front.objectives) != 2:
+                continue
+            picks[method] = choose(
+                front,
+                method,
+                weights=weights if method in WEIGHTED_METHODS else None,
+                target=target if method == "asf" else None,
+                limits=limits,
+            )[0]
+    return picks
+
+
+def knee_agreement(front: Front, *, limits: Iterable[Limit | str] = ()) -> dict[str, int]:
+    """The knee each knee method finds (method name to row position in ``front.table``).
+
+    Runs ``knee`` and ``tradeoff``, and ``kneedle`` on two objectives. Use
+    :func:`agreeing_groups` to see where they agree.
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> from tradewise.case import Objective
+    >>> table = pd.DataFrame({"cost": [10, 12, 15, 20, 30], "mass": [100, 60, 40, 30, 25]})
+    >>> front = Front.from_table(table, [Objective("cost"), Objective("mass")])
+    >>> knee_agreement(front)
+    {'knee': 2, 'tradeoff': 2, 'kneedle': 2}
+    """
+    limits = [parse_limit(limit) for limit in limits]
+    methods = [m for m in KNEE_METHODS if m != "kneedle" or len(front.objectives) == 2]
+    return {m: choose(front, m, limits=limits)[0] for m in methods}
+
+
+def agreeing_groups(picks: Mapping[str, int]) -> list[tuple[int, list[str]]]:
+    """Group methods by the design they picked, largest group first.
+
+    Examples
+    --------
+    >>> agreeing_groups({"knee": 4, "tradeoff": 7, "kneedle": 4})
+    [(4, ['knee', 'kneedle']), (7, ['tradeoff'])]
+    """
+    groups: dict[int, list[str]] = {}
+    for method, row in picks.items():
+        groups.setdefault(int(row), []).append(method)
+    return sorted(groups.items(), key=lambda item: -len(item[1]))
+
+
+def objective_ranks(front: Front) -> pd.DataFrame:
+    """Rank of each design in each objective, 1 being the best on the front (ties share the best rank)."""
+    ranks = {}
+    for o in front.objectives:
+        ranks[o.name] = (
+            front.table[o.name].astype(float).rank(method="min", ascending=not o.maximise).astype(int)
+        )
+    return pd.DataFrame(ranks, index=front.table.index)
+
+
+# --------------------------------------------------------------------------- checks
+def _check_method(
+    method: str,
+    front: Front,
+    *,
+    weights: Mapping[str, float] | None,
+    target: Mapping[str, float] | None,
+) -> None:
+    if method not in METHODS:
+        raise DataError(f"method {method!r} is not known; choose one of {', '.join(METHODS)}")
+    if method == "kneedle" and len(front.objectives) != 2:
+        raise DataError(
+            f"method 'kneedle' works on two objectives; this front has {len(front.objectives)}"
+        )
+    if weights and method not in WEIGHTED_METHODS:
+        raise DataError(
+            f"method {method!r} takes no weights; weights go with {', '.join(WEIGHTED_METHODS)}"
+        )
+    if target and method != "asf":
+        raise DataError(f"method {method!r} takes no target; a target goes with 'asf'")
+    if len(front) == 0:
+        raise DataError("the front holds no designs to choose from")
+
+
+def _weight_vector(front: Front, weights: Mapping[str, float] | None) -> np.ndarray:
+    weights = parse_values(weights, what="weights")
+    _check_names(front, weights, "weights")
+    w = np.array([weights.get(name, 1.0) for name in front.objective_names], dtype=float)
+    if np.any(w < 0) or w.sum() <= 0:
+        shown = ", ".join(f"{n}={v:g}" for n, v in zip(front.objective_names, w, strict=True))
+        raise DataError(f"weights {shown}: expected numbers of at least 0, not all 0")
+    return w
+
+
+def _target_vector(front: Front, target: Mapping[str, float] | None, ideal: np.ndarray) -> np.ndarray:
+    target = parse_values(target, what="target")
+    _check_names(front, target, "target")
+    return np.array(
+        [target.get(name, ideal[j]) for j, name in enumerate(front.objective_names)], dtype=float
+    )
+
+
+def _check_names(front: Front, values: Mapping[str, float], what: str) -> None:
+    for name in values:
+        if name not in front.objective_names:
+            raise DataError(
+                f"{what}: {name!r} is not an objective of this front; objectives: "
+                f"{', '.join(front.objective_names)}"
+            )
+
+
+# --------------------------------------------------------------------------- words
+def describe_choice(
+    front: Front,
+    rows: Sequence[int],
+    *,
+    method: str,
+    weights: Mapping[str, float] | None = None,
+    target: Mapping[str, float] | None = None,
+    limits: Iterable[Limit | str] = (),
+) -> list[str]:
+    """Plain lines describing the chosen designs, for a terminal or a text report.
+
+    For each design: its objectives with units and rank in each objective,
+    its variables and other columns, the trade-off rates to its neighbours,
+    its hypervolume contribution and the other methods that pick it; then
+    where the knee methods agree. Ranks and rates are taken among the designs
+    that meet the limits. Rows are shown 1-based, as in the front's CSV file.
+    """
+    limits = [parse_limit(limit) for limit in limits]
+    keep = np.flatnonzero(_limit_mask(front, limits))
+    sub = front.with_table(front.table.iloc[keep])
+    position = {int(row): k for k, row in enumerate(keep)}
+    names = ", ".join(f"{column_header(o.name, o.unit)} ({o.goal})" for o in front.objectives)
+    lines = [f"Front: {len(front)} designs; objectives {names}."]
+    if limits:
+        lines.append(f"{len(sub)} of them meet the limits {' and '.join(map(str, limits))}.")
+    lines.append(f"Method: {method}, {METHODS[method]}.")
+    ranks = objective_ranks(sub)
+    picks = all_picks(front, weights=weights, target=target, limits=limits)
+    contributions = front.contributions()
+    total = front.hypervolume()
+    objective_names = set(front.objective_names)
+    variables = [v for v in front.variables if v in front.table.columns]
+    others = [c for c in front.table.columns if c not in objective_names and c not in variables]
+    for choice, row in enumerate(rows, start=1):
+        k = position[int(row)]
+        record = front.table.iloc[int(row)]
+        lines.append("")
+        lines.append(f"Choice {choice}: row {int(row) + 1}")
+        width = max(len(o.name) for o in front.objectives)
+        for o in front.objectives:
+            value = f"{_show(record[o.name])} {o.unit}".strip()
+            lines.append(
+                f"  {o.name:<{width}}  {value:<16} rank {int(ranks.iloc[k][o.name])} of {len(sub)} ({o.goal})"
+            )
+        for title, columns in (("variables", variables), ("other columns", others)):
+            if columns:
+                shown = ", ".join(
+                    f"{c} = {_show(record[c])}{' ' + front.units[c] if front.units.get(c) else ''}" for c in columns
+                )
+                lines.append(f"  {title}: {shown}")
+        if len(sub) > 1:
+            rates = tradeoff_rates(sub, k)
+            for _, rate in rates.iterrows():
+                if rate["neighbour"] >= 0:
+                    lines.append(f"  to row {int(keep[int(rate['neighbour'])]) + 1}: {rate['text']}")
+                else:
+                    lines.append(f"  locally: {rate['text']}")
+        if total > 0:
+            share = 100.0 * contributions[int(row)] / total
+            lines.append(
+                f"  hypervolume contribution: {_show(contributions[int(row)])} ({share:.3g} % of the front's)"
+            )
+        agree = [m for m, r in picks.items() if r == int(row) and m != method]
+        lines.append(f"  also picked by: {', '.join(agree)}" if agree else "  no other method picks it first")
+    knees = {m: r for m, r in picks.items() if m in KNEE_METHODS}
+    groups = agreeing_groups(knees)
+    lines.append("")
+    if len(groups) == 1:
+        lines.append(f"Knee methods: {', '.join(groups[0][1])} all point at row {groups[0][0] + 1}.")
+    else:
+        parts = "; ".join(f"{', '.join(ms)} at row {r + 1}" for r, ms in groups)
+        lines.append(f"Knee methods differ: {parts}.")
+    return lines
+
+
+def _show(value: object) -> str:
+    if isinstance(value, float | np.floating):
+        return f"{float(value):.6g}"
+    return str(value)
