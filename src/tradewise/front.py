@@ -33,6 +33,9 @@ __all__ = [
     "read_front",
     "column_header",
     "objective_matrix",
+    "read_table",
+    "front_from_csv",
+    "tradeoff_rates",
 ]
 
 FRONT_FORMAT = "tradewise-front/1"
@@ -56,9 +59,10 @@ def objective_matrix(table: pd.DataFrame, objectives: Sequence[Objective], *, wh
         bad = values.isna() | ~np.isfinite(values.to_numpy(dtype=float, na_value=np.nan))
         if bad.any():
             position = int(np.flatnonzero(bad.to_numpy())[0])
+            got = "an empty cell" if pd.isna(raw.iloc[position]) else repr(raw.iloc[position])
             raise DataError(
                 f"{where}: row {position + 1} column {objective.name!r}: "
-                f"expected a finite number, got {raw.iloc[position]!r}"
+                f"expected a finite number, got {got}"
             )
         columns.append(values.to_numpy(dtype=float))
     return np.column_stack(columns) if columns else np.empty((len(table), 0))
@@ -351,3 +355,256 @@ def _jsonable(value: Any) -> Any:
     if isinstance(value, Path):
         return str(value)
     return value
+
+
+# ---------------------------------------------------------------- tables from elsewhere
+def read_table(path: str | Path) -> tuple[pd.DataFrame, dict[str, str]]:
+    """Read a CSV table of designs; headers ``name [unit]`` become bare names with units.
+
+    Returns
+    -------
+    table : pandas.DataFrame
+        The rows, with bare column names.
+    units : dict
+        Column name to unit, for the headers that carried one.
+
+    Raises
+    ------
+    DataError
+        When the file is missing, empty or not CSV, or when two headers share
+        a bare name.
+    """
+    path = Path(path)
+    if not path.is_file():
+        raise DataError(f"{path}: no such table file")
+    try:
+        table = pd.read_csv(path)
+    except pd.errors.EmptyDataError:
+        raise DataError(f"{path}: the file is empty; expected a CSV table with a header row") from None
+    except (OSError, ValueError, UnicodeDecodeError) as exc:
+        reason = " ".join(str(exc).split())
+        raise DataError(f"{path}: cannot be read as CSV ({reason})") from None
+    units: dict[str, str] = {}
+    names: list[str] = []
+    for header in table.columns:
+        match = _HEADER.match(str(header))
+        name = match.group("name") if match else str(header)
+        if name in names:
+            raise DataError(f"{path}: two columns are named {name!r}; column names must differ")
+        names.append(name)
+        if match and match.group("unit"):
+            units[name] = match.group("unit")
+    table.columns = names
+    return table, units
+
+
+def front_from_csv(
+    path: str | Path,
+    *,
+    minimise: Sequence[str] = (),
+    maximise: Sequence[str] = (),
+    keep: Sequence[str] | None = None,
+) -> Front:
+    """The non-dominated rows of any CSV table (moocore), every other column kept.
+
+    Parameters
+    ----------
+    path : str or Path
+        The CSV file. Headers may carry units as ``mass [g]``; columns are
+        named by their bare name (``mass``) or by the whole header.
+    minimise, maximise : sequence of str
+        The objective columns, minimised and maximised; at least two in all.
+    keep : sequence of str, optional
+        The other columns to keep; by default all of them.
+
+    Raises
+    ------
+    DataError
+        For a missing column, a non-numeric or missing objective value (naming
+        the row), fewer than two objectives, or a column named twice.
+
+    Examples
+    --------
+    >>> import tempfile, os
+    >>> folder = tempfile.mkdtemp()
+    >>> path = os.path.join(folder, "designs.csv")
+    >>> _ = open(path, "w").write("id,cost [EUR],mass [g]\\n1,10,3\\n2,12,2\\n3,13,4\\n")
+    >>> front = front_from_csv(path, minimise=["cost", "mass"])
+    >>> front.table["id"].tolist(), front.units["mass"]
+    ([1, 2], 'g')
+    """
+    table, units = read_table(path)
+    where = str(Path(path).name)
+    wanted = [(str(n), "min") for n in minimise] + [(str(n), "max") for n in maximise]
+    names = [_strip_unit(n) for n, _ in wanted]
+    for name in names:
+        if names.count(name) > 1:
+            raise DataError(f"{where}: column {name!r} is given as an objective twice")
+    if len(names) < 2:
+        raise DataError(f"{where}: a front needs at least two objectives (--min/--max), got {len(names)}")
+    for name in names + [_strip_unit(k) for k in keep or ()]:
+        if name not in table.columns:
+            raise DataError(f"{where}: no column {name!r}; columns: {', '.join(map(str, table.columns))}")
+    if len(table) == 0:
+        raise DataError(f"{where}: the table has a header but no rows")
+    if keep is not None:
+        kept = [_strip_unit(k) for k in keep]
+        table = table[names + [c for c in table.columns if c in kept and c not in names]]
+    objectives = [Objective(n, goal, units.get(n, "")) for n, (_, goal) in zip(names, wanted, strict=True)]
+    front = Front.from_table(table, objectives, units=units, where=where)
+    return replace(front, reference=tuple(front.reference_point()), meta={"source": where, "n_rows": len(table)})
+
+
+# ---------------------------------------------------------------- trade-off rates
+def tradeoff_rates(front: Front, index: int | None = None, *, n_neighbours: int | None = None) -> pd.DataFrame:
+    """What one objective costs in another between neighbouring designs, in the objectives' own units.
+
+    Two objectives: the designs are ordered from best to worst in the first
+    objective; each row is a move from a design to its neighbour, giving up
+    some of one objective (``give``) to gain some of the other (``gain``).
+    ``rate`` is the amount given up per unit gained. Without ``index`` the
+    rows are the moves along the whole front, all in the same direction (so
+    the rates are comparable and a knee shows as a jump); with ``index`` they
+    are the moves from that design to its two neighbours.
+
+    Three or more objectives: at each design (or only at ``index``) a plane is
+    fitted through it and its nearest neighbours in normalised objective space
+    (least squares); each row gives the rate along one pair of objectives with
+    the others held, read off that local plane (``neighbour`` is -1).
+
+    ``per`` is a power of ten of the gained objective near the typical step,
+    and ``text`` says it in words, for example
+    ``"0.8 EUR more cost per 100 g less mass"``.
+
+    Parameters
+    ----------
+    front : Front
+        The front.
+    index : int, optional
+        Row position in ``front.table`` of the design to look from.
+    n_neighbours : int, optional
+        Three or more objectives only: neighbours used for the local plane
+        (default twice the number of objectives).
+
+    Returns
+    -------
+    pandas.DataFrame
+        Columns ``design``, ``neighbour``, ``gain``, ``give``, ``gain_amount``,
+        ``give_amount``, ``rate``, ``per`` and ``text``.
+
+    Examples
+    --------
+    >>> table = pd.DataFrame({"cost": [10.0, 12, 15], "mass": [100.0, 60, 40]})
+    >>> front = Front.from_table(table, [Objective("cost", unit="k$"), Objective("mass", unit="kg")])
+    >>> tradeoff_rates(front)["text"].tolist()
+    ['0.5 k$ more cost per 10 kg less mass', '1.5 k$ more cost per 10 kg less mass']
+    """
+    n = len(front)
+    if index is not None and not (isinstance(index, int | np.integer) and 0 <= index < n):
+        raise DataError(f"trade-off rates: design {index!r} is not a row of the front (0 to {n - 1})")
+    if len(front.objectives) == 2:
+        rows = _rates_between_neighbours(front, index)
+    else:
+        rows = _rates_on_local_plane(front, index, n_neighbours)
+    columns = ["design", "neighbour", "gain", "give", "gain_amount", "give_amount", "rate", "per", "text"]
+    return pd.DataFrame(rows, columns=columns)
+
+
+def _rates_between_neighbours(front: Front, index: int | None) -> list[dict[str, Any]]:
+    sign = np.where(front.maximise, -1.0, 1.0)
+    signed = front.points() * sign  # larger is worse in every column
+    order = np.lexsort((signed[:, 1], signed[:, 0]))
+    if index is None:
+        moves = list(zip(order[:-1], order[1:], strict=True))
+    else:
+        pos = int(np.flatnonzero(order == index)[0])
+        moves = [(index, order[p]) for p in (pos + 1, pos - 1) if 0 <= p < len(order)]
+    rows = []
+    for i, j in moves:
+        delta = signed[j] - signed[i]
+        gain = int(np.argmin(delta))
+        give = 1 - gain
+        rows.append(
+            {
+                "design": int(i),
+                "neighbour": int(j),
+                "gain": front.objectives[gain].name,
+                "give": front.objectives[give].name,
+                "gain_amount": float(-delta[gain]),
+                "give_amount": float(delta[give]),
+            }
+        )
+    common = _readable_step([r["gain_amount"] for r in rows]) if index is None else None
+    for row in rows:
+        gain_amount = row["gain_amount"]
+        row["rate"] = row["give_amount"] / gain_amount if gain_amount > 0 else math.nan
+        row["per"] = common if common is not None else _readable_step([gain_amount])
+        row["text"] = _rate_text(front, row["give"], row["gain"], row["rate"], row["per"])
+    return rows
+
+
+def _rates_on_local_plane(front: Front, index: int | None, n_neighbours: int | None) -> list[dict[str, Any]]:
+    points = front.points()
+    n, m = points.shape
+    low, high = points.min(axis=0), points.max(axis=0)
+    span = np.where(high > low, high - low, 1.0)
+    scaled = (points - low) / span
+    scaled[:, front.maximise] = 1.0 - scaled[:, front.maximise]
+    k = min(n - 1, n_neighbours if n_neighbours is not None else 2 * m)
+    designs = range(n) if index is None else [index]
+    rows = []
+    for i in designs:
+        dist = np.sqrt(((scaled - scaled[i]) ** 2).sum(axis=1))
+        dist[i] = np.inf
+        near = np.argsort(dist, kind="stable")[:k]
+        normal = np.full(m, np.nan)
+        if k >= m:
+            patch = scaled[np.concatenate([[i], near])]
+            normal = np.linalg.svd(patch - patch.mean(axis=0))[2][-1]
+            normal = -normal if normal.sum() < 0 else normal
+        for a in range(m):
+            for b in range(a + 1, m):
+                # along the plane with the others held: n_a dF_a + n_b dF_b = 0 in scaled units
+                rate = (span[a] * normal[b]) / (normal[a] * span[b]) if normal[a] != 0 else math.nan
+                per = _readable_step(np.abs(points[near, b] - points[i, b]).tolist())
+                rows.append(
+                    {
+                        "design": int(i),
+                        "neighbour": -1,
+                        "gain": front.objectives[b].name,
+                        "give": front.objectives[a].name,
+                        "gain_amount": per,
+                        "give_amount": rate * per,
+                        "rate": rate,
+                        "per": per,
+                        "text": _rate_text(front, front.objectives[a].name, front.objectives[b].name, rate, per)
+                        + " (others held)",
+                    }
+                )
+    return rows
+
+
+def _readable_step(amounts: Sequence[float]) -> float:
+    """The power of ten at or below the median positive amount (1 when there is none)."""
+    positive = [a for a in amounts if a > 0 and math.isfinite(a)]
+    if not positive:
+        return 1.0
+    return float(10.0 ** math.floor(math.log10(float(np.median(positive)))))
+
+
+def _rate_text(front: Front, give: str, gain: str, rate: float, per: float) -> str:
+    goals = {o.name: o.goal for o in front.objectives}
+    if not math.isfinite(rate):
+        return f"no change in {gain} between these designs"
+    if rate < 0:
+        return f"{give} and {gain} both improve here"
+    give_word = "more" if goals[give] == "min" else "less"
+    gain_word = "less" if goals[gain] == "min" else "more"
+    parts = [_number(rate * per), front.units.get(give, ""), give_word, give, "per", _number(per), front.units.get(gain, ""), gain_word, gain]
+    return " ".join(p for p in parts if p)
+
+
+def _number(value: float) -> str:
+    if value != 0 and (abs(value) >= 1e6 or abs(value) < 1e-3):
+        return f"{value:.3g}"
+    return np.format_float_positional(value, precision=3, unique=True, fractional=False, trim="-")
