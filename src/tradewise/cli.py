@@ -181,5 +181,79 @@ def check_command(case) -> None:
     click.echo(f"The case is valid and its model answered in {outcome.duration * 1000:.3g} ms.")
 
 
+@main.command("front")
+@click.argument("table", metavar="TABLE.csv")
+@click.option("--min", "minimise", multiple=True, metavar="COL", help="A column to make small (repeat for more).")
+@click.option("--max", "maximise", multiple=True, metavar="COL", help="A column to make large (repeat for more).")
+@click.option("--keep", multiple=True, metavar="COL", help="Keep only these other columns (default: all).")
+@click.option("--out", type=click.Path(dir_okay=False), help="Write the front here, with its .json beside it.")
+def front_command(table, minimise, maximise, keep, out) -> None:
+    """Keep the rows of TABLE.csv that no other row beats in every objective.
+
+    Name the objectives with --min and --max (at least two in all); a header
+    such as "mass [g]" can be named as mass. Every other column is kept
+    unless --keep lists the ones wanted. Without --out the front is printed
+    as CSV.
+    """
+    from tradewise.front import column_header, front_from_csv
+
+    front = front_from_csv(table, minimise=minimise, maximise=maximise, keep=keep or None)
+    summary = f"{len(front)} of {front.meta['n_rows']} rows are on the front"
+    if out:
+        written = front.to_csv(out)
+        click.echo(f"{summary}; wrote {written[0]} and {written[1].name}")
+    else:
+        shown = front.table.rename(columns=lambda c: column_header(str(c), front.units.get(str(c), "")))
+        click.echo(shown.to_csv(index=False), nl=False)
+        click.echo(summary, err=True)
+
+
+@main.command("pick")
+@click.argument("front_path", metavar="FRONT")
+@click.option("--method", default="knee", show_default=True, help="knee, tradeoff, kneedle, pseudo-weights, asf, topsis or weighted-sum.")
+@click.option("--weights", metavar="NAME=W,...", help="Importance of each objective, e.g. cost=2,mass=1.")
+@click.option("--target", metavar="NAME=V,...", help="Target values for asf, e.g. cost=900,mass=8.")
+@click.option("--limit", "limits", multiple=True, metavar="RULE", help='Keep designs with e.g. "mass<=12" (repeat for more).')
+@click.option("--top", default=1, show_default=True, type=int, help="How many designs to show.")
+@click.option("--min", "minimise", multiple=True, metavar="COL", help="For a plain CSV: a column to make small.")
+@click.option("--max", "maximise", multiple=True, metavar="COL", help="For a plain CSV: a column to make large.")
+@click.option("--out", type=click.Path(dir_okay=False), help="Write the chosen designs to this CSV (with .json).")
+def pick_command(front_path, method, weights, target, limits, top, minimise, maximise, out) -> None:
+    """Point at the designs of FRONT worth discussing and say what each costs.
+
+    FRONT is a run folder, a front CSV with its .json beside it, or any CSV
+    with --min/--max. Limits are applied first; then --method chooses among
+    the designs left. Weights say how much each objective matters (larger
+    means more important); a target is the point asf aims at.
+    """
+    import warnings
+    from dataclasses import replace
+
+    from tradewise.choose import NonConvexWarning, choose, describe_choice, parse_values
+    from tradewise.front import front_from_csv, read_front
+
+    if minimise or maximise:
+        front = front_from_csv(front_path, minimise=minimise, maximise=maximise)
+    else:
+        front = read_front(front_path)
+    weights = parse_values(weights, what="--weights") or None
+    target = parse_values(target, what="--target") or None
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", NonConvexWarning)
+        rows = choose(front, method, weights=weights, target=target, limits=limits, top=top)
+    for line in describe_choice(front, rows, method=method, weights=weights, target=target, limits=limits):
+        click.echo(line)
+    for warning in caught:
+        if issubclass(warning.category, NonConvexWarning):
+            click.echo(f"Note: {warning.message}", err=True)
+    if out:
+        shortlist = front.table.iloc[rows].copy()
+        shortlist.insert(0, "pick_order", range(1, len(rows) + 1))
+        settings = {"method": method, "weights": weights, "target": target, "limits": [str(x) for x in limits]}
+        picked = replace(front.with_table(shortlist), meta={**front.meta, "shortlist": settings})
+        written = picked.to_csv(out)
+        click.echo(f"Wrote {written[0]} and {written[1].name}")
+
+
 if __name__ == "__main__":  # pragma: no cover
     sys.exit(main())
