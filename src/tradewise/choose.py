@@ -50,8 +50,7 @@ METHODS: dict[str, str] = {
     "(trade-off measure of Rachmawati and Srinivasan 2009, normalised objectives)",
     "kneedle": "the confirmed peak of the Kneedle difference curve, two objectives only "
     "(Satopaa et al. 2011)",
-    "pseudo-weights": "the design whose pseudo-weights are closest to the given weights "
-    "(Deb 2001)",
+    "pseudo-weights": "the design whose pseudo-weights are closest to the given weights (Deb 2001)",
     "asf": "the design nearest the target by the achievement scalarizing function, "
     "weight = importance (Wierzbicki 1980)",
     "topsis": "closest to the best and farthest from the worst value of every objective "
@@ -91,7 +90,9 @@ class Limit:
     def holds(self, values: np.ndarray) -> np.ndarray:
         """Boolean mask of the ``values`` that keep within the limit."""
         with np.errstate(invalid="ignore"):
-            return np.asarray(_OPS[self.op](np.asarray(values, dtype=float), self.value), dtype=bool)
+            return np.asarray(
+                _OPS[self.op](np.asarray(values, dtype=float), self.value), dtype=bool
+            )
 
 
 _OPS = {
@@ -156,7 +157,9 @@ def parse_values(text: str | Mapping[str, float] | None, *, what: str) -> dict[s
                 continue
             name, sep, value = part.partition("=")
             if not sep or not name.strip():
-                raise DataError(f"{what} {text!r}: expected NAME=NUMBER pairs separated by commas, got {part.strip()!r}")
+                raise DataError(
+                    f"{what} {text!r}: expected NAME=NUMBER pairs separated by commas, got {part.strip()!r}"
+                )
             items.append((_UNIT_SUFFIX.sub("", name.strip()), value.strip()))
     values: dict[str, float] = {}
     for name, value in items:
@@ -205,7 +208,9 @@ def _limit_mask(front: Front, limits: Iterable[Limit | str]) -> np.ndarray:
     for limit in limits:
         limit = parse_limit(limit)
         if limit.column not in front.table.columns:
-            close = difflib.get_close_matches(limit.column, [str(c) for c in front.table.columns], n=1)
+            close = difflib.get_close_matches(
+                limit.column, [str(c) for c in front.table.columns], n=1
+            )
             hint = f" (did you mean {close[0]!r}?)" if close else ""
             raise DataError(
                 f"limit '{limit}': no column {limit.column!r} in the front{hint}; "
@@ -417,7 +422,9 @@ def kneedle(points: np.ndarray, *, sensitivity: float = 1.0) -> tuple[np.ndarray
     """
     points = np.asarray(points, dtype=float)
     if points.ndim != 2 or points.shape[1] != 2:
-        raise DataError(f"kneedle works on two objectives, got {points.shape[-1] if points.ndim == 2 else 0}")
+        raise DataError(
+            f"kneedle works on two objectives, got {points.shape[-1] if points.ndim == 2 else 0}"
+        )
     n = len(points)
     order = np.lexsort((points[:, 1], points[:, 0]))
     x, y = points[order, 0], points[order, 1]
@@ -765,7 +772,9 @@ def choose(
     order = np.argsort(-value, kind="stable")
     if method == "kneedle":
         knees = set(kneedle(normalised(sub))[1].tolist())
-        order = np.concatenate([[k for k in order if k in knees], [k for k in order if k not in knees]]).astype(int)
+        order = np.concatenate(
+            [[k for k in order if k in knees], [k for k in order if k not in knees]]
+        ).astype(int)
     return [int(rows[k]) for k in order[:top]]
 
 
@@ -837,7 +846,10 @@ def objective_ranks(front: Front) -> pd.DataFrame:
     ranks = {}
     for o in front.objectives:
         ranks[o.name] = (
-            front.table[o.name].astype(float).rank(method="min", ascending=not o.maximise).astype(int)
+            front.table[o.name]
+            .astype(float)
+            .rank(method="min", ascending=not o.maximise)
+            .astype(int)
         )
     return pd.DataFrame(ranks, index=front.table.index)
 
@@ -876,7 +888,9 @@ def _weight_vector(front: Front, weights: Mapping[str, float] | None) -> np.ndar
     return w
 
 
-def _target_vector(front: Front, target: Mapping[str, float] | None, ideal: np.ndarray) -> np.ndarray:
+def _target_vector(
+    front: Front, target: Mapping[str, float] | None, ideal: np.ndarray
+) -> np.ndarray:
     target = parse_values(target, what="target")
     _check_names(front, target, "target")
     return np.array(
@@ -941,14 +955,17 @@ def describe_choice(
         for title, columns in (("variables", variables), ("other columns", others)):
             if columns:
                 shown = ", ".join(
-                    f"{c} = {_show(record[c])}{' ' + front.units[c] if front.units.get(c) else ''}" for c in columns
+                    f"{c} = {_show(record[c])}{' ' + front.units[c] if front.units.get(c) else ''}"
+                    for c in columns
                 )
                 lines.append(f"  {title}: {shown}")
         if len(sub) > 1:
             rates = tradeoff_rates(sub, k)
             for _, rate in rates.iterrows():
                 if rate["neighbour"] >= 0:
-                    lines.append(f"  to row {int(keep[int(rate['neighbour'])]) + 1}: {rate['text']}")
+                    lines.append(
+                        f"  to row {int(keep[int(rate['neighbour'])]) + 1}: {rate['text']}"
+                    )
                 else:
                     lines.append(f"  locally: {rate['text']}")
         if total > 0:
@@ -957,12 +974,16 @@ def describe_choice(
                 f"  hypervolume contribution: {_show(contributions[int(row)])} ({share:.3g} % of the front's)"
             )
         agree = [m for m, r in picks.items() if r == int(row) and m != method]
-        lines.append(f"  also picked by: {', '.join(agree)}" if agree else "  no other method picks it first")
+        lines.append(
+            f"  also picked by: {', '.join(agree)}" if agree else "  no other method picks it first"
+        )
     knees = {m: r for m, r in picks.items() if m in KNEE_METHODS}
     groups = agreeing_groups(knees)
     lines.append("")
     if len(groups) == 1:
-        lines.append(f"Knee methods: {', '.join(groups[0][1])} all point at row {groups[0][0] + 1}.")
+        lines.append(
+            f"Knee methods: {', '.join(groups[0][1])} all point at row {groups[0][0] + 1}."
+        )
     else:
         parts = "; ".join(f"{', '.join(ms)} at row {r + 1}" for r, ms in groups)
         lines.append(f"Knee methods differ: {parts}.")

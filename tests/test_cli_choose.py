@@ -1,0 +1,226 @@
+"""Tests of the `front` and `pick` commands through click's CliRunner."""
+
+from __future__ import annotations
+
+import io
+import json
+
+import numpy as np
+import pandas as pd
+import pytest
+from click.testing import CliRunner
+
+from tradewise.cli import main
+from tradewise.front import read_front
+
+# EX3 of the reference notes with two invented variables and one dominated row (16, 70).
+DESIGNS = (
+    "id,fins,alloy,cost [k$],mass [kg]\n"
+    "1,4,a,10,100\n"
+    "2,6,b,12,60\n"
+    "3,8,a,15,40\n"
+    "4,10,b,20,30\n"
+    "5,12,a,30,25\n"
+    "6,9,b,16,70\n"
+)
+
+
+@pytest.fixture
+def table(tmp_path):
+    path = tmp_path / "designs.csv"
+    path.write_text(DESIGNS, encoding="utf-8")
+    return path
+
+
+def run(*args):
+    result = CliRunner().invoke(main, [str(a) for a in args])
+    if result.exception and not isinstance(result.exception, SystemExit):
+        raise result.exception
+    return result
+
+
+# ----------------------------------------------------------------- front
+def test_front_prints_the_nondominated_rows(table):
+    """Without --out the front goes to standard output as CSV with units in the headers."""
+    result = run("front", table, "--min", "cost", "--min", "mass")
+    assert result.exit_code == 0
+    printed = pd.read_csv(io.StringIO(result.stdout))
+    assert list(printed.columns) == ["id", "fins", "alloy", "cost [k$]", "mass [kg]"]
+    assert printed["id"].tolist() == [1, 2, 3, 4, 5]
+    assert "5 of 6 rows are on the front" in result.stderr
+
+
+def test_front_writes_csv_and_metadata(table, tmp_path):
+    """--out writes a CSV and its JSON that read_front takes back, --keep drops other columns."""
+    out = tmp_path / "out" / "front.csv"
+    result = run(
+        "front", table, "--min", "cost [k$]", "--max", "fins", "--keep", "id", "--out", out
+    )
+    assert result.exit_code == 0
+    meta = json.loads(out.with_suffix(".json").read_text(encoding="utf-8"))
+    assert [o["goal"] for o in meta["objectives"]] == ["min", "max"]
+    front = read_front(out)
+    assert list(front.table.columns) == ["cost", "fins", "id"]
+    # With fins maximised: (10, 4), (12, 6), (15, 8), (16, 9), (20, 10), (30, 12) all trade off.
+    assert len(front) == 6
+
+
+def test_front_agrees_with_a_plain_moocore_filter(tmp_path):
+    """On random rows with mixed senses the command keeps exactly the rows moocore keeps."""
+    import moocore
+
+    rng = np.random.default_rng(7)
+    data = pd.DataFrame(rng.integers(0, 30, size=(500, 3)), columns=["a", "b", "c"])
+    data["tag"] = np.arange(500)
+    path = tmp_path / "random.csv"
+    data.to_csv(path, index=False)
+    result = run(
+        "front", path, "--min", "a", "--max", "b", "--min", "c", "--out", tmp_path / "f.csv"
+    )
+    assert result.exit_code == 0
+    kept = pd.read_csv(tmp_path / "f.csv")
+    mask = moocore.is_nondominated(data[["a", "c", "b"]].to_numpy(), maximise=[False, False, True])
+    assert sorted(kept["tag"]) == sorted(data.loc[mask, "tag"])
+
+
+@pytest.mark.parametrize(
+    ("text", "args", "needle"),
+    [
+        (DESIGNS, ["--min", "cost", "--min", "weight"], "no column 'weight'"),
+        (
+            DESIGNS.replace("3,8,a,15,40", "3,8,a,15,heavy"),
+            ["--min", "cost", "--min", "mass"],
+            "row 3 column 'mass': expected a finite number, got 'heavy'",
+        ),
+        (
+            DESIGNS.replace("3,8,a,15,40", "3,8,a,15,"),
+            ["--min", "cost", "--min", "mass"],
+            "row 3 column 'mass': expected a finite number, got an empty cell",
+        ),
+        (DESIGNS, ["--min", "cost"], "at least two objectives"),
+        (DESIGNS, ["--min", "cost", "--max", "cost"], "given as an objective twice"),
+        ("id,cost,mass\n", ["--min", "cost", "--min", "mass"], "no rows"),
+        ("", ["--min", "cost", "--min", "mass"], "the file is empty"),
+        ("a,b\n1,2\n3,4,5,6\n", ["--min", "a", "--min", "b"], "cannot be read as CSV"),
+        (DESIGNS, ["--min", "cost", "--min", "mass", "--keep", "colour"], "no column 'colour'"),
+    ],
+    ids=[
+        "missing-column",
+        "text-value",
+        "empty-cell",
+        "one-objective",
+        "twice",
+        "no-rows",
+        "empty-file",
+        "ragged",
+        "keep-unknown",
+    ],
+)
+def test_front_bad_tables_exit_2_with_one_line(tmp_path, text, args, needle):
+    """Each kind of bad table gives exit status 2 and a single Error line naming the problem."""
+    path = tmp_path / "bad.csv"
+    path.write_text(text, encoding="utf-8")
+    result = run("front", path, *args)
+    assert result.exit_code == 2
+    lines = result.output.strip().splitlines()
+    assert len(lines) == 1, result.output
+    assert lines[0].startswith("Error: ") and needle in lines[0]
+
+
+def test_front_missing_file_exits_2(tmp_path):
+    """A table that does not exist is one Error line and exit status 2."""
+    result = run("front", tmp_path / "nothing.csv", "--min", "a", "--min", "b")
+    assert result.exit_code == 2
+    assert result.output.strip().count("\n") == 0 and "no such table file" in result.output
+
+
+# ----------------------------------------------------------------- pick
+@pytest.fixture
+def front_folder(table, tmp_path):
+    folder = tmp_path / "run"
+    result = run("front", table, "--min", "cost", "--min", "mass", "--out", folder / "front.csv")
+    assert result.exit_code == 0
+    return folder
+
+
+def test_pick_shows_the_knee_with_everything(front_folder):
+    """pick prints the knee (15 k$, 40 kg) with its columns, ranks, rates and agreeing methods."""
+    result = run("pick", front_folder)
+    assert result.exit_code == 0
+    out = result.stdout
+    assert "Choice 1: row 3" in out
+    assert "cost  15 k$" in out and "rank 3 of 5" in out
+    assert "other columns: id = 3, fins = 8, alloy = a" in out
+    assert "to row 4: 5 k$ more cost per 10 kg less mass" in out
+    assert "hypervolume contribution" in out
+    assert "Knee methods: knee, tradeoff, kneedle all point at row 3." in out
+
+
+def test_pick_plain_csv_with_limits_weights_and_shortlist(table, tmp_path):
+    """A plain CSV with --min/--max works; limits, weights and --top shape a shortlist file."""
+    out = tmp_path / "short.csv"
+    result = run(
+        "pick",
+        table,
+        "--min",
+        "cost",
+        "--min",
+        "mass",
+        "--method",
+        "asf",
+        "--weights",
+        "cost=4,mass=1",
+        "--limit",
+        "mass<=60",
+        "--top",
+        "2",
+        "--out",
+        out,
+    )
+    assert result.exit_code == 0, result.output
+    assert "4 of them meet the limits mass <= 60" in result.stdout
+    shortlist = read_front(out)
+    # Left: (12, 60), (15, 40), (20, 30), (30, 25); normalised cost (c - 12)/18, mass
+    # (m - 25)/35; ASF weights 0.8/0.2: (12,60) -> max(0, 0.2) = 0.2, (15,40) ->
+    # max(0.133, 0.086) = 0.133, (20,30) -> max(0.356, 0.029) = 0.356: 15 k$ then 12 k$.
+    assert shortlist.table["cost"].tolist() == [15, 12]
+    assert shortlist.table["pick_order"].tolist() == [1, 2]
+    assert shortlist.meta["shortlist"]["method"] == "asf"
+
+
+def test_pick_weighted_sum_notes_unreachable_designs(tmp_path):
+    """weighted-sum adds a Note line when the front has designs no weights can reach."""
+    path = tmp_path / "dent.csv"
+    path.write_text("cost,mass\n0,1\n0.5,0.6\n1,0\n", encoding="utf-8")
+    result = run("pick", path, "--min", "cost", "--min", "mass", "--method", "weighted-sum")
+    assert result.exit_code == 0
+    assert "Note: weighted sum: 1 of 3 designs" in result.stderr
+
+
+@pytest.mark.parametrize(
+    ("args", "needle"),
+    [
+        (["--method", "elbow"], "method 'elbow' is not known"),
+        (["--limit", "mass <=> 3"], "limit 'mass <=> 3'"),
+        (["--limit", "weight <= 3"], "no column 'weight'"),
+        (["--limit", "mass <= 1"], "no design of 5 meets the limits mass <= 1"),
+        (["--weights", "cost=2,volume=1", "--method", "asf"], "'volume' is not an objective"),
+        (["--weights", "cost2"], "expected NAME=NUMBER"),
+        (["--target", "cost=900"], "takes no target"),
+        (["--top", "0"], "top: expected a whole number of at least 1"),
+    ],
+)
+def test_pick_bad_options_exit_2_with_one_line(front_folder, args, needle):
+    """Bad methods, limits, weights and targets give exit status 2 and one Error line."""
+    result = run("pick", front_folder, *args)
+    assert result.exit_code == 2
+    lines = result.output.strip().splitlines()
+    assert len(lines) == 1, result.output
+    assert needle in lines[0]
+
+
+def test_pick_plain_csv_without_objectives_says_how(table):
+    """A CSV without metadata and without --min/--max gets a one-line hint."""
+    result = run("pick", table)
+    assert result.exit_code == 2
+    assert "--min/--max" in result.output and result.output.strip().count("\n") == 0

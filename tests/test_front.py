@@ -1,0 +1,296 @@
+"""Tests of front.py: non-dominated filtering against brute force and pymoo, hypervolume
+invariants, tables read from CSV, and trade-off rates against closed forms."""
+
+from __future__ import annotations
+
+import numpy as np
+import pandas as pd
+import pytest
+from hypothesis import given, settings
+from hypothesis import strategies as st
+from hypothesis.extra.numpy import arrays
+
+from tradewise.case import Objective
+from tradewise.errors import DataError
+from tradewise.front import (
+    Front,
+    front_from_csv,
+    hypervolume,
+    nondominated,
+    read_table,
+    tradeoff_rates,
+)
+
+
+def brute_force_nondominated(points: np.ndarray, maximise: list[bool]) -> np.ndarray:
+    """O(n^2) reference: a row is kept when no row is at least as good everywhere and better once."""
+    signed = points * np.where(maximise, -1.0, 1.0)
+    keep = np.ones(len(points), dtype=bool)
+    for i in range(len(points)):
+        for j in range(len(points)):
+            if np.all(signed[j] <= signed[i]) and np.any(signed[j] < signed[i]):
+                keep[i] = False
+                break
+    return keep
+
+
+def first_copies(points: np.ndarray) -> np.ndarray:
+    """True for the first occurrence of every distinct row."""
+    _, first = np.unique(points, axis=0, return_index=True)
+    mask = np.zeros(len(points), dtype=bool)
+    mask[first] = True
+    return mask
+
+
+def make_front(points, goals, names=None, units=None) -> Front:
+    points = np.asarray(points, dtype=float)
+    names = names or [f"f{j + 1}" for j in range(points.shape[1])]
+    units = units or [""] * len(names)
+    objectives = [Objective(n, g, u) for n, g, u in zip(names, goals, units, strict=True)]
+    return Front.from_table(pd.DataFrame(points, columns=names), objectives)
+
+
+# ----------------------------------------------------------------- non-dominated filtering
+@pytest.mark.parametrize("m", [2, 3, 4])
+def test_nondominated_matches_brute_force_and_pymoo(m):
+    """moocore's filter agrees with an O(n^2) loop and pymoo on sets full of ties and duplicates."""
+    from pymoo.util.nds.non_dominated_sorting import NonDominatedSorting
+
+    rng = np.random.default_rng(m)
+    for trial in range(30):
+        # Small integers make ties and exact duplicates common.
+        points = rng.integers(0, 6, size=(int(rng.integers(1, 60)), m)).astype(float)
+        maximise = [bool(b) for b in rng.integers(0, 2, m)]
+        reference = brute_force_nondominated(points, maximise)
+        # keep_weakly keeps every copy of a non-dominated row, like the loop.
+        assert np.array_equal(nondominated(points, maximise, keep_weakly=True), reference), trial
+        # By default only the first copy is kept.
+        assert np.array_equal(nondominated(points, maximise), reference & first_copies(points)), (
+            trial
+        )
+        # pymoo minimises; it keeps duplicates in the first front as well.
+        signed = points * np.where(maximise, -1.0, 1.0)
+        pymoo_front = NonDominatedSorting().do(signed, only_non_dominated_front=True)
+        assert sorted(pymoo_front.tolist()) == np.flatnonzero(reference).tolist(), trial
+
+
+def test_front_from_table_keeps_other_columns_and_drops_copies():
+    """Front.from_table keeps every column of the kept rows and one copy of a repeated design."""
+    table = pd.DataFrame(
+        {"id": [1, 2, 3, 4, 5], "cost": [1, 2, 2, 3, 1], "range": [10, 20, 20, 15, 10]}
+    )
+    front = Front.from_table(table, [Objective("cost"), Objective("range", "max")])
+    # (3, 15) is beaten by (2, 20); (2, 20) and (1, 10) appear twice.
+    assert front.table["id"].tolist() == [1, 2]
+
+
+points_2d_3d = st.integers(2, 3).flatmap(
+    lambda m: arrays(
+        np.float64,
+        st.tuples(st.integers(1, 40), st.just(m)),
+        elements=st.integers(0, 20).map(float),
+    )
+)
+
+
+@settings(max_examples=60, deadline=None)
+@given(points=points_2d_3d, flags=st.lists(st.booleans(), min_size=3, max_size=3))
+def test_filtering_twice_changes_nothing(points, flags):
+    """The non-dominated rows of a front are the front itself (a property of dominance)."""
+    maximise = flags[: points.shape[1]]
+    once = points[nondominated(points, maximise)]
+    assert np.array_equal(nondominated(once, maximise), np.ones(len(once), dtype=bool))
+
+
+@settings(max_examples=60, deadline=None)
+@given(
+    points=points_2d_3d,
+    pick=st.integers(0, 10_000),
+    shift=st.lists(st.integers(0, 5).map(float), min_size=3, max_size=3),
+)
+def test_adding_a_dominated_point_leaves_hypervolume_unchanged(points, pick, shift):
+    """A point that some point weakly dominates adds no hypervolume (definition of the indicator)."""
+    m = points.shape[1]
+    reference = points.max(axis=0) + 10.0
+    worse = points[pick % len(points)] + np.asarray(shift[:m])
+    before = hypervolume(points, reference)
+    after = hypervolume(np.vstack([points, worse]), reference)
+    assert after == pytest.approx(before, rel=1e-12, abs=1e-9)
+
+
+def test_hypervolume_published_values():
+    """Hypervolume of small sets matches the values in the moocore docs and by hand."""
+    # moocore R doctest: (5,5), (4,6), (2,7), (7,4) with reference (10,10) -> 38.
+    assert hypervolume([(5, 5), (4, 6), (2, 7), (7, 4)], [10, 10]) == pytest.approx(38.0)
+    # By hand: staircase (1,3), (2,2), (3,1) under (4,4): 3 + 2 + 1 = 6; adding a dominated
+    # point, a duplicate and a point outside the box changes nothing.
+    extra = [(1, 3), (2, 2), (3, 1), (2.5, 2.5), (2, 2), (5, 0.5)]
+    assert hypervolume(extra, [4, 4]) == pytest.approx(6.0)
+
+
+# ----------------------------------------------------------------- tables from CSV
+def test_front_from_csv_accepts_bare_and_full_headers(tmp_path):
+    """Headers "name [unit]" are matched by bare name or whole header, and units are kept."""
+    path = tmp_path / "designs.csv"
+    path.write_text(
+        "id,cost [EUR],range [km]\n1,10,30\n2,12,50\n3,13,40\n4,9,20\n", encoding="utf-8"
+    )
+    front = front_from_csv(path, minimise=["cost [EUR]"], maximise=["range"])
+    assert front.units == {"cost": "EUR", "range": "km"}
+    assert sorted(front.table["id"].tolist()) == [1, 2, 4]
+    assert front.reference is not None
+    kept = front_from_csv(path, minimise=["cost"], maximise=["range"], keep=[])
+    assert list(kept.table.columns) == ["cost", "range"]
+
+
+@pytest.mark.parametrize(
+    ("text", "kwargs", "needle"),
+    [
+        ("a,b\n1,2\n", {"minimise": ["a", "c"]}, "no column 'c'"),
+        (
+            "a,b\n1,2\n2,x\n",
+            {"minimise": ["a", "b"]},
+            "row 2 column 'b': expected a finite number, got 'x'",
+        ),
+        (
+            "a,b\n1,2\n2,\n",
+            {"minimise": ["a", "b"]},
+            "row 2 column 'b': expected a finite number, got an empty cell",
+        ),
+        ("a,b\n1,2\n", {"minimise": ["a"]}, "at least two objectives"),
+        (
+            "a,b\n1,2\n",
+            {"minimise": ["a"], "maximise": ["a"]},
+            "'a' is given as an objective twice",
+        ),
+        ("a,b\n", {"minimise": ["a", "b"]}, "no rows"),
+        ("", {"minimise": ["a", "b"]}, "the file is empty"),
+        ("a [g],a [kg]\n1,2\n", {"minimise": ["a"]}, "two columns are named 'a'"),
+    ],
+)
+def test_front_from_csv_errors(tmp_path, text, kwargs, needle):
+    """Each kind of bad table raises DataError with a message naming the problem."""
+    path = tmp_path / "t.csv"
+    path.write_text(text, encoding="utf-8")
+    with pytest.raises(DataError, match=needle):
+        front_from_csv(path, **kwargs)
+
+
+def test_read_table_missing_file(tmp_path):
+    """A missing table file is a DataError naming it."""
+    with pytest.raises(DataError, match="no such table file"):
+        read_table(tmp_path / "nowhere.csv")
+
+
+def test_csv_round_trip_through_read_front(tmp_path):
+    """A front written with to_csv reads back with the same objectives, units and rows."""
+    from tradewise.front import read_front
+
+    front = make_front(
+        [(10, 100), (12, 60), (15, 40)], ["min", "min"], ["cost", "mass"], ["k$", "kg"]
+    )
+    front.to_csv(tmp_path / "front.csv")
+    again = read_front(tmp_path)
+    assert again.objective_names == ["cost", "mass"]
+    assert again.units["mass"] == "kg"
+    assert np.array_equal(again.points(), front.points())
+
+
+# ----------------------------------------------------------------- trade-off rates
+def test_two_objective_rates_by_hand():
+    """Rates between neighbours in user units match hand arithmetic on the EX3 front."""
+    # EX3 of the reference notes: (cost k$, mass kg) = (10, 100), (12, 60), (15, 40), (20, 30),
+    # (30, 25). Moves along the front: 2 k$ for 40 kg, 3 for 20, 5 for 10, 10 for 5, i.e.
+    # 0.05, 0.15, 0.5 and 2 k$ per kg; the median step saved is 15 kg, so rates are per 10 kg.
+    front = make_front(
+        [(10, 100), (12, 60), (15, 40), (20, 30), (30, 25)],
+        ["min", "min"],
+        ["cost", "mass"],
+        ["k$", "kg"],
+    )
+    rates = tradeoff_rates(front)
+    assert rates["rate"].tolist() == pytest.approx([0.05, 0.15, 0.5, 2.0])
+    assert set(rates["gain"]) == {"mass"} and set(rates["give"]) == {"cost"}
+    assert rates["per"].tolist() == [10.0] * 4
+    assert rates["text"].tolist()[2] == "5 k$ more cost per 10 kg less mass"
+    # From design 2 both ways: to (20, 30) as above; to (12, 60) 20 kg more for 3 k$ less,
+    # 6.667 kg per k$ (per 1 k$, the power of ten at or below the 3 k$ step).
+    at = tradeoff_rates(front, 2)
+    assert at["neighbour"].tolist() == [3, 1]
+    assert at["rate"].tolist() == pytest.approx([0.5, 20 / 3])
+    assert at["text"].tolist()[1] == "6.67 kg more mass per 1 k$ less cost"
+
+
+def test_rates_on_zdt1_front_follow_the_secant():
+    """On ZDT1 each neighbour rate is the secant of f2 = 1 - sqrt(f1) (Zitzler, Deb, Thiele 2000)."""
+    f1 = np.linspace(0, 1, 101)
+    front = make_front(np.column_stack([f1, 1 - np.sqrt(f1)]), ["min", "min"])
+    rates = tradeoff_rates(front)
+    # Moving right gives up f1 to gain f2: rate = (b - a) / (sqrt(b) - sqrt(a)) = sqrt(a) + sqrt(b).
+    a, b = f1[:-1], f1[1:]
+    assert rates["rate"].to_numpy() == pytest.approx(np.sqrt(a) + np.sqrt(b), rel=1e-9)
+
+
+def test_rates_with_a_maximised_objective_read_naturally():
+    """For a maximised objective the words say "more" when it is gained and "less" when given."""
+    front = make_front([(100, 20), (150, 40)], ["min", "max"], ["cost", "range"], ["EUR", "km"])
+    rates = tradeoff_rates(front)
+    # 50 EUR for 20 km: 2.5 EUR per km, per 10 km.
+    assert rates["text"].tolist() == ["25 EUR more cost per 10 km more range"]
+    back = tradeoff_rates(front, 1)
+    assert back["text"].tolist() == ["4 km less range per 10 EUR less cost"]
+
+
+def test_three_objective_rates_on_a_plane_are_exact():
+    """On the plane f1 + 2 f2 + 4 f3 = 8 the local rates are the plane's exact slopes."""
+    # Calculus: holding f3, df1 = -2 df2, so f1 given up per unit f2 gained is 2; likewise
+    # 4 for f1 per f3 and 2 for f2 per f3.
+    grid = np.array(
+        [(a, b) for a in np.linspace(0, 1, 11) for b in np.linspace(0, 1, 11) if a + b <= 1]
+    )
+    f2, f3 = grid[:, 0] * 4, grid[:, 1] * 2
+    front = make_front(np.column_stack([8 - 2 * f2 - 4 * f3, f2, f3]), ["min"] * 3)
+    rates = tradeoff_rates(front)
+    for (give, gain), expected in {("f1", "f2"): 2.0, ("f1", "f3"): 4.0, ("f2", "f3"): 2.0}.items():
+        chosen = rates[(rates["give"] == give) & (rates["gain"] == gain)]
+        assert chosen["rate"].to_numpy() == pytest.approx(expected, rel=1e-9)
+
+
+def test_three_objective_rates_on_the_dtlz2_sphere():
+    """On the DTLZ2 front the local rate of f1 per unit of f2 is f2 / f1 (Deb et al. 2002)."""
+    # The DTLZ2 front is the unit sphere octant; its normal at f is f itself, so holding f3,
+    # f1 df1 + f2 df2 = 0 and f1 given up per unit f2 gained is f2 / f1 (calculus).
+    u, v = np.meshgrid(np.linspace(0.05, 0.95, 41), np.linspace(0.05, 0.95, 41))
+    theta, phi = (u * np.pi / 2).ravel(), (v * np.pi / 2).ravel()
+    points = np.column_stack(
+        [np.cos(theta) * np.cos(phi), np.cos(theta) * np.sin(phi), np.sin(theta)]
+    )
+    front = make_front(points, ["min"] * 3)
+    for aim in [(0.7, 0.4, 0.6), (0.3, 0.6, 0.74)]:
+        at = int(
+            np.argmin(
+                np.linalg.norm(front.points() - np.asarray(aim) / np.linalg.norm(aim), axis=1)
+            )
+        )
+        rates = tradeoff_rates(front, at).set_index(["give", "gain"])["rate"]
+        f = front.points()[at]
+        assert len(rates) == 3
+        # The plane is fitted through neighbours on a curved surface: a few per cent off
+        # where the grid is lopsided (along f3), near exact along the symmetric f1-f2 rows.
+        assert rates["f1", "f2"] == pytest.approx(f[1] / f[0], rel=0.01)
+        assert rates["f1", "f3"] == pytest.approx(f[2] / f[0], rel=0.03)
+        assert rates["f2", "f3"] == pytest.approx(f[2] / f[1], rel=0.03)
+
+
+def test_rates_reject_a_bad_design_index():
+    """Asking for the rates at a row the front does not have is a DataError."""
+    front = make_front([(1, 2), (2, 1)], ["min", "min"])
+    with pytest.raises(DataError, match="design 5 is not a row"):
+        tradeoff_rates(front, 5)
+
+
+def test_contributions_of_a_staircase():
+    """Each point's exclusive hypervolume matches the hand count on a staircase (moocore)."""
+    # (1,3), (2,2), (3,1) under (4,4): exclusive boxes 1x1 each -> 1, 1, 1.
+    front = make_front([(1, 3), (2, 2), (3, 1)], ["min", "min"])
+    assert front.contributions([4, 4]).tolist() == pytest.approx([1.0, 1.0, 1.0])
