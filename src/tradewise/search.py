@@ -52,6 +52,7 @@ STATUS_TEXT = {
 }
 
 _FAILED_PENALTY = 1e6  # violation given to a failed evaluation: always worse than any real violation
+_FAILED_OBJECTIVE = 1e30  # objective values given to a failed design when the case has no constraints
 _EXHAUSTED_AFTER = 25  # generations in a row without a new design before giving up
 
 
@@ -138,13 +139,25 @@ def middle_design(case: Case) -> dict[str, Any]:
 
 
 def design_key(design: dict[str, Any]) -> str:
-    """A canonical text key of a design: equal designs give equal keys (reals to 12 significant digits)."""
+    """A canonical text key of a design: equal designs give equal keys (reals to 12 significant digits).
+
+    Examples
+    --------
+    >>> design_key({"t": 0.1 + 0.2, "n": 3, "alloy": "6063", "coat": True})
+    't=0.3|n=3|alloy="6063"|coat=true'
+    """
     parts = []
     for name, value in design.items():
-        if isinstance(value, float):
-            value = float(f"{value:.12g}")
-        parts.append([name, value])
-    return json.dumps(parts, separators=(",", ":"))
+        if isinstance(value, bool):
+            text = "true" if value else "false"
+        elif isinstance(value, float):
+            text = f"{value:.12g}"
+        elif isinstance(value, str):
+            text = json.dumps(value)
+        else:
+            text = repr(value)
+        parts.append(f"{name}={text}")
+    return "|".join(parts)
 
 
 # ----------------------------------------------------------------------------------------- result
@@ -200,8 +213,10 @@ class _Run:
         self.n_cached = 0
         self.first_failure = ""
         self.front_rows: list[int] = []  # positions in self.records
+        self.front_pts = np.empty((0, len(case.objectives)))
         self.reference: np.ndarray | None = None
         self.reference_source = ""
+        self.scale: np.ndarray | None = None
         self.history: list[dict[str, Any]] = []
         self.next_id = 1
 
@@ -264,10 +279,13 @@ class _Run:
 
     # -- one generation ---------------------------------------------------------------------
     def update_front(self, new_rows: list[int]) -> None:
-        candidates = self.front_rows + [i for i in new_rows if self.records[i]["feasible"]]
-        if not candidates:
+        fresh = [i for i in new_rows if self.records[i]["feasible"]]
+        if not fresh:
             return
-        points = np.array([[self.records[i][o.name] for o in self.objectives] for i in candidates], dtype=float)
+        names = [o.name for o in self.objectives]
+        new_points = np.array([[self.records[i][n] for n in names] for i in fresh], dtype=float)
+        candidates = self.front_rows + fresh
+        points = np.vstack([self.front_pts, new_points]) if self.front_rows else new_points
         if self.reference is None:
             self.reference = reference_point(points, self.maximise, worst=[o.worst for o in self.objectives])
             given = [o.name for o in self.objectives if o.worst is not None]
@@ -276,13 +294,18 @@ class _Run:
                 else "fixed from the first feasible designs (worst value plus 10% of the range)"
                 + (f"; case values for {', '.join(given)}" if given else "")
             )
-        mask = nondominated(points, self.maximise)
+        if self.scale is None:
+            best = np.where(self.maximise, points.max(axis=0), points.min(axis=0))
+            scale = np.abs(self.reference - best)
+            self.scale = np.where(scale > 0, scale, 1.0)
+        # Values equal to 1e-9 of the objective's scale count as ties, so floating-point noise
+        # (cos(pi/2) is 6e-17, not 0) cannot keep an unconverged design on the front.
+        mask = nondominated(np.round(points / self.scale, 9), self.maximise)
         self.front_rows = [i for i, keep in zip(candidates, mask, strict=True) if keep]
+        self.front_pts = points[mask]
 
     def front_points(self) -> np.ndarray:
-        if not self.front_rows:
-            return np.empty((0, len(self.objectives)))
-        return np.array([[self.records[i][o.name] for o in self.objectives] for i in self.front_rows], dtype=float)
+        return self.front_pts
 
     def hypervolume(self) -> float:
         if self.reference is None or not self.front_rows:
@@ -311,10 +334,19 @@ def _problem(case: Case, space: Space) -> Problem:
     return Problem(
         n_var=len(case.variables),
         n_obj=len(case.objectives),
-        n_ieq_constr=len(case.constraints) + 1,
+        n_ieq_constr=_n_constraint_columns(case),
         xl=space.xl,
         xu=space.xu,
     )
+
+
+def _n_constraint_columns(case: Case) -> int:
+    """Constraint columns given to pymoo: the case's, plus one for failed evaluations.
+
+    A case without constraints gets none, so that pymoo skips its feasibility
+    bookkeeping; a failed design then gets the worst possible objective values.
+    """
+    return len(case.constraints) + 1 if case.constraints else 0
 
 
 def _versions() -> dict[str, str]:
@@ -511,10 +543,10 @@ def _restore(run: _Run, archive: Store, run_id: int, record: dict[str, Any]) -> 
             if row["status"] != "ok":
                 run.n_failed += 1
                 run.first_failure = run.first_failure or row["message"]
-    run.update_front(list(range(len(run.records))))
     if record.get("reference"):
         run.reference = np.asarray(record["reference"]["point"], dtype=float)
         run.reference_source = record["reference"]["source"]
+    run.update_front(list(range(len(run.records))))
     history = archive.history(run_id)
     run.history = history.to_dict("records") if len(history) else []
 
@@ -537,6 +569,7 @@ def _loop(run: _Run, algorithm, algorithm_name: str, space: Space, executor: InP
     case, settings = run.case, run.case.search
     problem = algorithm.problem
     n_obj = len(case.objectives)
+    n_con = _n_constraint_columns(case)
     generation = len(run.history)
     idle = 0
     status = ""
@@ -607,18 +640,22 @@ def _loop(run: _Run, algorithm, algorithm_name: str, space: Space, executor: InP
                 run.store.flush()
 
             F = np.zeros((len(keys), n_obj))
-            G = np.zeros((len(keys), len(case.constraints) + 1))
+            G = np.zeros((len(keys), n_con)) if n_con else None
             for r, key in enumerate(keys):
                 outcome = outcomes[key]
                 if outcome["status"] != "ok":
-                    G[r, -1] = _FAILED_PENALTY
+                    if n_con:
+                        G[r, -1] = _FAILED_PENALTY
+                    else:
+                        F[r, :] = _FAILED_OBJECTIVE
                     continue
                 results = outcome["results"]
                 for j, o in enumerate(case.objectives):
                     F[r, j] = -results[o.name] if o.maximise else results[o.name]
                 for j, c in enumerate(case.constraints):
                     G[r, j] = c.violation(results[c.name])
-            algorithm.evaluator.eval(StaticProblem(problem, F=F, G=G), pop)
+            values = {"F": F} if G is None else {"F": F, "G": G}
+            algorithm.evaluator.eval(StaticProblem(problem, **values), pop)
             algorithm.tell(infills=pop)
 
             new_rows = list(range(first_new, len(run.records)))

@@ -1,0 +1,287 @@
+"""The search against published fronts, and its bookkeeping: budget, cache, seeds, stops, failures."""
+
+from __future__ import annotations
+
+import math
+
+import moocore
+import numpy as np
+import pytest
+from hypothesis import HealthCheck, given, settings
+from hypothesis import strategies as st
+from support import CASES
+
+from tradewise.case import load_case
+from tradewise.errors import ModelError
+from tradewise.search import Space, design_key, run_study, save_run
+
+# --------------------------------------------------------------------------- published fronts
+
+
+@pytest.mark.slow
+def test_zdt1_front_and_hypervolume():
+    """ZDT1 (Zitzler, Deb, Thiele 2000): front f2 = 1 - sqrt(f1); exact HV for ref (1, 1) is 2/3.
+
+    Budget stated here: 20,000 evaluations, the case's population of 60, seed 1.
+    """
+    result = run_study(CASES / "zdt1", evaluations=20_000, seed=1)
+    points = result.front.points()
+    assert result.hypervolume >= 0.99 * (2 / 3)
+    assert result.hypervolume <= 2 / 3 + 1e-12  # nothing can beat the true front
+    distance = np.abs(points[:, 1] - (1 - np.sqrt(points[:, 0])))
+    assert distance.max() <= 1e-2
+    # Cross-check our hypervolume against moocore called directly on the exported points.
+    assert result.hypervolume == pytest.approx(moocore.hypervolume(points, ref=[1.0, 1.0]), rel=1e-12)
+
+
+@pytest.mark.slow
+def test_zdt2_front_and_hypervolume():
+    """ZDT2 (Zitzler, Deb, Thiele 2000): front f2 = 1 - f1^2; exact HV for ref (1, 1) is 1/3.
+
+    Budget stated here: 20,000 evaluations, population 60, seed 1.
+    """
+    result = run_study(CASES / "zdt2", evaluations=20_000, seed=1)
+    points = result.front.points()
+    assert 0.99 / 3 <= result.hypervolume <= 1 / 3 + 1e-12
+    assert np.abs(points[:, 1] - (1 - points[:, 0] ** 2)).max() <= 1e-2
+
+
+@pytest.mark.slow
+def test_dtlz2_on_the_unit_sphere():
+    """DTLZ2, 3 objectives, 12 variables (Deb, Thiele, Laumanns, Zitzler 2002): the front is the
+    positive octant of the unit sphere; exact HV for ref (1, 1, 1) is 1 - pi/6 = 0.476401.
+
+    Budget stated here: 30,000 evaluations, seed 1. Points on the edges of the octant (one objective
+    exactly 0) converge last, so a few of them may still lie up to 0.1 off the sphere.
+    """
+    result = run_study(CASES / "dtlz2", evaluations=30_000, seed=1)
+    norms = np.linalg.norm(result.front.points(), axis=1)
+    assert np.mean(np.abs(norms - 1) <= 2e-2) >= 0.99
+    assert np.abs(norms - 1).max() <= 0.1
+    assert norms.min() >= 1 - 1e-9  # no point can lie inside the sphere
+    exact = 1 - math.pi / 6
+    assert 0.97 * exact <= result.hypervolume <= exact
+
+
+@pytest.mark.slow
+def test_two_bar_truss_against_analytic_front():
+    """Two-bar truss (Deb 2001, pp. 432-433), stress <= 1e5 kPa. On the analytic front
+    volume x stress = 400 for 0.004 <= V <= 0.0447 m3 (y = 2); the smallest volume is 0.004 m3 and
+    the smallest stress 8432.74 kPa (80 sqrt(10) / 0.03). The published epsilon-constraint points
+    (0.004445 m3, 89,983 kPa) and (0.004833 m3, 83,268 kPa) have products 399.97 and 402.43.
+    """
+    result = run_study(CASES / "truss", evaluations=12_000, seed=1)
+    table = result.front.table
+    volume, stress = table["volume"].to_numpy(), table["stress"].to_numpy()
+    assert (stress <= 1e5 * (1 + 1e-9)).all()
+    assert volume.min() >= 0.004 * (1 - 1e-6)
+    assert stress.min() >= 8432.74 * (1 - 1e-6)
+    middle = (volume >= 0.0045) & (volume <= 0.04)
+    assert middle.sum() >= 20
+    product = volume[middle] * stress[middle]
+    assert product.min() >= 400 * (1 - 1e-6)  # nothing beats the analytic front
+    assert np.median(product) <= 400 * 1.02
+    assert volume.min() <= 0.0045 and stress.min() <= 8432.74 * 1.05  # the front spans both ends
+
+
+# --------------------------------------------------------------------------- bookkeeping
+
+
+def test_same_seed_same_front():
+    """Two runs with the same seed give the same front, value for value."""
+    a = run_study(CASES / "mixed", seed=4, evaluations=300)
+    b = run_study(CASES / "mixed", seed=4, evaluations=300)
+    assert a.front.table.drop(columns=["duration"]).equals(b.front.table.drop(columns=["duration"]))
+    c = run_study(CASES / "mixed", seed=5, evaluations=300)
+    assert not c.evaluations[["width"]].equals(a.evaluations[["width"]])
+
+
+def test_budget_is_exact_and_no_design_evaluated_twice():
+    """The budget counts model evaluations exactly, and no design is evaluated twice in a run."""
+    result = run_study(CASES / "mixed", seed=2, evaluations=333)
+    fresh = result.evaluations[~result.evaluations["cached"]]
+    assert result.n_evals == 333 == len(fresh)
+    keys = [design_key({v: row[v] for v in result.case.variable_names}) for _, row in fresh.iterrows()]
+    assert len(set(keys)) == len(keys)
+    assert result.status == "budget"
+
+
+def test_front_is_nondominated_set_of_all_feasible_evaluations():
+    """The front equals moocore's non-dominated filter over every feasible evaluation, not the last population."""
+    result = run_study(CASES / "mixed", seed=3, evaluations=400)
+    feasible = result.evaluations[result.evaluations["feasible"]]
+    points = feasible[["cost", "life"]].to_numpy(dtype=float)
+    expected = moocore.filter_dominated(points, maximise=[False, True])
+    got = result.front.points()
+    assert {tuple(p) for p in np.round(got, 12)} == {tuple(p) for p in np.round(expected, 12)}
+    last_generation = feasible[feasible["generation"] == feasible["generation"].max()]
+    assert len(result.front) > 0 and len(last_generation) < len(feasible)
+
+
+def test_generation_and_time_limits_stop_the_run():
+    """A generation limit and a wall-clock limit are stopping statuses, not errors."""
+    by_generations = run_study(CASES / "mixed", generations=3, evaluations=10_000)
+    assert by_generations.status == "generations" and by_generations.n_gen == 3
+    by_time = run_study(CASES / "zdt1", time_limit=0.3, evaluations=10**7)
+    assert by_time.status == "time_limit"
+
+
+def test_stagnation_stops_the_run(make_case):
+    """A front that cannot improve any more stops the run by the hypervolume stall rule."""
+    folder = make_case(
+        """
+        title = "flat"
+        model = "model.py:evaluate"
+        [variables]
+        x = { type = "integer", low = 0, high = 400 }
+        y = { type = "real", low = 0.0, high = 1.0 }
+        [objectives]
+        cost = { goal = "min" }
+        mass = { goal = "min" }
+        [search]
+        population = 10
+        evaluations = 100000
+        stall_generations = 5
+        stall_tolerance = 1e-3
+        """,
+        "def evaluate(d):\n    return {'cost': abs(d['x'] - 200) / 200 + 0.0 * d['y'], 'mass': 1 - abs(d['x'] - 200) / 200}\n",
+    )
+    result = run_study(folder)
+    assert result.status in {"stalled", "exhausted"}
+    assert result.n_evals < 100000
+
+
+def test_failures_are_recorded_and_the_run_goes_on(make_case):
+    """Designs whose model raises or returns NaN are stored as failed with their message; the run completes."""
+    folder = make_case(
+        model="""
+        import math
+        def evaluate(design):
+            x = design["x"]
+            if x < 0.2:
+                raise ValueError("too thin to mesh")
+            if x > 0.8:
+                return {"cost": math.nan, "mass": 1.0}
+            return {"cost": x, "mass": (1 - x) ** 2 + 0.1}
+        """
+    )
+    result = run_study(folder, evaluations=200, seed=1)
+    failed = result.evaluations[result.evaluations["status"] == "failed"]
+    assert result.n_failed == len(failed[~failed["cached"]]) > 0
+    assert failed["message"].str.contains("too thin to mesh").any()
+    assert failed["message"].str.contains("finite number").any()
+    assert (result.front.table["x"].between(0.2, 0.8)).all()
+    assert "failed" in result.message
+
+
+def test_first_generation_all_failed_stops_with_the_first_message(make_case):
+    """If every design of the first generation fails, the run stops with an error quoting the first message."""
+    folder = make_case(model="def evaluate(design):\n    raise RuntimeError('licence server down')\n")
+    with pytest.raises(ModelError, match="licence server down"):
+        run_study(folder, evaluations=100)
+
+
+def test_missing_key_is_a_failure(make_case):
+    """A model that forgets an objective fails that design with a message naming the key."""
+    folder = make_case(model="def evaluate(d):\n    return {'cost': d['x'] if d['x'] > 0.5 else 'n/a', 'mass': 1 - d['x']}\n")
+    result = run_study(folder, evaluations=60)
+    messages = result.evaluations.loc[result.evaluations["status"] == "failed", "message"]
+    assert messages.str.contains("'cost' is 'n/a'").all() and len(messages) > 0
+
+
+def test_no_feasible_design_is_reported_plainly(make_case, tmp_path):
+    """A run without a feasible design ends normally, names the broken constraint and exports the nearest designs."""
+    folder = make_case(
+        """
+        title = "impossible"
+        model = "model.py:evaluate"
+        [variables]
+        x = { type = "real", low = 0.0, high = 1.0 }
+        [objectives]
+        cost = { goal = "min" }
+        mass = { goal = "min" }
+        [constraints]
+        gap = { min = 5.0, unit = "mm" }
+        """,
+        "def evaluate(d):\n    return {'cost': d['x'], 'mass': 1 - d['x'], 'gap': 4.0 * d['x']}\n",
+    )
+    result = run_study(folder, evaluations=120, seed=1)
+    assert len(result.front) == 0
+    assert "No feasible design" in result.message and "gap >= 5 mm" in result.message
+    assert "missed by 1" in result.message  # 5 - 4 * x at best x near 1: about 1 mm
+    written = save_run(result, tmp_path / "run")
+    assert "least_infeasible" in written and not (tmp_path / "run" / "front.csv").exists()
+    nearest = written["least_infeasible"].read_text().splitlines()
+    assert len(nearest) > 1
+
+
+def test_reference_point_from_worst_or_first_feasible(make_case):
+    """The hypervolume reference comes from `worst` where given, otherwise once from the first feasible designs."""
+    folder = make_case()
+    result = run_study(folder, evaluations=200, seed=1)
+    first = result.evaluations[result.evaluations["generation"] == 1]
+    cost, mass = first["cost"], first["mass"]
+    expected = [cost.max() + 0.1 * (cost.max() - cost.min()), mass.max() + 0.1 * (mass.max() - mass.min())]
+    # Only the first generation's non-dominated designs set it, so it can only be at or inside this box.
+    assert result.reference[0] <= expected[0] + 1e-12 and result.reference[1] <= expected[1] + 1e-12
+    assert list(result.history["hypervolume"]) == sorted(result.history["hypervolume"])  # never falls
+    zdt = run_study(CASES / "zdt1", evaluations=120)
+    assert zdt.reference == (1.0, 1.0)
+
+
+def test_save_run_writes_the_run_folder(tmp_path):
+    """front.csv has unit headers, front.json the provenance, history.csv one row a generation."""
+    import json
+
+    from tradewise.front import read_front
+
+    result = run_study(CASES / "mixed", evaluations=200, seed=1)
+    save_run(result, tmp_path)
+    header = (tmp_path / "front.csv").read_text().splitlines()[0]
+    assert "width [mm]" in header and "cost [EUR]" in header and "load [kN]" in header
+    meta = json.loads((tmp_path / "front.json").read_text())
+    for key in ("seed", "settings", "versions", "case_hash", "reference_point", "hypervolume", "objectives"):
+        assert key in meta
+    assert meta["objectives"][1] == {"name": "life", "goal": "max", "unit": "h", "worst": None}
+    back = read_front(tmp_path)
+    assert len(back) == len(result.front)
+    assert back.hypervolume() == pytest.approx(result.hypervolume)
+    history = (tmp_path / "history.csv").read_text().splitlines()
+    assert len(history) == result.n_gen + 1
+
+
+# --------------------------------------------------------------------------- mixed variables
+
+
+@settings(max_examples=25, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(st.lists(st.lists(st.floats(-10, 10, allow_nan=False), min_size=4, max_size=4), min_size=1, max_size=20))
+def test_space_never_emits_illegal_values(rows):
+    """Whatever the operators propose, decoding gives integers, known options, booleans, in range."""
+    case = load_case(CASES / "mixed")
+    space = Space(case)
+    X = space.repair(np.asarray(rows, dtype=float))
+    for x in X:
+        design = space.decode(x)
+        for v in case.variables:
+            assert v.contains(design[v.name]), (v, design[v.name])
+        assert type(design["count"]) is int and type(design["fast"]) is bool
+
+
+@settings(max_examples=5, deadline=None, suppress_health_check=[HealthCheck.too_slow])
+@given(st.integers(0, 10_000))
+def test_mixed_runs_only_evaluate_legal_designs(seed):
+    """Mixed-variable runs never send a fractional integer, unknown option or out-of-range value (the model asserts)."""
+    result = run_study(CASES / "mixed", seed=seed, evaluations=120)
+    assert result.n_failed == 0
+    case = result.case
+    for row in result.evaluations.to_dict("records"):
+        for v in case.variables:
+            assert v.contains(row[v.name] if v.kind != "integer" else int(row[v.name]))
+
+
+def test_every_option_is_reachable():
+    """Each choice option and both flag values appear in a modest run (equal shares of the axis)."""
+    result = run_study(CASES / "mixed", seed=1, evaluations=200)
+    assert set(result.evaluations["finish"]) == {"bare", "anodised", "painted"}
+    assert set(result.evaluations["fast"]) == {True, False}
+    assert {-3, 7} <= set(result.evaluations["count"])
