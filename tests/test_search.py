@@ -9,8 +9,8 @@ import numpy as np
 import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
-from support import CASES
 
+from support import CASES
 from tradewise.case import load_case
 from tradewise.errors import ModelError
 from tradewise.search import Space, design_key, run_study, save_run
