@@ -1,0 +1,83 @@
+"""The command line: run, check and cases, through click's CliRunner."""
+
+from __future__ import annotations
+
+import json
+
+import pandas as pd
+from click.testing import CliRunner
+
+from support import CASES
+from tradewise.cli import main
+
+
+def test_run_writes_folder_and_summary(tmp_path):
+    """`tradewise run` writes the run folder and ends with front size, hypervolume and each objective's range."""
+    out = tmp_path / "run"
+    result = CliRunner().invoke(main, ["run", str(CASES / "mixed"), "--out", str(out), "--evaluations", "200",
+                                       "--seed", "3", "--quiet"])
+    assert result.exit_code == 0, result.output
+    for name in ("front.csv", "front.json", "history.csv", "archive.sqlite"):
+        assert (out / name).exists()
+    assert "Front:" in result.output and "hypervolume" in result.output
+    assert "cost [EUR]  min  best" in result.output and "life [h]" in result.output
+    meta = json.loads((out / "front.json").read_text())
+    assert meta["seed"] == 3 and meta["settings"]["evaluations"] == 200
+    front = pd.read_csv(out / "front.csv")
+    assert len(front) == meta["n_designs"] > 0
+
+
+def test_run_without_terminal_prints_plain_lines(tmp_path):
+    """Without a terminal the progress is plain lines (no bar control characters)."""
+    result = CliRunner().invoke(main, ["run", str(CASES / "mixed"), "--out", str(tmp_path / "r"),
+                                       "--evaluations", "100"])
+    assert result.exit_code == 0
+    assert "gen 1  evals" in result.output and "\r" not in result.output
+
+
+def test_run_twice_into_same_store_uses_cache(tmp_path):
+    """A second run of the same case and seed into the same archive evaluates nothing again."""
+    args = ["run", str(CASES / "mixed"), "--out", str(tmp_path / "r"), "--evaluations", "150", "--quiet"]
+    assert CliRunner().invoke(main, args).exit_code == 0
+    second = CliRunner().invoke(main, args)
+    assert second.exit_code == 0
+    assert "served from the archive" in second.output
+
+
+def test_check_evaluates_one_design():
+    """`tradewise check` validates the case and shows one evaluated design."""
+    result = CliRunner().invoke(main, ["check", str(CASES / "truss")])
+    assert result.exit_code == 0, result.output
+    assert "-> volume =" in result.output and "The case is valid" in result.output
+
+
+def test_check_reports_a_failing_model(make_case):
+    """A model that fails on the middle design gives exit 2 and one Error line quoting it."""
+    folder = make_case(model="def evaluate(d):\n    return {'cost': 1.0}\n")
+    result = CliRunner().invoke(main, ["check", str(folder)])
+    assert result.exit_code == 2
+    assert result.output.strip().splitlines()[-1].startswith("Error: ")
+    assert "no 'mass'" in result.output
+
+
+def test_model_that_cannot_import_is_one_line(make_case, tmp_path):
+    """A model file that raises on import gives exit 2 and names the file."""
+    folder = make_case(model="import not_a_module_anywhere\ndef evaluate(d):\n    return {}\n")
+    result = CliRunner().invoke(main, ["run", str(folder), "--out", str(tmp_path / "r"), "--quiet"])
+    assert result.exit_code == 2 and "model.py" in result.output and "Traceback" not in result.output
+
+
+def test_help_for_every_command():
+    """Every command answers --help with exit 0."""
+    runner = CliRunner()
+    top = runner.invoke(main, ["--help"])
+    assert top.exit_code == 0
+    for name in main.commands:
+        assert runner.invoke(main, [name, "--help"]).exit_code == 0, name
+
+
+def test_debug_shows_traceback(make_case):
+    """--debug lets a user error through with its traceback."""
+    folder = make_case("title = 'x'\n[variables\n")
+    result = CliRunner().invoke(main, ["--debug", "check", str(folder)])
+    assert result.exit_code != 0 and result.exception is not None
