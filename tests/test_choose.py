@@ -510,3 +510,13 @@ def test_describe_choice_names_units_ranks_and_rates():
     assert "to row 4: 5 k$ more cost per 10 kg less mass" in text
     assert "to row 2: 6.67 kg more mass per 1 k$ less cost" in text
     assert "Knee methods: knee, tradeoff, kneedle all point at row 3." in text
+
+
+def test_describe_choice_three_objectives_lists_nearest_moves():
+    """With three objectives the description gives local-plane rates and moves to the nearest designs."""
+    front = make_front(EX4, units=["kg", "EUR", "W"])
+    row = choose(front, "knee")[0]
+    text = "\n".join(describe_choice(front, [row], method="knee"))
+    # Nearest to (0.2, 0.2, 0.2) in normalised space is (0.5, 0.3, 0.1): +0.3 kg, +0.1 EUR, -0.1 W.
+    assert "+0.3 kg, f2 +0.1 EUR, f3 -0.1 W" in text
+    assert text.count("locally:") == 3

@@ -968,6 +968,8 @@ def describe_choice(
                     )
                 else:
                     lines.append(f"  locally: {rate['text']}")
+            if len(front.objectives) > 2:
+                lines.extend(_nearest_moves(sub, k, keep))
         if total > 0:
             share = 100.0 * contributions[int(row)] / total
             lines.append(
@@ -987,6 +989,22 @@ def describe_choice(
     else:
         parts = "; ".join(f"{', '.join(ms)} at row {r + 1}" for r, ms in groups)
         lines.append(f"Knee methods differ: {parts}.")
+    return lines
+
+
+def _nearest_moves(front: Front, k: int, keep: np.ndarray, n_moves: int = 3) -> list[str]:
+    """The changes in every objective from design ``k`` to its nearest designs (normalised distance)."""
+    scaled = normalised(front)
+    distance = np.linalg.norm(scaled - scaled[k], axis=1)
+    distance[k] = np.inf
+    points = front.points()
+    lines = []
+    for j in np.argsort(distance, kind="stable")[: min(n_moves, len(front) - 1)]:
+        changes = ", ".join(
+            f"{o.name} {points[j, m] - points[k, m]:+.3g}{' ' + o.unit if o.unit else ''}"
+            for m, o in enumerate(front.objectives)
+        )
+        lines.append(f"  near row {int(keep[j]) + 1}: {changes}")
     return lines
 
 

@@ -578,7 +578,7 @@ def _rates_on_local_plane(front: Front, index: int | None, n_neighbours: int | N
                         "rate": rate,
                         "per": per,
                         "text": _rate_text(front, front.objectives[a].name, front.objectives[b].name, rate, per)
-                        + " (others held)",
+                        + (" (others held)" if rate >= 0 else ""),
                     }
                 )
     return rows
@@ -597,7 +597,7 @@ def _rate_text(front: Front, give: str, gain: str, rate: float, per: float) -> s
     if not math.isfinite(rate):
         return f"no change in {gain} between these designs"
     if rate < 0:
-        return f"{give} and {gain} both improve here"
+        return f"{give} and {gain} do not trade off here (the front is uneven around this design)"
     give_word = "more" if goals[give] == "min" else "less"
     gain_word = "less" if goals[gain] == "min" else "more"
     parts = [_number(rate * per), front.units.get(give, ""), give_word, give, "per", _number(per), front.units.get(gain, ""), gain_word, gain]
