@@ -294,3 +294,12 @@ def test_contributions_of_a_staircase():
     # (1,3), (2,2), (3,1) under (4,4): exclusive boxes 1x1 each -> 1, 1, 1.
     front = make_front([(1, 3), (2, 2), (3, 1)], ["min", "min"])
     assert front.contributions([4, 4]).tolist() == pytest.approx([1.0, 1.0, 1.0])
+
+
+def test_three_objective_rates_from_three_designs():
+    """Three designs fix a plane: (1,2,3), (3,2,1), (2,3,1) lie on a + b + c = 6, all rates 1."""
+    # Normal by hand: (2, 0, -2) x (1, 1, -2) = (2, 2, 2). With two designs no plane is fixed.
+    front = make_front([(1, 2, 3), (3, 2, 1), (2, 3, 1)], ["min"] * 3, ["a", "b", "c"])
+    assert tradeoff_rates(front, 0)["rate"].to_numpy() == pytest.approx([1.0, 1.0, 1.0])
+    two = make_front([(1, 2, 3), (3, 2, 1)], ["min"] * 3, ["a", "b", "c"])
+    assert tradeoff_rates(two, 0)["text"].str.startswith("too few designs").all()

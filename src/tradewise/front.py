@@ -558,7 +558,7 @@ def _rates_on_local_plane(front: Front, index: int | None, n_neighbours: int | N
         dist[i] = np.inf
         near = np.argsort(dist, kind="stable")[:k]
         normal = np.full(m, np.nan)
-        if k >= m:
+        if k >= m - 1:  # the design and m - 1 neighbours fix a plane
             patch = scaled[np.concatenate([[i], near])]
             normal = np.linalg.svd(patch - patch.mean(axis=0))[2][-1]
             normal = -normal if normal.sum() < 0 else normal
@@ -577,11 +577,17 @@ def _rates_on_local_plane(front: Front, index: int | None, n_neighbours: int | N
                         "give_amount": rate * per,
                         "rate": rate,
                         "per": per,
-                        "text": _rate_text(front, front.objectives[a].name, front.objectives[b].name, rate, per)
-                        + (" (others held)" if rate >= 0 else ""),
+                        "text": _plane_text(front, a, b, rate, per, fitted=not np.isnan(normal).any()),
                     }
                 )
     return rows
+
+
+def _plane_text(front: Front, a: int, b: int, rate: float, per: float, *, fitted: bool) -> str:
+    give, gain = front.objectives[a].name, front.objectives[b].name
+    if not fitted:
+        return f"too few designs to estimate the rate of {give} per {gain}"
+    return _rate_text(front, give, gain, rate, per) + (" (others held)" if rate >= 0 else "")
 
 
 def _readable_step(amounts: Sequence[float]) -> float:
