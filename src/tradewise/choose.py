@@ -277,7 +277,7 @@ def knee_distance(points: np.ndarray) -> np.ndarray:
     span a plane ``n . f = 1``; the distance is ``(1 - n . f) / |n|``, positive
     on the side of the ideal point. The knee is the point with the largest
     distance (Das 1999; Branke et al. 2004; used as a knee definition by
-    Zhang, Tian and Jin 2015). When the extreme points do not span a plane with
+    Zhang, Tian and Jin 2015, from memory). When the extreme points do not span a plane with
     positive intercepts, the plane ``sum(f) = 1`` is used instead.
 
     Parameters
@@ -294,7 +294,7 @@ def knee_distance(points: np.ndarray) -> np.ndarray:
     References
     ----------
     Das, I. (1999). On characterizing the "knee" of the Pareto curve based on
-    normal-boundary intersection. Structural Optimization 18:107-115.
+    normal-boundary intersection. Structural Optimization 18:107-115 (from memory).
     Branke, J., Deb, K., Dierolf, H., Osswald, M. (2004). Finding knees in
     multi-objective optimization. PPSN VIII, LNCS 3242, pp. 722-731.
 
@@ -390,8 +390,8 @@ def kneedle(points: np.ndarray, *, sensitivity: float = 1.0) -> tuple[np.ndarray
     both normalised and minimised, so it is convex and decreasing. Its
     difference curve is ``y_d = (1 - y) - x``; every local maximum of ``y_d``
     is a candidate, and it is confirmed as a knee when ``y_d`` drops below
-    ``y_d(max) - sensitivity * mean(dx)`` before the next local maximum (the
-    paper's offline form, without smoothing).
+    ``y_d(max) - sensitivity * mean(dx)`` before the next local maximum. No
+    smoothing is applied, and every confirmed knee is reported.
 
     Parameters
     ----------

@@ -190,8 +190,9 @@ def check_command(case) -> None:
 def front_command(table, minimise, maximise, keep, out) -> None:
     """Keep the rows of TABLE.csv that no other row beats in every objective.
 
-    Name the objectives with --min and --max (at least two in all); a header
-    such as "mass [g]" can be named as mass. Every other column is kept
+    Name the objectives with --min and --max (at least two in all; the --min
+    ones come first); a header such as "mass [g]" can be named as mass. Every
+    other column is kept
     unless --keep lists the ones wanted. Without --out the front is printed
     as CSV.
     """
