@@ -14,7 +14,7 @@ import math
 # ---- invented scenario (N, mm, MPa unless stated) ---------------------------------
 SPAN = 12_000.0  # mm
 TRIBUTARY = 1.25  # m of deck width carried by one girder
-DECK_LOAD = 1.2  # kN/m^2: deck planks, cross-beams, parapet share (invented)
+DECK_LOAD = 2.5  # kN/m^2: hardwood deck, surfacing, cross-beams, parapet share (invented)
 CROWD_LOAD = 5.0  # kN/m^2: pedestrian crowd load, a user-set value (see README)
 GAMMA_G, GAMMA_Q = 1.35, 1.5  # EN 1990 Table A1.2(B) recommended factors (from memory)
 GAMMA_M0 = 1.0  # EN 1993-1-1 6.1 recommended values (from memory)
@@ -28,8 +28,8 @@ G = 9.81  # m/s^2
 #: (EN 1993-1-1 Table 3.1, from memory) and an invented price factor on S235 plate.
 GRADES = {
     "S235": {"fy": 235.0, "price": 1.00},
-    "S355": {"fy": 355.0, "price": 1.07},
-    "S460": {"fy": 460.0, "price": 1.22},
+    "S355": {"fy": 355.0, "price": 1.05},
+    "S460": {"fy": 460.0, "price": 1.15},
 }
 
 # ---- invented fabrication prices ---------------------------------------------------
