@@ -40,9 +40,11 @@ def cases_command() -> None:
     """List the example cases that come with tradewise."""
     from tradewise.case import bundled_cases, load_case
 
-    for name, path in bundled_cases().items():
+    cases = bundled_cases()
+    width = max((len(name) for name in cases), default=0)
+    for name, path in cases.items():
         case = load_case(path)
-        click.echo(f"{name:<16} {case.title}")
+        click.echo(f"{name:<{width}}  {case.title}")
 
 
 class _Progress:
@@ -254,6 +256,92 @@ def pick_command(front_path, method, weights, target, limits, top, minimise, max
         picked = replace(front.with_table(shortlist), meta={**front.meta, "shortlist": settings})
         written = picked.to_csv(out)
         click.echo(f"Wrote {written[0]} and {written[1].name}")
+
+
+def _read_run(run: str, *, evaluations: bool = True):
+    """The front, the history and (from the archive, when it is there) every evaluation of a run folder."""
+    import json
+    from pathlib import Path
+
+    import pandas as pd
+
+    from tradewise.errors import DataError
+    from tradewise.front import read_front
+    from tradewise.store import open_store
+
+    folder = Path(run)
+    if not folder.is_dir():
+        raise DataError(f"{folder}: not a run folder; give the folder that `tradewise run` wrote")
+    meta_path = folder / "front.json"
+    if meta_path.is_file() and not (folder / "front.csv").is_file():
+        try:
+            feasible = json.loads(meta_path.read_text(encoding="utf-8")).get("feasible", True)
+        except (OSError, ValueError):
+            feasible = True
+        if feasible is False:
+            raise DataError(f"{folder}: the run found no feasible design, so it has no front to show; "
+                            "see least_infeasible.csv there")
+    front = read_front(folder)
+    history = None
+    if (folder / "history.csv").is_file():
+        try:
+            history = pd.read_csv(folder / "history.csv")
+        except (OSError, ValueError) as exc:
+            raise DataError(f"{folder / 'history.csv'}: cannot be read as CSV ({exc})") from None
+    table = None
+    store_name, run_id = front.meta.get("store"), front.meta.get("run_id")
+    if evaluations and store_name and run_id is not None and (folder / store_name).is_file():
+        with open_store(folder / store_name, create=False) as archive:
+            table = archive.evaluations(int(run_id))
+    return front, history, table
+
+
+@main.command("plot")
+@click.argument("run", metavar="RUN")
+@click.option("--kind", type=click.Choice(["front", "parallel", "history"]), default="front", show_default=True,
+              help="front: the best designs over all the others; parallel: one line a design; "
+                   "history: hypervolume and front size as the search went.")
+@click.option("--out", type=click.Path(dir_okay=False), help="PNG, SVG or PDF file to write (default RUN/KIND.png).")
+@click.option("--row", type=click.IntRange(min=1), help="Mark this design (a row of front.csv, counting from 1).")
+@click.option("--variables", is_flag=True, help="parallel: add an axis for each variable.")
+def plot_command(run, kind, out, row, variables) -> None:
+    """Draw a figure of the run folder RUN.
+
+    The knee design is marked when the choosing methods find one; --row marks
+    another design. Axes carry each objective's unit and which way is better.
+    """
+    from pathlib import Path
+
+    from tradewise.errors import DataError
+    from tradewise.plots import plot_kind, save_figure
+
+    front, history, evaluations = _read_run(run, evaluations=kind == "front")
+    if row is not None and row > len(front):
+        raise DataError(f"--row: {row} is past the last design of the front ({len(front)} rows)")
+    fig = plot_kind(kind, front, history=history, evaluations=evaluations,
+                    highlight=row - 1 if row is not None else None, variables=variables)
+    path = save_figure(fig, Path(out) if out else Path(run) / f"{kind}.png")
+    click.echo(f"Wrote {path}")
+
+
+@main.command("report")
+@click.argument("run", metavar="RUN")
+@click.option("--out", type=click.Path(dir_okay=False), help="HTML file to write (default RUN/review.html).")
+def report_command(run, out) -> None:
+    """Write one HTML page about the run folder RUN for a design review.
+
+    The page holds the case, how the search ran, the knee and compromise
+    designs with their trade-off rates, figures and the whole front. It needs
+    no network to open and prints to a tidy PDF.
+    """
+    from pathlib import Path
+
+    from tradewise.report import write_report
+
+    front, history, evaluations = _read_run(run)
+    path = write_report(front, Path(out) if out else Path(run) / "review.html", history=history,
+                        evaluations=evaluations)
+    click.echo(f"Wrote {path} ({path.stat().st_size // 1024} KiB)")
 
 
 if __name__ == "__main__":  # pragma: no cover
