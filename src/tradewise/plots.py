@@ -1,0 +1,1229 @@
+"""Figures of a front, its search and repeated runs, readable in greyscale and by colour-blind readers.
+
+Every figure is a :class:`matplotlib.figure.Figure` made without pyplot, so
+nothing here touches the backend or the ``rcParams`` of the caller's session:
+settings are applied inside a style context while a figure is built and while
+it is saved, and files are written through the Agg (PNG) or the vector
+canvases. Roles are told apart by marker shape, fill and line style as well as
+by colour, and the colours differ in lightness so that they survive a
+greyscale print.
+"""
+
+from __future__ import annotations
+
+import io
+import math
+import re
+from collections.abc import Mapping, Sequence
+from pathlib import Path
+from typing import Any
+
+import matplotlib
+import numpy as np
+import pandas as pd
+from matplotlib import patheffects
+from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.figure import Figure
+from matplotlib.lines import Line2D
+
+from tradewise.case import Objective
+from tradewise.errors import DataError
+from tradewise.front import Front
+
+try:  # the choosing methods are optional: figures work without them
+    from tradewise import choose as _choose
+except ImportError:  # pragma: no cover - only while choose.py is absent
+    _choose = None
+
+__all__ = [
+    "PALETTE",
+    "FIGURE_KINDS",
+    "axis_label",
+    "plot_front",
+    "plot_parallel",
+    "plot_history",
+    "attainment",
+    "plot_attainment",
+    "plot_kind",
+    "save_figure",
+    "to_svg",
+]
+
+#: Colours of the roles in every figure. Chosen for this project: they differ
+#: in lightness (greyscale) and do not rely on a red-green contrast.
+PALETTE: dict[str, str] = {
+    "ink": "#1f1f24",  # near black: text, edges, some pick markers
+    "front": "#1c4f82",  # deep blue, dark in greyscale
+    "highlight": "#e08a00",  # amber, light in greyscale: the knee or the chosen design
+    "accent": "#3f9fdc",  # sky blue: picks and the second curve; apart from amber in every common colour deficiency
+    "feasible": "#b0b0b0",  # faint grey for dominated evaluations
+    "infeasible": "#cbb89f",  # faint sand for infeasible or failed ones
+    "band": "#d7dde6",
+}
+
+#: Marker shapes and colours of picked designs after the knee, in order.
+_PICK_STYLES = (
+    ("s", "ink"),
+    ("^", "accent"),
+    ("v", "ink"),
+    ("P", "accent"),
+    ("X", "ink"),
+    ("h", "accent"),
+)
+
+#: What ``plot_kind`` and the command line can draw from a run folder.
+FIGURE_KINDS = ("front", "parallel", "history")
+
+_STYLE = {
+    "font.family": "DejaVu Sans",
+    "font.size": 9.5,
+    "axes.titlesize": 10.5,
+    "axes.labelsize": 9.5,
+    "axes.edgecolor": "#55555c",
+    "axes.labelcolor": PALETTE["ink"],
+    "axes.linewidth": 0.8,
+    "axes.grid": True,
+    "grid.color": "#e4e4e8",
+    "grid.linewidth": 0.6,
+    "xtick.color": "#44444a",
+    "ytick.color": "#44444a",
+    "xtick.labelsize": 8.5,
+    "ytick.labelsize": 8.5,
+    "legend.fontsize": 8.5,
+    "legend.frameon": True,
+    "legend.framealpha": 0.92,
+    "legend.edgecolor": "#c8c8cc",
+    "figure.facecolor": "white",
+    "axes.facecolor": "white",
+    "savefig.facecolor": "white",
+    "savefig.dpi": 150,
+    "svg.fonttype": "path",
+    "svg.hashsalt": "tradewise",
+    "pdf.fonttype": 42,
+    "axes.formatter.useoffset": False,
+    "axes.formatter.limits": (-5, 7),
+}
+
+_FORMATS = ("png", "svg", "pdf")
+_MAX_SHOWN_RUNS = 12
+
+
+# --------------------------------------------------------------------------------- words
+def _plain(text: Any) -> str:
+    """User text as matplotlib shows it literally: a ``$`` must not start mathematics."""
+    return str(text).replace("$", r"\$")
+
+
+def _short(text: str, limit: int = 90) -> str:
+    text = " ".join(str(text).split())
+    return text if len(text) <= limit else text[: limit - 1] + "\u2026"
+
+
+def axis_label(objective: Objective, *, unit: str | None = None, wrap: bool = False) -> str:
+    """The axis label of an objective: name, unit and which way is better.
+
+    Examples
+    --------
+    >>> axis_label(Objective("mass", "min", "g"))
+    'mass [g] (lower is better)'
+    """
+    unit = objective.unit if unit is None else unit
+    name = f"{objective.name} [{unit}]" if unit else objective.name
+    sense = "(lower is better)" if objective.goal == "min" else "(higher is better)"
+    return _plain(f"{name}\n{sense}" if wrap else f"{name} {sense}")
+
+
+def _row_label(row: int) -> str:
+    # 1-based like the rows of front.csv and the pick command
+    return f"row {int(row) + 1}"
+
+
+# ------------------------------------------------------------------------------ helpers
+class _Styled:
+    """Apply our settings while building or saving a figure; the caller's settings come back after."""
+
+    def __enter__(self) -> None:
+        self._context = matplotlib.rc_context(_STYLE)
+        self._context.__enter__()
+
+    def __exit__(self, *exc: object) -> None:
+        self._context.__exit__(*exc)
+
+
+def _new_figure(size: tuple[float, float]) -> Figure:
+    fig = Figure(figsize=size, layout="constrained")
+    FigureCanvasAgg(fig)
+    return fig
+
+
+def _objectives_of(front: Front) -> tuple[Objective, ...]:
+    return tuple(
+        Objective(o.name, o.goal, front.units.get(o.name, o.unit) or o.unit, o.worst)
+        for o in front.objectives
+    )
+
+
+def _default_knee(front: Front) -> int | None:
+    if _choose is None or len(front) < 3:
+        return None
+    try:
+        return int(_choose.choose(front, "knee")[0])
+    except (DataError, ValueError, IndexError):
+        return None
+
+
+def _check_row(front: Front, row: Any, what: str) -> int:
+    if (
+        isinstance(row, bool)
+        or not isinstance(row, int | np.integer)
+        or not 0 <= int(row) < len(front)
+    ):
+        raise DataError(
+            f"{what}: {row!r} is not a row position of the front (0 to {len(front) - 1})"
+        )
+    return int(row)
+
+
+def _marks(
+    front: Front, knee: int | str | None, picks: Mapping[str, int] | Sequence[int] | None
+) -> list[dict]:
+    """The designs to mark: the knee first, then the picks, one entry per row with all its labels."""
+    if isinstance(knee, str):
+        if knee != "auto":
+            raise DataError(f"knee: expected a row position, 'auto' or None, got {knee!r}")
+        knee = _default_knee(front)
+    labelled: list[tuple[str, int]] = []
+    if knee is not None:
+        labelled.append(("knee", _check_row(front, knee, "knee")))
+    if picks:
+        items = (
+            picks.items()
+            if isinstance(picks, Mapping)
+            else ((f"pick {i + 1}", r) for i, r in enumerate(picks))
+        )
+        labelled.extend(
+            (str(label), _check_row(front, row, f"pick {label!r}")) for label, row in items
+        )
+    marks: dict[int, dict] = {}
+    for label, row in labelled:
+        entry = marks.setdefault(row, {"row": row, "labels": [], "is_knee": False})
+        entry["labels"].append(label)
+        entry["is_knee"] = entry["is_knee"] or label == "knee"
+    out = list(marks.values())
+    pick_index = 0
+    for entry in out:
+        if entry["is_knee"]:
+            entry.update(marker="D", color=PALETTE["highlight"], filled=True, size=80)
+        else:
+            marker, colour = _PICK_STYLES[pick_index % len(_PICK_STYLES)]
+            pick_index += 1
+            entry.update(marker=marker, color=PALETTE[colour], filled=False, size=90)
+        entry["text"] = f"{', '.join(entry['labels'])} ({_row_label(entry['row'])})"
+    return out
+
+
+def _cloud(front: Front, evaluations: pd.DataFrame | None) -> tuple[np.ndarray, np.ndarray]:
+    """Objective values of the other evaluations, split into feasible and infeasible-or-failed."""
+    m = len(front.objectives)
+    empty = np.empty((0, m))
+    if evaluations is None or len(evaluations) == 0:
+        return empty, empty
+    names = front.objective_names
+    missing = [n for n in names if n not in evaluations.columns]
+    if missing:
+        raise DataError(
+            f"evaluations: no column {missing[0]!r}; the objectives are {', '.join(names)}"
+        )
+    values = evaluations[names].apply(pd.to_numeric, errors="coerce").to_numpy(dtype=float)
+    usable = np.isfinite(values).all(axis=1)
+    if "eval_id" in evaluations.columns and "eval_id" in front.table.columns:
+        usable &= ~evaluations["eval_id"].isin(set(front.table["eval_id"].tolist())).to_numpy()
+    if "feasible" in evaluations.columns:
+        feasible = evaluations["feasible"].fillna(False).astype(bool).to_numpy()
+    else:
+        feasible = np.ones(len(evaluations), dtype=bool)
+        if "status" in evaluations.columns:
+            feasible &= (evaluations["status"].astype(str) == "ok").to_numpy()
+        for limit in front.meta.get("constraint_limits") or []:
+            name = limit.get("name")
+            if name not in evaluations.columns:
+                continue
+            column = pd.to_numeric(evaluations[name], errors="coerce").to_numpy(dtype=float)
+            ok = np.isfinite(column)
+            if limit.get("min") is not None:
+                ok &= column >= float(limit["min"])
+            if limit.get("max") is not None:
+                ok &= column <= float(limit["max"])
+            feasible &= ok
+    return values[usable & feasible], values[usable & ~feasible]
+
+
+def _view(front_values: np.ndarray, cloud: np.ndarray, objective: Objective) -> tuple[float, float]:
+    """Axis limits that show the whole front, and the cloud only as far as it helps."""
+    lo, hi = float(np.min(front_values)), float(np.max(front_values))
+    span = hi - lo if hi > lo else (abs(hi) or 1.0)
+    lo_view, hi_view = lo - 0.06 * span, hi + 0.06 * span
+    if len(cloud):
+        # at most half the front's span more on either side keeps the front large while showing what it beat
+        lo_view = min(lo_view, max(float(np.min(cloud)), lo - 0.5 * span))
+        hi_view = max(hi_view, min(float(np.max(cloud)), hi + 0.5 * span))
+    return lo_view, hi_view
+
+
+def _scatter_panel(
+    ax,
+    front: Front,
+    objectives,
+    i: int,
+    j: int,
+    cloud: tuple[np.ndarray, np.ndarray],
+    marks: list[dict],
+    *,
+    annotate: bool,
+    rasterize: bool,
+    wrap: bool,
+) -> None:
+    points = front.points()
+    feasible, infeasible = cloud
+    if len(infeasible):
+        ax.scatter(
+            infeasible[:, i],
+            infeasible[:, j],
+            s=9,
+            marker="x",
+            linewidths=0.6,
+            color=PALETTE["infeasible"],
+            alpha=0.7,
+            zorder=1,
+            rasterized=rasterize,
+            gid="infeasible-points",
+        )
+    if len(feasible):
+        ax.scatter(
+            feasible[:, i],
+            feasible[:, j],
+            s=7,
+            marker="o",
+            linewidths=0,
+            color=PALETTE["feasible"],
+            alpha=0.45,
+            zorder=2,
+            rasterized=rasterize,
+            gid="other-points",
+        )
+    order = np.argsort(points[:, i], kind="stable")
+    size = float(np.clip(2400.0 / max(len(points), 1), 9.0, 26.0))
+    ax.scatter(
+        points[:, i],
+        points[:, j],
+        s=size,
+        marker="o",
+        color=PALETTE["front"],
+        edgecolors="white",
+        linewidths=0.5,
+        zorder=4,
+        gid="front-points",
+    )
+    if len(objectives) == 2:
+        # the front as a thin path so its shape reads even where points are sparse
+        ax.plot(
+            points[order, i],
+            points[order, j],
+            color=PALETTE["front"],
+            linewidth=0.8,
+            alpha=0.55,
+            zorder=3,
+        )
+    ax.set_xlim(
+        *_view(points[:, i], np.concatenate([feasible[:, i], infeasible[:, i]]), objectives[i])
+    )
+    ax.set_ylim(
+        *_view(points[:, j], np.concatenate([feasible[:, j], infeasible[:, j]]), objectives[j])
+    )
+    for k, mark in enumerate(marks):
+        x, y = points[mark["row"], i], points[mark["row"], j]
+        ax.scatter(
+            [x],
+            [y],
+            s=mark["size"],
+            marker=mark["marker"],
+            zorder=6,
+            facecolors=mark["color"] if mark["filled"] else "none",
+            edgecolors=PALETTE["ink"] if mark["filled"] else mark["color"],
+            linewidths=1.0 if mark["filled"] else 2.0,
+            gid=f"mark-{k + 1}",
+        )
+        if annotate:
+            dx = 16 if objectives[i].goal == "min" else -16
+            dy = 16 if objectives[j].goal == "min" else -16
+            step = 13 * k
+            ax.annotate(
+                _plain(mark["text"]),
+                (x, y),
+                xytext=(dx + step * np.sign(dx), dy + 1.6 * step * np.sign(dy)),
+                textcoords="offset points",
+                fontsize=8.5,
+                color=PALETTE["ink"],
+                zorder=7,
+                ha="left" if dx > 0 else "right",
+                va="bottom" if dy > 0 else "top",
+                bbox={
+                    "boxstyle": "round,pad=0.25",
+                    "fc": "white",
+                    "ec": mark["color"],
+                    "lw": 0.8,
+                    "alpha": 0.92,
+                },
+                arrowprops={"arrowstyle": "-", "color": PALETTE["ink"], "lw": 0.7, "shrinkB": 5},
+            )
+    ax.set_xlabel(axis_label(objectives[i], wrap=wrap))
+    ax.set_ylabel(axis_label(objectives[j], wrap=wrap))
+
+
+def _legend_handles(
+    front: Front, cloud: tuple[np.ndarray, np.ndarray], marks: list[dict]
+) -> list[Line2D]:
+    handles = [
+        Line2D(
+            [],
+            [],
+            linestyle="none",
+            marker="o",
+            markersize=6,
+            markerfacecolor=PALETTE["front"],
+            markeredgecolor="white",
+            label=f"front ({len(front)} designs)",
+        )
+    ]
+    if len(cloud[0]):
+        handles.append(
+            Line2D(
+                [],
+                [],
+                linestyle="none",
+                marker="o",
+                markersize=4,
+                markerfacecolor=PALETTE["feasible"],
+                markeredgewidth=0,
+                alpha=0.8,
+                label=f"other feasible evaluations ({len(cloud[0])})",
+            )
+        )
+    if len(cloud[1]):
+        handles.append(
+            Line2D(
+                [],
+                [],
+                linestyle="none",
+                marker="x",
+                markersize=4,
+                color=PALETTE["infeasible"],
+                label=f"infeasible or failed ({len(cloud[1])})",
+            )
+        )
+    for mark in marks:
+        handles.append(
+            Line2D(
+                [],
+                [],
+                linestyle="none",
+                marker=mark["marker"],
+                markersize=8,
+                markerfacecolor=mark["color"] if mark["filled"] else "none",
+                markeredgecolor=PALETTE["ink"] if mark["filled"] else mark["color"],
+                markeredgewidth=1.0 if mark["filled"] else 2.0,
+                label=_plain(mark["text"]),
+            )
+        )
+    return handles
+
+
+# --------------------------------------------------------------------------------- front
+def plot_front(
+    front: Front,
+    *,
+    evaluations: pd.DataFrame | None = None,
+    knee: int | str | None = "auto",
+    picks: Mapping[str, int] | Sequence[int] | None = None,
+    title: str | None = None,
+    rasterize_cloud: bool | None = None,
+) -> Figure:
+    """Draw the front over the other evaluations, with the knee and picked designs marked.
+
+    Two objectives give one scatter with the picks annotated; three give a 3D
+    view beside a matrix of pairwise projections; four or more give the
+    matrix alone. Evaluations that the front dominates are drawn faint behind
+    it (grey dots), infeasible and failed ones as faint crosses.
+
+    Parameters
+    ----------
+    front : Front
+        The front; objective names, senses and units label the axes.
+    evaluations : pandas.DataFrame, optional
+        Every evaluation of the run, with the objective columns and either a
+        boolean ``feasible`` column or ``status`` and the constraint columns
+        (checked against ``front.meta["constraint_limits"]``).
+    knee : int, "auto" or None
+        Row position of the knee design; ``"auto"`` asks the knee method of
+        :mod:`tradewise.choose` when it is available; None marks no knee.
+    picks : dict or sequence of int, optional
+        Further designs to mark: label to row position, or bare row positions.
+    title : str, optional
+        A title over the figure (user text is shown literally).
+    rasterize_cloud : bool, optional
+        Draw the other evaluations as an image inside vector files; by
+        default when there are more than 1500 of them.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+
+    Examples
+    --------
+    >>> table = pd.DataFrame({"cost": [1.0, 2, 4], "mass": [5.0, 3, 2]})
+    >>> front = Front.from_table(table, [Objective("cost", unit="EUR"), Objective("mass", unit="kg")])
+    >>> fig = plot_front(front, knee=1)
+    >>> fig.axes[0].get_xlabel()
+    'cost [EUR] (lower is better)'
+    """
+    if len(front) == 0:
+        raise DataError("front: holds no designs, so there is nothing to draw")
+    objectives = _objectives_of(front)
+    m = len(objectives)
+    with _Styled():
+        cloud = _cloud(front, evaluations)
+        marks = _marks(front, knee, picks)
+        rasterize = (
+            (len(cloud[0]) + len(cloud[1]) > 1500) if rasterize_cloud is None else rasterize_cloud
+        )
+        if m == 2:
+            fig = _new_figure((7.2, 5.2))
+            ax = fig.add_subplot()
+            _scatter_panel(
+                ax,
+                front,
+                objectives,
+                0,
+                1,
+                cloud,
+                marks,
+                annotate=True,
+                rasterize=rasterize,
+                wrap=False,
+            )
+            ax.legend(handles=_legend_handles(front, cloud, marks), loc="best")
+        else:
+            fig = _front_matrix(front, objectives, cloud, marks, rasterize)
+        if title:
+            fig.suptitle(_plain(_short(title)), fontsize=11, color=PALETTE["ink"])
+    return fig
+
+
+def _front_matrix(front: Front, objectives, cloud, marks, rasterize: bool) -> Figure:
+    m = len(objectives)
+    n = m - 1
+    if m == 3:
+        fig = _new_figure((12.5, 5.8))
+        left, right = fig.subfigures(1, 2, width_ratios=[1.05, 1.0])
+        _front_3d(left.add_subplot(projection="3d"), front, objectives, marks)
+        grid_fig = right
+    else:
+        fig = _new_figure((2.9 * n + 1.2, 2.7 * n + 0.6))
+        grid_fig = fig
+    axes = grid_fig.subplots(n, n, squeeze=False)
+    for r in range(n):
+        for c in range(n):
+            ax = axes[r][c]
+            if c > r:
+                ax.set_axis_off()
+                continue
+            _scatter_panel(
+                ax,
+                front,
+                objectives,
+                c,
+                r + 1,
+                cloud,
+                marks,
+                annotate=False,
+                rasterize=rasterize,
+                wrap=True,
+            )
+            if r != n - 1:
+                ax.set_xlabel("")
+                ax.tick_params(labelbottom=False)
+            if c != 0:
+                ax.set_ylabel("")
+                ax.tick_params(labelleft=False)
+    for c in range(n):
+        column = [axes[r][c] for r in range(c, n)]
+        lows, highs = zip(*(a.get_xlim() for a in column), strict=True)
+        for a in column:
+            a.set_xlim(min(lows), max(highs))
+    for r in range(n):
+        row = [axes[r][c] for c in range(r + 1)]
+        lows, highs = zip(*(a.get_ylim() for a in row), strict=True)
+        for a in row:
+            a.set_ylim(min(lows), max(highs))
+    handles = _legend_handles(front, cloud, marks)
+    if n >= 2:
+        axes[0][n - 1].legend(handles=handles, loc="upper right", borderaxespad=0.0)
+    else:  # pragma: no cover - a matrix always has two or more columns here
+        axes[0][0].legend(handles=handles)
+    return fig
+
+
+def _front_3d(ax, front: Front, objectives, marks: list[dict]) -> None:
+    points = front.points()
+    ax.scatter(
+        points[:, 0],
+        points[:, 1],
+        points[:, 2],
+        s=14,
+        marker="o",
+        color=PALETTE["front"],
+        edgecolors="white",
+        linewidths=0.3,
+        depthshade=False,
+        gid="front-points-3d",
+    )
+    for mark in marks:
+        p = points[mark["row"]]
+        ax.scatter(
+            [p[0]],
+            [p[1]],
+            [p[2]],
+            s=mark["size"] * 1.2,
+            marker=mark["marker"],
+            depthshade=False,
+            facecolors=mark["color"] if mark["filled"] else "none",
+            edgecolors=PALETTE["ink"] if mark["filled"] else mark["color"],
+            linewidths=1.0 if mark["filled"] else 2.0,
+            zorder=10,
+        )
+        ax.text(
+            p[0],
+            p[1],
+            p[2],
+            "  " + _plain(mark["text"]),
+            fontsize=8,
+            color=PALETTE["ink"],
+            zorder=11,
+        )
+    for setter, objective in zip(
+        (ax.set_xlabel, ax.set_ylabel, ax.set_zlabel), objectives, strict=False
+    ):
+        setter(axis_label(objective, wrap=True), labelpad=10)
+    # look from the worst corner towards the ideal one, so the front faces the reader
+    ax.view_init(elev=22, azim=45 if objectives[0].goal == objectives[1].goal else -45)
+    ax.set_box_aspect(None, zoom=0.86)
+
+
+# ---------------------------------------------------------------------- parallel coordinates
+def plot_parallel(
+    front: Front,
+    *,
+    highlight: int | str | None = "auto",
+    variables: bool | Sequence[str] = False,
+    title: str | None = None,
+) -> Figure:
+    """Draw the front as parallel coordinates, one line a design, with one design highlighted.
+
+    Objective axes are turned so that better is always up; the best and worst
+    value on the front are written at the ends of each axis. Variable axes
+    run from their smallest value at the bottom to their largest at the top;
+    choices and flags sit at evenly spaced levels.
+
+    Parameters
+    ----------
+    front : Front
+        The front.
+    highlight : int, "auto" or None
+        Row position of the design to draw boldly; ``"auto"`` takes the knee
+        when :mod:`tradewise.choose` is available.
+    variables : bool or sequence of str
+        Add axes for the front's variables (True) or for the named columns.
+    title : str, optional
+        A title over the figure.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
+    if len(front) == 0:
+        raise DataError("front: holds no designs, so there is nothing to draw")
+    objectives = _objectives_of(front)
+    if variables is True:
+        extra = [v for v in front.variables if v in front.table.columns]
+    elif variables:
+        extra = [str(v) for v in variables]
+        for name in extra:
+            if name not in front.table.columns:
+                raise DataError(
+                    f"variables: no column {name!r} in the front; columns: {', '.join(map(str, front.table.columns))}"
+                )
+    else:
+        extra = []
+    if isinstance(highlight, str):
+        if highlight != "auto":
+            raise DataError(
+                f"highlight: expected a row position, 'auto' or None, got {highlight!r}"
+            )
+        highlight = _default_knee(front)
+    if highlight is not None:
+        highlight = _check_row(front, highlight, "highlight")
+    axes_spec = [_objective_axis(front, o) for o in objectives] + [
+        _variable_axis(front, v) for v in extra
+    ]
+    levels = np.column_stack([spec["levels"] for spec in axes_spec])
+    n_axes = len(axes_spec)
+    with _Styled():
+        fig = _new_figure((max(6.5, 1.45 * n_axes + 1.5), 5.0))
+        ax = fig.add_subplot()
+        xs = np.arange(n_axes)
+        alpha = float(np.clip(12.0 / max(len(front), 1), 0.08, 0.7))
+        segments = [np.column_stack([xs, row]) for row in levels]
+        from matplotlib.collections import LineCollection
+
+        ax.add_collection(
+            LineCollection(
+                segments,
+                colors=PALETTE["front"],
+                linewidths=0.9,
+                alpha=alpha,
+                zorder=2,
+                gid="front-lines",
+            )
+        )
+        if highlight is not None:
+            ax.plot(
+                xs,
+                levels[highlight],
+                color=PALETTE["highlight"],
+                linewidth=2.6,
+                marker="D",
+                markersize=6,
+                markeredgecolor=PALETTE["ink"],
+                markeredgewidth=0.8,
+                zorder=5,
+                gid="highlight-line",
+                path_effects=[patheffects.withStroke(linewidth=4.2, foreground=PALETTE["ink"])],
+            )
+        for k, spec in enumerate(axes_spec):
+            ax.axvline(k, color="#55555c", linewidth=0.9, zorder=1)
+            for level, text in spec["ticks"]:
+                ax.text(
+                    k + 0.04,
+                    level,
+                    _plain(text),
+                    fontsize=7.8,
+                    va="center",
+                    ha="left",
+                    color="#33333a",
+                    zorder=6,
+                    bbox={"boxstyle": "square,pad=0.1", "fc": "white", "ec": "none", "alpha": 0.8},
+                )
+        ax.set_xlim(-0.25, n_axes - 0.4)
+        ax.set_ylim(-0.06, 1.06)
+        ax.set_xticks(xs, [_plain(spec["label"]) for spec in axes_spec], fontsize=8.3)
+        ax.set_yticks([])
+        ax.grid(False)
+        for side in ("left", "right", "top"):
+            ax.spines[side].set_visible(False)
+        ax.set_ylabel("worse  \u2192  better", color="#44444a")
+        handles = [
+            Line2D(
+                [],
+                [],
+                color=PALETTE["front"],
+                linewidth=1.2,
+                alpha=0.8,
+                label=f"front ({len(front)} designs)",
+            )
+        ]
+        if highlight is not None:
+            labels = [lab for lab in ["knee"] if highlight == _default_knee(front)]
+            text = f"{labels[0]} ({_row_label(highlight)})" if labels else _row_label(highlight)
+            handles.append(
+                Line2D(
+                    [],
+                    [],
+                    color=PALETTE["highlight"],
+                    linewidth=2.6,
+                    marker="D",
+                    markeredgecolor=PALETTE["ink"],
+                    label=_plain(text),
+                    path_effects=[patheffects.withStroke(linewidth=4.2, foreground=PALETTE["ink"])],
+                )
+            )
+        ax.legend(
+            handles=handles, loc="upper center", bbox_to_anchor=(0.5, -0.16), ncol=2, frameon=False
+        )
+        if title:
+            fig.suptitle(_plain(_short(title)), fontsize=11, color=PALETTE["ink"])
+    return fig
+
+
+def _objective_axis(front: Front, objective: Objective) -> dict[str, Any]:
+    values = front.table[objective.name].to_numpy(dtype=float)
+    lo, hi = float(np.min(values)), float(np.max(values))
+    span = hi - lo
+    scaled = (values - lo) / span if span > 0 else np.full(len(values), 0.5)
+    if objective.goal == "min":
+        scaled = 1.0 - scaled  # better is up
+    best, worst = (lo, hi) if objective.goal == "min" else (hi, lo)
+    ticks = [(1.0, _number(best)), (0.0, _number(worst))] if span > 0 else [(0.5, _number(lo))]
+    unit = front.units.get(objective.name, objective.unit)
+    label = (
+        f"{objective.name}\n[{unit}]\n{objective.goal}"
+        if unit
+        else f"{objective.name}\n{objective.goal}"
+    )
+    return {"levels": scaled, "ticks": ticks, "label": label}
+
+
+def _variable_axis(front: Front, name: str) -> dict[str, Any]:
+    column = front.table[name]
+    unit = front.units.get(name, "")
+    label = f"{name}\n[{unit}]" if unit else name
+    numeric = pd.to_numeric(column, errors="coerce")
+    if column.dtype != bool and numeric.notna().all():
+        values = numeric.to_numpy(dtype=float)
+        lo, hi = float(np.min(values)), float(np.max(values))
+        if hi > lo:
+            return {
+                "levels": (values - lo) / (hi - lo),
+                "ticks": [(1.0, _number(hi)), (0.0, _number(lo))],
+                "label": label,
+            }
+        return {"levels": np.full(len(values), 0.5), "ticks": [(0.5, _number(lo))], "label": label}
+    options = _options_of(front, name, column)
+    position = {
+        option: (k / (len(options) - 1) if len(options) > 1 else 0.5)
+        for k, option in enumerate(options)
+    }
+    levels = np.array([position[str(v)] for v in column], dtype=float)
+    return {"levels": levels, "ticks": [(position[o], o) for o in options], "label": label}
+
+
+def _options_of(front: Front, name: str, column: pd.Series) -> list[str]:
+    for spec in front.meta.get("design_space") or []:
+        if spec.get("name") == name:
+            if spec.get("type") == "flag":
+                return ["False", "True"]
+            if spec.get("options"):
+                known = [str(o) for o in spec["options"]]
+                return known + sorted({str(v) for v in column} - set(known))
+    return sorted({str(v) for v in column})
+
+
+def _number(value: float) -> str:
+    return f"{value:.4g}"
+
+
+# ------------------------------------------------------------------------------- history
+def plot_history(
+    history: pd.DataFrame,
+    *,
+    stop_reason: str | None = None,
+    budget: int | None = None,
+    title: str | None = None,
+) -> Figure:
+    """Draw the hypervolume and the front size against evaluations, with the stopping point marked.
+
+    Parameters
+    ----------
+    history : pandas.DataFrame
+        One row a generation with columns ``evaluations``, ``hypervolume`` and
+        ``front_size`` (as in a run folder's ``history.csv``).
+    stop_reason : str, optional
+        Why the run stopped, written beside the stopping point.
+    budget : int, optional
+        The evaluation budget, drawn as a faint line when the run stopped
+        before it.
+    title : str, optional
+        A title over the figure.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
+    needed = ("evaluations", "hypervolume", "front_size")
+    for name in needed:
+        if name not in history.columns:
+            raise DataError(f"history: no column {name!r}; expected {', '.join(needed)}")
+    if len(history) == 0:
+        raise DataError("history: holds no generations, so there is nothing to draw")
+    evals = pd.to_numeric(history["evaluations"], errors="coerce").to_numpy(dtype=float)
+    hv = pd.to_numeric(history["hypervolume"], errors="coerce").to_numpy(dtype=float)
+    size = pd.to_numeric(history["front_size"], errors="coerce").to_numpy(dtype=float)
+    if not (np.isfinite(evals).all() and np.isfinite(hv).all() and np.isfinite(size).all()):
+        raise DataError(
+            "history: the columns evaluations, hypervolume and front_size must hold finite numbers"
+        )
+    every = max(1, len(evals) // 25)
+    with _Styled():
+        fig = _new_figure((7.2, 5.4))
+        top, bottom = fig.subplots(2, 1, sharex=True, height_ratios=[1.4, 1.0])
+        top.plot(
+            evals,
+            hv,
+            color=PALETTE["front"],
+            linewidth=1.8,
+            marker="o",
+            markersize=3.5,
+            markevery=every,
+            gid="hypervolume-line",
+        )
+        bottom.plot(
+            evals,
+            size,
+            color=PALETTE["accent"],
+            linewidth=1.8,
+            linestyle="--",
+            marker="s",
+            markersize=4,
+            markeredgecolor=PALETTE["ink"],
+            markeredgewidth=0.6,
+            markevery=every,
+            gid="front-size-line",
+        )
+        top.set_ylabel("hypervolume\n(higher is better)")
+        bottom.set_ylabel("designs on the front")
+        bottom.set_xlabel("evaluations")
+        last_x, last_hv, last_size = evals[-1], hv[-1], size[-1]
+        for ax, y in ((top, last_hv), (bottom, last_size)):
+            ax.axvline(last_x, color=PALETTE["ink"], linestyle=":", linewidth=1.0, zorder=1)
+            ax.scatter(
+                [last_x],
+                [y],
+                s=130,
+                marker="*",
+                color=PALETTE["highlight"],
+                edgecolors=PALETTE["ink"],
+                linewidths=0.8,
+                zorder=5,
+                gid="stop-marker",
+            )
+        text = f"stopped after {int(last_x)} evaluations"
+        if stop_reason:
+            text += f":\n{_short(stop_reason, 60)}"
+        top.annotate(
+            _plain(text),
+            (last_x, 0.06),
+            xycoords=("data", "axes fraction"),
+            xytext=(-10, 0),
+            textcoords="offset points",
+            ha="right",
+            va="bottom",
+            fontsize=8.5,
+            bbox={"boxstyle": "round,pad=0.3", "fc": "white", "ec": "#b0b0b6", "lw": 0.7},
+        )
+        if budget and budget > last_x:
+            for ax in (top, bottom):
+                ax.axvline(budget, color="#8a8a90", linestyle="-.", linewidth=0.9)
+            bottom.annotate(
+                "budget",
+                (budget, 0),
+                xycoords=("data", "axes fraction"),
+                xytext=(-3, 4),
+                textcoords="offset points",
+                ha="right",
+                fontsize=8,
+                color="#55555c",
+            )
+        if "failed" in history.columns:
+            failed = int(pd.to_numeric(history["failed"], errors="coerce").fillna(0).sum())
+            if failed:
+                bottom.annotate(
+                    f"{failed} evaluation(s) failed during the run",
+                    (0.01, 0.04),
+                    xycoords="axes fraction",
+                    fontsize=8,
+                    color=PALETTE["ink"],
+                )
+        top.set_ylim(bottom=min(0.0, float(np.min(hv))))
+        bottom.set_ylim(bottom=0)
+        if title:
+            fig.suptitle(_plain(_short(title)), fontsize=11, color=PALETTE["ink"])
+    return fig
+
+
+# ---------------------------------------------------------------------------- attainment
+def attainment(runs: Sequence[Any], objectives: Sequence[Objective]) -> np.ndarray:
+    """Best, median and worst attainment surfaces of several runs' fronts (moocore's EAF).
+
+    Parameters
+    ----------
+    runs : sequence of array-like
+        One (n_i, 2) array of objective values per run, in the user's senses.
+    objectives : sequence of Objective
+        The two objectives (their goals turn maximised columns for moocore).
+
+    Returns
+    -------
+    numpy.ndarray
+        Rows ``(f1, f2, percent)`` in the user's senses: ``percent`` is the
+        share of runs that attain the point, ``100 / len(runs)`` for the best
+        surface, 50 for the median and 100 for the worst.
+    """
+    objectives = list(objectives)
+    if len(objectives) != 2:
+        raise DataError(f"attainment: drawn for two objectives, got {len(objectives)}")
+    if len(runs) < 2:
+        raise DataError(f"attainment: needs the fronts of at least two runs, got {len(runs)}")
+    import moocore
+
+    sign = np.array([1.0 if o.goal == "min" else -1.0 for o in objectives])
+    points, sets = [], []
+    for k, run in enumerate(runs, start=1):
+        values = np.asarray(run, dtype=float)
+        if (
+            values.ndim != 2
+            or values.shape[1] != 2
+            or len(values) == 0
+            or not np.isfinite(values).all()
+        ):
+            raise DataError(
+                f"attainment: run {k} must be a non-empty (n, 2) array of finite numbers, got shape {values.shape}"
+            )
+        points.append(values * sign)
+        sets.append(np.full(len(values), k))
+    best = 100.0 / len(runs)
+    surfaces = moocore.eaf(
+        np.vstack(points), sets=np.concatenate(sets), percentiles=[best, 50, 100]
+    )
+    surfaces[:, :2] *= sign
+    return surfaces
+
+
+def plot_attainment(
+    surfaces: np.ndarray,
+    objectives: Sequence[Objective],
+    *,
+    runs: Sequence[Any] | None = None,
+    title: str | None = None,
+) -> Figure:
+    """Draw the best, median and worst attainment surfaces of repeated runs (two objectives).
+
+    Parameters
+    ----------
+    surfaces : numpy.ndarray
+        Rows ``(f1, f2, percent)`` as from :func:`attainment` (``moocore.eaf``
+        output with maximised columns turned back). The smallest percent is
+        drawn as the best surface, 50 as the median and 100 as the worst.
+    objectives : sequence of Objective
+        The two objectives.
+    runs : sequence of array-like, optional
+        The runs' own fronts, drawn faintly behind (at most twelve).
+    title : str, optional
+        A title over the figure.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+    """
+    objectives = list(objectives)
+    if len(objectives) != 2:
+        raise DataError(f"attainment: drawn for two objectives, got {len(objectives)}")
+    surfaces = np.asarray(surfaces, dtype=float)
+    if surfaces.ndim != 2 or surfaces.shape[1] != 3 or len(surfaces) == 0:
+        raise DataError(
+            f"attainment: expected rows (f1, f2, percent), got an array of shape {surfaces.shape}"
+        )
+    sign = np.array([1.0 if o.goal == "min" else -1.0 for o in objectives])
+    percents = sorted(set(surfaces[:, 2].tolist()))
+    chosen = {
+        "best": percents[0],
+        "median": 50.0 if 50.0 in percents else None,
+        "worst": percents[-1],
+    }
+    styles = {
+        "best": {"color": PALETTE["front"], "linewidth": 1.4, "linestyle": "-"},
+        "median": {"color": PALETTE["ink"], "linewidth": 2.4, "linestyle": "-"},
+        "worst": {"color": PALETTE["highlight"], "linewidth": 1.8, "linestyle": "--"},
+    }
+    all_points = surfaces[:, :2] * sign
+    lo, hi = all_points.min(axis=0), all_points.max(axis=0)
+    span = np.where(hi > lo, hi - lo, 1.0)
+    corner = hi + 0.12 * span  # where each staircase is closed off, in minimisation terms
+    with _Styled():
+        fig = _new_figure((7.2, 5.2))
+        ax = fig.add_subplot()
+        if runs is not None:
+            for run in list(runs)[:_MAX_SHOWN_RUNS]:
+                values = np.asarray(run, dtype=float)
+                ax.scatter(
+                    values[:, 0],
+                    values[:, 1],
+                    s=8,
+                    marker="o",
+                    color=PALETTE["feasible"],
+                    alpha=0.5,
+                    linewidths=0,
+                    zorder=1,
+                )
+        stairs = {}
+        for name, percent in chosen.items():
+            if percent is None:
+                continue
+            level = surfaces[surfaces[:, 2] == percent, :2] * sign
+            stairs[name] = _staircase(level, corner)
+        if "best" in stairs and "worst" in stairs:
+            # the band between best and worst: where some but not all runs reached
+            from matplotlib.patches import Polygon
+
+            band = np.vstack([stairs["best"], stairs["worst"][::-1]]) * sign
+            ax.add_patch(
+                Polygon(
+                    band,
+                    closed=True,
+                    facecolor=PALETTE["band"],
+                    edgecolor="none",
+                    alpha=0.8,
+                    hatch="////",
+                    zorder=0,
+                )
+            )
+        for name in ("worst", "median", "best"):
+            if name not in stairs:
+                continue
+            xy = stairs[name] * sign
+            n_runs = round(100.0 / chosen["best"]) if chosen["best"] else 0
+            label = {
+                "best": "best: reached by at least one run",
+                "median": "median: reached by half the runs",
+                "worst": f"worst: reached by every run ({n_runs})"
+                if n_runs
+                else "worst: reached by every run",
+            }[name]
+            ax.plot(
+                xy[:, 0], xy[:, 1], gid=f"attainment-{name}", label=label, zorder=3, **styles[name]
+            )
+        view_lo, view_hi = (lo - 0.04 * span) * 1.0, corner
+        limits = np.sort(np.vstack([view_lo * sign, view_hi * sign]), axis=0)
+        ax.set_xlim(limits[0, 0], limits[1, 0])
+        ax.set_ylim(limits[0, 1], limits[1, 1])
+        ax.set_xlabel(axis_label(objectives[0]))
+        ax.set_ylabel(axis_label(objectives[1]))
+        ax.legend(loc="best")
+        if title:
+            fig.suptitle(_plain(_short(title)), fontsize=11, color=PALETTE["ink"])
+    return fig
+
+
+def _staircase(points: np.ndarray, corner: np.ndarray) -> np.ndarray:
+    """The boundary of the region that ``points`` weakly dominate (minimisation), closed at ``corner``."""
+    order = np.lexsort((points[:, 1], points[:, 0]))
+    points = points[order]
+    path = [(points[0, 0], corner[1])]
+    best_y = math.inf
+    for x, y in points:
+        if y >= best_y:
+            continue  # dominated within the level: adds no step
+        if path and best_y < math.inf:
+            path.append((x, best_y))
+        path.append((x, y))
+        best_y = y
+    path.append((corner[0], best_y))
+    return np.asarray(path, dtype=float)
+
+
+# ------------------------------------------------------------------------------ dispatch
+def plot_kind(
+    kind: str,
+    front: Front,
+    *,
+    history: pd.DataFrame | None = None,
+    evaluations: pd.DataFrame | None = None,
+    highlight: int | None = None,
+    variables: bool = False,
+    title: str | None = None,
+) -> Figure:
+    """Draw one of :data:`FIGURE_KINDS` from the parts of a run folder.
+
+    ``highlight`` (a row position) is marked as a pick on the front and drawn
+    boldly in parallel coordinates; the knee is found when it is not given.
+    """
+    if kind not in FIGURE_KINDS:
+        raise DataError(
+            f"figure kind {kind!r} is not known; choose one of {', '.join(FIGURE_KINDS)}"
+        )
+    title = title if title is not None else front.meta.get("title")
+    if kind == "front":
+        picks = {"chosen": highlight} if highlight is not None else None
+        return plot_front(front, evaluations=evaluations, picks=picks, title=title)
+    if kind == "parallel":
+        return plot_parallel(
+            front,
+            highlight="auto" if highlight is None else highlight,
+            variables=variables,
+            title=title,
+        )
+    if history is None:
+        raise DataError(
+            "history: the run folder has no history.csv, so convergence cannot be drawn"
+        )
+    budget = (front.meta.get("settings") or {}).get("evaluations")
+    return plot_history(
+        history, stop_reason=front.meta.get("stop_reason"), budget=budget, title=title
+    )
+
+
+# -------------------------------------------------------------------------------- output
+def save_figure(fig: Figure, path: str | Path) -> Path:
+    """Write ``fig`` as PNG, SVG or PDF, chosen by the file's suffix.
+
+    Raises
+    ------
+    DataError
+        When the suffix is not ``.png``, ``.svg`` or ``.pdf``.
+    """
+    path = Path(path)
+    suffix = path.suffix.lower().lstrip(".")
+    if suffix not in _FORMATS:
+        raise DataError(
+            f"{path}: figure files end in {', '.join('.' + f for f in _FORMATS)}, got {path.suffix or 'no suffix'!r}"
+        )
+    path.parent.mkdir(parents=True, exist_ok=True)
+    metadata = (
+        {"Date": None} if suffix == "svg" else {"CreationDate": None} if suffix == "pdf" else {}
+    )
+    with _Styled():
+        fig.savefig(path, format=suffix, metadata=metadata)
+    return path
+
+
+_SVG_ID = re.compile(r'\bid="([^"]+)"')
+_SVG_REF = re.compile(r'(\bid="|url\(#|href="#)([^")]+)')
+
+
+def to_svg(fig: Figure, *, prefix: str = "fig", label: str | None = None) -> str:
+    """The figure as an ``<svg>`` element for inlining in HTML: no XML prologue, no metadata,
+    every id prefixed so that several figures can share one page.
+
+    ``label`` becomes the figure's accessible name (``role="img"`` and a
+    ``<title>``), escaped for HTML.
+    """
+    buffer = io.StringIO()
+    with _Styled():
+        fig.savefig(buffer, format="svg", metadata={"Date": None})
+    text = buffer.getvalue()
+    text = text[text.index("<svg") :]
+    text = re.sub(r"<metadata>.*?</metadata>\s*", "", text, flags=re.S)
+    # namespace declarations are implied for <svg> inside HTML; dropping them leaves no URL in the page
+    text = re.sub(r'\s+xmlns(:\w+)?="[^"]*"', "", text)
+    known = set(_SVG_ID.findall(text))
+    text = _SVG_REF.sub(
+        lambda m: m.group(1) + prefix + "-" + m.group(2) if m.group(2) in known else m.group(0),
+        text,
+    )
+    if label is not None:
+        from html import escape
+
+        text = text.replace(
+            "<svg ", f'<svg role="img" aria-label="{escape(label, quote=True)}" ', 1
+        )
+        head_end = text.index(">", text.index("<svg")) + 1
+        text = text[:head_end] + f"<title>{escape(label)}</title>" + text[head_end:]
+    return text.strip()
