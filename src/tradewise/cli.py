@@ -102,6 +102,10 @@ def _summary(result) -> None:
         click.echo("The designs closest to feasibility are in least_infeasible.csv.")
     if result.n_cached:
         click.echo(f"{result.n_cached} design(s) were served from the archive instead of being evaluated again.")
+    from tradewise.compare import convergence_advice
+
+    if advice := convergence_advice(result.history):
+        click.echo(advice)
     if result.case.cautions:
         click.echo(f"Caution: {result.case.cautions.strip()}")
 
@@ -342,6 +346,48 @@ def report_command(run, out) -> None:
     path = write_report(front, Path(out) if out else Path(run) / "review.html", history=history,
                         evaluations=evaluations)
     click.echo(f"Wrote {path} ({path.stat().st_size // 1024} KiB)")
+
+
+@main.command("compare")
+@click.argument("runs", metavar="RUN RUN...", nargs=-1, required=True)
+@click.option("--reference", "reference", type=click.Path(), metavar="FRONT.csv",
+              help="Measure IGD+ and epsilon against this front (default: the best designs of all RUNs together).")
+@click.option("--out", type=click.Path(dir_okay=False), help="Also write the table to this CSV file.")
+def compare_command(runs, reference, out) -> None:
+    """Compare run folders on one scale and say which did better.
+
+    Each objective is scaled so that 0 is the best value any run reached and
+    1 the common reference point. Hypervolume is the share of that box a
+    front covers (larger is better); IGD+ and epsilon are distances to the
+    reference front in shares of each objective's range (smaller is better).
+    A run made with --seeds brings its seed-to-seed spread, which says
+    whether a difference is more than the luck of the seed.
+    """
+    import math
+
+    from tradewise.compare import compare_runs
+
+    result = compare_runs(runs, reference=reference)
+    table = result.table
+    width = max(len(str(r)) for r in table["run"])
+    click.echo(f"{'run':<{width}}  {'designs':>7}  {'evals':>7}  {'failed':>6}  {'hypervolume':>11}  "
+               f"{'IGD+':>8}  {'epsilon':>8}  seeds (hypervolume median [min, max])")
+    for row in table.to_dict("records"):
+        evals = "-" if not math.isfinite(row["evaluations"]) else f"{int(row['evaluations'])}"
+        failed = "-" if not math.isfinite(row["failed_share"]) else f"{row['failed_share']:.1%}"
+        seeds = ""
+        if isinstance(row.get("seeds"), int | float) and math.isfinite(row["seeds"]):
+            seeds = (f"{int(row['seeds'])}: {row['hv_seed_median']:.4f} "
+                     f"[{row['hv_seed_min']:.4f}, {row['hv_seed_max']:.4f}]")
+        click.echo(f"{row['run']:<{width}}  {row['front_size']:>7}  {evals:>7}  {failed:>6}  "
+                   f"{row['hypervolume']:>11.4f}  {row['igd_plus']:>8.4f}  {row['epsilon']:>8.4f}  {seeds}".rstrip())
+    click.echo(f"Scale: 0 at the best values reached, 1 at the reference point "
+               f"({', '.join(f'{v:g}' for v in result.reference)}); IGD+ and epsilon against {result.reference_set}.")
+    for line in result.lines:
+        click.echo(line)
+    if out:
+        table.to_csv(out, index=False)
+        click.echo(f"Wrote {out}")
 
 
 if __name__ == "__main__":  # pragma: no cover
