@@ -122,6 +122,8 @@ def _run_folder(case, out: str | None) -> str:
 @click.argument("case", metavar="CASE")
 @click.option("--out", "out", type=click.Path(file_okay=False), help="Run folder to write (default runs/NAME-TIME).")
 @click.option("--seed", type=int, help="Random seed (default from the case).")
+@click.option("--seeds", "n_seeds", type=click.IntRange(min=1), metavar="K",
+              help="Make K independent runs with seeds SEED, SEED+1, ... and merge their fronts.")
 @click.option("--evaluations", type=click.IntRange(min=1), help="Budget of model evaluations.")
 @click.option("--generations", type=click.IntRange(min=1), help="Stop after this many generations.")
 @click.option("--population", type=click.IntRange(min=4), help="Designs per generation.")
@@ -131,7 +133,7 @@ def _run_folder(case, out: str | None) -> str:
 @click.option("--dask", is_flag=True, help="Start a local Dask cluster of --workers processes.")
 @click.option("--scheduler", metavar="ADDRESS", help="Join an existing Dask scheduler, e.g. tcp://host:8786.")
 @click.option("--quiet", is_flag=True, help="No progress output.")
-def run_command(case, out, seed, evaluations, generations, population, time_limit, store, workers, dask,
+def run_command(case, out, seed, n_seeds, evaluations, generations, population, time_limit, store, workers, dask,
                 scheduler, quiet) -> None:
     """Search CASE for its best compromises and write a run folder.
 
@@ -148,6 +150,10 @@ def run_command(case, out, seed, evaluations, generations, population, time_limi
     folder = Path(_run_folder(loaded, out))
     store_path = Path(store) if store else folder / "archive.sqlite"
     budget = evaluations or loaded.search.evaluations
+    if n_seeds:
+        return _run_seeds(loaded, n_seeds, folder, store_path, quiet=quiet, workers=workers, seed=seed,
+                          evaluations=evaluations, generations=generations, population=population,
+                          time_limit=time_limit, dask=dask, scheduler=scheduler)
     bar = _Progress(budget, quiet=quiet)
     try:
         result = run_study(
@@ -346,6 +352,37 @@ def report_command(run, out) -> None:
     path = write_report(front, Path(out) if out else Path(run) / "review.html", history=history,
                         evaluations=evaluations)
     click.echo(f"Wrote {path} ({path.stat().st_size // 1024} KiB)")
+
+
+def _run_seeds(case, n_seeds: int, folder, store_path, *, quiet: bool, workers, **settings) -> None:
+    """``run --seeds K``: K runs, their merged front, each seed's own, the attainment surfaces and the spread."""
+    from tradewise.compare import attainment, write_attainment
+    from tradewise.search import run_repeats, save_repeats
+
+    parallel = bool(workers and workers > 1 and not (settings.get("dask") or settings.get("scheduler")))
+    budget = (settings.get("evaluations") or case.search.evaluations) * n_seeds
+    bar = _Progress(budget, quiet=quiet or parallel)
+
+    def finished(run) -> None:
+        if not quiet:
+            click.echo(f"seed {run.seed}: {run.message}", err=True)
+
+    try:
+        result = run_repeats(case, n_seeds, store=store_path, workers=workers, progress=bar.generation,
+                             on_evaluation=bar.evaluation, on_run=finished, **settings)
+    finally:
+        bar.close()
+    written = save_repeats(result, folder)
+    _summary(result)
+    fronts = [run.front for run in result.runs]
+    if len(result.runs) > 1 and any(len(f) for f in fronts) and len(result.front.objectives) <= 3:
+        spread = attainment(fronts, reference=result.reference)
+        written.update(write_attainment(spread, folder))
+        for line in spread.lines():
+            click.echo(line)
+    click.echo(f"Wrote {', '.join(p.name for p in written.values())}, seeds/ and {store_path.name} to {folder}")
+    if result.status == "interrupted":
+        sys.exit(130)
 
 
 @main.command("compare")
