@@ -153,9 +153,9 @@ def test_knee_and_picks_on_the_page_are_those_of_choose():
     knee = choose.choose(front, "knee")[0]
     assert f"Knee design: row {knee + 1}</h3>" in text
     for method, row in choose.all_picks(front).items():
-        assert f"<b>{method}</b>" in text
+        assert f"<dt>{method}</dt>" in text
         assert f"row {row + 1}" in text
-    assert "Trade-off rates:" in text and "EUR more cost per" in text
+    assert "Trade-off rates</p>" in text and "EUR more cost per" in text
 
 
 def test_safety_statement_appears_for_structures_packs_and_heat_only():

@@ -601,15 +601,6 @@ def _front_3d(ax, front: Front, objectives, marks: list[dict]) -> None:
             linewidths=1.0 if mark["filled"] else 2.0,
             zorder=10,
         )
-        ax.text(
-            p[0],
-            p[1],
-            p[2],
-            "  " + _plain(mark["text"]),
-            fontsize=8,
-            color=PALETTE["ink"],
-            zorder=11,
-        )
     for setter, objective in zip(
         (ax.set_xlabel, ax.set_ylabel, ax.set_zlabel), objectives, strict=False
     ):
@@ -678,7 +669,7 @@ def plot_parallel(
     levels = np.column_stack([spec["levels"] for spec in axes_spec])
     n_axes = len(axes_spec)
     with _Styled():
-        fig = _new_figure((max(6.5, 1.45 * n_axes + 1.5), 5.0))
+        fig = _new_figure((max(6.5, 1.15 * n_axes + 1.6), 5.0))
         ax = fig.add_subplot()
         xs = np.arange(n_axes)
         alpha = float(np.clip(12.0 / max(len(front), 1), 0.08, 0.7))
@@ -818,7 +809,9 @@ def _options_of(front: Front, name: str, column: pd.Series) -> list[str]:
 
 
 def _number(value: float) -> str:
-    return f"{value:.4g}"
+    if value != 0 and not 1e-4 <= abs(value) < 1e7:
+        return f"{value:.4g}"
+    return np.format_float_positional(value, precision=5, unique=True, fractional=False, trim="-")
 
 
 # ------------------------------------------------------------------------------- history
@@ -1058,10 +1051,10 @@ def plot_attainment(
                     values[:, 1],
                     s=8,
                     marker="o",
-                    color=PALETTE["feasible"],
-                    alpha=0.5,
+                    color=PALETTE["ink"],
+                    alpha=0.35,
                     linewidths=0,
-                    zorder=1,
+                    zorder=2,
                 )
         stairs = {}
         for name, percent in chosen.items():
@@ -1081,7 +1074,7 @@ def plot_attainment(
                     facecolor=PALETTE["band"],
                     edgecolor="none",
                     alpha=0.8,
-                    hatch="////",
+                    label="reached by some runs but not all",
                     zorder=0,
                 )
             )

@@ -171,9 +171,15 @@ tr.marked td { background: #fff7e8; }
 figure { margin: 14px 0 18px; break-inside: avoid; page-break-inside: avoid; }
 figure svg { display: block; width: 100%; height: auto; max-height: 640px; }
 figcaption { color: var(--muted); font-size: 13px; margin-top: 4px; }
-.pick { border: 1px solid var(--line); padding: 8px 12px; margin: 10px 0; break-inside: avoid; page-break-inside: avoid; }
-.pick h3 { margin: 0 0 4px; }
-.pick ul { margin: 4px 0; padding-left: 20px; }
+.cards { display: grid; grid-template-columns: repeat(auto-fit, minmax(320px, 1fr)); gap: 10px; margin: 10px 0; }
+.pick { border: 1px solid var(--line); border-top: 3px solid var(--ink); padding: 8px 12px; font-size: 14px;
+        break-inside: avoid; page-break-inside: avoid; }
+.pick.knee { border-top-color: var(--amber); }
+.pick h3 { margin: 0 0 4px; font-size: 15px; }
+.pick p { margin: 4px 0; }
+.pick p.label { margin-top: 8px; font-weight: 600; font-size: 13px; }
+.pick ul { margin: 2px 0; padding-left: 18px; }
+dl.methods dd { color: var(--ink); }
 ul.plain { padding-left: 20px; }
 .muted { color: var(--muted); }
 dl.run { display: grid; grid-template-columns: max-content 1fr; gap: 3px 16px; margin: 6px 0 12px; }
@@ -196,6 +202,7 @@ footer { margin-top: 40px; padding-top: 8px; border-top: 1px solid var(--line); 
   figure svg { max-height: 185mm; }
   .caution, tr.marked td, .tag, th, .fact { -webkit-print-color-adjust: exact; print-color-adjust: exact; }
   section.front-table { break-before: page; page-break-before: always; }
+  .screen { display: none; }
 }
 """.strip()
 
@@ -662,24 +669,6 @@ def _picks_section(front: Front, marks: dict[str, Any], figures: Mapping[str, st
                 f"<p>The knee methods disagree ({_e(said)}); the front has no single sharp bend, "
                 "so treat the knee as one reasonable design among several.</p>"
             )
-    for k, (row, methods) in enumerate(entries):
-        heading = "Knee design" if k == 0 and marks["knee"] is not None else "Compromise design"
-        parts.append('<div class="pick">')
-        parts.append(f"<h3>{heading}: {_row(row)}</h3>")
-        parts.append(f"<p>{_design_values(front, row)}</p>")
-        variables = _variable_values(front, row)
-        if variables:
-            parts.append(f'<p class="muted">{variables}</p>')
-        explained = [f"<li><b>{_e(m)}</b>: {_e(marks['methods'].get(m, ''))}</li>" for m in methods]
-        parts.append(f"<p>Picked by:</p><ul>{''.join(explained)}</ul>")
-        rates = _rates(front, row)
-        if rates:
-            parts.append(
-                "<p>Trade-off rates:</p><ul>"
-                + "".join(f"<li>{_e(t)}</li>" for t in rates)
-                + "</ul>"
-            )
-        parts.append("</div>")
     if "front" in figures:
         n_obj = len(front.objectives)
         shape = (
@@ -694,6 +683,42 @@ def _picks_section(front: Front, marks: dict[str, Any], figures: Mapping[str, st
             "other evaluations (faint grey dots; crosses are infeasible or failed designs). The knee is the amber "
             f"diamond, other picks are hollow markers. {shape}</figcaption></figure>"
         )
+    if entries:
+        heads = ["design", "picked by"] + [_header(front, o.name) for o in front.objectives]
+        rows = []
+        for row, methods in entries:
+            record = front.table.iloc[int(row)]
+            rows.append(
+                [f"<b>{_row(row)}</b>", _e(", ".join(methods))]
+                + [_e(_fmt(record[o.name])) for o in front.objectives]
+            )
+        numeric = tuple(range(2, 2 + len(front.objectives)))
+        parts.append(
+            _table(heads, rows, numeric=numeric).replace("<table>", '<table class="picks">', 1)
+        )
+        parts.append('<div class="cards">')
+        for k, (row, _methods) in enumerate(entries):
+            heading = "Knee design" if k == 0 and marks["knee"] is not None else "Compromise design"
+            kind = "pick knee" if heading == "Knee design" else "pick"
+            parts.append(f'<div class="{kind}"><h3>{heading}: {_row(row)}</h3>')
+            parts.append(f"<p>{_design_values(front, row)}</p>")
+            variables = _variable_values(front, row)
+            if variables:
+                parts.append(f'<p class="muted">{variables}</p>')
+            rates = _rates(front, row)
+            if rates:
+                parts.append(
+                    '<p class="label">Trade-off rates</p><ul>'
+                    + "".join(f"<li>{_e(t)}</li>" for t in rates)
+                    + "</ul>"
+                )
+            parts.append("</div>")
+        parts.append("</div>")
+        used = [m for _, methods in entries for m in methods]
+        explained = "".join(
+            f"<dt>{_e(m)}</dt><dd>{_e(marks['methods'].get(m, ''))}</dd>" for m in used
+        )
+        parts.append(f'<h3>How each method chooses</h3><dl class="run methods">{explained}</dl>')
     if "parallel" in figures:
         parts.append(
             f'<figure id="figure-parallel">{figures["parallel"]}<figcaption>Figure 2. Every design on the front as '
@@ -749,9 +774,11 @@ def _run_section(front: Front, history, figures: Mapping[str, str]) -> str:
             f"{_fmt(meta.get('n_failed'))} (stored with their message and treated as infeasible)",
         )
     if meta.get("n_cached"):
+        n_cached = int(meta.get("n_cached"))
         add(
             "served from the archive",
-            f"{_fmt(meta.get('n_cached'))} designs seen before were not evaluated again",
+            f"{n_cached} design{'s' if n_cached != 1 else ''} seen before {'were' if n_cached != 1 else 'was'} "
+            "not evaluated again",
         )
     if front.reference is not None:
         ref = ", ".join(
@@ -838,7 +865,7 @@ def _table_section(front: Front, marks: dict[str, Any]) -> str:
     return (
         '<section id="front" class="front-table"><h2><span class="num">4</span>The front</h2>'
         f"<p>All {len(front)} designs that no other feasible design beats in every objective ({_e(goals)}). "
-        "Rows are numbered as in front.csv. Click a column heading to sort.</p>"
+        'Rows are numbered as in front.csv.<span class="screen"> Click a column heading to sort.</span></p>'
         f'<div class="scroll"><table id="front-table"><thead><tr>{"".join(heads)}</tr></thead>'
         f"<tbody>{''.join(body)}</tbody></table></div></section>"
     )
