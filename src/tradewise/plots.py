@@ -721,7 +721,11 @@ def plot_parallel(
         ax.grid(False)
         for side in ("left", "right", "top"):
             ax.spines[side].set_visible(False)
-        ax.set_ylabel("worse  \u2192  better", color="#44444a")
+        ax.set_ylabel("objectives: worse  \u2192  better", color="#44444a")
+        if extra:
+            # variables have no better side: shade their part and say how they run
+            first = len(objectives) - 0.5
+            ax.axvspan(first, n_axes - 0.4, color="#f1f2f6", zorder=0)
         handles = [
             Line2D(
                 [],
@@ -732,6 +736,16 @@ def plot_parallel(
                 label=f"front ({len(front)} designs)",
             )
         ]
+        if extra:
+            from matplotlib.patches import Patch
+
+            handles.append(
+                Patch(
+                    facecolor="#f1f2f6",
+                    edgecolor="#c8c8cc",
+                    label="variables: smallest at the bottom",
+                )
+            )
         if highlight is not None:
             labels = [lab for lab in ["knee"] if highlight == _default_knee(front)]
             text = f"{labels[0]} ({_row_label(highlight)})" if labels else _row_label(highlight)
@@ -748,7 +762,7 @@ def plot_parallel(
                 )
             )
         ax.legend(
-            handles=handles, loc="upper center", bbox_to_anchor=(0.5, -0.16), ncol=2, frameon=False
+            handles=handles, loc="upper center", bbox_to_anchor=(0.5, -0.16), ncol=3, frameon=False
         )
         if title:
             fig.suptitle(_plain(_short(title)), fontsize=11, color=PALETTE["ink"])
