@@ -170,6 +170,50 @@ def run_command(case, out, seed, n_seeds, evaluations, generations, population, 
         sys.exit(130)
 
 
+@main.command("resume")
+@click.argument("store", metavar="STORE", type=click.Path(dir_okay=False))
+@click.option("--run", "run_id", type=click.IntRange(min=1), help="Which run in STORE (default the newest).")
+@click.option("--evaluations", type=click.IntRange(min=1), help="New total budget, to extend a finished run.")
+@click.option("--out", "out", type=click.Path(file_okay=False), help="Run folder to write (default STORE's folder).")
+@click.option("--case", "case", metavar="CASE", help="The case, if its folder moved since the run started.")
+@click.option("--workers", type=click.IntRange(min=1), help="Evaluate in this many local processes.")
+@click.option("--dask", is_flag=True, help="Start a local Dask cluster of --workers processes.")
+@click.option("--scheduler", metavar="ADDRESS", help="Join an existing Dask scheduler, e.g. tcp://host:8786.")
+@click.option("--quiet", is_flag=True, help="No progress output.")
+def resume_command(store, run_id, evaluations, out, case, workers, dask, scheduler, quiet) -> None:
+    """Continue an interrupted run from its archive, or extend a finished one.
+
+    STORE is the archive file of the run (archive.sqlite in its run folder).
+    Nothing already evaluated is evaluated again, and a run stopped part-way
+    ends with the front it would have had without the stop. The run folder
+    is written again.
+    """
+    from pathlib import Path
+
+    from tradewise.search import resume_study, save_run
+    from tradewise.store import open_store
+
+    with open_store(store, create=False) as archive:
+        run_id = run_id or archive.latest_run()
+        record = archive.run(run_id)
+        done = archive.count_evaluations(run_id)
+    budget = evaluations or record["settings"]["evaluations"]
+    bar = _Progress(max(budget, done), quiet=quiet, initial=done)
+    try:
+        result = resume_study(
+            store, run_id=run_id, evaluations=evaluations, case=case, workers=workers, dask=dask,
+            scheduler=scheduler, progress=bar.generation, on_evaluation=bar.evaluation,
+        )
+    finally:
+        bar.close()
+    folder = Path(out) if out else Path(store).parent
+    written = save_run(result, folder)
+    _summary(result)
+    click.echo(f"Resumed run {run_id}; wrote {', '.join(p.name for p in written.values())} to {folder}")
+    if result.status == "interrupted":
+        sys.exit(130)
+
+
 @main.command("check")
 @click.argument("case", metavar="CASE")
 def check_command(case) -> None:

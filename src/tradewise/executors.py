@@ -1,10 +1,21 @@
-"""Where evaluations run: in this process, in a local process pool, or on a Dask cluster."""
+"""Where evaluations run: in this process, in a local process pool, or on a Dask cluster.
+
+Every executor has the same face: ``run(model, designs)`` yields
+``(position, outcome)`` pairs as evaluations complete, in any order, exactly
+one pair for each design. A model that fails gives a failed outcome (the
+model objects catch their own errors); an executor adds the failures that
+only it can see: a worker process that died, a task the cluster lost.
+"""
 
 from __future__ import annotations
 
 import concurrent.futures as cf
 import os
+import shutil
+import tempfile
+from collections import deque
 from collections.abc import Callable, Iterator, Sequence
+from pathlib import Path
 from typing import Any
 
 from tradewise.errors import TradewiseError
@@ -27,7 +38,7 @@ class InProcess:
             yield i, model(design)
 
     def close(self) -> None:
-        pass
+        """Release the workers (nothing to do here)."""
 
     def __enter__(self):
         return self
@@ -35,51 +46,127 @@ class InProcess:
     def __exit__(self, *exc: object) -> None:
         self.close()
 
+    def __repr__(self) -> str:
+        return f"{type(self).__name__}(workers={self.workers})"
+
+
+def _marked_call(model: Model, design: dict[str, Any], mark: str) -> Outcome:
+    """Run in a worker: leave a mark that the design was started, then evaluate it.
+
+    When the pool breaks, the marks tell the designs that were being evaluated
+    (one of them killed its worker) from those that were only queued.
+    """
+    with open(mark, "x"):
+        pass
+    return model(design)
+
 
 class ProcessPool(InProcess):
     """Evaluate designs in ``workers`` local processes; results arrive as they complete.
 
-    A worker process that dies takes its designs with it: the pool is
-    restarted and those designs are tried once more, then recorded as failed.
+    When a worker process dies (a crash in a native library, ``os._exit``,
+    the out-of-memory killer), the pool is restarted. Designs that had not
+    started are sent again as if nothing happened. Designs that were being
+    evaluated are suspects: each is tried once more, never beside another
+    suspect, so a design that kills its worker a second time is recorded as
+    failed while its innocent neighbours complete.
+
+    Parameters
+    ----------
+    workers : int
+        Number of worker processes, 1 or more.
     """
 
     name = "process pool"
 
     def __init__(self, workers: int) -> None:
-        if workers < 1:
-            raise TradewiseError(f"workers: got {workers}, allowed: 1 or more")
+        if not isinstance(workers, int) or isinstance(workers, bool) or workers < 1:
+            raise TradewiseError(f"workers: got {workers!r}, allowed: a whole number, 1 or more")
         self.workers = workers
         self._pool: cf.ProcessPoolExecutor | None = None
+        self.n_restarts = 0
 
     def _get_pool(self) -> cf.ProcessPoolExecutor:
         if self._pool is None:
             self._pool = cf.ProcessPoolExecutor(max_workers=self.workers)
         return self._pool
 
+    def _drop_pool(self) -> None:
+        if self._pool is not None:
+            self._pool.shutdown(wait=True, cancel_futures=True)
+            self._pool = None
+            self.n_restarts += 1
+
     def run(self, model: Model, designs: Sequence[dict[str, Any]]) -> Iterator[tuple[int, Outcome]]:
-        pending = list(range(len(designs)))
-        tries = dict.fromkeys(pending, 0)
-        while pending:
+        """Yield ``(position, outcome)`` for each design as it completes."""
+        marks = Path(tempfile.mkdtemp(prefix="tradewise-pool-"))
+        try:
+            yield from self._run(model, designs, marks)
+        finally:
+            shutil.rmtree(marks, ignore_errors=True)
+
+    def _run(self, model: Model, designs: Sequence[dict[str, Any]], marks: Path) -> Iterator[tuple[int, Outcome]]:
+        fresh: deque[int] = deque(range(len(designs)))
+        suspects: deque[int] = deque()
+        strikes = [0] * len(designs)
+        attempt = [0] * len(designs)
+        running: dict[cf.Future, int] = {}
+        suspect: int | None = None  # the one suspect allowed to run at a time
+        while fresh or suspects or running:
             pool = self._get_pool()
-            futures = {pool.submit(model, designs[i]): i for i in pending}
-            pending = []
-            broken = False
-            for future in cf.as_completed(futures):
-                i = futures[future]
+            while fresh:
+                i = fresh.popleft()
+                attempt[i] += 1
+                running[pool.submit(_marked_call, model, designs[i], str(marks / f"{i}.{attempt[i]}"))] = i
+            if suspects and suspect is None:
+                i = suspect = suspects.popleft()
+                attempt[i] += 1
+                running[pool.submit(_marked_call, model, designs[i], str(marks / f"{i}.{attempt[i]}"))] = i
+            done, _ = cf.wait(running, return_when=cf.FIRST_COMPLETED)
+            lost: list[int] = []
+            for future in done:
+                i = running.pop(future)
                 try:
-                    yield i, future.result()
+                    outcome = future.result()
                 except cf.process.BrokenProcessPool:
-                    broken = True
-                    tries[i] += 1
-                    if tries[i] >= 2:
-                        yield i, Outcome("failed", {}, "the worker process evaluating this design died twice")
-                    else:
-                        pending.append(i)
-            if broken:
-                self._pool.shutdown(wait=False, cancel_futures=True)
-                self._pool = None
+                    lost.append(i)
+                    continue
+                except Exception as exc:  # only a bug outside the model gets here; keep the run going
+                    outcome = Outcome("failed", {}, f"the worker could not evaluate this design: "
+                                                      f"{type(exc).__name__}: {exc}")
+                if i == suspect:
+                    suspect = None
+                yield i, outcome
+            if not lost:
+                continue
+            # The pool is broken: every future still running fails the same way; collect them all.
+            cf.wait(running)
+            for future, i in list(running.items()):
+                try:
+                    outcome = future.result()
+                except cf.process.BrokenProcessPool:
+                    lost.append(i)
+                else:
+                    yield i, outcome
+            running.clear()
+            suspect = None
+            self._drop_pool()
+            for i in sorted(lost):
+                if not (marks / f"{i}.{attempt[i]}").exists():
+                    # Never started, so not its fault; it goes back where it was.
+                    (suspects.appendleft if strikes[i] else fresh.append)(i)
+                    continue
+                strikes[i] += 1
+                if strikes[i] >= 2:
+                    yield i, Outcome(
+                        "failed", {}, "the worker process died while evaluating this design, twice "
+                        "(a crash, os._exit or the out-of-memory killer)"
+                    )
+                else:
+                    suspects.append(i)
 
     def close(self) -> None:
+        """Stop the worker processes."""
         if self._pool is not None:
             self._pool.shutdown(wait=True, cancel_futures=True)
             self._pool = None
@@ -88,64 +175,105 @@ class ProcessPool(InProcess):
 class DaskCluster(InProcess):
     """Evaluate designs on Dask: a new local cluster of ``workers``, or an existing scheduler.
 
-    dask.distributed is imported only here, when a cluster is asked for. A
-    worker that dies is not fatal: Dask reschedules its tasks; a design whose
-    task still fails for that reason is tried once more, then recorded as failed.
+    dask.distributed is imported only here, when a cluster is asked for.
+    Each design is one task, submitted for a whole generation at once and
+    collected as it completes. A worker that dies is restarted by its nanny
+    and its task is sent again; on a local cluster started here a task that
+    kills a worker a second time is recorded as failed (the scheduler's
+    ``allowed-failures`` is set to 1, and each worker holds one task at a
+    time so that only the guilty task is blamed). On an existing scheduler
+    its own ``allowed-failures`` setting applies. The case folder must be at
+    the same path on every worker machine.
+
+    Parameters
+    ----------
+    workers : int, optional
+        Worker processes of the local cluster (default: one per CPU).
+    scheduler : str, optional
+        Address of a running scheduler, e.g. ``tcp://10.0.0.5:8786``.
     """
 
     name = "dask"
 
     def __init__(self, workers: int | None = None, *, scheduler: str | None = None) -> None:
         try:
+            import dask
             from dask.distributed import Client, LocalCluster
         except ImportError:
             raise TradewiseError(
-                "Dask is not installed; install the cluster extra: pip install 'tradewise[cluster]'"
+                "--dask/--scheduler: dask.distributed is not installed; install the cluster extra: "
+                "pip install 'tradewise[cluster]'"
             ) from None
         self._cluster = None
+        self._client = None
         if scheduler:
             try:
                 self._client = Client(scheduler, timeout="20s")
-            except OSError as exc:
+            except (OSError, TimeoutError) as exc:
                 raise TradewiseError(f"--scheduler {scheduler}: cannot connect ({exc})") from None
         else:
+            if workers is not None and workers < 1:
+                raise TradewiseError(f"workers: got {workers!r}, allowed: a whole number, 1 or more")
             n = workers or os.cpu_count() or 1
-            self._cluster = LocalCluster(
-                n_workers=n, threads_per_worker=1, processes=True, dashboard_address=None
-            )
+            settings = {
+                "distributed.scheduler.allowed-failures": 1,
+                "distributed.scheduler.worker-saturation": 1.0,
+            }
+            with dask.config.set(settings):
+                self._cluster = LocalCluster(
+                    n_workers=n, threads_per_worker=1, processes=True, dashboard_address=None
+                )
             self._client = Client(self._cluster)
         self.workers = len(self._client.scheduler_info().get("workers", {})) or (workers or 1)
 
     def run(self, model: Model, designs: Sequence[dict[str, Any]]) -> Iterator[tuple[int, Outcome]]:
-        from dask.distributed import as_completed
+        """Yield ``(position, outcome)`` for each design as it completes."""
+        from dask.distributed import KilledWorker, as_completed
 
-        pending = list(range(len(designs)))
-        tries = dict.fromkeys(pending, 0)
-        while pending:
-            futures = {}
-            for i in pending:
-                future = self._client.submit(model, designs[i], pure=False, retries=1)
-                futures[future] = i
-            pending = []
-            for future in as_completed(list(futures)):
-                i = futures[future]
-                try:
-                    yield i, future.result()
-                except Exception as exc:  # a killed worker surfaces as various errors
+        futures = {self._client.submit(model, d, pure=False): i for i, d in enumerate(designs)}
+        tries = dict.fromkeys(range(len(designs)), 1)
+        # Results are fetched as soon as each task finishes and the task is then released, so a
+        # worker that dies later cannot take a finished result with it (Dask would compute it again).
+        collector = as_completed(list(futures), with_results=True, raise_errors=False)
+        try:
+            for future, result in collector:
+                i = futures.pop(future)
+                status = future.status
+                del future
+                if status == "finished":
+                    yield i, result
+                    continue
+                error = result[1] if isinstance(result, tuple) else result
+                if isinstance(error, KilledWorker):
+                    yield i, Outcome("failed", {}, "the Dask worker died while evaluating this design, "
+                                                   "each time it was tried (a crash, os._exit or running out of memory)")
+                elif tries[i] < 2:  # a lost connection, a cancelled task, an error outside the model
                     tries[i] += 1
-                    if tries[i] >= 2:
-                        yield i, Outcome("failed", {}, f"the Dask task failed twice: {type(exc).__name__}: {exc}")
-                    else:
-                        pending.append(i)
+                    again = self._client.submit(model, designs[i], pure=False)
+                    futures[again] = i
+                    collector.add(again)
+                else:
+                    yield i, Outcome("failed", {}, f"the Dask task failed twice: {type(error).__name__}: {error}")
+        finally:
+            for future in futures:
+                future.cancel()
 
     def close(self) -> None:
-        self._client.close()
+        """Leave the scheduler; stop the local cluster if this object started it."""
+        if self._client is not None:
+            self._client.close()
         if self._cluster is not None:
             self._cluster.close()
 
 
 def make_executor(workers: int | None = None, *, dask: bool = False, scheduler: str | None = None) -> InProcess:
-    """Pick the executor from the user's options (``--workers``, ``--dask``, ``--scheduler``)."""
+    """Pick the executor from the user's options (``--workers``, ``--dask``, ``--scheduler``).
+
+    Examples
+    --------
+    >>> make_executor(None)
+    InProcess(workers=1)
+    """
     if scheduler or dask:
         return DaskCluster(workers, scheduler=scheduler)
     if workers and workers > 1:

@@ -7,6 +7,7 @@ import importlib.util
 import json
 import math
 import os
+import shutil
 import signal
 import subprocess
 import sys
@@ -168,15 +169,28 @@ class CommandModel:
     """A model run as an external program with an argument list (never a shell).
 
     The design is written as a JSON object to the file named by ``{input}``;
-    the program writes a JSON object of results to ``{output}``. Each
-    evaluation runs in a fresh temporary folder, which is removed on success
-    and kept on failure (its path is in the message). A ``timeout`` kills
-    the program's whole process group.
+    the program writes a JSON object of results to ``{output}``; ``{case}``
+    stands for the case folder. Each evaluation runs in a fresh temporary
+    folder (its working directory), which also receives the program's
+    ``stdout.txt`` and ``stderr.txt``. The folder is removed when the
+    evaluation succeeds and kept when it fails; its path is in the message.
+
+    A ``timeout`` (seconds) kills the program's whole process group, so
+    helper processes it started stop too; the outcome is ``"timeout"``. A
+    non-zero exit status is recorded with the tail of the program's stderr.
+
+    Arguments that name a file in the case folder are made absolute, since
+    the program runs elsewhere. A first argument of exactly ``python`` or
+    ``python3`` means the Python that runs tradewise (``sys.executable`` of
+    the process doing the evaluation), so a case runs with the packages of
+    the user's environment whatever ``python3`` on the search path is; write
+    a full path to use another interpreter.
     """
 
     def __init__(self, case: Case, *, keep_root: str | Path | None = None) -> None:
+        if not case.command:
+            raise CaseError(f"{case.path}: command: got {case.command!r}, expected a list of arguments")
         self.folder = str(case.folder)
-        # The program runs in a fresh folder, so arguments naming files of the case are made absolute.
         self.command = [
             str(case.folder / a) if "{" not in a and (case.folder / a).is_file() else a for a in case.command
         ]
@@ -184,66 +198,115 @@ class CommandModel:
         self.required = case.objective_names + case.constraint_names
         self.keep_root = str(keep_root) if keep_root else None
 
-    def __call__(self, design: dict[str, Any]) -> Outcome:
-        work = Path(tempfile.mkdtemp(prefix="tradewise-eval-", dir=self.keep_root))
-        input_file, output_file = work / "design.json", work / "results.json"
-        input_file.write_text(json.dumps(design, default=_plain), encoding="utf-8")
+    def arguments(self, input_file: str | Path, output_file: str | Path) -> list[str]:
+        """The argument list for one evaluation, placeholders filled in."""
         args = [
             a.replace("{input}", str(input_file)).replace("{output}", str(output_file)).replace("{case}", self.folder)
             for a in self.command
         ]
+        if args[0] in _PYTHON_NAMES and sys.executable:
+            args[0] = sys.executable
+        return args
+
+    def __call__(self, design: dict[str, Any]) -> Outcome:
+        work = Path(tempfile.mkdtemp(prefix="tradewise-eval-", dir=self.keep_root))
+        input_file, output_file = work / "design.json", work / "results.json"
+        worker = _worker_name()
+
+        def failed(text: str, duration: float = 0.0, status: str = "failed") -> Outcome:
+            return Outcome(status, {}, f"{text} (kept {work})", duration, worker)
+
+        try:
+            input_file.write_text(json.dumps(design, default=_plain, allow_nan=False), encoding="utf-8")
+        except (TypeError, ValueError) as exc:
+            return failed(f"the design cannot be written as JSON: {exc}")
+        args = self.arguments(input_file, output_file)
         start = time.perf_counter()
-        try:
-            proc = subprocess.Popen(
-                args,
-                cwd=work,
-                stdin=subprocess.DEVNULL,
-                stdout=subprocess.PIPE,
-                stderr=subprocess.PIPE,
-                start_new_session=True,
-            )
-        except OSError as exc:
-            return Outcome("failed", {}, f"cannot start {args[0]!r}: {exc.strerror or exc} (kept {work})", 0.0, _worker_name())
-        try:
-            _, stderr = proc.communicate(timeout=self.timeout)
-        except subprocess.TimeoutExpired:
-            _kill_group(proc)
-            proc.communicate()
-            duration = time.perf_counter() - start
-            return Outcome("timeout", {}, f"no answer within {self.timeout:g} s; stopped (kept {work})", duration, _worker_name())
+        with open(work / "stdout.txt", "wb") as out, open(work / "stderr.txt", "wb") as err:
+            try:
+                proc = subprocess.Popen(
+                    args, cwd=work, stdin=subprocess.DEVNULL, stdout=out, stderr=err, **_NEW_GROUP
+                )
+            except OSError as exc:
+                return failed(f"cannot start {args[0]!r}: {exc.strerror or exc}")
+            try:
+                proc.wait(timeout=self.timeout)
+            except subprocess.TimeoutExpired:
+                _kill_group(proc)
+                proc.wait()
+                return failed(
+                    f"no answer within the timeout of {self.timeout:g} s; the program and its process group "
+                    "were stopped", time.perf_counter() - start, "timeout",
+                )
+            except BaseException:
+                # Interrupted (Ctrl-C) or killed from outside: the program runs in its own session and
+                # would not see the signal, so stop it before leaving.
+                _kill_group(proc)
+                proc.wait()
+                raise
         duration = time.perf_counter() - start
-        tail = stderr.decode("utf-8", "replace").strip()[-_STDERR_TAIL:].replace("\n", " | ")
         if proc.returncode != 0:
-            message = f"exited with status {proc.returncode}" + (f": {tail}" if tail else "") + f" (kept {work})"
-            return Outcome("failed", {}, message, duration, _worker_name())
+            tail = _tail(work / "stderr.txt")
+            how = (f"was killed by signal {_signal_name(-proc.returncode)}" if proc.returncode < 0
+                   else f"exited with status {proc.returncode}")
+            return failed(f"{Path(args[0]).name} {how}" + (f"; stderr ends: {tail}" if tail else "; stderr is empty"),
+                          duration)
         try:
-            raw = json.loads(output_file.read_text(encoding="utf-8"))
+            text = output_file.read_text(encoding="utf-8")
         except FileNotFoundError:
-            return Outcome("failed", {}, f"wrote no {output_file.name} (kept {work})", duration, _worker_name())
+            return failed(f"the program exited normally but wrote no {output_file.name}", duration)
+        except (OSError, UnicodeDecodeError) as exc:
+            return failed(f"{output_file.name} cannot be read: {exc}", duration)
+        try:
+            raw = json.loads(text)
         except ValueError as exc:
-            return Outcome("failed", {}, f"{output_file.name} is not valid JSON: {exc} (kept {work})", duration, _worker_name())
+            return failed(f"{output_file.name} is not valid JSON ({exc})", duration)
+        if not isinstance(raw, dict):
+            return failed(f"{output_file.name} holds a JSON {type(raw).__name__}, expected an object of results",
+                          duration)
         results, problem = check_results(raw, self.required)
         if problem:
-            return Outcome("failed", results, f"{problem} (kept {work})", duration, _worker_name())
+            return failed(problem, duration)
         _remove_tree(work)
-        return Outcome("ok", results, "", duration, _worker_name())
+        return Outcome("ok", results, "", duration, worker)
+
+
+_PYTHON_NAMES = frozenset({"python", "python3"})
+_NEW_GROUP: dict[str, Any] = (
+    {"start_new_session": True} if os.name == "posix"
+    else {"creationflags": getattr(subprocess, "CREATE_NEW_PROCESS_GROUP", 0)}
+)
 
 
 def _kill_group(proc: subprocess.Popen) -> None:
-    try:
-        os.killpg(proc.pid, signal.SIGKILL)
-    except (ProcessLookupError, PermissionError):
+    if os.name == "posix":
+        with contextlib.suppress(ProcessLookupError, PermissionError):
+            os.killpg(proc.pid, signal.SIGKILL)
+            return
+    with contextlib.suppress(OSError):
         proc.kill()
 
 
+def _tail(file: Path) -> str:
+    try:
+        with open(file, "rb") as handle:
+            handle.seek(0, os.SEEK_END)
+            handle.seek(max(0, handle.tell() - 4 * _STDERR_TAIL))
+            text = handle.read().decode("utf-8", "replace")
+    except OSError:
+        return ""
+    return " | ".join(line.strip() for line in text.strip().splitlines() if line.strip())[-_STDERR_TAIL:]
+
+
+def _signal_name(number: int) -> str:
+    try:
+        return signal.Signals(number).name
+    except ValueError:
+        return str(number)
+
+
 def _remove_tree(folder: Path) -> None:
-    for path in sorted(folder.rglob("*"), key=lambda p: len(p.parts), reverse=True):
-        try:
-            path.rmdir() if path.is_dir() else path.unlink()
-        except OSError:
-            return
-    with contextlib.suppress(OSError):
-        folder.rmdir()
+    shutil.rmtree(folder, ignore_errors=True)
 
 
 def _plain(value: Any) -> Any:

@@ -54,6 +54,10 @@ STATUS_TEXT = {
 _FAILED_PENALTY = 1e6  # violation given to a failed evaluation: always worse than any real violation
 _FAILED_OBJECTIVE = 1e30  # objective values given to a failed design when the case has no constraints
 _EXHAUSTED_AFTER = 25  # generations in a row without a new design before giving up
+# The search state (pickled algorithm, ~50 kB) is saved after a generation when this many seconds
+# have passed since the last save, and at the end. Resuming from an older state costs nothing but
+# pymoo time: the generations after it are replayed with results taken from the archive.
+_STATE_EVERY = 1.0
 
 
 # --------------------------------------------------------------------------------------- encoding
@@ -219,10 +223,14 @@ class _Run:
         self.scale: np.ndarray | None = None
         self.history: list[dict[str, Any]] = []
         self.next_id = 1
+        # Designs this run evaluated after its last saved state, by key; a resumed search takes
+        # each over when it proposes it again instead of evaluating it twice.
+        self.adopt: dict[str, dict[str, Any]] = {}
+        self.state_saved_at = -math.inf
 
     # -- one evaluation --------------------------------------------------------------------
     def record(self, design: dict[str, Any], key: str, outcome: Outcome | dict[str, Any], generation: int,
-               *, cached: bool, source_id: int | None = None) -> dict[str, Any]:
+               *, cached: bool, source_id: int | None = None, eval_id: int | None = None) -> dict[str, Any]:
         if isinstance(outcome, Outcome):
             status, results, message = outcome.status, outcome.results, outcome.message
             duration, worker = outcome.duration, outcome.worker
@@ -235,7 +243,9 @@ class _Run:
                 violation += c.violation(results[c.name])
         else:
             violation = _FAILED_PENALTY
-        if self.store is not None:
+        if eval_id is not None:
+            pass  # already in the archive (taken over on resume)
+        elif self.store is not None:
             eval_id = self.store.add_evaluation(
                 self.run_id,
                 case_hash=self.case.hash,
@@ -418,16 +428,23 @@ def run_study(
     case = case.with_search(
         seed=seed, evaluations=evaluations, generations=generations, population=population, time_limit=time_limit
     )
-    own_executor = executor is None
-    executor = executor or make_executor(workers, dask=dask, scheduler=scheduler)
+    # The archive first: a bad file fails before any worker or cluster is started.
     archive = open_store(store) if store is not None else None
+    own_executor = executor is None
+    try:
+        executor = executor or make_executor(workers, dask=dask, scheduler=scheduler)
+    except BaseException:
+        if archive is not None:
+            archive.close()
+        raise
     try:
         run_id = None
+
         if archive is not None:
             run_id = archive.start_run(
                 case_hash=case.hash,
                 case_title=case.title,
-                case_path=str(case.path),
+                case_path=str(case.path.resolve()),
                 case_text=case.text,
                 settings=case.search.as_dict(),
                 seed=case.search.seed,
@@ -459,10 +476,13 @@ def resume_study(
 ) -> StudyResult:
     """Continue an interrupted run (or extend a finished one) from its archive.
 
-    The search state saved at the last completed generation is restored, with
-    its random state, so the continuation proposes the designs the
-    uninterrupted run would have; designs the archive already holds for this
-    case are served from it, never evaluated again.
+    The newest saved search state is restored, with its random state (or,
+    when none was saved, the search starts again from the run's seed), so
+    the continuation proposes the designs the uninterrupted run would have.
+    Designs the run evaluated after that state are taken over when they are
+    proposed again, and designs the archive holds from other runs of the
+    case are served from it: nothing is evaluated twice, and a run resumed
+    after a kill ends with the front the uninterrupted run would have had.
 
     Parameters
     ----------
@@ -497,15 +517,27 @@ def resume_study(
         if evaluations is not None:
             settings["evaluations"] = evaluations
         case = case.with_search(**{k: v for k, v in settings.items() if v is not None})
+        space = Space(case)
         saved = archive.state(run_id)
         if saved is None:
-            raise StoreError(f"{path}: run {run_id} has no saved search state (it stopped before its first generation)")
-        _, blob = saved
-        algorithm = pickle.loads(blob)
-        space = Space(case)
-        algorithm.repair.space = space
+            # Killed before its first state was saved: the same seed proposes the same designs again.
+            state_generation = 0
+            algorithm, _ = _make_algorithm(case, space, case.search.population, case.search.seed)
+            algorithm.setup(_problem(case, space), termination=NoTermination(), seed=case.search.seed,
+                            verbose=False)
+        else:
+            state_generation, blob = saved
+            try:
+                algorithm = pickle.loads(blob)
+            except Exception as exc:
+                raise StoreError(
+                    f"{path}: run {run_id}'s saved search state cannot be loaded ({type(exc).__name__}: {exc}); "
+                    "it was probably written by other versions of pymoo or numpy"
+                ) from None
+            algorithm.repair.space = space
+        archive.discard_after(run_id, state_generation)
         run = _Run(case, archive, run_id)
-        _restore(run, archive, run_id, record)
+        _restore(run, archive, run_id, record, upto=state_generation)
         archive.update_run(run_id, status="running", message="resumed", settings=case.search.as_dict())
         executor = make_executor(workers, dask=dask, scheduler=scheduler)
         try:
@@ -517,17 +549,33 @@ def resume_study(
         archive.close()
 
 
-def _restore(run: _Run, archive: Store, run_id: int, record: dict[str, Any]) -> None:
-    """Rebuild the bookkeeping of a run from its archive rows."""
+def _restore(run: _Run, archive: Store, run_id: int, record: dict[str, Any], *, upto: int) -> None:
+    """Rebuild the bookkeeping of a run from its archive rows, up to generation ``upto``.
+
+    Evaluations made after that generation go to ``run.adopt``; the front is
+    rebuilt generation by generation, exactly as the run built it.
+    """
     table = archive.evaluations(run_id)
     case = run.case
     names = case.variable_names
+    if record.get("reference"):
+        run.reference = np.asarray(record["reference"]["point"], dtype=float)
+        run.reference_source = record["reference"]["source"]
+    start, current = 0, None
     for row in table.to_dict("records"):
         design = {n: _native(row[n]) for n in names}
         key = design_key(design)
         results = {k: _native(row[k]) for k in row if k not in design and k not in _EVAL_COLUMNS and not _missing(row[k])}
         outcome = {"status": row["status"], "results": results, "message": row["message"],
                    "duration": row["duration"] or 0.0, "worker": row["worker"]}
+        if row["generation"] > upto:
+            if not row["cached"]:
+                run.adopt[key] = {**outcome, "eval_id": row["eval_id"], "design": design,
+                                  "generation": row["generation"]}
+            continue
+        if row["generation"] != current:
+            run.update_front(list(range(start, len(run.records))))
+            start, current = len(run.records), row["generation"]
         violation = 0.0 if row["status"] == "ok" else _FAILED_PENALTY
         if row["status"] == "ok":
             violation = sum(c.violation(results[c.name]) for c in case.constraints)
@@ -543,10 +591,7 @@ def _restore(run: _Run, archive: Store, run_id: int, record: dict[str, Any]) -> 
             if row["status"] != "ok":
                 run.n_failed += 1
                 run.first_failure = run.first_failure or row["message"]
-    if record.get("reference"):
-        run.reference = np.asarray(record["reference"]["point"], dtype=float)
-        run.reference_source = record["reference"]["source"]
-    run.update_front(list(range(len(run.records))))
+    run.update_front(list(range(start, len(run.records))))
     history = archive.history(run_id)
     run.history = history.to_dict("records") if len(history) else []
 
@@ -573,7 +618,9 @@ def _loop(run: _Run, algorithm, algorithm_name: str, space: Space, executor: InP
     generation = len(run.history)
     idle = 0
     status = ""
-    clock = time.monotonic() - (time.time() - started)
+    # Elapsed time counts the time spent searching: a resumed run goes on from its last generation.
+    clock = time.monotonic() - (run.history[-1]["elapsed_s"] if run.history else time.time() - started)
+    saved_generation = generation
     try:
         while True:
             elapsed = time.monotonic() - clock
@@ -600,9 +647,11 @@ def _loop(run: _Run, algorithm, algorithm_name: str, space: Space, executor: InP
             keys = [design_key(d) for d in designs]
 
             # Which designs are new: not in this run's memo, not in the archive for this case.
+            # Those this run evaluated before it was interrupted count as new: they are taken over.
             known = {k for k in keys if k in run.memo}
             unknown = [k for k in dict.fromkeys(keys) if k not in known]
-            archived = run.store.lookup(case.hash, unknown) if run.store is not None and unknown else {}
+            look_up = [k for k in unknown if k not in run.adopt]
+            archived = run.store.lookup(case.hash, look_up) if run.store is not None and look_up else {}
             fresh = [k for k in unknown if k not in archived]
             room = settings.evaluations - run.n_evals
             if len(fresh) > room:
@@ -629,9 +678,14 @@ def _loop(run: _Run, algorithm, algorithm_name: str, space: Space, executor: InP
                 if on_evaluation:
                     on_evaluation(row)
             positions = {k: keys.index(k) for k in fresh}
-            batch = [designs[positions[k]] for k in fresh]
-            for i, outcome in executor.run(_model_for(run), batch):
-                key = fresh[i]
+            for key in sorted((k for k in fresh if k in run.adopt), key=lambda k: run.adopt[k]["eval_id"]):
+                taken = run.adopt.pop(key)
+                run.record(designs[positions[key]], key, taken, generation, cached=False, eval_id=taken["eval_id"])
+                outcomes[key] = run.memo[key]
+            to_run = [k for k in fresh if k not in outcomes]
+            batch = [designs[positions[k]] for k in to_run]
+            for i, outcome in executor.run(_model_for(run), batch) if batch else ():
+                key = to_run[i]
                 row = run.record(batch[i], key, outcome, generation, cached=False)
                 outcomes[key] = run.memo[key]
                 if on_evaluation:
@@ -688,12 +742,30 @@ def _loop(run: _Run, algorithm, algorithm_name: str, space: Space, executor: InP
             }
             run.history.append(row)
             if run.store is not None:
-                run.store.add_generation(run.run_id, row, state=pickle.dumps(algorithm))
+                state = None
+                if time.monotonic() - run.state_saved_at >= _STATE_EVERY:
+                    state, saved_generation = pickle.dumps(algorithm), generation
+                    run.state_saved_at = time.monotonic()
+                run.store.add_generation(run.run_id, row, state=state)
             if progress:
                 progress(row)
+        if run.store is not None and saved_generation != generation:
+            run.store.save_state(run.run_id, generation, pickle.dumps(algorithm))
     except KeyboardInterrupt:
         status = "interrupted"
+    _take_over_leftovers(run)
     return _finish(run, status, algorithm_name, started)
+
+
+def _take_over_leftovers(run: _Run) -> None:
+    """Count the evaluations a resumed search did not propose again (it stopped earlier) as the run's own."""
+    if not run.adopt:
+        return
+    first = len(run.records)
+    for key, taken in sorted(run.adopt.items(), key=lambda item: item[1]["eval_id"]):
+        run.record(taken["design"], key, taken, taken["generation"], cached=False, eval_id=taken["eval_id"])
+    run.adopt.clear()
+    run.update_front(list(range(first, len(run.records))))
 
 
 def _model_for(run: _Run):

@@ -1,0 +1,228 @@
+"""The SQLite archive: durability, look-ups, resume bookkeeping, and refusing files it must not touch."""
+
+from __future__ import annotations
+
+import hashlib
+import sqlite3
+import subprocess
+import sys
+import textwrap
+import threading
+import time
+
+import pytest
+from click.testing import CliRunner
+
+from support import GOOD_MODEL, GOOD_TOML
+from tradewise.cli import main
+from tradewise.errors import StoreError
+from tradewise.search import run_study
+from tradewise.store import SCHEMA_VERSION, open_store
+
+
+def _start(store, case_hash="h1"):
+    return store.start_run(case_hash=case_hash, case_title="t", case_path="p", case_text="x",
+                           settings={"evaluations": 10}, seed=1, versions={})
+
+
+def _add(store, run_id, key, *, case_hash="h1", generation=1, source_id=None, value=1.0):
+    return store.add_evaluation(run_id, case_hash=case_hash, design_key=key, design={"x": value},
+                                results={"cost": value}, status="ok", message="", duration=0.1,
+                                generation=generation, source_id=source_id)
+
+
+def _count(path, where="1=1"):
+    """Rows visible to another connection, i.e. committed."""
+    with sqlite3.connect(path) as other:
+        return other.execute(f"SELECT COUNT(*) FROM evaluations WHERE {where}").fetchone()[0]
+
+
+def _digest(path):
+    return hashlib.sha256(path.read_bytes()).hexdigest()
+
+
+# ------------------------------------------------------------------------------- a new archive
+def test_new_archive_is_wal_with_schema(tmp_path):
+    """A new archive is in WAL mode and carries our schema version."""
+    path = tmp_path / "sub" / "archive.sqlite"
+    with open_store(path):
+        pass
+    with sqlite3.connect(path) as db:
+        assert db.execute("PRAGMA journal_mode").fetchone()[0] == "wal"
+        assert db.execute("SELECT value FROM meta WHERE key = 'schema'").fetchone()[0] == str(SCHEMA_VERSION)
+
+
+def test_evaluation_is_durable_within_one_second_while_the_next_one_runs(tmp_path):
+    """A completed evaluation is committed by the background thread although nothing else happens."""
+    path = tmp_path / "a.sqlite"
+    store = open_store(path)
+    run_id = _start(store)
+    _add(store, run_id, "k1")
+    _add(store, run_id, "k2")
+    # The main thread now "evaluates" for a long time and writes nothing.
+    deadline = time.monotonic() + 1.0
+    while _count(path) < 2 and time.monotonic() < deadline:
+        time.sleep(0.05)
+    assert _count(path) == 2
+    store.close()
+    assert not [t for t in threading.enumerate() if t.name == "tradewise-store"]
+
+
+def test_evaluation_survives_kill_minus_nine_after_one_second(tmp_path):
+    """A process killed (SIGKILL) one second after recording an evaluation has made it durable."""
+    path = tmp_path / "a.sqlite"
+    script = textwrap.dedent(f"""
+        import time
+        from tradewise.store import open_store
+        store = open_store({str(path)!r})
+        run = store.start_run(case_hash="h", case_title="t", case_path="p", case_text="x",
+                              settings={{}}, seed=1, versions={{}})
+        store.add_evaluation(run, case_hash="h", design_key="k", design={{"x": 1}}, results={{}},
+                             status="ok", message="", duration=0.0, generation=1)
+        print("recorded", flush=True)
+        time.sleep(60)
+    """)
+    proc = subprocess.Popen([sys.executable, "-c", script], stdout=subprocess.PIPE, text=True)
+    try:
+        assert proc.stdout.readline().strip() == "recorded"
+        time.sleep(1.0)
+    finally:
+        proc.kill()
+        proc.wait()
+    assert _count(path) == 1
+
+
+def test_generation_end_is_durable_at_once(tmp_path):
+    """add_generation commits immediately, with every evaluation before it."""
+    path = tmp_path / "a.sqlite"
+    with open_store(path) as store:
+        run_id = _start(store)
+        _add(store, run_id, "k1")
+        store.add_generation(run_id, {"generation": 1, "hypervolume": 0.5}, state=b"state")
+        assert _count(path) == 1
+        assert store.state(run_id) == (1, b"state")
+        assert store.history(run_id)["hypervolume"].tolist() == [0.5]
+
+
+# ---------------------------------------------------------------------------------- look-ups
+def test_lookup_serves_the_real_evaluation_of_the_same_case_only(tmp_path):
+    """A look-up finds the first real evaluation of a design for its case hash, never a served copy."""
+    with open_store(tmp_path / "a.sqlite") as store:
+        run_id = _start(store)
+        first = _add(store, run_id, "k1", value=2.0)
+        _add(store, run_id, "k1", source_id=first, value=2.0)
+        _add(store, run_id, "k2", case_hash="other")
+        found = store.lookup("h1", ["k1", "k2", "k3"])
+        assert set(found) == {"k1"}
+        assert found["k1"]["eval_id"] == first and found["k1"]["results"] == {"cost": 2.0}
+
+
+def test_discard_after_keeps_real_evaluations(tmp_path):
+    """Resume bookkeeping: served rows and history after the state go, real evaluations stay."""
+    with open_store(tmp_path / "a.sqlite") as store:
+        run_id = _start(store)
+        real = _add(store, run_id, "k1", generation=3)
+        _add(store, run_id, "k0", generation=3, source_id=real)
+        _add(store, run_id, "k9", generation=2, source_id=real)
+        for g in (1, 2, 3):
+            store.add_generation(run_id, {"generation": g})
+        store.discard_after(run_id, 2)
+        table = store.evaluations(run_id)
+        assert sorted(zip(table["generation"], table["cached"], strict=True)) == [(2, True), (3, False)]
+        assert store.history(run_id)["generation"].tolist() == [1, 2]
+
+
+def test_two_cases_share_one_archive(make_case, tmp_path):
+    """Runs of two cases into one file are kept apart by case hash; runs() lists both."""
+    one = make_case(name="one")
+    two = make_case(GOOD_TOML.replace('"tiny"', '"tiny two"'), name="two")
+    store = tmp_path / "shared.sqlite"
+    first = run_study(one, evaluations=20, population=10, store=store)
+    second = run_study(two, evaluations=20, population=10, store=store)
+    assert first.n_cached == 0 and second.n_cached == 0  # different case hashes: nothing shared
+    with open_store(store, create=False) as archive:
+        runs = archive.runs()
+    assert runs["n_evals"].tolist() == [20, 20]
+    assert runs["case_hash"].nunique() == 2
+
+
+# ------------------------------------------------------------------------------- bad files
+def _foreign_sqlite(path):
+    with sqlite3.connect(path) as db:
+        db.execute("CREATE TABLE customers (name TEXT)")
+        db.execute("INSERT INTO customers VALUES ('A. Person')")
+
+
+def _newer_archive(path):
+    with open_store(path):
+        pass
+    db = sqlite3.connect(path)
+    db.execute("UPDATE meta SET value = '99' WHERE key = 'schema'")
+    db.commit()
+    db.execute("PRAGMA journal_mode=DELETE")
+    db.close()
+
+
+BAD_FILES = {
+    "not sqlite": (lambda p: p.write_text("name,cost\nA,1\n"), "is not an SQLite file"),
+    "sqlite of something else": (_foreign_sqlite, "SQLite file of something else"),
+    "newer schema": (_newer_archive, "newer tradewise"),
+}
+
+
+@pytest.mark.parametrize("kind", list(BAD_FILES))
+def test_bad_file_is_refused_and_left_unchanged(tmp_path, kind):
+    """A file that is not one of our archives gives a one-line StoreError and keeps its bytes."""
+    path = tmp_path / "bad.sqlite"
+    make, words = BAD_FILES[kind]
+    make(path)
+    before = _digest(path)
+    for create in (True, False):
+        with pytest.raises(StoreError, match=words) as info:
+            open_store(path, create=create)
+        assert "\n" not in str(info.value)
+    assert _digest(path) == before
+    assert not (tmp_path / "bad.sqlite-wal").exists()
+
+
+def test_missing_and_empty_files_when_resuming(tmp_path):
+    """Resuming needs an existing archive: a missing or empty file is refused, and not created."""
+    with pytest.raises(StoreError, match="does not exist"):
+        open_store(tmp_path / "none.sqlite", create=False)
+    assert not (tmp_path / "none.sqlite").exists()
+    empty = tmp_path / "empty.sqlite"
+    empty.write_bytes(b"")
+    with pytest.raises(StoreError, match="is empty"):
+        open_store(empty, create=False)
+    assert empty.read_bytes() == b""
+    with pytest.raises(StoreError, match="is a folder"):
+        open_store(tmp_path, create=True)
+
+
+@pytest.mark.parametrize("kind", list(BAD_FILES))
+def test_cli_run_into_a_bad_store_exits_2_and_touches_nothing(make_case, tmp_path, kind):
+    """`tradewise run --store BAD` prints one Error line, exits 2 and writes no run folder."""
+    folder = make_case(model=GOOD_MODEL)
+    path = tmp_path / "bad.sqlite"
+    BAD_FILES[kind][0](path)
+    before = _digest(path)
+    out = tmp_path / "run"
+    result = CliRunner().invoke(main, ["run", str(folder), "--store", str(path), "--out", str(out), "--quiet"])
+    assert result.exit_code == 2
+    assert result.output.strip().count("\n") == 0 and result.output.startswith("Error: ")
+    assert _digest(path) == before
+    assert not out.exists()
+
+
+@pytest.mark.parametrize("kind", ["missing", *BAD_FILES])
+def test_cli_resume_of_a_bad_store_exits_2_and_touches_nothing(tmp_path, kind):
+    """`tradewise resume BAD` prints one Error line, exits 2 and leaves the file as it was."""
+    path = tmp_path / "bad.sqlite"
+    if kind != "missing":
+        BAD_FILES[kind][0](path)
+    before = _digest(path) if path.exists() else None
+    result = CliRunner().invoke(main, ["resume", str(path), "--quiet"])
+    assert result.exit_code == 2
+    assert result.output.strip().count("\n") == 0 and result.output.startswith("Error: ")
+    assert (_digest(path) if path.exists() else None) == before
+    assert sorted(p.name for p in tmp_path.iterdir()) == ([] if kind == "missing" else ["bad.sqlite"])
