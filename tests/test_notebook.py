@@ -175,6 +175,19 @@ def test_details_match_the_choosing_functions(zdt1):
     assert any("knee" in line for line in state.describe())
 
 
+def test_details_of_a_table_from_elsewhere_show_its_other_columns(tmp_path):
+    """A CSV front declares no variables, so the details list its other columns with their units."""
+    from tradewise.front import front_from_csv
+
+    path = tmp_path / "designs.csv"
+    path.write_text("id,grade,depth [mm],cost [EUR],mass [kg]\n1,S235,300,10,9\n2,S355,420,12,6\n3,S355,500,15,5\n",
+                    encoding="utf-8")
+    state = PickerState(front_from_csv(path, minimise=["cost", "mass"]))
+    info = state.details(1)
+    assert info["variables"] == [{"name": "id", "value": 2, "unit": ""}, {"name": "grade", "value": "S355", "unit": ""},
+                                 {"name": "depth", "value": 420, "unit": "mm"}]
+
+
 def test_details_of_a_three_objective_design_use_the_local_plane(run):
     """For three objectives the rates are read off a local plane, one per pair of objectives."""
     state = PickerState(run.front)
@@ -381,7 +394,14 @@ def test_an_ipympl_canvas_takes_clicks(zdt1):
     x, y = ax.transData.transform(zdt1.points()[target])
     MouseEvent("button_press_event", canvas, x, y, button=1)._process()
     assert picker.state.pick == target
-    assert picker._figure_box.children[0] is not canvas  # redrawn on a fresh canvas
+    # the new figure is drawn on the same canvas widget, and clicks on it still select
+    assert picker._figure_box.children == (canvas,) and canvas.figure is picker.figure
+    other = picker.state.ranking[6]
+    canvas.draw()
+    ax = next(a for a in picker.figure.axes if any(c.get_gid() == "front-points" for c in a.collections))
+    x, y = ax.transData.transform(zdt1.points()[other])
+    MouseEvent("button_press_event", canvas, x, y, button=1)._process()
+    assert picker.state.pick == other
 
 
 # --------------------------------------------------------------------------------- notebooks

@@ -23,6 +23,7 @@ import numpy as np
 import pandas as pd
 
 from tradewise import plots
+from tradewise.case import RESERVED_NAMES, Objective
 from tradewise.choose import (
     KNEE_METHODS,
     METHODS,
@@ -44,6 +45,7 @@ __all__ = ["PickerState", "Picker", "open_picker", "draw_picker", "load_picker_s
 SHORTLIST_COLUMNS = ("pick_order", "front_row")
 
 _GREYED = "#c4c4ca"
+_MAX_FIGURE_PX = 880.0
 _SHADE = "#eeeef2"
 
 
@@ -401,7 +403,8 @@ class PickerState:
             ``row``; ``kept`` (meets the limits); ``objectives``: one dict per
             objective with ``name``, ``value``, ``unit``, ``goal``, ``rank`` and
             ``of`` (rank among the designs that meet the limits); ``variables``:
-            dicts with ``name``, ``value`` and ``unit``; ``rates``: trade-off
+            dicts with ``name``, ``value`` and ``unit`` (for a front without
+            declared variables, its other columns); ``rates``: trade-off
             rates to its neighbours among the kept designs, as text; ``knees``:
             knee method to the row it finds; ``knee_agree``: the knee methods
             that find this design; ``also``: the other methods whose first
@@ -429,10 +432,14 @@ class PickerState:
             }
             for o in front.objectives
         ]
+        # a table from elsewhere declares no variables: its other columns describe the design
+        names = [v for v in front.variables if v in front.table.columns] or [
+            c for c in front.table.columns
+            if c not in front.objective_names and c not in RESERVED_NAMES and c not in SHORTLIST_COLUMNS
+        ]
         variables = [
-            {"name": v, "value": _plain_value(record[v]), "unit": front.units.get(v, "") or ""}
-            for v in front.variables
-            if v in front.table.columns
+            {"name": str(v), "value": _plain_value(record[v]), "unit": front.units.get(str(v), "") or ""}
+            for v in names
         ]
         rates: list[str] = []
         if len(sub) > 1:
@@ -699,9 +706,7 @@ def _add_legend_entry(fig, label: str) -> None:
         ax.legend(handles=handles, loc=getattr(legend, "_loc", "best"), borderaxespad=legend.borderaxespad)
 
 
-def _with_units(front: Front):
-    from tradewise.case import Objective
-
+def _with_units(front: Front) -> list[Objective]:
     return [Objective(o.name, o.goal, front.units.get(o.name, o.unit) or o.unit, o.worst) for o in front.objectives]
 
 
@@ -950,27 +955,39 @@ class Picker:
 
     def _redraw(self) -> None:
         self.figure = draw_picker(self.state, evaluations=self._cloud)
+        # the three-objective figure is wider than a notebook column at screen resolution
+        display_dpi = min(96.0, _MAX_FIGURE_PX / self.figure.get_figwidth())
         if self.clickable:
             from ipympl.backend_nbagg import Canvas, FigureManager
 
             old = self._canvas
-            canvas = Canvas(self.figure)
-            FigureManager(canvas, 0)
-            canvas.header_visible = False
-            canvas.footer_visible = False
-            canvas.resizable = False
-            canvas.toolbar_position = "left"
+            self.figure.set_dpi(display_dpi)
+            if old is None:
+                canvas = Canvas(self.figure)
+                FigureManager(canvas, 0)
+                canvas.header_visible = False
+                canvas.footer_visible = False
+                canvas.resizable = False
+                canvas.toolbar_position = "left"
+                self._canvas = canvas
+                self._figure_box.children = [canvas]
+            else:
+                # one canvas widget for the picker's life: swapping widgets left the old view on the page,
+                # so each new figure moves onto the canvas the page already shows
+                canvas = old
+                self.figure.set_canvas(canvas)
+                canvas.figure = self.figure
+                if getattr(canvas, "toolbar", None) is not None:
+                    canvas.toolbar.update()
+                width, height = self.figure.bbox.size
+                if tuple(canvas._size) != (int(width), int(height)):
+                    canvas.manager.resize(width, height)
             canvas.mpl_connect("pick_event", self._clicked)
-            self._canvas = canvas
-            self._figure_box.children = [canvas]
             canvas.draw_idle()
-            if old is not None:
-                old.close()
         else:
             self.figure.canvas.mpl_connect("pick_event", self._clicked)
-            self._image.value = _png(self.figure)
-            width = int(self.figure.get_figwidth() * 96)
-            self._image.layout.width = f"{width}px"
+            self._image.value = _png(self.figure, dpi=2 * display_dpi)  # sharp on high-density screens
+            self._image.layout.width = f"{int(self.figure.get_figwidth() * display_dpi)}px"
             self._figure_box.children = [self._image]
 
     # ----------------------------------------------------------------------- events
