@@ -258,6 +258,7 @@ def test_the_review_page_is_written_about_the_shortlist(run, tmp_path):
     text = page.read_text(encoding="utf-8")
     assert text.startswith("<!DOCTYPE html>")
     assert f"{run.front.table['mass'].iloc[0]:.5g}" in text
+    assert f"shortlist of 2 from {len(run.front)} designs" in text
 
 
 @pytest.mark.parametrize(

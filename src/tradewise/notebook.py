@@ -39,7 +39,7 @@ from tradewise.choose import (
 from tradewise.errors import DataError
 from tradewise.front import Front, read_front, tradeoff_rates
 
-__all__ = ["PickerState", "Picker", "open_picker", "draw_picker", "load_picker_source"]
+__all__ = ["PickerState", "Picker", "open_picker", "draw_picker", "load_picker_source", "SHORTLIST_COLUMNS"]
 
 #: Columns the shortlist export adds in front of the design's own columns.
 SHORTLIST_COLUMNS = ("pick_order", "front_row")
@@ -567,11 +567,15 @@ class PickerState:
         """Write the review page about the shortlisted designs (:func:`tradewise.report.write_report`).
 
         The page treats the shortlist as its front: its table, figures and
-        picks cover the shortlisted designs, with the run's history.
+        picks cover the shortlisted designs, with the run's history. Its
+        title says so, since its counts and hypervolume are the shortlist's.
         """
         from tradewise.report import write_report
 
-        page = write_report(self.shortlist_front(), path, history=self.history)
+        shortlist = self.shortlist_front()
+        title = str(self.front.meta.get("title") or self.front.meta.get("source") or "Front")
+        title += f" \u2014 shortlist of {len(shortlist)} from {len(self.front)} designs"
+        page = write_report(replace(shortlist, meta={**shortlist.meta, "title": title}), path, history=self.history)
         self._update(message=f"Wrote {Path(page).name} about {len(self._shortlist)} shortlisted designs.")
         return Path(page)
 
@@ -996,9 +1000,9 @@ class Picker:
             action(*args)
         except DataError as exc:
             self._status.value = f"<div style='color:#a00'>{escape(str(exc))}</div>"
-            self.refresh_controls_only()
+            self._refresh_keeping_message()
 
-    def refresh_controls_only(self) -> None:
+    def _refresh_keeping_message(self) -> None:
         """Put the controls back to the state after a change was refused, keeping the error shown."""
         message = self._status.value
         self.refresh()
