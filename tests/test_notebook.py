@@ -379,6 +379,7 @@ def test_the_widgets_edit_the_state(zdt1, tmp_path, monkeypatch):
     assert picker._image.value[:4] == b"\x89PNG"
 
 
+@pytest.mark.filterwarnings("ignore::DeprecationWarning:traitlets")  # raised inside ipympl's toolbar
 def test_an_ipympl_canvas_takes_clicks(zdt1):
     """With ipympl the figure is an interactive canvas widget and a pick event on it selects the design."""
     pytest.importorskip("ipympl")
