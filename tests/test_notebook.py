@@ -327,6 +327,8 @@ def test_the_figure_greys_exactly_the_designs_outside_the_limits(run):
         columns += [j for j in range(3) if np.allclose(np.asarray(base[0].get_offsets())[:, 1], points[:, j])]
         assert drawn == {tuple(np.round(p, 9)) for p in points[outside][:, columns]}
     assert panels == 3  # the three pairwise panels of three objectives
+    greyed_3d = [c for ax in fig.axes for c in ax.collections if c.get_gid() == "outside-limits-3d"]
+    assert len(greyed_3d) == 1 and len(greyed_3d[0].get_offsets()) == outside.sum()
 
 
 def test_clicking_a_point_selects_that_design(zdt1):
