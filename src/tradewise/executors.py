@@ -13,13 +13,16 @@ import concurrent.futures as cf
 import os
 import shutil
 import tempfile
+import threading
+import time
+import uuid
 from collections import deque
 from collections.abc import Callable, Iterator, Sequence
 from pathlib import Path
 from typing import Any
 
 from tradewise.errors import TradewiseError
-from tradewise.models import Outcome
+from tradewise.models import Outcome, stop_programs
 
 __all__ = ["InProcess", "ProcessPool", "DaskCluster", "make_executor"]
 
@@ -48,6 +51,24 @@ class InProcess:
 
     def __repr__(self) -> str:
         return f"{type(self).__name__}(workers={self.workers})"
+
+
+def _watch_parent() -> None:
+    """Pool worker initializer: end this worker soon after the process that started it is gone.
+
+    A run killed with SIGKILL cannot stop its pool; without this its workers
+    would wait forever for work, and a command-model program they run would
+    go on alone.
+    """
+    parent = os.getppid()
+
+    def watch() -> None:
+        while os.getppid() == parent:
+            time.sleep(0.5)
+        stop_programs()
+        os._exit(1)
+
+    threading.Thread(target=watch, name="tradewise-parent-watch", daemon=True).start()
 
 
 def _marked_call(model: Model, design: dict[str, Any], mark: str) -> Outcome:
@@ -88,7 +109,7 @@ class ProcessPool(InProcess):
 
     def _get_pool(self) -> cf.ProcessPoolExecutor:
         if self._pool is None:
-            self._pool = cf.ProcessPoolExecutor(max_workers=self.workers)
+            self._pool = cf.ProcessPoolExecutor(max_workers=self.workers, initializer=_watch_parent)
         return self._pool
 
     def _drop_pool(self) -> None:
@@ -230,7 +251,11 @@ class DaskCluster(InProcess):
         """Yield ``(position, outcome)`` for each design as it completes."""
         from dask.distributed import KilledWorker, as_completed
 
-        futures = {self._client.submit(model, d, pure=False): i for i, d in enumerate(designs)}
+        # One call for the whole generation: Dask then sees one large group of independent tasks and
+        # queues them on the scheduler, handing each worker its next task only when it is free, so
+        # a slow design never holds quick ones back behind it.
+        submitted = self._client.map(model, designs, key=[f"tradewise-evaluate-{uuid.uuid4().hex}" for _ in designs])
+        futures = {future: i for i, future in enumerate(submitted)}
         tries = dict.fromkeys(range(len(designs)), 1)
         # Results are fetched as soon as each task finishes and the task is then released, so a
         # worker that dies later cannot take a finished result with it (Dask would compute it again).

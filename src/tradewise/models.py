@@ -229,6 +229,7 @@ class CommandModel:
                 )
             except OSError as exc:
                 return failed(f"cannot start {args[0]!r}: {exc.strerror or exc}")
+            _RUNNING.add(proc)
             try:
                 proc.wait(timeout=self.timeout)
             except subprocess.TimeoutExpired:
@@ -244,6 +245,8 @@ class CommandModel:
                 _kill_group(proc)
                 proc.wait()
                 raise
+            finally:
+                _RUNNING.discard(proc)
         duration = time.perf_counter() - start
         if proc.returncode != 0:
             tail = _tail(work / "stderr.txt")
@@ -272,10 +275,21 @@ class CommandModel:
 
 
 _PYTHON_NAMES = frozenset({"python", "python3"})
+_RUNNING: set[subprocess.Popen] = set()  # programs of this process now running, for stop_programs()
 _NEW_GROUP: dict[str, Any] = (
     {"start_new_session": True} if os.name == "posix"
     else {"creationflags": getattr(subprocess, "CREATE_NEW_PROCESS_GROUP", 0)}
 )
+
+
+def stop_programs() -> None:
+    """Kill the process group of every command-model program this process is running.
+
+    For a worker process whose parent has died: its programs run in sessions
+    of their own and would otherwise go on alone.
+    """
+    for proc in list(_RUNNING):
+        _kill_group(proc)
 
 
 def _kill_group(proc: subprocess.Popen) -> None:

@@ -1,0 +1,232 @@
+"""Evaluation backends: in-process, process pool and Dask give the same results; dying workers are survived."""
+
+from __future__ import annotations
+
+import json
+import os
+import sqlite3
+import time
+
+import pandas as pd
+import pytest
+from click.testing import CliRunner
+
+from tradewise.case import load_case
+from tradewise.cli import main
+from tradewise.errors import TradewiseError
+from tradewise.executors import DaskCluster, InProcess, ProcessPool, make_executor
+from tradewise.models import make_model
+from tradewise.search import run_study
+
+MODEL = '''
+import math, os, time
+
+def evaluate(design):
+    x, mode = design["x"], design["mode"]
+    time.sleep(design.get("sleep", float(os.environ.get("TW_TEST_SLEEP", "0"))))
+    if mode == "raise":
+        raise ValueError(f"cannot size x={x:.3f}")
+    if mode == "nan":
+        return {"cost": x, "mass": math.nan}
+    if mode == "crash" and os.environ.get("TW_MAIN_PID") != str(os.getpid()):
+        os._exit(3)  # kills the worker process; never the test process itself
+    return {"cost": x + (0.5 if mode == "heavy" else 0.0), "mass": (1 - x) ** 2 + 0.1, "label": f"x{x:.2f}"}
+'''
+
+TOML = '''
+title = "backend contract"
+model = "model.py:evaluate"
+
+[variables]
+x = { type = "real", low = 0.0, high = 1.0 }
+mode = { type = "choice", options = MODES }
+
+[objectives]
+cost = { goal = "min" }
+mass = { goal = "min" }
+
+[search]
+population = 12
+evaluations = 48
+seed = 5
+'''
+
+# A fixed batch: good designs, one that raises and one that returns NaN.
+BATCH = [{"x": x / 10, "mode": mode} for x, mode in
+         [(1, "ok"), (2, "heavy"), (3, "raise"), (4, "ok"), (5, "nan"), (6, "heavy"), (7, "ok"), (8, "ok")]]
+
+
+@pytest.fixture(scope="module", autouse=True)
+def main_pid():
+    """Tell the model which process is the test itself (workers inherit the environment)."""
+    with pytest.MonkeyPatch.context() as patch:
+        patch.setenv("TW_MAIN_PID", str(os.getpid()))
+        yield
+
+
+@pytest.fixture
+def case(make_case):
+    def build(modes=("ok", "heavy", "raise", "nan")):
+        return load_case(make_case(TOML.replace("MODES", json.dumps(list(modes))), MODEL))
+
+    return build
+
+
+@pytest.fixture(scope="module")
+def dask_cluster(main_pid):
+    """One local Dask cluster of 2 worker processes for this module's cluster tests."""
+    pytest.importorskip("dask.distributed")
+    cluster = DaskCluster(2)
+    yield cluster
+    cluster.close()
+
+
+def _outcomes(executor, model, designs):
+    """(status, results, message) per position; exactly one outcome per design."""
+    pairs = list(executor.run(model, designs))
+    assert sorted(i for i, _ in pairs) == list(range(len(designs)))
+    got = dict(pairs)
+    return [(got[i].status, got[i].results, got[i].message) for i in range(len(designs))]
+
+
+def _front_table(result):
+    names = result.case.variable_names + result.case.objective_names
+    return result.front.table[names].sort_values(names).reset_index(drop=True)
+
+
+# ------------------------------------------------------------------------------ the contract
+def test_process_pool_gives_the_in_process_results(case):
+    """Contract: the same batch gives the same status, results and message in a pool of 2 as in-process."""
+    model = make_model(case())
+    expected = _outcomes(InProcess(), model, BATCH)
+    assert [s for s, _, _ in expected] == ["ok", "ok", "failed", "ok", "failed", "ok", "ok", "ok"]
+    assert "ValueError: cannot size x=0.300" in expected[2][2] and "finite number" in expected[4][2]
+    with ProcessPool(2) as pool:
+        assert _outcomes(pool, model, BATCH) == expected
+
+
+@pytest.mark.cluster
+def test_dask_gives_the_in_process_results(case, dask_cluster):
+    """Contract: the same batch gives the same outcomes on a 2-worker Dask LocalCluster as in-process."""
+    model = make_model(case())
+    assert dask_cluster.workers == 2
+    assert _outcomes(dask_cluster, model, BATCH) == _outcomes(InProcess(), model, BATCH)
+
+
+@pytest.mark.cluster
+def test_a_whole_run_is_identical_on_every_backend(case, dask_cluster):
+    """Same case, seed and budget: the same front, hypervolume and failure count on all three backends.
+
+    Evaluation order does not touch the random state (the pymoo notes, section 1.9), so results must agree
+    exactly.
+    """
+    loaded = case()
+    runs = {"in-process": run_study(loaded), "dask": run_study(loaded, executor=dask_cluster)}
+    with ProcessPool(2) as pool:
+        runs["process pool"] = run_study(loaded, executor=pool)
+    reference = runs["in-process"]
+    assert reference.n_evals == 48 and reference.n_failed > 0 and len(reference.front) > 3
+    for name, result in runs.items():
+        pd.testing.assert_frame_equal(_front_table(result), _front_table(reference), obj=name)
+        assert result.hypervolume == reference.hypervolume
+        assert (result.n_evals, result.n_failed) == (reference.n_evals, reference.n_failed)
+
+
+# ------------------------------------------------------------------------- as they complete
+def _completion_order(executor, model):
+    designs = [{"x": 0.1, "mode": "ok", "sleep": 1.5}] + [{"x": x / 10, "mode": "ok", "sleep": 0.05}
+                                                         for x in range(2, 8)]
+    return [i for i, _ in executor.run(model, designs)]
+
+
+def test_pool_yields_results_as_they_complete(case):
+    """A slow first design does not hold back the others: they are yielded while it still runs."""
+    with ProcessPool(2) as pool:
+        order = _completion_order(pool, make_model(case()))
+    assert order[-1] == 0
+
+
+@pytest.mark.cluster
+def test_dask_yields_results_as_they_complete(case, dask_cluster):
+    """On Dask too, the slow first design comes last."""
+    assert _completion_order(dask_cluster, make_model(case()))[-1] == 0
+
+
+def test_each_evaluation_is_reported_before_the_generation_ends(case, monkeypatch):
+    """on_evaluation (the progress bar) advances per evaluation, well before the generation's row."""
+    monkeypatch.setenv("TW_TEST_SLEEP", "0.1")
+    stamps, rows = [], []
+    with ProcessPool(2) as pool:
+        run_study(case(("ok", "heavy")), evaluations=8, population=8, executor=pool,
+                  on_evaluation=lambda row: stamps.append(time.monotonic()),
+                  progress=lambda row: rows.append(time.monotonic()))
+    assert len(stamps) == 8 and len(rows) == 1
+    # 8 designs of 0.1 s on 2 workers take about 0.4 s; the first result arrives after about 0.1 s.
+    assert rows[0] - stamps[0] >= 0.2
+
+
+# -------------------------------------------------------------------------- dying workers
+CRASH_BATCH = [{"x": x / 10, "mode": "crash" if x == 5 else "ok", "sleep": 0.2} for x in range(1, 9)]
+
+
+def test_pool_survives_a_worker_that_dies(case):
+    """os._exit in a worker: the guilty design is tried once more, then failed; its neighbours complete."""
+    model = make_model(case(("ok", "crash")))
+    with ProcessPool(2) as pool:
+        got = _outcomes(pool, model, CRASH_BATCH)
+        restarts = pool.n_restarts
+    expected = _outcomes(InProcess(), model, [d | {"mode": "ok"} for d in CRASH_BATCH])
+    for i, (status, results, message) in enumerate(got):
+        if i == 4:
+            assert status == "failed" and "worker process died while evaluating this design, twice" in message
+        else:
+            assert (status, results, message) == expected[i]
+    assert restarts == 2
+
+
+@pytest.mark.cluster
+def test_dask_survives_a_worker_that_dies(case, dask_cluster):
+    """On Dask the nanny restarts the worker; the guilty design is retried once, then failed."""
+    model = make_model(case(("ok", "crash")))
+    got = _outcomes(dask_cluster, model, CRASH_BATCH)
+    expected = _outcomes(InProcess(), model, [d | {"mode": "ok"} for d in CRASH_BATCH])
+    for i, (status, results, message) in enumerate(got):
+        if i == 4:
+            assert status == "failed" and "Dask worker died" in message
+        else:
+            assert (status, results, message) == expected[i]
+
+
+def test_run_with_raising_nan_and_crashing_python_model(case, tmp_path):
+    """Through the command line with --workers 2: a model that raises, returns NaN, or kills its worker;
+    the run completes, each failure is stored with its message, and the summary counts them."""
+    folder = case(("ok", "raise", "nan", "crash")).folder
+    out = tmp_path / "run"
+    # Seed 2 draws every mode in the first generation.
+    result = CliRunner().invoke(main, ["run", str(folder), "--out", str(out), "--workers", "2", "--seed", "2",
+                                       "--quiet"])
+    assert result.exit_code == 0, result.output
+    with sqlite3.connect(out / "archive.sqlite") as db:
+        rows = db.execute("SELECT design, status, message FROM evaluations WHERE source_id IS NULL").fetchall()
+    assert len(rows) == 48
+    failed = {}
+    for design, status, message in rows:
+        mode = json.loads(design)["mode"]
+        assert (status == "ok") == (mode == "ok"), (mode, status, message)
+        failed.setdefault(mode, message)
+    assert "ValueError: cannot size" in failed["raise"] and "(at model.py line 8)" in failed["raise"]
+    assert "'mass'" in failed["nan"] and "finite number" in failed["nan"]
+    assert "worker process died" in failed["crash"]
+    n_failed = sum(status != "ok" for _, status, _ in rows)
+    assert f"{n_failed} evaluation(s) failed" in result.output
+
+
+# ---------------------------------------------------------------------------------- choice
+def test_make_executor_picks_from_the_options():
+    """No options: in-process; --workers 1 stays in-process; --workers 3 is a pool; bad counts are refused."""
+    assert isinstance(make_executor(), InProcess) and make_executor().workers == 1
+    assert type(make_executor(1)) is InProcess
+    pool = make_executor(3)
+    assert isinstance(pool, ProcessPool) and pool.workers == 3
+    with pytest.raises(TradewiseError, match="workers: got 0"):
+        ProcessPool(0)
