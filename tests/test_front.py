@@ -3,6 +3,8 @@ invariants, tables read from CSV, and trade-off rates against closed forms."""
 
 from __future__ import annotations
 
+import re
+
 import numpy as np
 import pandas as pd
 import pytest
@@ -239,6 +241,34 @@ def test_rates_with_a_maximised_objective_read_naturally():
     assert rates["text"].tolist() == ["25 EUR more cost per 10 km more range"]
     back = tradeoff_rates(front, 1)
     assert back["text"].tolist() == ["4 km less range per 10 EUR less cost"]
+
+
+def test_rates_on_the_two_bar_truss_scale_read_without_exponents():
+    """On the two-bar truss front V x S = 400 (Deb 2001; volume 0.004-0.04 m3, stress 10,000-100,000 kPa)
+    each rate is the secant 400 / (S_a S_b) and is worded per a power of ten with plain numbers."""
+    stress = np.array([100, 80, 50, 40, 25, 20, 16, 12.5, 10]) * 1000
+    volume = 400 / stress
+    front = make_front(np.column_stack([volume, stress]), ["min", "min"], ["volume", "stress"], ["m3", "kPa"])
+    rates = tradeoff_rates(front)
+    # Along the front: V_b - V_a = 400 (S_a - S_b) / (S_a S_b), so volume given per kPa saved is 400 / (S_a S_b).
+    assert rates["rate"].to_numpy() == pytest.approx(400 / (stress[:-1] * stress[1:]), rel=1e-9)
+    # The median step saves 7,500 kPa, but per 1,000 kPa the amounts would be 0.00005 to 0.0032 m3;
+    # per 10,000 kPa (still inside the front's 90,000 kPa) they read 0.0005 to 0.032 m3.
+    assert rates["text"].tolist() == [
+        f"{amount} m3 more volume per 10,000 kPa less stress"
+        for amount in ["0.0005", "0.001", "0.002", "0.004", "0.008", "0.0125", "0.02", "0.032"]
+    ]
+    # From (0.016 m3, 25,000 kPa): to 20,000 kPa costs 0.004 m3 for 5,000 kPa (8e-7 m3 per kPa);
+    # to 0.01 m3 costs 15,000 kPa for 0.006 m3 (2.5e6 kPa per m3, i.e. 2,500 kPa per 0.001 m3).
+    at = tradeoff_rates(front, 4)
+    assert at["rate"].tolist() == pytest.approx([8e-7, 2.5e6])
+    assert at["text"].tolist() == [
+        "0.008 m3 more volume per 10,000 kPa less stress",
+        "2,500 kPa more stress per 0.001 m3 less volume",
+    ]
+    every = rates["text"].tolist()
+    every += [t for i in range(len(front)) for t in tradeoff_rates(front, i)["text"]]
+    assert not [t for t in every if re.search(r"\de[-+]\d", t)]
 
 
 def test_three_objective_rates_on_a_plane_are_exact():

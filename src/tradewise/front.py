@@ -472,9 +472,14 @@ def tradeoff_rates(front: Front, index: int | None = None, *, n_neighbours: int 
     (least squares); each row gives the rate along one pair of objectives with
     the others held, read off that local plane (``neighbour`` is -1).
 
-    ``per`` is a power of ten of the gained objective near the typical step,
-    and ``text`` says it in words, for example
-    ``"0.8 EUR more cost per 100 g less mass"``.
+    ``per`` is a power of ten of the gained objective, and ``text`` says the
+    rate in words, for example ``"0.8 EUR more cost per 100 g less mass"``.
+    ``per`` starts at the power of ten at or below the typical step and moves
+    a few decades when that brings the amount given up between about 0.1 and
+    1000 (at least into 0.001 to 10,000), never past the gained objective's
+    span on the front; numbers are written with three significant digits,
+    without an exponent where possible (``"0.00782 m3 more volume per
+    10,000 kPa less stress"``).
 
     Parameters
     ----------
@@ -534,11 +539,21 @@ def _rates_between_neighbours(front: Front, index: int | None) -> list[dict[str,
                 "give_amount": float(delta[give]),
             }
         )
-    common = _readable_step([r["gain_amount"] for r in rows]) if index is None else None
+    spans = dict(zip(front.objective_names, np.ptp(front.points(), axis=0).tolist(), strict=True))
     for row in rows:
         gain_amount = row["gain_amount"]
         row["rate"] = row["give_amount"] / gain_amount if gain_amount > 0 else math.nan
-        row["per"] = common if common is not None else _readable_step([gain_amount])
+    common = None
+    if index is None and rows:
+        # one step for the whole front, so that the rates along it compare at a glance
+        common = _readable_per(
+            [r["rate"] for r in rows], [r["gain_amount"] for r in rows], spans[rows[0]["gain"]]
+        )
+    for row in rows:
+        if common is not None:
+            row["per"] = common
+        else:
+            row["per"] = _readable_per([row["rate"]], [row["gain_amount"]], spans[row["gain"]])
         row["text"] = _rate_text(front, row["give"], row["gain"], row["rate"], row["per"])
     return rows
 
@@ -566,7 +581,8 @@ def _rates_on_local_plane(front: Front, index: int | None, n_neighbours: int | N
             for b in range(a + 1, m):
                 # along the plane with the others held: n_a dF_a + n_b dF_b = 0 in scaled units
                 rate = (span[a] * normal[b]) / (normal[a] * span[b]) if normal[a] != 0 else math.nan
-                per = _readable_step(np.abs(points[near, b] - points[i, b]).tolist())
+                steps = np.abs(points[near, b] - points[i, b]).tolist()
+                per = _readable_per([abs(rate)], steps, float(high[b] - low[b]))
                 rows.append(
                     {
                         "design": int(i),
@@ -598,6 +614,53 @@ def _readable_step(amounts: Sequence[float]) -> float:
     return float(10.0 ** math.floor(math.log10(float(np.median(positive)))))
 
 
+#: Amounts given up, and steps per which they are given, that read without effort (easy) and
+#: that can still be read (readable). Our own choice: "0.5 EUR" and "250 g" read at once,
+#: "0.00782 m3" with care, "7.82e-05 m3" hardly; a step may be larger ("per 10,000 kPa").
+_EASY = (0.1, 1000.0)
+_READABLE = (1e-3, 1e4)
+_EASY_STEP = (0.01, 1e5)
+_READABLE_STEP = (1e-3, 1e7)
+
+
+def _readable_per(rates: Sequence[float], steps: Sequence[float], span: float) -> float:
+    """The power of ten of the gained objective to state ``rates`` per.
+
+    Starts at the power of ten at or below the median step and tries the
+    decades from a thousandth of it up to the largest power of ten within the
+    gained objective's ``span`` on the front: the amount given up and the
+    step itself should land in the easy ranges, or failing that the readable
+    ones, while the step stays close to the designs' own steps.
+    """
+    base = _readable_step(steps)
+    positive = [abs(r) for r in rates if math.isfinite(r) and r != 0]
+    if not positive:
+        return base
+    rate = float(np.median(positive))
+    top = base
+    if span > 0 and math.isfinite(span):
+        top = max(base, 10.0 ** math.floor(math.log10(span)))
+    first = round(math.log10(base))
+    candidates = range(first - 3, round(math.log10(top)) + 1)
+
+    def outside(value: float, band: tuple[float, float]) -> float:
+        # decades by which value misses the band (0 inside it)
+        return max(0.0, math.log10(band[0] / value), math.log10(value / band[1]))
+
+    def cost(k: int) -> tuple[float, int, int]:
+        amount = rate * 10.0**k
+        step = 10.0**k
+        score = (
+            10.0 * (outside(amount, _READABLE) + outside(step, _READABLE_STEP))
+            + outside(amount, _EASY)
+            + outside(step, _EASY_STEP)
+            + 1.5 * abs(k - first)
+        )
+        return (round(score, 9), abs(k - first), k)
+
+    return float(10.0 ** min(candidates, key=cost))
+
+
 def _rate_text(front: Front, give: str, gain: str, rate: float, per: float) -> str:
     goals = {o.name: o.goal for o in front.objectives}
     if not math.isfinite(rate):
@@ -611,6 +674,14 @@ def _rate_text(front: Front, give: str, gain: str, rate: float, per: float) -> s
 
 
 def _number(value: float) -> str:
-    if value != 0 and (abs(value) >= 1e6 or abs(value) < 1e-3):
+    """Three significant digits, positional with thousands separators between 1e-4 and 1e9."""
+    value = float(value)
+    if value == 0 or not math.isfinite(value):
+        return f"{value:g}"
+    if not 1e-4 <= abs(value) < 1e9:
         return f"{value:.3g}"
-    return np.format_float_positional(value, precision=3, unique=True, fractional=False, trim="-")
+    decimals = 2 - math.floor(math.log10(abs(value)))
+    rounded = round(value, decimals)
+    if decimals <= 0:
+        return f"{round(rounded):,}"
+    return f"{rounded:,.{decimals}f}".rstrip("0").rstrip(".")
