@@ -41,7 +41,7 @@ def test_run_twice_into_same_store_uses_cache(tmp_path):
     assert CliRunner().invoke(main, args).exit_code == 0
     second = CliRunner().invoke(main, args)
     assert second.exit_code == 0
-    assert "served from the archive" in second.output
+    assert "were reused instead of being evaluated again" in second.output
 
 
 def test_check_evaluates_one_design():

@@ -41,6 +41,7 @@ RESERVED_NAMES = frozenset(
         "design_key",
         "cached",
         "rank",
+        "seed",
     }
 )
 
@@ -162,13 +163,16 @@ class Constraint:
 class SearchSettings:
     """How long and how wide the search runs; command-line options override these.
 
+    ``population`` of ``None`` means automatic: 60 designs a generation for two
+    objectives, 100 for three, 120 for more (tuned on the ZDT and DTLZ2 problems).
+
     ``evaluations`` counts model evaluations (designs served from the archive
     are free). ``stall_generations`` and ``stall_tolerance`` stop a run whose
     hypervolume gained less than that relative amount over that many
     generations; ``stall_generations = 0`` turns the rule off.
     """
 
-    population: int = 60
+    population: int | None = None
     evaluations: int = 6000
     generations: int | None = None
     seed: int = 1

@@ -101,7 +101,8 @@ def _summary(result) -> None:
     elif result.least_infeasible is not None:
         click.echo("The designs closest to feasibility are in least_infeasible.csv.")
     if result.n_cached:
-        click.echo(f"{result.n_cached} design(s) were served from the archive instead of being evaluated again.")
+        click.echo(f"{result.n_cached} proposed design(s) had been evaluated before (in this run or in the "
+                   "archive) and were reused instead of being evaluated again.")
     from tradewise.compare import convergence_advice
 
     if advice := convergence_advice(result.history):

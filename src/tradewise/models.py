@@ -49,8 +49,17 @@ class Outcome:
         return self.status == "ok"
 
 
+_WORKER: tuple[int, str] | None = None
+
+
 def _worker_name() -> str:
-    return f"{os.uname().nodename}:{os.getpid()}" if hasattr(os, "uname") else str(os.getpid())
+    """Host and process id of this worker (cached; recomputed after a fork)."""
+    global _WORKER
+    pid = os.getpid()
+    if _WORKER is None or _WORKER[0] != pid:
+        host = os.uname().nodename if hasattr(os, "uname") else "local"
+        _WORKER = (pid, f"{host}:{pid}")
+    return _WORKER[1]
 
 
 def check_results(raw: Any, required: list[str]) -> tuple[dict[str, Any], str]:

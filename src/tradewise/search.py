@@ -324,9 +324,39 @@ class _Run:
 
 
 # ---------------------------------------------------------------------------------------- algorithm
-def _make_algorithm(case: Case, space: Space, population: int, seed: int):
+def default_population(n_obj: int) -> int:
+    """Designs a generation when the case does not say: 60 for two objectives, 100 for three, 120 beyond."""
+    return {2: 60, 3: 100}.get(n_obj, 120)
+
+
+def _tune_operators(algorithm, share: float, n_obj: int) -> None:
+    """Set the distribution indices of SBX and polynomial mutation for this generation.
+
+    Two objectives: SBX 30 and mutation 20 throughout. Three or more: both
+    move from coarse to fine as the budget is spent (SBX 15 to 30, mutation
+    20 to 100, linear in the share of the budget used), so offspring land ever
+    closer to their parents: exploration first, precise convergence at the
+    end. Tuned on ZDT1-3 and DTLZ2 (tests/benchmarks/bench_search.py): with the
+    schedule DTLZ2's all-evaluations front passes 99 % of the exact
+    hypervolume within 50,000 evaluations, while on ZDT3 the late fine
+    mutation loses whole parts of the disconnected front, so two-objective
+    runs keep fixed indices.
+    """
+    mating = getattr(algorithm, "mating", None)
+    if mating is None:
+        return
+    if n_obj <= 2:
+        mating.mutation.eta, mating.crossover.eta = 20.0, 30.0
+        return
+    share = min(max(share, 0.0), 1.0)
+    mating.mutation.eta = 20.0 + 80.0 * share
+    mating.crossover.eta = 15.0 + 15.0 * share
+
+
+def _make_algorithm(case: Case, space: Space, population: int | None, seed: int):
     repair = _Rounding(space)
     n_obj = len(case.objectives)
+    population = population or default_population(n_obj)
     common = dict(
         sampling=FloatRandomSampling(),
         crossover=SBX(prob=0.9, eta=15),
@@ -439,7 +469,6 @@ def run_study(
         raise
     try:
         run_id = None
-
         if archive is not None:
             run_id = archive.start_run(
                 case_hash=case.hash,
@@ -636,13 +665,21 @@ def _loop(run: _Run, algorithm, algorithm_name: str, space: Space, executor: InP
                 status = "exhausted"
             if status:
                 break
+            shares = [run.n_evals / settings.evaluations]
+            if settings.generations is not None:
+                shares.append(generation / settings.generations)
+            if settings.time_limit is not None:
+                shares.append(elapsed / settings.time_limit)
+            _tune_operators(algorithm, max(shares), n_obj)
             pop = algorithm.ask()
             if pop is None or len(pop) == 0:
                 status = "exhausted"
                 break
             generation += 1
-            X = space.repair(pop.get("X"))
-            pop.set("X", X)
+            proposed = pop.get("X")
+            X = space.repair(proposed)
+            if not np.array_equal(X, proposed):
+                pop.set("X", X)
             designs = [space.decode(x) for x in X]
             keys = [design_key(d) for d in designs]
 
@@ -804,7 +841,8 @@ def _finish(run: _Run, status: str, algorithm_name: str, started: float) -> Stud
         "status": status,
         "stop_reason": STATUS_TEXT.get(status, status),
         "seed": case.search.seed,
-        "settings": case.search.as_dict(),
+        "settings": case.search.as_dict()
+        | {"population": case.search.population or default_population(len(case.objectives))},
         "versions": _versions(),
         "n_evals": run.n_evals,
         "n_gen": len(run.history),
@@ -817,6 +855,11 @@ def _finish(run: _Run, status: str, algorithm_name: str, started: float) -> Stud
             {"name": v.name, "type": v.kind, "low": v.low, "high": v.high, "options": list(v.options), "unit": v.unit}
             for v in case.variables
         ],
+        "descriptions": {
+            item.name: item.description
+            for item in (*case.variables, *case.objectives, *case.constraints)
+            if item.description
+        },
         "constraint_limits": [
             {"name": c.name, "min": c.min, "max": c.max, "unit": c.unit} for c in case.constraints
         ],
