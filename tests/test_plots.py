@@ -288,6 +288,36 @@ def test_history_lines_carry_the_history_and_mark_the_stop():
     assert "stopped after 1200 evaluations" in texts and "stopped improving" in texts
 
 
+def test_history_with_seeds_draws_one_line_per_seed_and_a_star_at_each_end():
+    """A history with a seed column (run --seeds) gives one line per seed holding exactly that seed's rows,
+    none running back across a seed boundary, and a stop star at each seed's last generation."""
+    parts = []
+    for seed, (rate, n) in {1: (300, 30), 2: (500, 25), 3: (200, 30)}.items():
+        part = history_table(n).assign(seed=seed)
+        part["hypervolume"] = 0.8 * (1 - np.exp(-part["evaluations"] / rate))
+        parts.append(part)
+    history = pd.concat(parts, ignore_index=True)
+    fig = plots.plot_history(
+        history, stop_reason="seed 1: budget used; seed 2: budget used; seed 3: budget used", budget=1200
+    )
+    top, bottom = fig.axes
+    for seed, part in history.groupby("seed"):
+        hv = next(a for a in top.lines if a.get_gid() == f"hypervolume-seed-{seed}")
+        size = next(a for a in bottom.lines if a.get_gid() == f"front-size-seed-{seed}")
+        np.testing.assert_allclose(hv.get_xydata(), part[["evaluations", "hypervolume"]].to_numpy())
+        np.testing.assert_allclose(size.get_xydata(), part[["evaluations", "front_size"]].to_numpy())
+    drawn = [a for a in top.lines if (a.get_gid() or "").startswith("hypervolume")]
+    assert len(drawn) == 3
+    assert all(np.all(np.diff(a.get_xdata()) > 0) for a in drawn), "a line runs back in evaluations"
+    stars = next(c for c in top.collections if c.get_gid() == "stop-marker").get_offsets()
+    ends = history.groupby("seed").tail(1)[["evaluations", "hypervolume"]].to_numpy()
+    np.testing.assert_allclose(np.asarray(stars), ends)
+    assert [t.get_text() for t in top.get_legend().get_texts()] == ["seed 1", "seed 2", "seed 3"]
+    texts = " ".join(t.get_text() for t in top.texts)
+    assert "3 seeds stopped after 1000 to 1200 evaluations" in texts
+    assert "budget used (every seed)" in texts
+
+
 # ------------------------------------------------------------------------------- attainment
 def _attained(point: np.ndarray, run: np.ndarray, signs: np.ndarray) -> bool:
     """A run attains a point when one of its points is at least as good in every objective."""
@@ -325,6 +355,48 @@ def test_attainment_staircases_match_brute_force_counting(goals):
             assert drawn == (count >= k), f"{gid} at {probe}: {count} runs attain it"
 
 
+def test_attainment_table_from_compare_draws_a_true_median_for_three_runs():
+    """Three runs: the table compare.attainment writes (attainment.csv) gives best, median and worst
+    staircases below which lie exactly the points at least 1, 2 and 3 runs attain (the EAF's definition,
+    Grunert da Fonseca et al. 2001); as moocore percentages the median level is 66.7, not 50."""
+    from tradewise.compare import attainment as compare_attainment
+
+    rng = np.random.default_rng(5)
+    objectives = [Objective("cost", "min", "EUR"), Objective("life", "max", "h")]
+    signs = np.array([1.0, -1.0])
+    runs = [
+        moocore.generate_ndset(9, 2, "sphere", seed=int(s)) * (1 + 0.2 * k) * signs
+        for k, s in enumerate(rng.integers(0, 1000, 3))
+    ]
+    fronts = [
+        Front.from_table(pd.DataFrame(r, columns=["cost", "life"]), objectives, reference=(3.0, -3.0))
+        for r in runs
+    ]
+    table = compare_attainment(fronts).table()
+    fig = plots.plot_attainment(table, objectives)
+    ax = fig.axes[0]
+    lines = {line.get_gid(): line.get_xydata() for line in ax.lines}
+    assert set(lines) == {"attainment-best", "attainment-median", "attainment-worst"}
+    lows = np.min([r.min(axis=0) for r in runs], axis=0)
+    highs = np.max([r.max(axis=0) for r in runs], axis=0)
+    probes = rng.uniform(lows - 0.1, highs + 0.1, size=(400, 2))
+    for gid, k in {"attainment-best": 1, "attainment-median": 2, "attainment-worst": 3}.items():
+        for probe in probes:
+            count = sum(_attained(probe, run, signs) for run in runs)
+            assert _attained(probe, lines[gid], signs) == (count >= k), f"{gid} at {probe}"
+    labels = [t.get_text() for t in ax.get_legend().get_texts()]
+    assert labels[1:] == [
+        "best: reached by at least 1 of 3 runs",
+        "median: reached by at least 2 of 3 runs",
+        "worst: reached by all 3 runs",
+    ]
+    # the same surfaces given as a mapping of corner arrays draw the same staircases
+    corners = {name: part[["cost", "life"]].to_numpy() for name, part in table.groupby("surface")}
+    again = plots.plot_attainment(corners, objectives, levels={"best": 1, "median": 2, "worst": 3}, n_runs=3)
+    for line in again.axes[0].lines:
+        np.testing.assert_allclose(line.get_xydata(), lines[line.get_gid()])
+
+
 def test_attainment_refuses_three_objectives_and_single_runs():
     """Three objectives or one run are refused with a DataError naming the problem."""
     two = [Objective("a"), Objective("b")]
@@ -332,6 +404,25 @@ def test_attainment_refuses_three_objectives_and_single_runs():
         plots.attainment([np.ones((3, 2))], two)
     with pytest.raises(DataError, match="two objectives"):
         plots.attainment([np.ones((3, 3))] * 2, two + [Objective("c")])
+
+
+def test_shortlist_rings_sit_on_the_chosen_designs_and_carry_their_pick_numbers():
+    """Each shortlisted design gets a ring at its own values, numbered in pick order; designs that
+    nearly coincide share one label ("3, 4") instead of hiding each other's number."""
+    front = zdt1_front()
+    rows = [20, 4, 9, 10]  # 9 and 10 are neighbours on a 31-point front: 1/30 of the range apart
+    fig = plots.plot_front(front, knee=None, shortlist=rows)
+    ax = fig.axes[0]
+    rings = next(c for c in ax.collections if c.get_gid() == "shortlist-rings")
+    np.testing.assert_allclose(np.asarray(rings.get_offsets()), front.points()[rows])
+    labels = {t.get_gid(): (t.get_text(), t.xy) for t in ax.texts if (t.get_gid() or "").startswith("shortlist")}
+    assert labels["shortlist-1"][0] == "1" and labels["shortlist-2"][0] == "2"
+    np.testing.assert_allclose(labels["shortlist-1"][1], front.points()[20])
+    assert labels["shortlist-3"][0] == "3, 4" and "shortlist-4" not in labels
+    legend = [t.get_text() for t in ax.get_legend().get_texts()]
+    assert legend[-1] == "shortlist (4), numbered in pick order"
+    with pytest.raises(DataError, match="shortlist: 31"):
+        plots.plot_front(front, shortlist=[31])
 
 
 # ------------------------------------------------------------------------------- greyscale and colour vision

@@ -23,12 +23,13 @@ import numpy as np
 import pandas as pd
 from matplotlib import patheffects
 from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.colors import to_rgb
 from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
 
 from tradewise.case import Objective
 from tradewise.errors import DataError
-from tradewise.front import Front
+from tradewise.front import Front, objective_matrix
 
 try:  # the choosing methods are optional: figures work without them
     from tradewise import choose as _choose
@@ -70,6 +71,9 @@ _PICK_STYLES = (
     ("X", "ink"),
     ("h", "accent"),
 )
+
+#: Marker area of the ring around a shortlisted design (points squared): wider than any pick marker.
+_SHORTLIST_RING = 190
 
 #: What ``plot_kind`` and the command line can draw from a run folder.
 FIGURE_KINDS = ("front", "parallel", "history")
@@ -282,6 +286,7 @@ def _scatter_panel(
     annotate: bool,
     rasterize: bool,
     wrap: bool,
+    shortlist: Sequence[int] = (),
 ) -> None:
     points = front.points()
     feasible, infeasible = cloud
@@ -376,12 +381,55 @@ def _scatter_panel(
                 },
                 arrowprops={"arrowstyle": "-", "color": PALETTE["ink"], "lw": 0.7, "shrinkB": 5},
             )
+    if shortlist:
+        rows = list(shortlist)
+        ax.scatter(
+            points[rows, i],
+            points[rows, j],
+            s=_SHORTLIST_RING,
+            marker="o",
+            facecolors="none",
+            edgecolors=PALETTE["ink"],
+            linewidths=1.6,
+            zorder=6,
+            gid="shortlist-rings",
+        )
+        for numbers, row in _label_groups(ax, points[rows][:, [i, j]], rows):
+            ax.annotate(
+                ", ".join(map(str, numbers)),
+                (points[row, i], points[row, j]),
+                xytext=(7, -7),
+                textcoords="offset points",
+                ha="left",
+                va="top",
+                fontsize=8,
+                fontweight="bold",
+                color=PALETTE["ink"],
+                zorder=7,
+                bbox={"boxstyle": "round,pad=0.15", "fc": "white", "ec": PALETTE["ink"], "lw": 0.6},
+                gid=f"shortlist-{numbers[0]}",
+            )
     ax.set_xlabel(axis_label(objectives[i], wrap=wrap))
     ax.set_ylabel(axis_label(objectives[j], wrap=wrap))
 
 
+def _label_groups(ax, xy: np.ndarray, rows: Sequence[int]) -> list[tuple[list[int], int]]:
+    """Shortlist numbers that share one label because their designs sit within 3 % of the view of each other."""
+    (x0, x1), (y0, y1) = ax.get_xlim(), ax.get_ylim()
+    scaled = (xy - [x0, y0]) / [x1 - x0 or 1.0, y1 - y0 or 1.0]
+    groups: list[tuple[list[int], int, np.ndarray]] = []
+    for number, (row, here) in enumerate(zip(rows, scaled, strict=True), start=1):
+        for numbers, _, anchor in groups:
+            if np.all(np.abs(here - anchor) < 0.03):
+                numbers.append(number)
+                break
+        else:
+            groups.append(([number], row, here))
+    return [(numbers, row) for numbers, row, _ in groups]
+
+
 def _legend_handles(
-    front: Front, cloud: tuple[np.ndarray, np.ndarray], marks: list[dict]
+    front: Front, cloud: tuple[np.ndarray, np.ndarray], marks: list[dict], shortlist: Sequence[int] = ()
 ) -> list[Line2D]:
     handles = [
         Line2D(
@@ -435,6 +483,20 @@ def _legend_handles(
                 label=_plain(mark["text"]),
             )
         )
+    if shortlist:
+        handles.append(
+            Line2D(
+                [],
+                [],
+                linestyle="none",
+                marker="o",
+                markersize=10,
+                markerfacecolor="none",
+                markeredgecolor=PALETTE["ink"],
+                markeredgewidth=1.6,
+                label=f"shortlist ({len(shortlist)}), numbered in pick order",
+            )
+        )
     return handles
 
 
@@ -445,6 +507,7 @@ def plot_front(
     evaluations: pd.DataFrame | None = None,
     knee: int | str | None = "auto",
     picks: Mapping[str, int] | Sequence[int] | None = None,
+    shortlist: Sequence[int] | None = None,
     title: str | None = None,
     rasterize_cloud: bool | None = None,
 ) -> Figure:
@@ -468,6 +531,9 @@ def plot_front(
         :mod:`tradewise.choose` when it is available; None marks no knee.
     picks : dict or sequence of int, optional
         Further designs to mark: label to row position, or bare row positions.
+    shortlist : sequence of int, optional
+        Row positions of the designs a designer shortlisted, in pick order:
+        each is ringed and numbered 1, 2, ... in every panel.
     title : str, optional
         A title over the figure (user text is shown literally).
     rasterize_cloud : bool, optional
@@ -493,6 +559,7 @@ def plot_front(
     with _Styled():
         cloud = _cloud(front, evaluations)
         marks = _marks(front, knee, picks)
+        listed = [_check_row(front, row, "shortlist") for row in (shortlist or ())]
         rasterize = (
             (len(cloud[0]) + len(cloud[1]) > 1500) if rasterize_cloud is None else rasterize_cloud
         )
@@ -510,22 +577,25 @@ def plot_front(
                 annotate=True,
                 rasterize=rasterize,
                 wrap=False,
+                shortlist=listed,
             )
-            ax.legend(handles=_legend_handles(front, cloud, marks), loc="best")
+            ax.legend(handles=_legend_handles(front, cloud, marks, listed), loc="best")
         else:
-            fig = _front_matrix(front, objectives, cloud, marks, rasterize)
+            fig = _front_matrix(front, objectives, cloud, marks, rasterize, listed)
         if title:
             fig.suptitle(_plain(_short(title)), fontsize=11, color=PALETTE["ink"])
     return fig
 
 
-def _front_matrix(front: Front, objectives, cloud, marks, rasterize: bool) -> Figure:
+def _front_matrix(
+    front: Front, objectives, cloud, marks, rasterize: bool, shortlist: Sequence[int] = ()
+) -> Figure:
     m = len(objectives)
     n = m - 1
     if m == 3:
         fig = _new_figure((12.5, 5.8))
         left, right = fig.subfigures(1, 2, width_ratios=[1.05, 1.0])
-        _front_3d(left.add_subplot(projection="3d"), front, objectives, marks)
+        _front_3d(left.add_subplot(projection="3d"), front, objectives, marks, shortlist)
         grid_fig = right
     else:
         fig = _new_figure((2.9 * n + 1.2, 2.7 * n + 0.6))
@@ -548,6 +618,7 @@ def _front_matrix(front: Front, objectives, cloud, marks, rasterize: bool) -> Fi
                 annotate=False,
                 rasterize=rasterize,
                 wrap=True,
+                shortlist=shortlist,
             )
             if r != n - 1:
                 ax.set_xlabel("")
@@ -565,7 +636,7 @@ def _front_matrix(front: Front, objectives, cloud, marks, rasterize: bool) -> Fi
         lows, highs = zip(*(a.get_ylim() for a in row), strict=True)
         for a in row:
             a.set_ylim(min(lows), max(highs))
-    handles = _legend_handles(front, cloud, marks)
+    handles = _legend_handles(front, cloud, marks, shortlist)
     if n >= 2:
         axes[0][n - 1].legend(handles=handles, loc="upper right", borderaxespad=0.0)
     else:  # pragma: no cover - a matrix always has two or more columns here
@@ -573,7 +644,7 @@ def _front_matrix(front: Front, objectives, cloud, marks, rasterize: bool) -> Fi
     return fig
 
 
-def _front_3d(ax, front: Front, objectives, marks: list[dict]) -> None:
+def _front_3d(ax, front: Front, objectives, marks: list[dict], shortlist: Sequence[int] = ()) -> None:
     points = front.points()
     ax.scatter(
         points[:, 0],
@@ -601,6 +672,12 @@ def _front_3d(ax, front: Front, objectives, marks: list[dict]) -> None:
             linewidths=1.0 if mark["filled"] else 2.0,
             zorder=10,
         )
+    for number, row in enumerate(shortlist, start=1):
+        p = points[row]
+        ax.scatter([p[0]], [p[1]], [p[2]], s=_SHORTLIST_RING, marker="o", facecolors="none",
+                   edgecolors=PALETTE["ink"], linewidths=1.6, depthshade=False, zorder=11)  # fmt: skip
+        ax.text(p[0], p[1], p[2], f"  {number}", fontsize=8, fontweight="bold", color=PALETTE["ink"],
+                zorder=12)  # fmt: skip
     for setter, objective in zip(
         (ax.set_xlabel, ax.set_ylabel, ax.set_zlabel), objectives, strict=False
     ):
@@ -838,22 +915,34 @@ def plot_history(
 ) -> Figure:
     """Draw the hypervolume and the front size against evaluations, with the stopping point marked.
 
+    A history with a ``seed`` column (``run --seeds K``) draws one line per
+    seed, each against that seed's own evaluations and in the same style in
+    both panels, with a star where each seed stopped.
+
     Parameters
     ----------
     history : pandas.DataFrame
         One row a generation with columns ``evaluations``, ``hypervolume`` and
-        ``front_size`` (as in a run folder's ``history.csv``).
+        ``front_size`` (as in a run folder's ``history.csv``), and optionally
+        ``seed`` and ``failed``.
     stop_reason : str, optional
         Why the run stopped, written beside the stopping point.
     budget : int, optional
-        The evaluation budget, drawn as a faint line when the run stopped
-        before it.
+        The evaluation budget (of each seed), drawn as a faint line when the
+        run stopped before it.
     title : str, optional
         A title over the figure.
 
     Returns
     -------
     matplotlib.figure.Figure
+
+    Examples
+    --------
+    >>> history = pd.DataFrame({"seed": [1, 1, 2, 2], "evaluations": [50, 100, 50, 100],
+    ...                         "hypervolume": [0.2, 0.4, 0.3, 0.35], "front_size": [4, 6, 5, 7]})
+    >>> [line.get_gid() for line in plot_history(history).axes[0].lines if line.get_gid()]
+    ['hypervolume-seed-1', 'hypervolume-seed-2']
     """
     needed = ("evaluations", "hypervolume", "front_size")
     for name in needed:
@@ -861,50 +950,56 @@ def plot_history(
             raise DataError(f"history: no column {name!r}; expected {', '.join(needed)}")
     if len(history) == 0:
         raise DataError("history: holds no generations, so there is nothing to draw")
-    evals = pd.to_numeric(history["evaluations"], errors="coerce").to_numpy(dtype=float)
-    hv = pd.to_numeric(history["hypervolume"], errors="coerce").to_numpy(dtype=float)
-    size = pd.to_numeric(history["front_size"], errors="coerce").to_numpy(dtype=float)
-    if not (np.isfinite(evals).all() and np.isfinite(hv).all() and np.isfinite(size).all()):
+    columns = {
+        name: pd.to_numeric(history[name], errors="coerce").to_numpy(dtype=float) for name in needed
+    }
+    if not all(np.isfinite(values).all() for values in columns.values()):
         raise DataError(
             "history: the columns evaluations, hypervolume and front_size must hold finite numbers"
         )
-    every = max(1, len(evals) // 25)
+    seeds = history["seed"] if "seed" in history.columns else None
+    if seeds is not None and seeds.isna().any():
+        raise DataError("history: the seed column has an empty cell; every generation needs its seed")
+    runs: list[tuple[Any, np.ndarray]] = []
+    if seeds is not None and seeds.nunique() > 1:
+        for seed in sorted(seeds.unique().tolist()):
+            runs.append((seed, np.flatnonzero((seeds == seed).to_numpy())))
+    else:
+        runs.append((None, np.arange(len(history))))
+    evals, hv, size = columns["evaluations"], columns["hypervolume"], columns["front_size"]
     with _Styled():
         fig = _new_figure((7.2, 5.4))
         top, bottom = fig.subplots(2, 1, sharex=True, height_ratios=[1.4, 1.0])
-        top.plot(
-            evals,
-            hv,
-            color=PALETTE["front"],
-            linewidth=1.8,
-            marker="o",
-            markersize=3.5,
-            markevery=every,
-            gid="hypervolume-line",
-        )
-        bottom.plot(
-            evals,
-            size,
-            color=PALETTE["accent"],
-            linewidth=1.8,
-            linestyle="--",
-            marker="s",
-            markersize=4,
-            markeredgecolor=PALETTE["ink"],
-            markeredgewidth=0.6,
-            markevery=every,
-            gid="front-size-line",
-        )
+        if len(runs) == 1:
+            rows = runs[0][1]
+            every = max(1, len(rows) // 25)
+            top.plot(evals[rows], hv[rows], color=PALETTE["front"], linewidth=1.8, marker="o",
+                     markersize=3.5, markevery=every, gid="hypervolume-line")  # fmt: skip
+            bottom.plot(evals[rows], size[rows], color=PALETTE["accent"], linewidth=1.8,
+                        linestyle="--", marker="s", markersize=4, markeredgecolor=PALETTE["ink"],
+                        markeredgewidth=0.6, markevery=every, gid="front-size-line")  # fmt: skip
+        else:
+            for k, (seed, rows) in enumerate(runs):
+                style = _seed_style(k, len(runs))
+                every = max(1, len(rows) // 12)
+                label = f"seed {seed}"
+                top.plot(evals[rows], hv[rows], markevery=every, gid=f"hypervolume-seed-{seed}",
+                         label=_plain(label), **style)  # fmt: skip
+                bottom.plot(evals[rows], size[rows], markevery=every,
+                            gid=f"front-size-seed-{seed}", **style)  # fmt: skip
+            if len(runs) <= _MAX_SHOWN_RUNS:
+                top.legend(loc="upper left", ncol=2 if len(runs) > 4 else 1, fontsize=8)
         top.set_ylabel("hypervolume\n(higher is better)")
         bottom.set_ylabel("designs on the front")
-        bottom.set_xlabel("evaluations")
-        last_x, last_hv, last_size = evals[-1], hv[-1], size[-1]
-        for ax, y in ((top, last_hv), (bottom, last_size)):
-            ax.axvline(last_x, color=PALETTE["ink"], linestyle=":", linewidth=1.0, zorder=1)
+        bottom.set_xlabel("evaluations" if len(runs) == 1 else "evaluations (each seed's own)")
+        ends = [int(rows[-1]) for _, rows in runs]
+        for ax, values in ((top, hv), (bottom, size)):
+            for end in ends:
+                ax.axvline(evals[end], color=PALETTE["ink"], linestyle=":", linewidth=1.0, zorder=1)
             ax.scatter(
-                [last_x],
-                [y],
-                s=130,
+                evals[ends],
+                values[ends],
+                s=130 if len(runs) == 1 else 90,
                 marker="*",
                 color=PALETTE["highlight"],
                 edgecolors=PALETTE["ink"],
@@ -912,9 +1007,17 @@ def plot_history(
                 zorder=5,
                 gid="stop-marker",
             )
-        text = f"stopped after {int(last_x)} evaluations"
-        if stop_reason:
-            text += f":\n{_short(stop_reason, 60)}"
+        last_x = float(np.max(evals[ends]))
+        stops = sorted({int(evals[end]) for end in ends})
+        if len(runs) == 1:
+            text = f"stopped after {stops[0]} evaluations"
+        elif len(stops) == 1:
+            text = f"each of {len(runs)} seeds stopped after {stops[0]} evaluations"
+        else:
+            text = f"{len(runs)} seeds stopped after {stops[0]} to {stops[-1]} evaluations"
+        reason = _common_reason(stop_reason) if len(runs) > 1 else stop_reason
+        if reason:
+            text += f":\n{_short(reason, 60)}"
         top.annotate(
             _plain(text),
             (last_x, 0.06),
@@ -930,7 +1033,7 @@ def plot_history(
             for ax in (top, bottom):
                 ax.axvline(budget, color="#8a8a90", linestyle="-.", linewidth=0.9)
             bottom.annotate(
-                "budget",
+                "budget" if len(runs) == 1 else "budget of each seed",
                 (budget, 0),
                 xycoords=("data", "axes fraction"),
                 xytext=(-3, 4),
@@ -954,6 +1057,35 @@ def plot_history(
         if title:
             fig.suptitle(_plain(_short(title)), fontsize=11, color=PALETTE["ink"])
     return fig
+
+
+#: Line styles and markers that tell seeds apart without colour.
+_SEED_DASHES = ("-", "--", ":", "-.")
+_SEED_MARKERS = ("o", "s", "^", "D", "v", "P")
+
+
+def _seed_style(k: int, n: int) -> dict[str, Any]:
+    """The k-th of n seeds: a blue from dark to light (so greyscale still orders them), a dash and a marker."""
+    dark = np.array(to_rgb(PALETTE["front"]))
+    light = np.array(to_rgb(PALETTE["accent"]))
+    share = k / (n - 1) if n > 1 else 0.0
+    return {
+        "color": tuple(dark + (light - dark) * share),
+        "linewidth": 1.5,
+        "linestyle": _SEED_DASHES[k % len(_SEED_DASHES)],
+        "marker": _SEED_MARKERS[k % len(_SEED_MARKERS)],
+        "markersize": 3.8,
+        "markeredgecolor": PALETTE["ink"],
+        "markeredgewidth": 0.4,
+    }
+
+
+def _common_reason(stop_reason: str | None) -> str | None:
+    """One reason when every seed stopped for the same one ("seed 1: X; seed 2: X" gives X)."""
+    if not stop_reason:
+        return stop_reason
+    parts = [re.sub(r"^seed \S+: ", "", p.strip()) for p in str(stop_reason).split(";") if p.strip()]
+    return parts[0] + " (every seed)" if len(set(parts)) == 1 and len(parts) > 1 else stop_reason
 
 
 # ---------------------------------------------------------------------------- attainment
@@ -1005,55 +1137,74 @@ def attainment(runs: Sequence[Any], objectives: Sequence[Objective]) -> np.ndarr
 
 
 def plot_attainment(
-    surfaces: np.ndarray,
+    surfaces: np.ndarray | pd.DataFrame | Mapping[str, Any],
     objectives: Sequence[Objective],
     *,
     runs: Sequence[Any] | None = None,
+    levels: Mapping[str, int] | None = None,
+    n_runs: int | None = None,
     title: str | None = None,
 ) -> Figure:
     """Draw the best, median and worst attainment surfaces of repeated runs (two objectives).
 
     Parameters
     ----------
-    surfaces : numpy.ndarray
-        Rows ``(f1, f2, percent)`` as from :func:`attainment` (``moocore.eaf``
-        output with maximised columns turned back). The smallest percent is
-        drawn as the best surface, 50 as the median and 100 as the worst.
+    surfaces : numpy.ndarray, pandas.DataFrame or mapping
+        Either rows ``(f1, f2, percent)`` as from :func:`attainment` (the
+        smallest percent is drawn as the best surface, 50 as the median and
+        100 as the worst); or a table with a ``surface`` column naming
+        ``best``, ``median`` and ``worst``, optional ``runs`` and ``n_runs``
+        columns and a column for each objective (a run folder's
+        ``attainment.csv``); or a mapping of those names to (k, 2) arrays of
+        corner points (as :func:`tradewise.compare.attainment_surfaces` gives).
+        Corner points are in the user's units and senses.
     objectives : sequence of Objective
         The two objectives.
     runs : sequence of array-like, optional
         The runs' own fronts, drawn faintly behind (at most twelve).
+    levels : mapping of str to int, optional
+        How many runs reach each surface, when ``surfaces`` does not say.
+    n_runs : int, optional
+        How many runs there were, when ``surfaces`` does not say.
     title : str, optional
         A title over the figure.
 
     Returns
     -------
     matplotlib.figure.Figure
+
+    Examples
+    --------
+    >>> corners = {"best": [[1, 3], [3, 1]], "median": [[2, 3], [3, 2]], "worst": [[2, 3], [3, 2]]}
+    >>> fig = plot_attainment(corners, [Objective("cost"), Objective("mass")],
+    ...                       levels={"best": 1, "median": 2, "worst": 2}, n_runs=2)
+    >>> [text.get_text() for text in fig.axes[0].get_legend().get_texts()]
+    ['reached by some runs but not all', 'best: reached by at least 1 of 2 runs', 'median and worst: reached by both runs']
     """
     objectives = list(objectives)
     if len(objectives) != 2:
         raise DataError(f"attainment: drawn for two objectives, got {len(objectives)}")
-    surfaces = np.asarray(surfaces, dtype=float)
-    if surfaces.ndim != 2 or surfaces.shape[1] != 3 or len(surfaces) == 0:
-        raise DataError(
-            f"attainment: expected rows (f1, f2, percent), got an array of shape {surfaces.shape}"
-        )
+    corners, levels, n_runs = _attainment_levels(surfaces, objectives, levels, n_runs)
     sign = np.array([1.0 if o.goal == "min" else -1.0 for o in objectives])
-    percents = sorted(set(surfaces[:, 2].tolist()))
-    chosen = {
-        "best": percents[0],
-        "median": 50.0 if 50.0 in percents else None,
-        "worst": percents[-1],
-    }
     styles = {
         "best": {"color": PALETTE["front"], "linewidth": 1.4, "linestyle": "-"},
         "median": {"color": PALETTE["ink"], "linewidth": 2.4, "linestyle": "-"},
         "worst": {"color": PALETTE["highlight"], "linewidth": 1.8, "linestyle": "--"},
     }
-    all_points = surfaces[:, :2] * sign
+    all_points = np.vstack(list(corners.values())) * sign
     lo, hi = all_points.min(axis=0), all_points.max(axis=0)
     span = np.where(hi > lo, hi - lo, 1.0)
     corner = hi + 0.12 * span  # where each staircase is closed off, in minimisation terms
+    # surfaces reached by the same number of runs are one line, named by both
+    drawn: dict[str, list[str]] = {}
+    for name in ("best", "median", "worst"):
+        if name not in corners:
+            continue
+        same = [d for d in drawn if levels.get(d) is not None and levels.get(d) == levels.get(name)]
+        if same:
+            drawn[same[0]].append(name)
+        else:
+            drawn[name] = [name]
     with _Styled():
         fig = _new_figure((7.2, 5.2))
         ax = fig.add_subplot()
@@ -1070,12 +1221,7 @@ def plot_attainment(
                     linewidths=0,
                     zorder=2,
                 )
-        stairs = {}
-        for name, percent in chosen.items():
-            if percent is None:
-                continue
-            level = surfaces[surfaces[:, 2] == percent, :2] * sign
-            stairs[name] = _staircase(level, corner)
+        stairs = {name: _staircase(points * sign, corner) for name, points in corners.items()}
         if "best" in stairs and "worst" in stairs:
             # the band between best and worst: where some but not all runs reached
             from matplotlib.patches import Polygon
@@ -1092,31 +1238,108 @@ def plot_attainment(
                     zorder=0,
                 )
             )
-        for name in ("worst", "median", "best"):
-            if name not in stairs:
-                continue
+        for name, names in reversed(drawn.items()):
             xy = stairs[name] * sign
-            n_runs = round(100.0 / chosen["best"]) if chosen["best"] else 0
-            label = {
-                "best": "best: reached by at least one run",
-                "median": "median: reached by half the runs",
-                "worst": f"worst: reached by every run ({n_runs})"
-                if n_runs
-                else "worst: reached by every run",
-            }[name]
+            label = _attainment_label(names, levels, n_runs)
             ax.plot(
                 xy[:, 0], xy[:, 1], gid=f"attainment-{name}", label=label, zorder=3, **styles[name]
             )
-        view_lo, view_hi = (lo - 0.04 * span) * 1.0, corner
+        view_lo, view_hi = lo - 0.04 * span, corner
         limits = np.sort(np.vstack([view_lo * sign, view_hi * sign]), axis=0)
         ax.set_xlim(limits[0, 0], limits[1, 0])
         ax.set_ylim(limits[0, 1], limits[1, 1])
         ax.set_xlabel(axis_label(objectives[0]))
         ax.set_ylabel(axis_label(objectives[1]))
-        ax.legend(loc="best")
+        # the lines were drawn worst first so that the best lies on top; the legend lists best first
+        handles = list(ax.patches) + list(reversed(ax.lines))
+        ax.legend(handles=handles, loc="best")
         if title:
             fig.suptitle(_plain(_short(title)), fontsize=11, color=PALETTE["ink"])
     return fig
+
+
+def _attainment_levels(
+    surfaces: Any,
+    objectives: Sequence[Objective],
+    levels: Mapping[str, int] | None,
+    n_runs: int | None,
+) -> tuple[dict[str, np.ndarray], dict[str, int], int | None]:
+    """The corner points of each surface that has any, how many runs reach it, and the number of runs."""
+    found: dict[str, np.ndarray] = {}
+    known = dict(levels or {})
+    names = [o.name for o in objectives]
+    if isinstance(surfaces, pd.DataFrame):
+        missing = [c for c in ["surface", *names] if c not in surfaces.columns]
+        if missing:
+            raise DataError(
+                f"attainment: the table has no column {missing[0]!r}; expected surface and "
+                f"{', '.join(names)} (as in attainment.csv)"
+            )
+        unknown = sorted(set(surfaces["surface"].astype(str)) - {"best", "median", "worst"})
+        if unknown:
+            raise DataError(
+                f"attainment: surface {unknown[0]!r} is not known; expected best, median or worst"
+            )
+        for name in ("best", "median", "worst"):
+            part = surfaces[surfaces["surface"].astype(str) == name]
+            if len(part):
+                found[name] = objective_matrix(part, objectives, where="attainment")
+                if "runs" in part.columns and name not in known:
+                    known[name] = int(part["runs"].iloc[0])
+        if n_runs is None and "n_runs" in surfaces.columns and len(surfaces):
+            n_runs = int(surfaces["n_runs"].iloc[0])
+    elif isinstance(surfaces, Mapping):
+        unknown = sorted(set(map(str, surfaces)) - {"best", "median", "worst"})
+        if unknown:
+            raise DataError(
+                f"attainment: surface {unknown[0]!r} is not known; expected best, median or worst"
+            )
+        for name in ("best", "median", "worst"):
+            if name in surfaces:
+                points = np.asarray(surfaces[name], dtype=float)
+                if points.size == 0:
+                    continue
+                if points.ndim != 2 or points.shape[1] != 2 or not np.isfinite(points).all():
+                    raise DataError(
+                        f"attainment: the {name} surface must be an (n, 2) array of finite numbers, "
+                        f"got shape {points.shape}"
+                    )
+                found[name] = points
+    else:
+        array = np.asarray(surfaces, dtype=float)
+        if array.ndim != 2 or array.shape[1] != 3 or len(array) == 0:
+            raise DataError(
+                f"attainment: expected rows (f1, f2, percent), got an array of shape {array.shape}"
+            )
+        percents = sorted(set(array[:, 2].tolist()))
+        chosen = {"best": percents[0], "median": 50.0, "worst": percents[-1]}
+        if n_runs is None and percents[0] > 0:
+            n_runs = round(100.0 / percents[0])
+        for name, percent in chosen.items():
+            part = array[array[:, 2] == percent, :2]
+            if len(part):
+                found[name] = part
+                if n_runs and name not in known:
+                    known[name] = round(percent * n_runs / 100.0)
+    if not found:
+        raise DataError("attainment: every surface is empty, so there is nothing to draw")
+    return found, known, n_runs
+
+
+def _attainment_label(names: Sequence[str], levels: Mapping[str, int], n_runs: int | None) -> str:
+    """Legend text of one drawn surface: its names and how many of the runs reach it."""
+    head = " and ".join(names)
+    count = levels.get(names[0])
+    if count is None or not n_runs:
+        generic = {
+            "best": "reached by at least one run",
+            "median": "reached by half the runs",
+            "worst": "reached by every run",
+        }
+        return f"{head}: {generic[names[0]]}"
+    if count >= n_runs:
+        return f"{head}: reached by {'both' if n_runs == 2 else f'all {n_runs}'} runs"
+    return f"{head}: reached by at least {count} of {n_runs} runs"
 
 
 def _staircase(points: np.ndarray, corner: np.ndarray) -> np.ndarray:
