@@ -208,6 +208,124 @@ def test_report_and_plot_commands_on_a_run_folder(run_folder, tmp_path):
     assert result.exit_code == 2 and "--row" in result.output
 
 
+# ------------------------------------------------------------------------------- shortlist and seeds
+def _facts(text: str) -> dict[str, str]:
+    return dict(
+        (label, value)
+        for value, label in re.findall(r'<div class="fact"><b>([^<]*)</b><span>([^<]*)</span>', text)
+    )
+
+
+def _section(text: str, name: str) -> str:
+    return text.split(f'<section id="{name}">')[1].split("</section>")[0]
+
+
+def test_shortlist_page_keeps_the_whole_front_and_lists_the_designs_in_pick_order(run_folder, tmp_path):
+    """`report RUN --shortlist FILE.csv` with a 2-design shortlist: the page still counts every design of the
+    front and gives its hypervolume (checked against moocore), lists the two designs in pick order with their
+    values and rates, rings them on the figure, tags them in the table and escapes the shortlist's texts."""
+    import moocore
+
+    front = read_front(run_folder)
+    assert len(front) >= 6
+    chosen = [5, 1]  # picked first: row 6, then row 2
+    table = front.table.iloc[chosen[::-1]].copy()  # the file lists them out of pick order
+    table.insert(0, "front_row", [r + 1 for r in chosen[::-1]])
+    table.insert(0, "pick_order", [2, 1])
+    settings = {"method": "topsis", "limits": ["mass <= <b>9</b>"], "rows": [6, 2], "n_front": len(front)}
+    shortlist = Front(table=table.reset_index(drop=True), objectives=front.objectives, units=front.units,
+                      variables=front.variables, reference=front.reference,
+                      meta={**front.meta, "shortlist": settings})  # fmt: skip
+    shortlist.to_csv(tmp_path / "short.csv")
+    result = CliRunner().invoke(
+        main, ["report", str(run_folder), "--shortlist", str(tmp_path / "short.csv"),
+               "--out", str(tmp_path / "page.html")],
+    )  # fmt: skip
+    assert result.exit_code == 0, result.output
+    text = (tmp_path / "page.html").read_text(encoding="utf-8")
+    facts = _facts(text)
+    assert facts["designs on the front"] == str(len(front))
+    assert facts["designs on the shortlist"] == "2"
+    expected_hv = moocore.hypervolume(front.points(), ref=np.asarray(front.reference))
+    assert float(facts["hypervolume of the front"]) == pytest.approx(expected_hv, rel=1e-4)
+    assert html.escape(HOSTILE_TITLE) in text and "shortlist of" not in text
+    part = _section(text, "shortlist")
+    assert re.findall(r"<h3>(\d+)\. row (\d+)</h3>", part) == [("1", "6"), ("2", "2")]
+    cards = part.split('<div class="cards">')[1]
+    for row, card in zip(chosen, cards.split('<div class="pick listed">')[1:], strict=True):
+        shown = re.search(r"resistance = <b>([^<]+)</b>", card).group(1)
+        assert float(shown) == pytest.approx(front.table["resistance"].iloc[row], rel=1e-4)
+    assert part.count("Trade-off rates on the whole front") == 2
+    assert "the topsis method; limits mass &lt;= &lt;b&gt;9&lt;/b&gt;" in part and "<b>9</b>" not in part
+    assert part.count('id="shortlist-shortlist-rings"') == 1
+    # the ring markers are <use> elements up to the next named group of the figure
+    rings = part.split('<g id="shortlist-shortlist-rings">')[1].split('<g id="')[0]
+    assert rings.count("<use") == 2
+    body = text.split('<table id="front-table">')[1].split("</table>")[0]
+    rows = re.findall(r"<tr[^>]*>(.*?)</tr>", body.split("<tbody>")[1])
+    assert len(rows) == len(front)
+    assert '<span class="tag">shortlist 1</span>' in rows[5] and '<span class="tag">shortlist 2</span>' in rows[1]
+
+
+def test_shortlist_rows_are_found_by_values_and_a_design_off_the_front_is_refused():
+    """A plain table without front_row or eval_id is matched by its objective values, a front_row that
+    points at another design falls back to the values, and a design that is not on the front is a DataError."""
+    front = small_front()
+    plain = front.table.iloc[[7, 3]][["cost", "mass"]].reset_index(drop=True)
+    part = _section(build_report(front, shortlist=plain), "shortlist")
+    assert re.findall(r"<h3>\d+\. (row \d+)</h3>", part) == ["row 8", "row 4"]
+    wrong = plain.assign(front_row=[1, 2])
+    part = _section(build_report(front, shortlist=wrong), "shortlist")
+    assert re.findall(r"<h3>\d+\. (row \d+)</h3>", part) == ["row 8", "row 4"]
+    stranger = pd.DataFrame({"cost": [150.0], "mass": [9.5]})
+    with pytest.raises(DataError, match=r"shortlist: design 1 \(cost 150, mass 9.5\) is not on this front"):
+        build_report(front, shortlist=stranger)
+    with pytest.raises(DataError, match="holds no designs"):
+        build_report(front, shortlist=plain.iloc[0:0])
+
+
+@pytest.fixture
+def seeds_folder(make_case, tmp_path) -> Path:
+    """A run of the invented hostile-title case with three seeds (`run --seeds 3`)."""
+    folder = make_case(CASE_TOML.format(title=HOSTILE_TITLE), CASE_MODEL, name="hostile-seeds")
+    out = tmp_path / "seeds-run"
+    result = CliRunner().invoke(
+        main, ["run", str(folder), "--seeds", "3", "--evaluations", "300", "--out", str(out), "--quiet"]
+    )
+    assert result.exit_code == 0, result.output
+    return out
+
+
+def test_seeds_folder_page_shows_the_spread_and_the_attainment_figure(seeds_folder, tmp_path):
+    """The review page of a --seeds folder states the median, lowest and highest hypervolume of seeds.csv,
+    lists every seed, draws one convergence line per seed and the three attainment surfaces; `plot --kind
+    attainment` draws them too, and refuses a single run's folder in one line."""
+    runner = CliRunner()
+    result = runner.invoke(main, ["report", str(seeds_folder), "--out", str(tmp_path / "page.html")])
+    assert result.exit_code == 0, result.output
+    text = (tmp_path / "page.html").read_text(encoding="utf-8")
+    seeds = pd.read_csv(seeds_folder / "seeds.csv")
+    hv = seeds["hypervolume"].to_numpy()
+    part = _section(text, "run").split('<h3 id="seeds">')[1]
+    said = re.search(r"hypervolume of ([\d.e-]+) \(median\), from ([\d.e-]+) to ([\d.e-]+)", part)
+    assert said is not None, part[:500]
+    np.testing.assert_allclose([float(v) for v in said.groups()], [np.median(hv), hv.min(), hv.max()], rtol=1e-4)
+    seed_table = part.split('<table class="seeds">')[1].split("</table>")[0]
+    assert len(re.findall(r"<tr>", seed_table)) == len(seeds) + 1
+    assert _facts(text)["independent runs (seeds), merged"] == "3"
+    assert all(f'id="history-hypervolume-seed-{seed}"' in text for seed in seeds["seed"])
+    for name in ("best", "median", "worst"):
+        assert f'id="attainment-attainment-{name}"' in text
+    assert "reached by at least 2 of 3 runs" in text
+    result = runner.invoke(main, ["plot", str(seeds_folder), "--kind", "attainment"])
+    assert result.exit_code == 0, result.output
+    with Image.open(seeds_folder / "attainment.png") as image:
+        assert image.size[0] > 600
+    single = seeds_folder / "seeds" / f"seed-{seeds['seed'].iloc[0]}"
+    result = runner.invoke(main, ["plot", str(single), "--kind", "attainment"])
+    assert result.exit_code == 2 and result.output.startswith("Error: ") and "--seeds K" in result.output
+
+
 # ------------------------------------------------------------------------------- headless Chromium
 class Chromium:
     """Headless Chromium driven over the DevTools protocol on a pipe (--remote-debugging-pipe)."""

@@ -351,11 +351,39 @@ def _read_run(run: str, *, evaluations: bool = True):
     return front, history, table
 
 
+def _read_seeds(run: str, front):
+    """seeds.csv and the attainment surfaces of a run folder written by ``run --seeds K`` (None where absent)."""
+    from pathlib import Path
+
+    import pandas as pd
+
+    from tradewise.compare import attainment, read_seed_fronts
+    from tradewise.errors import DataError
+    from tradewise.front import read_table
+
+    folder = Path(run)
+    seeds = surfaces = None
+    if (folder / "seeds.csv").is_file():
+        try:
+            seeds = pd.read_csv(folder / "seeds.csv")
+        except (OSError, ValueError) as exc:
+            raise DataError(f"{folder / 'seeds.csv'}: cannot be read as CSV ({exc})") from None
+    if (folder / "attainment.csv").is_file():
+        surfaces, _ = read_table(folder / "attainment.csv")
+    elif len(front.objectives) <= 3:
+        fronts = read_seed_fronts(folder)
+        if len(fronts) > 1:
+            surfaces = attainment(fronts, reference=front.reference).table()
+    return seeds, surfaces
+
+
 @main.command("plot")
 @click.argument("run", metavar="RUN")
-@click.option("--kind", type=click.Choice(["front", "parallel", "history"]), default="front", show_default=True,
+@click.option("--kind", type=click.Choice(["front", "parallel", "history", "attainment"]), default="front",
+              show_default=True,
               help="front: the best designs over all the others; parallel: one line a design; "
-                   "history: hypervolume and front size as the search went.")
+                   "history: hypervolume and front size as the search went (a line per seed); "
+                   "attainment: what the best, median and worst of several seeds reached (run --seeds).")
 @click.option("--out", type=click.Path(dir_okay=False), help="PNG, SVG or PDF file to write (default RUN/KIND.png).")
 @click.option("--row", type=click.IntRange(min=1), help="Mark this design (a row of front.csv, counting from 1).")
 @click.option("--variables", is_flag=True, help="parallel: add an axis for each variable.")
@@ -368,13 +396,20 @@ def plot_command(run, kind, out, row, variables) -> None:
     from pathlib import Path
 
     from tradewise.errors import DataError
-    from tradewise.plots import plot_kind, save_figure
+    from tradewise.plots import plot_attainment, plot_kind, save_figure
 
     front, history, evaluations = _read_run(run, evaluations=kind == "front")
     if row is not None and row > len(front):
         raise DataError(f"--row: {row} is past the last design of the front ({len(front)} rows)")
-    fig = plot_kind(kind, front, history=history, evaluations=evaluations,
-                    highlight=row - 1 if row is not None else None, variables=variables)
+    if kind == "attainment":
+        _, surfaces = _read_seeds(run, front)
+        if surfaces is None:
+            raise DataError(f"{run}: has no attainment.csv and no seeds/ folder; attainment surfaces come "
+                            "from several seeds, made with `tradewise run CASE --seeds K`")
+        fig = plot_attainment(surfaces, front.objectives, title=front.meta.get("title"))
+    else:
+        fig = plot_kind(kind, front, history=history, evaluations=evaluations,
+                        highlight=row - 1 if row is not None else None, variables=variables)
     path = save_figure(fig, Path(out) if out else Path(run) / f"{kind}.png")
     click.echo(f"Wrote {path}")
 
@@ -382,20 +417,30 @@ def plot_command(run, kind, out, row, variables) -> None:
 @main.command("report")
 @click.argument("run", metavar="RUN")
 @click.option("--out", type=click.Path(dir_okay=False), help="HTML file to write (default RUN/review.html).")
-def report_command(run, out) -> None:
+@click.option("--shortlist", "shortlist_path", type=click.Path(dir_okay=False), metavar="FILE.csv",
+              help="Designs chosen to carry forward (from `tradewise pick --out` or the notebook's export).")
+def report_command(run, out, shortlist_path) -> None:
     """Write one HTML page about the run folder RUN for a design review.
 
     The page holds the case, how the search ran, the knee and compromise
-    designs with their trade-off rates, figures and the whole front. It needs
-    no network to open and prints to a tidy PDF.
+    designs with their trade-off rates, figures and the whole front. With
+    --shortlist it also lists the chosen designs in pick order and rings them
+    on the front; for a run made with --seeds it shows the spread across
+    seeds. It needs no network to open and prints to a tidy PDF.
     """
     from pathlib import Path
 
+    from tradewise.front import read_front, read_table
     from tradewise.report import write_report
 
     front, history, evaluations = _read_run(run)
+    seeds, surfaces = _read_seeds(run, front)
+    shortlist = None
+    if shortlist_path:
+        described = Path(shortlist_path).with_suffix(".json").is_file()
+        shortlist = read_front(shortlist_path) if described else read_table(shortlist_path)[0]
     path = write_report(front, Path(out) if out else Path(run) / "review.html", history=history,
-                        evaluations=evaluations)
+                        evaluations=evaluations, shortlist=shortlist, seeds=seeds, attainment=surfaces)
     click.echo(f"Wrote {path} ({path.stat().st_size // 1024} KiB)")
 
 

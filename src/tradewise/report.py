@@ -14,6 +14,7 @@ import hashlib
 import math
 import re
 from collections.abc import Mapping, Sequence
+from dataclasses import replace
 from html import escape
 from pathlib import Path
 from typing import Any
@@ -23,7 +24,7 @@ import pandas as pd
 
 from tradewise import plots
 from tradewise.errors import DataError
-from tradewise.front import Front, tradeoff_rates
+from tradewise.front import Front, objective_matrix, tradeoff_rates
 
 try:  # the choosing methods are optional: the page says so when they are missing
     from tradewise import choose as _choose
@@ -93,6 +94,14 @@ _DOMAIN_WORDS: dict[str, tuple[str, ...]] = {
         "W/(m^2 K)",
     ),
 }
+
+#: Stand-ins for section and figure numbers, numbered in page order once the page is put together.
+#: Escaped user text cannot contain them, since escaping turns "<" into "&lt;".
+_SECTION = "<!--section-number-->"
+_FIGURE = "<!--figure-number-->"
+
+#: Columns a shortlist export adds in front of the designs' own columns.
+_SHORTLIST_COLUMNS = ("pick_order", "front_row")
 
 #: Columns of the archive that say how an evaluation ran, not what the design is.
 _BOOKKEEPING = frozenset(
@@ -175,6 +184,7 @@ figcaption { color: var(--muted); font-size: 13px; margin-top: 4px; }
 .pick { border: 1px solid var(--line); border-top: 3px solid var(--ink); padding: 8px 12px; font-size: 14px;
         break-inside: avoid; page-break-inside: avoid; }
 .pick.knee { border-top-color: var(--amber); }
+.pick.listed { border-top-color: var(--blue); }
 .pick h3 { margin: 0 0 4px; font-size: 15px; }
 .pick p { margin: 4px 0; }
 .pick p.label { margin-top: 8px; font-weight: 600; font-size: 13px; }
@@ -237,6 +247,9 @@ def build_report(
     *,
     history: pd.DataFrame | None = None,
     evaluations: pd.DataFrame | None = None,
+    shortlist: Front | pd.DataFrame | None = None,
+    seeds: pd.DataFrame | None = None,
+    attainment: pd.DataFrame | Mapping[str, Any] | None = None,
     generated: _dt.datetime | None = None,
 ) -> str:
     """The review page of a front as one self-contained HTML document.
@@ -244,12 +257,28 @@ def build_report(
     Parameters
     ----------
     front : Front
-        The front, with the run's description in ``front.meta`` (as read
-        back from a run folder by :func:`tradewise.front.read_front`).
+        The whole front, with the run's description in ``front.meta`` (as
+        read back from a run folder by :func:`tradewise.front.read_front`).
     history : pandas.DataFrame, optional
-        The run's generation history (``history.csv``), for the convergence figure.
+        The run's generation history (``history.csv``), for the convergence
+        figure; with a ``seed`` column, one line per seed.
     evaluations : pandas.DataFrame, optional
         Every evaluation of the run, drawn faintly behind the front.
+    shortlist : Front or pandas.DataFrame, optional
+        Designs of ``front`` a designer chose to carry forward, as written by
+        ``tradewise pick --out`` or the notebook picker's shortlist export
+        (columns ``pick_order`` and ``front_row`` where present,
+        ``meta["shortlist"]`` for how they were chosen). Each is found on the
+        front by ``front_row``, else ``eval_id``, else its objective values.
+        The page keeps the whole front and adds a section on the shortlist,
+        in pick order, with the designs ringed on a figure of the front.
+    seeds : pandas.DataFrame, optional
+        One row a seed of a run made with several seeds (``seeds.csv``: at
+        least ``seed`` and ``hypervolume``), for a section on the spread.
+    attainment : pandas.DataFrame or mapping, optional
+        The attainment surfaces of those seeds (``attainment.csv``, or
+        ``{"best": ..., "median": ..., "worst": ...}`` corner arrays), drawn
+        for two objectives.
     generated : datetime, optional
         When the page was made (default now, in UTC).
 
@@ -261,7 +290,8 @@ def build_report(
     Raises
     ------
     DataError
-        When the front holds no designs.
+        When the front holds no designs, or a shortlisted design is not on
+        the front, or the seeds table has no hypervolume column.
 
     Examples
     --------
@@ -269,6 +299,9 @@ def build_report(
     >>> table = pd.DataFrame({"cost": [1.0, 2, 4], "mass": [5.0, 3, 2]})
     >>> front = Front.from_table(table, [Objective("cost"), Objective("mass")], meta={"title": "A <b> test"})
     >>> "A &lt;b&gt; test" in build_report(front)
+    True
+    >>> page = build_report(front, shortlist=pd.DataFrame({"cost": [4.0], "mass": [2.0]}))
+    >>> "1 of the 3 designs on the front" in page
     True
     """
     if len(front) == 0:
@@ -279,7 +312,9 @@ def build_report(
     title = str(meta.get("title") or "Untitled trade-off study")
     generated = generated or _dt.datetime.now(_dt.UTC)
     marks = _marks(front)
-    figures = _figures(front, history, evaluations, marks)
+    listed = _shortlisted(front, shortlist)
+    spread = _seed_spread(front, seeds)
+    figures = _figures(front, history, evaluations, marks, listed, attainment)
     script_hash = base64.b64encode(hashlib.sha256(_SORT_SCRIPT.encode("utf-8")).digest()).decode(
         "ascii"
     )
@@ -290,15 +325,17 @@ def build_report(
     body = [
         _masthead(front, title),
         _caution_box(front),
-        _facts(front),
+        _facts(front, listed, spread),
         _case_section(front),
+        _shortlist_section(front, listed, marks, figures),
         _picks_section(front, marks, figures),
-        _run_section(front, history, figures),
-        _table_section(front, marks),
+        _run_section(front, history, figures, spread),
+        _table_section(front, marks, listed),
         _assumptions_section(front),
         _cautions_section(front),
         _footer(front, generated),
     ]
+    page = _numbered("\n".join(part for part in body if part))
     return "\n".join(
         [
             "<!DOCTYPE html>",
@@ -312,7 +349,7 @@ def build_report(
             f"<style>\n{_CSS}\n</style>",
             "</head>",
             "<body>",
-            *[part for part in body if part],
+            page,
             f"<script>{_SORT_SCRIPT}</script>",
             "</body>",
             "</html>",
@@ -327,12 +364,22 @@ def write_report(
     *,
     history: pd.DataFrame | None = None,
     evaluations: pd.DataFrame | None = None,
+    shortlist: Front | pd.DataFrame | None = None,
+    seeds: pd.DataFrame | None = None,
+    attainment: pd.DataFrame | Mapping[str, Any] | None = None,
 ) -> Path:
-    """Write the review page of ``front`` to ``path`` (see :func:`build_report`)."""
+    """Write the review page of ``front`` to ``path`` (see :func:`build_report` for the options)."""
     path = Path(path)
     if path.suffix.lower() not in (".html", ".htm"):
         raise DataError(f"{path}: the review page is an HTML file; give a name ending in .html")
-    text = build_report(front, history=history, evaluations=evaluations)
+    text = build_report(
+        front,
+        history=history,
+        evaluations=evaluations,
+        shortlist=shortlist,
+        seeds=seeds,
+        attainment=attainment,
+    )
     path.parent.mkdir(parents=True, exist_ok=True)
     path.write_text(text, encoding="utf-8")
     return path
@@ -399,6 +446,104 @@ def _marks(front: Front) -> dict[str, Any]:
     return out
 
 
+def _numbered(text: str) -> str:
+    """Number the sections and figures in the order they appear on the page."""
+    for stand_in in (_SECTION, _FIGURE):
+        parts = text.split(stand_in)
+        text = parts[0] + "".join(f"{k}{part}" for k, part in enumerate(parts[1:], start=1))
+    return text
+
+
+def _shortlisted(front: Front, shortlist: Front | pd.DataFrame | None) -> dict[str, Any] | None:
+    """The shortlisted designs as (number in pick order, row of the front), and how they were chosen."""
+    if shortlist is None:
+        return None
+    if isinstance(shortlist, Front):
+        theirs = [(o.name, o.goal) for o in shortlist.objectives]
+        ours = [(o.name, o.goal) for o in front.objectives]
+        if theirs != ours:
+            raise DataError(
+                f"shortlist: its objectives {theirs} differ from the front's {ours}; "
+                "give a shortlist made from this run's front"
+            )
+        table, settings = shortlist.table, dict(shortlist.meta.get("shortlist") or {})
+    elif isinstance(shortlist, pd.DataFrame):
+        table, settings = shortlist, {}
+    else:
+        raise DataError(
+            f"shortlist: got a {type(shortlist).__name__}; expected a Front or a table of designs"
+        )
+    if len(table) == 0:
+        raise DataError("shortlist: holds no designs; shortlist at least one design of the front")
+    if "pick_order" in table.columns:
+        order = pd.to_numeric(table["pick_order"], errors="coerce")
+        if order.isna().any():
+            position = int(np.flatnonzero(order.isna().to_numpy())[0])
+            raise DataError(
+                f"shortlist: row {position + 1} column 'pick_order': expected a whole number, "
+                f"got {table['pick_order'].iloc[position]!r}"
+            )
+        table = table.iloc[np.argsort(order.to_numpy(), kind="stable")]
+    values = objective_matrix(table, front.objectives, where="shortlist")
+    points = front.points()
+    scale = np.where(np.ptp(points, axis=0) > 0, np.ptp(points, axis=0), 1.0)
+    designs: list[tuple[int, int]] = []
+    for position in range(len(table)):
+        record = table.iloc[position]
+        row = _find_on_front(front, record, values[position], points, scale)
+        if row is None:
+            shown = ", ".join(
+                f"{o.name} {_fmt(float(v))}" for o, v in zip(front.objectives, values[position], strict=True)
+            )
+            raise DataError(
+                f"shortlist: design {position + 1} ({shown}) is not on this front; "
+                "give a shortlist made from this run's front"
+            )
+        if row not in [r for _, r in designs]:
+            designs.append((len(designs) + 1, row))
+    return {"designs": designs, "settings": settings}
+
+
+def _find_on_front(front: Front, record, values, points, scale) -> int | None:
+    """The front row of a shortlisted design: by front_row, then eval_id, then its objective values."""
+    same = np.all(np.abs(points - values) <= 1e-9 * scale, axis=1)
+    if "front_row" in record.index:
+        number = _number_or_none(record["front_row"])
+        valid = number is not None and number == int(number) and 1 <= number <= len(front)
+        if valid and same[int(number) - 1]:
+            return int(number) - 1
+    if "eval_id" in record.index and "eval_id" in front.table.columns:
+        found = np.flatnonzero(front.table["eval_id"].to_numpy() == record["eval_id"])
+        if len(found) and same[found[0]]:
+            return int(found[0])
+    found = np.flatnonzero(same)
+    return int(found[0]) if len(found) else None
+
+
+def _seed_spread(front: Front, seeds: pd.DataFrame | None) -> dict[str, Any] | None:
+    """The seeds table with the median, lowest and highest single-seed hypervolume."""
+    if seeds is None:
+        return None
+    if "hypervolume" not in seeds.columns or len(seeds) == 0:
+        raise DataError(
+            "seeds: expected one row a seed with a 'hypervolume' column (as in seeds.csv), "
+            f"got columns {', '.join(map(str, seeds.columns)) or 'none'} and {len(seeds)} rows"
+        )
+    hv = pd.to_numeric(seeds["hypervolume"], errors="coerce").to_numpy(dtype=float)
+    known = hv[np.isfinite(hv)]
+    merged = front.meta.get("hypervolume")
+    if merged is None and front.reference is not None:
+        merged = front.hypervolume()
+    return {
+        "table": seeds,
+        "n": len(seeds),
+        "median": float(np.median(known)) if len(known) else None,
+        "min": float(known.min()) if len(known) else None,
+        "max": float(known.max()) if len(known) else None,
+        "merged": merged,
+    }
+
+
 def _grouped(picks: Mapping[str, int]) -> list[tuple[int, list[str]]]:
     groups: dict[int, list[str]] = {}
     for method, row in picks.items():
@@ -406,7 +551,7 @@ def _grouped(picks: Mapping[str, int]) -> list[tuple[int, list[str]]]:
     return sorted(groups.items(), key=lambda item: (-len(item[1]), item[0]))
 
 
-def _figures(front: Front, history, evaluations, marks) -> dict[str, str]:
+def _figures(front: Front, history, evaluations, marks, listed, attainment) -> dict[str, str]:
     figures: dict[str, str] = {}
     picks = {
         ", ".join(methods): row for row, methods in _grouped(marks["picks"]) if row != marks["knee"]
@@ -424,6 +569,24 @@ def _figures(front: Front, history, evaluations, marks) -> dict[str, str]:
         fig = plots.plot_history(history, stop_reason=front.meta.get("stop_reason"), budget=budget)
         figures["history"] = plots.to_svg(
             fig, prefix="history", label="Hypervolume and front size against evaluations"
+        )
+    if listed:
+        fig = plots.plot_front(
+            front,
+            evaluations=evaluations,
+            knee=marks["knee"],
+            shortlist=[row for _, row in listed["designs"]],
+        )
+        figures["shortlist"] = plots.to_svg(
+            fig, prefix="shortlist", label="The whole front with the shortlisted designs numbered"
+        )
+    if attainment is not None and len(front.objectives) == 2:
+        objectives = [
+            replace(o, unit=_unit(front, o.name) or o.unit) for o in front.objectives
+        ]
+        fig = plots.plot_attainment(attainment, objectives)
+        figures["attainment"] = plots.to_svg(
+            fig, prefix="attainment", label="Attainment surfaces of the seeds"
         )
     return figures
 
@@ -481,9 +644,13 @@ def _safety_sentence(domains: Sequence[str]) -> str:
     )
 
 
-def _facts(front: Front) -> str:
+def _facts(front: Front, listed: dict[str, Any] | None, spread: dict[str, Any] | None) -> str:
     meta = front.meta
     items = [(_fmt(len(front)), "designs on the front")]
+    if listed:
+        items.append((_fmt(len(listed["designs"])), "designs on the shortlist"))
+    if spread:
+        items.append((_fmt(spread["n"]), "independent runs (seeds), merged"))
     if meta.get("n_evals") is not None:
         items.append((_fmt(meta.get("n_evals")), "evaluations of the model"))
     if meta.get("n_gen") is not None:
@@ -518,7 +685,7 @@ def _table(
 
 def _case_section(front: Front) -> str:
     meta = front.meta
-    parts = ['<section id="case"><h2><span class="num">1</span>The case</h2>']
+    parts = [f'<section id="case"><h2><span class="num">{_SECTION}</span>The case</h2>']
     description = str(meta.get("description") or "").strip()
     if description:
         parts.append(f'<p style="white-space: pre-line">{_e(description)}</p>')
@@ -634,8 +801,94 @@ def _rates(front: Front, row: int) -> list[str]:
     return lines
 
 
+def _shortlist_section(
+    front: Front, listed: dict[str, Any] | None, marks: dict[str, Any], figures: Mapping[str, str]
+) -> str:
+    if not listed:
+        return ""
+    designs, settings = listed["designs"], listed["settings"]
+    n = len(designs)
+    parts = [
+        f'<section id="shortlist"><h2><span class="num">{_SECTION}</span>The shortlist</h2>',
+        f"<p>{n} of the {len(front)} designs on the front {'were' if n != 1 else 'was'} shortlisted "
+        "to carry forward. They are numbered in the order they were picked; rows are numbered as in "
+        "front.csv, and the table of the whole front below tags them too.</p>",
+    ]
+    how = _shortlist_how(settings)
+    if how:
+        parts.append(f'<p class="muted">Settings when the shortlist was written: {_e(how)}.</p>')
+    made_from = settings.get("n_front")
+    if isinstance(made_from, int | float) and int(made_from) != len(front):
+        parts.append(
+            f'<p class="muted">The shortlist was made from a front of {_e(_fmt(int(made_from)))} designs; '
+            f"this front has {len(front)}. Its designs were found on this front by their values.</p>"
+        )
+    if "shortlist" in figures:
+        knee = " The knee is the amber diamond." if marks["knee"] is not None else ""
+        parts.append(
+            f'<figure id="figure-shortlist">{figures["shortlist"]}<figcaption>Figure {_FIGURE}. The whole front '
+            f"(dark blue dots) with the shortlisted designs ringed and numbered in pick order.{knee}"
+            "</figcaption></figure>"
+        )
+    others = _method_labels(marks)
+    heads = ["#", "design", "also"] + [_header(front, o.name) for o in front.objectives]
+    rows = []
+    for number, row in designs:
+        record = front.table.iloc[row]
+        rows.append(
+            [f"<b>{number}</b>", _row(row), _e(", ".join(others.get(row, [])))]
+            + [_e(_fmt(record[o.name])) for o in front.objectives]
+        )
+    numeric = (0,) + tuple(range(3, 3 + len(front.objectives)))
+    parts.append(_table(heads, rows, numeric=numeric).replace("<table>", '<table class="shortlist">', 1))
+    parts.append('<div class="cards">')
+    for number, row in designs:
+        parts.append(f'<div class="pick listed"><h3>{number}. {_row(row)}</h3>')
+        parts.append(f"<p>{_design_values(front, row)}</p>")
+        variables = _variable_values(front, row)
+        if variables:
+            parts.append(f'<p class="muted">{variables}</p>')
+        if others.get(row):
+            parts.append(f"<p>Also picked by: {_e(', '.join(others[row]))}.</p>")
+        rates = _rates(front, row)
+        if rates:
+            parts.append(
+                '<p class="label">Trade-off rates on the whole front</p><ul>'
+                + "".join(f"<li>{_e(t)}</li>" for t in rates)
+                + "</ul>"
+            )
+        parts.append("</div>")
+    parts.append("</div></section>")
+    return "".join(parts)
+
+
+def _shortlist_how(settings: Mapping[str, Any]) -> str:
+    """How a shortlist was chosen, from the settings its export records."""
+    bits = []
+    if settings.get("method"):
+        bits.append(f"the {settings['method']} method")
+    for key, word in (("weights", "weights"), ("target", "target")):
+        value = settings.get(key)
+        if isinstance(value, Mapping) and value:
+            bits.append(f"{word} " + ", ".join(f"{k} {_fmt(v)}" for k, v in value.items()))
+    limits = settings.get("limits") or []
+    if limits:
+        bits.append("limits " + ", ".join(map(str, limits)))
+    return "; ".join(bits)
+
+
+def _method_labels(marks: dict[str, Any]) -> dict[int, list[str]]:
+    """Row to the methods that pick it: the knee first, then the compromise methods."""
+    labels: dict[int, list[str]] = {}
+    if marks["knee"] is not None:
+        labels.setdefault(int(marks["knee"]), []).append("knee")
+    for row, methods in _grouped(marks["picks"]):
+        labels.setdefault(int(row), []).extend(methods)
+    return labels
+
+
 def _picks_section(front: Front, marks: dict[str, Any], figures: Mapping[str, str]) -> str:
-    parts = ['<section id="picks"><h2><span class="num">2</span>Designs worth discussing</h2>']
+    parts = [f'<section id="picks"><h2><span class="num">{_SECTION}</span>Designs worth discussing</h2>']
     if not marks["available"]:
         parts.append(
             '<p class="muted">The choosing methods are not installed with this copy of tradewise, so no '
@@ -679,7 +932,7 @@ def _picks_section(front: Front, marks: dict[str, Any], figures: Mapping[str, st
             else ""
         )
         parts.append(
-            f'<figure id="figure-front">{figures["front"]}<figcaption>Figure 1. The front (dark blue dots) over the '
+            f'<figure id="figure-front">{figures["front"]}<figcaption>Figure {_FIGURE}. The front (dark blue dots) over the '
             "other evaluations (faint grey dots; crosses are infeasible or failed designs). The knee is the amber "
             f"diamond, other picks are hollow markers. {shape}</figcaption></figure>"
         )
@@ -721,7 +974,7 @@ def _picks_section(front: Front, marks: dict[str, Any], figures: Mapping[str, st
         parts.append(f'<h3>How each method chooses</h3><dl class="run methods">{explained}</dl>')
     if "parallel" in figures:
         parts.append(
-            f'<figure id="figure-parallel">{figures["parallel"]}<figcaption>Figure 2. Every design on the front as '
+            f'<figure id="figure-parallel">{figures["parallel"]}<figcaption>Figure {_FIGURE}. Every design on the front as '
             "one line across the objectives (better is up on every objective axis) and the variables; the knee "
             "design is drawn in amber.</figcaption></figure>"
         )
@@ -729,10 +982,15 @@ def _picks_section(front: Front, marks: dict[str, Any], figures: Mapping[str, st
     return "".join(parts)
 
 
-def _run_section(front: Front, history, figures: Mapping[str, str]) -> str:
+def _run_section(
+    front: Front, history, figures: Mapping[str, str], spread: dict[str, Any] | None
+) -> str:
     meta = front.meta
     settings = meta.get("settings") or {}
-    parts = ['<section id="run"><h2><span class="num">3</span>How the search ran</h2>']
+    several = bool(spread) or (meta.get("n_seeds") or 0) > 1
+    each = " (each seed)" if several else ""
+    together = " (all seeds together)" if several else ""
+    parts = [f'<section id="run"><h2><span class="num">{_SECTION}</span>How the search ran</h2>']
     if meta.get("message"):
         parts.append(f"<p>{_e(meta['message'])}</p>")
     items = []
@@ -743,7 +1001,7 @@ def _run_section(front: Front, history, figures: Mapping[str, str]) -> str:
 
     add("method", meta.get("algorithm"))
     add(
-        "evaluation budget",
+        "evaluation budget" + each,
         _fmt(settings.get("evaluations")) if settings.get("evaluations") else None,
     )
     add(
@@ -764,9 +1022,15 @@ def _run_section(front: Front, history, figures: Mapping[str, str]) -> str:
             f"stop when the hypervolume gains less than {_fmt(settings.get('stall_tolerance'))} "
             f"(relative) over {_fmt(settings.get('stall_generations'))} generations",
         )
-    add("seed", _fmt(meta.get("seed")) if meta.get("seed") is not None else None)
-    add("evaluations used", _fmt(meta.get("n_evals")) if meta.get("n_evals") is not None else None)
-    add("generations", _fmt(meta.get("n_gen")) if meta.get("n_gen") is not None else None)
+    if several and meta.get("seeds"):
+        add("seeds", ", ".join(_fmt(v) for v in meta["seeds"]))
+    else:
+        add("seed", _fmt(meta.get("seed")) if meta.get("seed") is not None else None)
+    add(
+        "evaluations used" + together,
+        _fmt(meta.get("n_evals")) if meta.get("n_evals") is not None else None,
+    )
+    add("generations" + together, _fmt(meta.get("n_gen")) if meta.get("n_gen") is not None else None)
     add("why it stopped", meta.get("stop_reason"))
     if meta.get("n_failed") is not None:
         add(
@@ -801,21 +1065,88 @@ def _run_section(front: Front, history, figures: Mapping[str, str]) -> str:
     if items:
         parts.append(f'<dl class="run">{"".join(items)}</dl>')
     if "history" in figures:
+        lines = (
+            " One line per seed, each against that seed's own evaluations; a star marks where each seed stopped."
+            if history is not None and "seed" in history.columns and history["seed"].nunique() > 1
+            else " The star marks where the search stopped."
+        )
         parts.append(
-            f'<figure id="figure-history">{figures["history"]}<figcaption>Figure 3. Convergence: the hypervolume of '
-            "the front (top) and the number of designs on it (bottom) after each generation; the star marks where "
-            "the search stopped. A curve still rising at the star means more evaluations would likely still "
+            f'<figure id="figure-history">{figures["history"]}<figcaption>Figure {_FIGURE}. Convergence: the hypervolume of '
+            "the front (top) and the number of designs on it (bottom) after each generation."
+            f"{lines} A curve still rising at its end means more evaluations would likely still "
             "improve the front.</figcaption></figure>"
         )
     elif history is None:
         parts.append(
             '<p class="muted">No generation history was given, so convergence is not shown.</p>'
         )
+    if spread:
+        parts.append(_seeds_part(front, spread, figures))
     parts.append("</section>")
     return "".join(parts)
 
 
-def _table_section(front: Front, marks: dict[str, Any]) -> str:
+#: Columns of seeds.csv shown on the page, with their headings.
+_SEED_COLUMNS = {
+    "seed": "seed",
+    "status": "stopped because",
+    "evaluations": "evaluations",
+    "generations": "generations",
+    "failed": "failed",
+    "front_size": "designs on its front",
+    "hypervolume": "hypervolume",
+}
+
+
+def _seeds_part(front: Front, spread: dict[str, Any], figures: Mapping[str, str]) -> str:
+    n = spread["n"]
+    parts = ['<h3 id="seeds">Spread across seeds</h3>']
+    text = (
+        f"The front on this page merges {n} independent run{'s' if n != 1 else ''} of the same case, "
+        "each with its own seed; a design is on it when no design of any run beats it."
+    )
+    if spread["median"] is not None:
+        text += (
+            f" Measured on the same reference point, the single runs reach a hypervolume of "
+            f"{_fmt(spread['median'])} (median), from {_fmt(spread['min'])} to {_fmt(spread['max'])}"
+        )
+        if spread["median"] > 0:
+            share = (spread["max"] - spread["min"]) / spread["median"]
+            text += f", a spread of {share:.1%} of the median"
+        if spread["merged"] is not None:
+            text += f"; the merged front reaches {_fmt(spread['merged'])}"
+        text += (
+            ". A small spread says the search found much the same front from every start; a large one says "
+            "more evaluations or more seeds would likely still change it."
+        )
+    parts.append(f"<p>{_e(text)}</p>")
+    table = spread["table"]
+    shown = [c for c in _SEED_COLUMNS if c in table.columns]
+    heads = [_e(_SEED_COLUMNS[c]) for c in shown]
+    rows = [[_e(_fmt(_plain(v))) for v in record] for record in table[shown].itertuples(index=False)]
+    numeric = tuple(k for k, c in enumerate(shown) if c != "status")
+    parts.append(_table(heads, rows, numeric=numeric).replace("<table>", '<table class="seeds">', 1))
+    if "attainment" in figures:
+        parts.append(
+            f'<figure id="figure-attainment">{figures["attainment"]}<figcaption>Figure {_FIGURE}. Attainment '
+            f"surfaces of the {n} runs: the best surface bounds what at least one run reached, the median what at "
+            "least half of them reached, the worst what every run reached. The shaded band between best and "
+            "worst is where the runs disagree; the narrower it is, the less the front depends on the seed."
+            "</figcaption></figure>"
+        )
+    elif len(front.objectives) > 2:
+        parts.append(
+            '<p class="muted">With three or more objectives the attainment surfaces are not drawn; for three '
+            "objectives they are in attainment.csv beside the front.</p>"
+        )
+    return "".join(parts)
+
+
+def _plain(value: Any) -> Any:
+    return value.item() if isinstance(value, np.generic) else value
+
+
+def _table_section(front: Front, marks: dict[str, Any], listed: dict[str, Any] | None) -> str:
     objectives = front.objective_names
     variables = [v for v in front.variables if v in front.table.columns and v not in objectives]
     constraints = [
@@ -829,11 +1160,9 @@ def _table_section(front: Front, marks: dict[str, Any]) -> str:
         if c not in named and c not in trailing and c not in _BOOKKEEPING
     ]
     columns = objectives + variables + constraints + others + trailing
-    labels: dict[int, list[str]] = {}
-    if marks["knee"] is not None:
-        labels.setdefault(int(marks["knee"]), []).append("knee")
-    for row, methods in _grouped(marks["picks"]):
-        labels.setdefault(int(row), []).extend(methods)
+    labels = _method_labels(marks)
+    for number, row in (listed or {}).get("designs", []):
+        labels.setdefault(int(row), []).insert(0, f"shortlist {number}")
     heads = [
         '<th scope="col"><button type="button">row</button></th>',
         '<th scope="col"><button type="button">picked by</button></th>',
@@ -863,7 +1192,7 @@ def _table_section(front: Front, marks: dict[str, Any]) -> str:
         f"{o.name}: {'lower' if o.goal == 'min' else 'higher'} is better" for o in front.objectives
     )
     return (
-        '<section id="front" class="front-table"><h2><span class="num">4</span>The front</h2>'
+        f'<section id="front" class="front-table"><h2><span class="num">{_SECTION}</span>The front</h2>'
         f"<p>All {len(front)} designs that no other feasible design beats in every objective ({_e(goals)}). "
         'Rows are numbered as in front.csv.<span class="screen"> Click a column heading to sort.</span></p>'
         f'<div class="scroll"><table id="front-table"><thead><tr>{"".join(heads)}</tr></thead>'
@@ -914,7 +1243,7 @@ def _assumptions_section(front: Front) -> str:
             "its nearest neighbours, with the other objectives held; they are local estimates."
         )
     return (
-        '<section id="assumptions"><h2><span class="num">5</span>Assumptions</h2><ul class="plain">'
+        f'<section id="assumptions"><h2><span class="num">{_SECTION}</span>Assumptions</h2><ul class="plain">'
         + "".join(f"<li>{_e(t)}</li>" for t in items)
         + "</ul></section>"
     )
@@ -923,7 +1252,7 @@ def _assumptions_section(front: Front) -> str:
 def _cautions_section(front: Front) -> str:
     cautions = str(front.meta.get("cautions") or "").strip()
     domains = safety_domains(front)
-    parts = ['<section id="cautions"><h2><span class="num">6</span>Cautions</h2>']
+    parts = [f'<section id="cautions"><h2><span class="num">{_SECTION}</span>Cautions</h2>']
     if domains:
         parts.append(
             f'<div class="caution" role="note"><strong>Screening estimates only</strong><p>'
