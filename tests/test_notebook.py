@@ -249,16 +249,34 @@ def test_removing_from_the_shortlist_and_its_errors(zdt1, tmp_path):
         state.export_shortlist(tmp_path / "s.xlsx")
 
 
-def test_the_review_page_is_written_about_the_shortlist(run, tmp_path):
-    """write_review hands the shortlist to the review page, which lists the shortlisted designs' values."""
-    state = PickerState(run.front, history=run.history)
-    state.add(0)
-    state.add(state.pick)
+def test_the_review_page_shows_the_whole_front_with_the_shortlist(run, tmp_path):
+    """write_review gives the page of the whole front (its size, and its hypervolume as moocore computes it),
+    with the two shortlisted designs listed in the order they were added and tagged in the front's table."""
+    import re
+
+    import moocore
+
+    front = run.front
+    state = PickerState(front, history=run.history)
+    first, second = state.pick, 0
+    assert first != 0
+    state.add(first)
+    state.add(second)
     page = state.write_review(tmp_path / "review.html")
     text = page.read_text(encoding="utf-8")
-    assert text.startswith("<!DOCTYPE html>")
-    assert f"{run.front.table['mass'].iloc[0]:.5g}" in text
-    assert f"shortlist of 2 from {len(run.front)} designs" in text
+    facts = dict(
+        (label, value) for value, label in re.findall(r'<div class="fact"><b>([^<]*)</b><span>([^<]*)</span>', text)
+    )
+    assert facts["designs on the front"] == str(len(front)) and facts["designs on the shortlist"] == "2"
+    expected = moocore.hypervolume(front.points(), ref=np.asarray(front.reference_point()))
+    assert float(facts["hypervolume of the front"]) == pytest.approx(expected, rel=1e-4)
+    assert "shortlist of" not in text
+    listed = text.split('<section id="shortlist">')[1].split("</section>")[0]
+    assert re.findall(r"<h3>\d+\. row (\d+)</h3>", listed) == [str(first + 1), str(second + 1)]
+    shown = re.findall(r"mass = <b>([^<]+)</b>", listed)
+    assert [float(v) for v in shown] == pytest.approx(front.table["mass"].iloc[[first, second]].tolist(), rel=1e-4)
+    body = text.split('<table id="front-table">')[1].split("</tbody>")[0]
+    assert len(re.findall(r"<tr", body)) == len(front) + 1  # the heading row and one row a design
 
 
 @pytest.mark.parametrize(

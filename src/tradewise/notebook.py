@@ -553,8 +553,8 @@ class PickerState:
         """Write the shortlist as CSV with its JSON metadata beside it (see :meth:`shortlist_front`).
 
         ``tradewise pick`` and :func:`tradewise.front.read_front` read the
-        pair back; written as ``front.csv`` in a folder of its own it is also
-        what ``tradewise report FOLDER`` reads.
+        pair back, and ``tradewise report RUN --shortlist FILE.csv`` puts it
+        on the review page of the whole front.
         """
         path = Path(path)
         if path.suffix.lower() != ".csv":
@@ -564,19 +564,19 @@ class PickerState:
         return written
 
     def write_review(self, path: str | Path) -> Path:
-        """Write the review page about the shortlisted designs (:func:`tradewise.report.write_report`).
+        """Write the review page of the whole front with the shortlist on it (:func:`tradewise.report.write_report`).
 
-        The page treats the shortlist as its front: its table, figures and
-        picks cover the shortlisted designs, with the run's history. Its
-        title says so, since its counts and hypervolume are the shortlist's.
+        The page keeps the whole front (its size, hypervolume, figures and
+        table) and adds a section on the shortlisted designs in the order
+        they were added, ringed and numbered on a figure of the front, with
+        how they were chosen (limits, method, weights, target).
         """
         from tradewise.report import write_report
 
-        shortlist = self.shortlist_front()
-        title = str(self.front.meta.get("title") or self.front.meta.get("source") or "Front")
-        title += f" \u2014 shortlist of {len(shortlist)} from {len(self.front)} designs"
-        page = write_report(replace(shortlist, meta={**shortlist.meta, "title": title}), path, history=self.history)
-        self._update(message=f"Wrote {Path(page).name} about {len(self._shortlist)} shortlisted designs.")
+        page = write_report(self.front, path, history=self.history, evaluations=self.evaluations,
+                            shortlist=self.shortlist_front())
+        self._update(message=f"Wrote {Path(page).name}: the front of {len(self.front)} designs with "
+                             f"{len(self._shortlist)} shortlisted.")
         return Path(page)
 
     # ------------------------------------------------------------------------ checks
