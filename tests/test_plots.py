@@ -397,6 +397,22 @@ def test_attainment_table_from_compare_draws_a_true_median_for_three_runs():
         np.testing.assert_allclose(line.get_xydata(), lines[line.get_gid()])
 
 
+def test_attainment_median_of_five_runs_is_named_by_the_runs_that_reach_it():
+    """Five runs through moocore's 50 % level: the median staircase bounds the points at least 3 of 5 runs
+    attain (at least half, Grunert da Fonseca et al. 2001), and the legend says 3 of 5, not 2."""
+    objectives = [Objective("cost", "min", "EUR"), Objective("mass", "min", "kg")]
+    runs = [moocore.generate_ndset(7, 2, "sphere", seed=s) * (1 + 0.1 * k) for k, s in enumerate(range(5))]
+    fig = plots.plot_attainment(plots.attainment(runs, objectives), objectives)
+    ax = fig.axes[0]
+    median = next(line.get_xydata() for line in ax.lines if line.get_gid() == "attainment-median")
+    signs = np.ones(2)
+    probes = np.random.default_rng(2).uniform(-0.1, 1.6, size=(300, 2))
+    for probe in probes:
+        count = sum(_attained(probe, run, signs) for run in runs)
+        assert _attained(probe, median, signs) == (count >= 3), f"median at {probe}: {count} runs"
+    assert "median: reached by at least 3 of 5 runs" in [t.get_text() for t in ax.get_legend().get_texts()]
+
+
 def test_attainment_refuses_three_objectives_and_single_runs():
     """Three objectives or one run are refused with a DataError naming the problem."""
     two = [Objective("a"), Objective("b")]

@@ -1320,7 +1320,8 @@ def _attainment_levels(
             if len(part):
                 found[name] = part
                 if n_runs and name not in known:
-                    known[name] = round(percent * n_runs / 100.0)
+                    # moocore counts a point at p % when at least p % of the runs reach it
+                    known[name] = math.ceil(percent * n_runs / 100.0 - 1e-9)
     if not found:
         raise DataError("attainment: every surface is empty, so there is nothing to draw")
     return found, known, n_runs
