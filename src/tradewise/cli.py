@@ -307,6 +307,7 @@ def pick_command(front_path, method, weights, target, limits, top, minimise, max
     if out:
         shortlist = front.table.iloc[rows].copy()
         shortlist.insert(0, "pick_order", range(1, len(rows) + 1))
+        shortlist.insert(1, "front_row", [int(r) + 1 for r in rows])
         settings = {"method": method, "weights": weights, "target": target, "limits": [str(x) for x in limits]}
         picked = replace(front.with_table(shortlist), meta={**front.meta, "shortlist": settings})
         written = picked.to_csv(out)
