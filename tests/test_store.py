@@ -92,16 +92,86 @@ def test_evaluation_survives_kill_minus_nine_after_one_second(tmp_path):
     assert _count(path) == 1
 
 
-def test_generation_end_is_durable_at_once(tmp_path):
-    """add_generation commits immediately, with every evaluation before it."""
+def test_generation_end_is_committed_at_once(tmp_path):
+    """add_generation has the writer commit at once (well before the half-second), with every evaluation
+    handed over before it."""
     path = tmp_path / "a.sqlite"
     with open_store(path) as store:
         run_id = _start(store)
         _add(store, run_id, "k1")
+        time.sleep(0.15)  # the writer has inserted the row, and will not commit it for a while by itself
+        assert _count(path) == 0
         store.add_generation(run_id, {"generation": 1, "hypervolume": 0.5}, state=b"state")
+        deadline = time.monotonic() + 0.25
+        while _count(path) < 1 and time.monotonic() < deadline:
+            time.sleep(0.01)
         assert _count(path) == 1
         assert store.state(run_id) == (1, b"state")
         assert store.history(run_id)["hypervolume"].tolist() == [0.5]
+
+
+def test_killed_search_process_loses_nothing_it_handed_over(tmp_path):
+    """SIGKILL of the search process alone: the writer process still commits every row it was given."""
+    path = tmp_path / "a.sqlite"
+    script = textwrap.dedent(f"""
+        import time
+        from tradewise.store import open_store
+        store = open_store({str(path)!r})
+        run = store.start_run(case_hash="h", case_title="t", case_path="p", case_text="x",
+                              settings={{}}, seed=1, versions={{}})
+        for i in range(60):
+            store.add_evaluation(run, case_hash="h", design_key=f"k{{i}}", design={{"x": i}}, results={{}},
+                                 status="ok", message="", duration=0.0, generation=1 + i // 50)
+            if i == 49:
+                store.add_generation(run, {{"generation": 1}})
+        time.sleep(0.3)  # long enough for the last ten to be handed over, not necessarily committed
+        print("recorded", flush=True)
+        time.sleep(60)
+    """)
+    proc = subprocess.Popen([sys.executable, "-c", script], stdout=subprocess.PIPE, text=True)
+    try:
+        assert proc.stdout.readline().strip() == "recorded"
+    finally:
+        proc.kill()  # the search process only; its writer sees the end of its input
+        proc.wait()
+    deadline = time.monotonic() + 5
+    while _count(path) < 60 and time.monotonic() < deadline:
+        time.sleep(0.05)
+    assert _count(path) == 60
+
+
+@pytest.mark.parametrize("python", ["/no/such/python", "/bin/false"])
+def test_without_a_writer_process_the_store_writes_itself(tmp_path, monkeypatch, python):
+    """When no writer process can be started, or it dies at once, the same writer runs in this process."""
+    monkeypatch.setattr(sys, "executable", python)
+    path = tmp_path / "a.sqlite"
+    with open_store(path) as store:
+        run_id = _start(store)
+        for i in range(5):
+            _add(store, run_id, f"k{i}")
+        deadline = time.monotonic() + 1.0
+        while _count(path) < 5 and time.monotonic() < deadline:
+            time.sleep(0.05)
+        assert _count(path) == 5
+        assert store.count_evaluations(run_id) == 5
+
+
+def test_a_failing_writer_is_one_store_error(tmp_path):
+    """When the writer cannot write (here the table was dropped behind its back), the next call says so in
+    one line naming the file and SQLite's message."""
+    path = tmp_path / "a.sqlite"
+    store = open_store(path)
+    run_id = _start(store)
+    _add(store, run_id, "k1")
+    store.flush()
+    with sqlite3.connect(path) as other:
+        other.execute("DROP TABLE evaluations")
+    _add(store, run_id, "k2")
+    with pytest.raises(StoreError, match="no such table: evaluations") as info:
+        store.flush()
+    assert str(info.value).startswith(str(path)) and "\n" not in str(info.value)
+    with pytest.raises(StoreError):
+        store.close()
 
 
 # ---------------------------------------------------------------------------------- look-ups
@@ -112,9 +182,24 @@ def test_lookup_serves_the_real_evaluation_of_the_same_case_only(tmp_path):
         first = _add(store, run_id, "k1", value=2.0)
         _add(store, run_id, "k1", source_id=first, value=2.0)
         _add(store, run_id, "k2", case_hash="other")
+        store.flush()  # look-ups see committed rows
         found = store.lookup("h1", ["k1", "k2", "k3"])
         assert set(found) == {"k1"}
         assert found["k1"]["eval_id"] == first and found["k1"]["results"] == {"cost": 2.0}
+
+
+def test_lookup_leaving_out_the_own_run(tmp_path):
+    """exclude_run leaves out the asking run's rows; a second run's rows are found by the first within a second."""
+    with open_store(tmp_path / "a.sqlite") as store:
+        one, two = _start(store), _start(store)
+        _add(store, one, "k1")
+        store.flush()
+        assert store.lookup("h1", ["k1"], exclude_run=one) == {}
+        assert set(store.lookup("h1", ["k1"], exclude_run=two)) == {"k1"}
+        _add(store, two, "k2")
+        store.flush()
+        time.sleep(1.05)  # "no other runs" is trusted for a second only
+        assert set(store.lookup("h1", ["k1", "k2"], exclude_run=one)) == {"k2"}
 
 
 def test_discard_after_keeps_real_evaluations(tmp_path):

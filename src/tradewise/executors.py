@@ -246,6 +246,23 @@ class DaskCluster(InProcess):
                 )
             self._client = Client(self._cluster)
         self.workers = len(self._client.scheduler_info().get("workers", {})) or (workers or 1)
+        self._prepare_workers()
+
+    def _prepare_workers(self) -> None:
+        """Import tradewise's model code on every worker now, as part of starting up.
+
+        A worker's first design would otherwise pay for it, and a worker that
+        cannot import tradewise (another environment on a remote machine) is
+        reported here in one line instead of as failed designs.
+        """
+        try:
+            self._client.run(_import_models)
+        except Exception as exc:
+            self.close()
+            raise TradewiseError(
+                f"Dask workers cannot run tradewise models ({type(exc).__name__}: {exc}); install tradewise "
+                "in the workers' environment"
+            ) from None
 
     def run(self, model: Model, designs: Sequence[dict[str, Any]]) -> Iterator[tuple[int, Outcome]]:
         """Yield ``(position, outcome)`` for each design as it completes."""
@@ -289,6 +306,11 @@ class DaskCluster(InProcess):
             self._client.close()
         if self._cluster is not None:
             self._cluster.close()
+
+
+def _import_models() -> None:
+    """Run on each Dask worker: load the modules that evaluating a design needs."""
+    import tradewise.models  # noqa: F401
 
 
 def make_executor(workers: int | None = None, *, dask: bool = False, scheduler: str | None = None) -> InProcess:

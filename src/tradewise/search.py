@@ -688,7 +688,8 @@ def _loop(run: _Run, algorithm, algorithm_name: str, space: Space, executor: InP
             known = {k for k in keys if k in run.memo}
             unknown = [k for k in dict.fromkeys(keys) if k not in known]
             look_up = [k for k in unknown if k not in run.adopt]
-            archived = run.store.lookup(case.hash, look_up) if run.store is not None and look_up else {}
+            archived = (run.store.lookup(case.hash, look_up, exclude_run=run.run_id)
+                        if run.store is not None and look_up else {})
             fresh = [k for k in unknown if k not in archived]
             room = settings.evaluations - run.n_evals
             if len(fresh) > room:
@@ -728,7 +729,7 @@ def _loop(run: _Run, algorithm, algorithm_name: str, space: Space, executor: InP
                 if on_evaluation:
                     on_evaluation(row)
             if run.store is not None:
-                run.store.flush()
+                run.store.flush(wait=False)  # committed by the archive writer; the search goes on
 
             F = np.zeros((len(keys), n_obj))
             G = np.zeros((len(keys), n_con)) if n_con else None

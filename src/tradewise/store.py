@@ -2,26 +2,34 @@
 
 from __future__ import annotations
 
+import contextlib
+import functools
+import itertools
 import json
 import math
+import pickle
 import sqlite3
+import struct
+import subprocess
+import sys
 import threading
 import time
 from collections.abc import Iterable
 from pathlib import Path
 from typing import Any
 
-import pandas as pd
-
 from tradewise.errors import StoreError
 
 __all__ = ["Store", "open_store", "SCHEMA_VERSION"]
 
 SCHEMA_VERSION = 1
-# A completed evaluation is committed at most this many seconds after it was recorded, by a
-# background thread, so it survives a kill even while the next evaluation runs for hours.
-_COMMIT_EVERY = 0.5
-_TICK = 0.1
+# Evaluations wait at most this long in this process before they go to the writer, which commits
+# them at most _WRITER_COMMIT_EVERY later: together well within the promised second.
+_HAND_OVER_EVERY = 0.1
+_TICK = 0.05
+_ID_BLOCK = 4096  # evaluation ids reserved at a time (a reservation waits for the writer)
+# How long "this case has no evaluations from other runs" is trusted before asking the file again.
+_OTHERS_TTL = 1.0
 _SQLITE_HEADER = b"SQLite format 3\x00"
 
 _SCHEMA = """
@@ -72,6 +80,172 @@ CREATE TABLE IF NOT EXISTS states (
 """
 _TABLES = frozenset({"meta", "runs", "evaluations", "generations", "states"})
 
+# The archive writer: a small program of the standard library only, run in a process of its own
+# (``python -c``) so that encoding and writing rows never takes time from the search, and so that
+# everything handed to it is committed even when the search process is killed. The same code
+# serves in this process when no writer process can be started. Messages are pickled tuples,
+# each preceded by its length (4 bytes, big-endian); the search process is the only sender.
+_WRITER_PROGRAM = r'''
+import json, math, os, pickle, queue, sqlite3, struct, sys, threading, time
+
+COMMIT_EVERY = 0.4  # seconds an evaluation may wait uncommitted here
+COMMIT_GAP = 0.1    # a generation's end commits at once unless the last commit is younger than this
+INSERT = ("INSERT INTO evaluations (eval_id, run_id, case_hash, design_key, design, results, status,"
+          " message, duration, generation, worker, source_id, created)"
+          " VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)")
+
+
+def finite(value):
+    if isinstance(value, float) and not math.isfinite(value):
+        return None
+    if isinstance(value, dict):
+        return {k: finite(v) for k, v in value.items()}
+    if isinstance(value, (list, tuple)):
+        return [finite(v) for v in value]
+    return value
+
+
+def plain(value):
+    if hasattr(value, "item"):  # a numpy number
+        return value.item()
+    raise TypeError(f"cannot store {type(value).__name__}")
+
+
+_encoder = json.JSONEncoder(default=plain, allow_nan=False, separators=(",", ":"))
+try:  # the C encoder built once; json builds a new one for every call otherwise
+    from json.encoder import c_make_encoder, encode_basestring_ascii
+    _fast = c_make_encoder(None, plain, encode_basestring_ascii, None, ":", ",", False, False, False)
+except (ImportError, TypeError):
+    _fast = None
+
+
+def encode(value):
+    try:
+        return "".join(_fast(value, 0)) if _fast is not None else _encoder.encode(value)
+    except ValueError:  # NaN or infinity: JSON has none
+        return _encoder.encode(finite(value))
+
+
+class Writer:
+    """Applies messages to a connection and decides when to commit."""
+
+    def __init__(self, db):
+        self.db = db
+        self.dirty_since = None
+        self.asked = False
+        self.last_commit = time.monotonic()
+
+    def apply(self, message):
+        kind = message[0]
+        if kind == "rows":
+            self.db.executemany(INSERT, [
+                (i, run, case, key, encode(design), encode(results), status, text, duration, gen, worker, source,
+                 created)
+                for i, run, case, key, design, results, status, text, duration, gen, worker, source, created
+                in message[1]
+            ])
+            self.touch()
+        elif kind == "sql":
+            self.db.execute(message[1], message[2])
+            self.touch()
+        elif kind == "commit":
+            self.asked = True
+        elif kind == "many":
+            for part in message[1]:
+                self.apply(part)
+        elif kind == "reserve":
+            self.commit()
+            return ("reserved", reserve(self.db, message[1]))
+        elif kind in ("sync", "close"):
+            self.commit()
+            return message[1]
+        return None
+
+    def touch(self):
+        if self.dirty_since is None:
+            self.dirty_since = time.monotonic()
+
+    def due(self):
+        if self.dirty_since is None:
+            return False
+        now = time.monotonic()
+        return now - self.dirty_since >= COMMIT_EVERY or (self.asked and now - self.last_commit >= COMMIT_GAP)
+
+    def commit(self):
+        self.db.commit()
+        self.dirty_since = None
+        self.asked = False
+        self.last_commit = time.monotonic()
+
+
+def reserve(db, block):
+    """Move the evaluation id counter past a block of ids; return the id before the block."""
+    db.execute("BEGIN IMMEDIATE")
+    try:
+        row = db.execute("SELECT seq FROM sqlite_sequence WHERE name = 'evaluations'").fetchone()
+        (largest,) = db.execute("SELECT COALESCE(MAX(eval_id), 0) FROM evaluations").fetchone()
+        top = max(row[0] if row else 0, largest)
+        if row:
+            db.execute("UPDATE sqlite_sequence SET seq = ? WHERE name = 'evaluations'", (top + block,))
+        else:
+            db.execute("INSERT INTO sqlite_sequence (name, seq) VALUES ('evaluations', ?)", (top + block,))
+        db.commit()
+    except BaseException:
+        db.rollback()
+        raise
+    return top
+
+
+def read_messages(stream, inbox):
+    while True:
+        head = stream.read(4)
+        if len(head) < 4:
+            inbox.put(None)
+            return
+        (size,) = struct.unpack(">I", head)
+        inbox.put(pickle.loads(stream.read(size)))
+
+
+def main(path):
+    db = sqlite3.connect(path, timeout=60)
+    db.execute("PRAGMA synchronous=NORMAL")
+    writer = Writer(db)
+    inbox = queue.Queue()
+    threading.Thread(target=read_messages, args=(sys.stdin.buffer, inbox), daemon=True).start()
+    out = sys.stdout.buffer
+    while True:
+        try:
+            message = inbox.get(timeout=0.05)
+        except queue.Empty:
+            message = ()
+        if message is None:  # the search process closed the archive, or died: keep what it sent
+            writer.commit()
+            db.close()
+            return
+        if message:
+            reply = writer.apply(message)
+            if reply is not None:
+                data = pickle.dumps(reply)
+                out.write(struct.pack(">I", len(data)) + data)
+                out.flush()
+            if message[0] == "close":
+                db.close()
+                return
+        if writer.due():
+            writer.commit()
+
+
+if __name__ == "__main__":
+    # os._exit: the reader thread may still be blocked on the input pipe, which a normal interpreter
+    # shutdown does not allow.
+    try:
+        main(sys.argv[1])
+    except BaseException as exc:
+        print(f"{type(exc).__name__}: {exc}", file=sys.stderr, flush=True)
+        os._exit(1)
+    os._exit(0)
+'''
+
 
 def _plain(value: Any) -> Any:
     if hasattr(value, "item"):
@@ -82,13 +256,139 @@ def _plain(value: Any) -> Any:
     raise TypeError(f"cannot store {type(value).__name__}")
 
 
-# One encoder for every row: building a new one per call (what json.dumps does when given
-# `default`) costs about as much as encoding a small design.
-_encode = json.JSONEncoder(default=_plain, allow_nan=False, separators=(",", ":")).encode
+def _finite(value: Any) -> Any:
+    """A copy with non-finite floats as None (JSON has no NaN)."""
+    if isinstance(value, float) and not math.isfinite(value):
+        return None
+    if isinstance(value, dict):
+        return {k: _finite(v) for k, v in value.items()}
+    if isinstance(value, list | tuple):
+        return [_finite(v) for v in value]
+    return value
+
+
+_encoder = json.JSONEncoder(default=_plain, allow_nan=False, separators=(",", ":"))
 
 
 def _dumps(value: Any) -> str:
-    return _encode(value)
+    try:
+        return _encoder.encode(value)
+    except ValueError:  # a NaN or infinity
+        return _encoder.encode(_finite(value))
+
+
+class _ProcessLink:
+    """The writer in a process of its own, fed through its standard input."""
+
+    def __init__(self, path: Path) -> None:
+        self.path = path
+        self.proc = subprocess.Popen(
+            # -I -S: isolated from the user's environment and site packages (a json.py in the current
+            # folder must not stand in for the standard library's), and quicker to start.
+            [sys.executable, "-I", "-S", "-c", _WRITER_PROGRAM, str(path)],
+            stdin=subprocess.PIPE, stdout=subprocess.PIPE, stderr=subprocess.PIPE,
+        )
+        self.tokens = itertools.count(1)
+        self.reserved: list[int] = []
+
+    def send(self, message: tuple) -> None:
+        data = pickle.dumps(message, protocol=pickle.HIGHEST_PROTOCOL)
+        try:
+            self.proc.stdin.write(struct.pack(">I", len(data)) + data)
+            self.proc.stdin.flush()
+        except (BrokenPipeError, OSError, ValueError):
+            self.fail()
+
+    def sync(self, kind: str = "sync") -> None:
+        token = next(self.tokens)
+        self.send((kind, token))
+        while (reply := self._reply()) != token:
+            if not (isinstance(reply, tuple) and reply[0] == "reserved"):
+                self.fail()
+            self.reserved.append(reply[1])
+
+    def request_ids(self, block: int) -> None:
+        """Ask for a block of evaluation ids; the answer is collected by :meth:`take_ids`."""
+        self.send(("reserve", block))
+
+    def take_ids(self) -> int:
+        """The first answer to :meth:`request_ids` (waiting for it if it has not come yet)."""
+        while not self.reserved:
+            reply = self._reply()
+            if not (isinstance(reply, tuple) and reply[0] == "reserved"):
+                self.fail()
+            self.reserved.append(reply[1])
+        return self.reserved.pop(0)
+
+    def _reply(self):
+        head = self.proc.stdout.read(4)
+        if len(head) < 4:
+            self.fail()
+        (size,) = struct.unpack(">I", head)
+        return pickle.loads(self.proc.stdout.read(size))
+
+    def tick(self) -> None:
+        pass  # the writer keeps its own time
+
+    def close(self) -> None:
+        # Said in words rather than by closing the pipe: worker processes forked after the writer
+        # started hold copies of its end, so the writer would not see the end of its input.
+        self.sync("close")
+        with contextlib.suppress(OSError):
+            self.proc.stdin.close()
+        if self.proc.wait() != 0:
+            self.fail()
+        self.proc.stdout.close()
+        self.proc.stderr.close()
+
+    def fail(self):
+        with contextlib.suppress(OSError):
+            self.proc.stdin.close()
+        if self.proc.poll() is None:
+            self.proc.kill()
+        self.proc.wait()
+        text = self.proc.stderr.read().decode("utf-8", "replace").strip().splitlines()
+        raise StoreError(f"{self.path}: writing to the archive failed ({text[-1] if text else 'the writer stopped'})")
+
+
+class _LocalLink:
+    """The same writer code run in this process, when no writer process can be started."""
+
+    def __init__(self, path: Path) -> None:
+        namespace: dict[str, Any] = {"__name__": "tradewise_archive_writer"}
+        exec(compile(_WRITER_PROGRAM, "<archive writer>", "exec"), namespace)
+        self.db = sqlite3.connect(path, timeout=60, check_same_thread=False)
+        self.db.execute("PRAGMA synchronous=NORMAL")
+        self.writer = namespace["Writer"](self.db)
+        self.lock = threading.Lock()
+        self.reserved: list[int] = []
+
+    def send(self, message: tuple) -> None:
+        with self.lock:
+            self.writer.apply(message)
+            if self.writer.due():
+                self.writer.commit()
+
+    def sync(self) -> None:
+        with self.lock:
+            self.writer.commit()
+
+    def request_ids(self, block: int) -> None:
+        with self.lock:
+            self.reserved.append(self.writer.apply(("reserve", block))[1])
+
+    def take_ids(self) -> int:
+        return self.reserved.pop(0)
+
+    def tick(self) -> None:
+        with self.lock:
+            if self.writer.due():
+                self.writer.commit()
+
+    def close(self) -> None:
+        with self.lock:
+            self.writer.commit()
+            self.db.close()
 
 
 class Store:
@@ -98,35 +398,54 @@ class Store:
     evaluation remembers its case hash so that a design already evaluated
     for the same case is served from here in any later run.
 
-    Writes are grouped into transactions: a background thread commits
-    whatever is pending at most half a second after it was written, and
-    :meth:`flush` (called at the end of every generation) commits at once.
-    So a killed run loses only the designs that were still being evaluated.
-    The file is in WAL mode with ``synchronous=NORMAL``: commits survive a
-    killed process; a power cut may lose the last commits, never corrupt
-    the file.
+    Evaluations and generation rows are written by a small writer process,
+    so the search never waits for the disk, and rows handed to the writer
+    are committed even if the search process is killed. Each evaluation is
+    committed at most about half a second after it was recorded, also while
+    the search waits for a slow model; the end of a generation commits at
+    once (or, when generations end faster than ten a second, within a tenth
+    of a second). So a run killed at any moment loses only the designs still
+    being evaluated and those finished in its last half second. The file is
+    in WAL mode with ``synchronous=NORMAL``: commits survive a killed
+    process; a power cut may lose the last commits, never corrupt the file.
+    Evaluation ids are reserved in blocks, so runs writing to one file at
+    the same time never collide (the ids of one run may jump between blocks).
     """
 
     def __init__(self, path: Path, connection: sqlite3.Connection) -> None:
         self.path = path
-        self._db = connection
+        self._db = connection  # reads, and the rare writes made after a sync with the writer
         self._lock = threading.RLock()
-        self._dirty_since: float | None = None
+        self._rows: list[tuple] = []  # evaluations recorded, not yet handed to the writer
+        self._rows_since = 0.0
+        self._commit_wanted = False
+        self._link: _ProcessLink | _LocalLink | None = None
+        self._proven = True  # the writer has answered (set False while a new writer process is untried)
+        self._next_id, self._last_id = 1, 0
+        self._ids_asked = False  # a block of ids was asked of the writer and not yet taken
+        self._others: dict[tuple[str, int], float] = {}  # (case, run) -> when "no other runs" was seen
         self._closing = threading.Event()
-        self._flusher: threading.Thread | None = None
+        self._ticker: threading.Thread | None = None
+        self._failure: StoreError | None = None
 
     # ------------------------------------------------------------- plumbing
     def close(self) -> None:
-        """Commit what is pending and close the file."""
+        """Hand everything over, let the writer commit and stop, and close the file."""
         self._closing.set()
-        if self._flusher is not None:
-            self._flusher.join()
-            self._flusher = None
-        with self._lock:
-            try:
-                self._db.commit()
-            finally:
-                self._db.close()
+        if self._ticker is not None:
+            self._ticker.join()
+            self._ticker = None
+        try:
+            with self._lock:
+                if self._link is not None and self._failure is None:
+                    link = self._writer()
+                    self._hand_over()
+                    link.close()
+        finally:
+            self._link = None
+            self._db.close()
+        if self._failure is not None:
+            raise self._failure
 
     def __enter__(self) -> Store:
         return self
@@ -134,29 +453,153 @@ class Store:
     def __exit__(self, *exc: object) -> None:
         self.close()
 
-    def flush(self) -> None:
-        """Make everything written so far durable."""
+    def flush(self, *, wait: bool = True) -> None:
+        """Make everything recorded so far durable.
+
+        With ``wait=False`` (the end of a generation) the writer commits at
+        once, or within a tenth of a second of its last commit, and the
+        caller goes on.
+        """
         with self._lock:
-            self._db.commit()
-            self._dirty_since = None
+            if self._link is None:
+                return
+            if wait:
+                self._sync()
+            else:
+                # Sent with the next message (the generation's row follows at once) or by the ticker.
+                self._commit_wanted = True
 
-    def _written(self) -> None:
-        """Note an uncommitted write (call with the lock held) and make sure it gets committed."""
-        if self._dirty_since is None:
-            self._dirty_since = time.monotonic()
-        if self._flusher is None and not self._closing.is_set():
-            self._flusher = threading.Thread(target=self._flush_loop, name="tradewise-store", daemon=True)
-            self._flusher.start()
+    def _call(self, action) -> None:
+        if self._failure is not None:
+            raise self._failure
+        try:
+            action()
+        except StoreError as exc:
+            self._failure = exc
+            raise
 
-    def _flush_loop(self) -> None:
+    def _start_writer(self) -> None:
+        """Start the writer process (without waiting for it); call with the lock held."""
+        if self._link is None:
+            try:
+                self._link = _ProcessLink(self.path)
+                self._proven = False
+            except OSError:
+                self._link = _LocalLink(self.path)
+            self._ticker = threading.Thread(target=self._tick_loop, name="tradewise-store", daemon=True)
+            self._ticker.start()
+
+    def _writer(self) -> _ProcessLink | _LocalLink:
+        """The link to a writer that has answered once; call with the lock held.
+
+        A writer process that fails before anything was handed to it (no
+        usable Python at ``sys.executable``, say) is replaced by the same
+        writer code run in this process.
+        """
+        self._start_writer()
+        if not self._proven:
+            self._proven = True
+            try:
+                self._link.sync()
+            except StoreError:
+                self._link = _LocalLink(self.path)
+        return self._link
+
+    def _sync(self) -> None:
+        """Hand everything over and wait until the writer has committed it; call with the lock held."""
+        link = self._writer()
+        self._hand_over()
+        self._call(link.sync)
+
+    def _hand_over(self) -> None:
+        """Send the recorded evaluations to the writer; call with the lock held."""
+        if self._rows:
+            rows, self._rows = self._rows, []
+            link = self._writer()
+            self._call(lambda: link.send(("rows", rows)))
+
+    def _tick_loop(self) -> None:
+        """Hand over evaluations that have waited long enough while the search waits for a slow model."""
         while not self._closing.wait(_TICK):
             with self._lock:
-                if self._dirty_since is not None and time.monotonic() - self._dirty_since >= _COMMIT_EVERY:
-                    try:
-                        self._db.commit()
-                    except sqlite3.Error:
-                        return  # the connection is gone or the disk failed; the owner sees it next
-                    self._dirty_since = None
+                if self._failure is not None or self._link is None:
+                    return
+                try:
+                    if self._rows and time.monotonic() - self._rows_since >= _HAND_OVER_EVERY:
+                        self._hand_over()
+                    if self._commit_wanted:
+                        self._hand_over()
+                        self._call(functools.partial(self._writer().send, ("commit",)))
+                        self._commit_wanted = False
+                    self._link.tick()
+                except StoreError:
+                    return  # kept in self._failure; the owner sees it on its next call
+
+    def _write_now(self, sql: str, params: tuple = ()) -> sqlite3.Cursor:
+        """A write through this process's own connection, committed at once; call with the lock held.
+
+        The writer is synced first, so it holds no open transaction.
+        """
+        if self._link is not None:
+            self._sync()
+        cursor = self._db.execute(sql, params)
+        self._db.commit()
+        return cursor
+
+    def _take_id(self) -> int:
+        """The next evaluation id of this store's reserved block; call with the lock held.
+
+        The first block is reserved here; each later one is asked of the
+        writer when half of the current block is used, so its answer is
+        waiting by the time it is needed.
+        """
+        if self._next_id > self._last_id:
+            if self._ids_asked:
+                self._ids_asked = False
+                top = self._call_value(self._link.take_ids)
+            else:
+                top = self._reserve_here()
+            self._next_id, self._last_id = top + 1, top + _ID_BLOCK
+        elif (not self._ids_asked and self._link is not None and self._proven
+              and self._last_id - self._next_id < _ID_BLOCK // 2):
+            link = self._link
+            self._call(lambda: link.request_ids(_ID_BLOCK))
+            self._ids_asked = True
+        self._next_id += 1
+        return self._next_id - 1
+
+    def _reserve_here(self) -> int:
+        """Reserve a block of ids through this process's connection; call with the lock held."""
+        if self._link is not None and self._proven:
+            self._sync()  # the writer must not hold an open transaction
+        self._db.execute("BEGIN IMMEDIATE")
+        try:
+            row = self._db.execute("SELECT seq FROM sqlite_sequence WHERE name = 'evaluations'").fetchone()
+            (largest,) = self._db.execute("SELECT COALESCE(MAX(eval_id), 0) FROM evaluations").fetchone()
+            top = max(row[0] if row else 0, largest)
+            if row:
+                self._db.execute("UPDATE sqlite_sequence SET seq = ? WHERE name = 'evaluations'",
+                                 (top + _ID_BLOCK,))
+            else:
+                self._db.execute("INSERT INTO sqlite_sequence (name, seq) VALUES ('evaluations', ?)",
+                                 (top + _ID_BLOCK,))
+            self._db.commit()
+        except BaseException:
+            self._db.rollback()
+            raise
+        return top
+
+    def _call_value(self, action):
+        result = []
+        self._call(lambda: result.append(action()))
+        return result[0]
+
+    def _query(self, sql: str, params: tuple = ()) -> list[tuple]:
+        """Read with everything recorded so far committed first."""
+        with self._lock:
+            if self._link is not None and self._failure is None:
+                self._sync()
+            return self._db.execute(sql, params).fetchall()
 
     # ------------------------------------------------------------------ runs
     def start_run(
@@ -172,59 +615,61 @@ class Store:
     ) -> int:
         """Record a new run and return its id."""
         with self._lock:
-            cursor = self._db.execute(
+            cursor = self._write_now(
                 "INSERT INTO runs (case_hash, case_title, case_path, case_text, settings, seed, versions,"
                 " status, message, started) VALUES (?, ?, ?, ?, ?, ?, ?, 'running', '', ?)",
                 (case_hash, case_title, case_path, case_text, _dumps(settings), seed, _dumps(versions), time.time()),
             )
-            self.flush()
+            self._start_writer()  # starts while the search sets up, ready by the first evaluation
             return int(cursor.lastrowid)
 
     def update_run(self, run_id: int, **fields: Any) -> None:
         """Change a run's ``status``, ``message``, ``reference``, ``settings`` or ``finished``."""
         allowed = {"status", "message", "reference", "settings", "finished"}
+        for key in fields:
+            if key not in allowed:
+                raise KeyError(key)
+        if not fields:
+            return
+        values = [_dumps(v) if k in {"reference", "settings"} else v for k, v in fields.items()]
+        assignments = ", ".join(f"{key} = ?" for key in fields)
         with self._lock:
-            for key, value in fields.items():
-                if key not in allowed:
-                    raise KeyError(key)
-                if key in {"reference", "settings"}:
-                    value = _dumps(value)
-                self._db.execute(f"UPDATE runs SET {key} = ? WHERE run_id = ?", (value, run_id))
-            self.flush()
+            self._write_now(f"UPDATE runs SET {assignments} WHERE run_id = ?", (*values, run_id))
 
-    def runs(self) -> pd.DataFrame:
-        """One row a run: id, case, seed, status, message, counts and times."""
-        with self._lock:
-            return pd.read_sql_query(
-                "SELECT r.run_id, r.case_title, r.case_hash, r.seed, r.status, r.message, r.started, r.finished,"
-                " (SELECT COUNT(*) FROM evaluations e WHERE e.run_id = r.run_id AND e.source_id IS NULL)"
-                " AS n_evals FROM runs r ORDER BY r.run_id",
-                self._db,
-            )
+    def runs(self):
+        """One row a run, as a pandas DataFrame: id, case, seed, status, message, counts and times."""
+        import pandas as pd
+
+        columns = ["run_id", "case_title", "case_hash", "seed", "status", "message", "started", "finished",
+                   "n_evals"]
+        rows = self._query(
+            "SELECT r.run_id, r.case_title, r.case_hash, r.seed, r.status, r.message, r.started, r.finished,"
+            " (SELECT COUNT(*) FROM evaluations e WHERE e.run_id = r.run_id AND e.source_id IS NULL)"
+            " FROM runs r ORDER BY r.run_id"
+        )
+        return pd.DataFrame.from_records(rows, columns=columns)
 
     def run(self, run_id: int) -> dict[str, Any]:
         """Everything recorded about one run (StoreError when there is no such run)."""
         keys = ("run_id", "case_hash", "case_title", "case_path", "case_text", "settings", "seed", "versions",
                 "status", "message", "reference", "started", "finished")
-        with self._lock:
-            row = self._db.execute(f"SELECT {', '.join(keys)} FROM runs WHERE run_id = ?", (run_id,)).fetchone()
-            if row is None:
-                known = [str(r) for (r,) in self._db.execute("SELECT run_id FROM runs ORDER BY run_id")]
-                raise StoreError(
-                    f"{self.path}: run {run_id} is not in this archive; runs it holds: {', '.join(known) or 'none'}"
-                )
-        record = dict(zip(keys, row, strict=True))
+        found = self._query(f"SELECT {', '.join(keys)} FROM runs WHERE run_id = ?", (run_id,))
+        if not found:
+            known = [str(r) for (r,) in self._query("SELECT run_id FROM runs ORDER BY run_id")]
+            raise StoreError(
+                f"{self.path}: run {run_id} is not in this archive; runs it holds: {', '.join(known) or 'none'}"
+            )
+        record = dict(zip(keys, found[0], strict=True))
         for key in ("settings", "versions", "reference"):
             record[key] = json.loads(record[key]) if record[key] else None
         return record
 
     def latest_run(self) -> int:
         """The id of the newest run in the file (StoreError when it holds none)."""
-        with self._lock:
-            row = self._db.execute("SELECT MAX(run_id) FROM runs").fetchone()
-        if row is None or row[0] is None:
+        ((newest,),) = self._query("SELECT MAX(run_id) FROM runs")
+        if newest is None:
             raise StoreError(f"{self.path}: the archive holds no runs")
-        return int(row[0])
+        return int(newest)
 
     # ----------------------------------------------------------- evaluations
     def add_evaluation(
@@ -244,31 +689,48 @@ class Store:
     ) -> int:
         """Record one completed evaluation (or one served from the archive, with ``source_id``).
 
-        The row is committed within a second (see the class notes).
+        Returns the evaluation's id at once; the row is committed within a
+        second (see the class notes).
         """
-        row = (run_id, case_hash, design_key, _dumps(design), _dumps(results), status, message, duration,
-               generation, worker, source_id, time.time())
         with self._lock:
-            cursor = self._db.execute(
-                "INSERT INTO evaluations (run_id, case_hash, design_key, design, results, status, message,"
-                " duration, generation, worker, source_id, created) VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)",
-                row,
-            )
-            self._written()
-            return int(cursor.lastrowid)
+            if self._failure is not None:
+                raise self._failure
+            eval_id = self._take_id()
+            if not self._rows:
+                self._rows_since = time.monotonic()
+            self._rows.append((eval_id, run_id, case_hash, design_key, design, results, status, message, duration,
+                               generation, worker, source_id, time.time()))
+            if len(self._rows) >= 4096 or time.monotonic() - self._rows_since >= _HAND_OVER_EVERY:
+                self._hand_over()
+        return eval_id
 
-    def lookup(self, case_hash: str, keys: Iterable[str]) -> dict[str, dict[str, Any]]:
-        """Evaluations already archived for this case, by design key (first real evaluation wins)."""
-        found: dict[str, dict[str, Any]] = {}
+    def lookup(
+        self, case_hash: str, keys: Iterable[str], *, exclude_run: int | None = None
+    ) -> dict[str, dict[str, Any]]:
+        """Committed evaluations of this case, by design key (the first real evaluation of each).
+
+        With ``exclude_run``, rows of that run are left out; the search passes
+        its own run, whose designs it keeps in memory, and when the file holds
+        no evaluation of the case from any other run the look-up costs
+        nothing (that answer is trusted for a second, so a run started beside
+        this one in the same file is noticed).
+        """
         keys = list(dict.fromkeys(keys))
+        found: dict[str, dict[str, Any]] = {}
+        if not keys:
+            return found
+        skip = "" if exclude_run is None else " AND run_id <> ?"
+        tail = () if exclude_run is None else (exclude_run,)
         with self._lock:
+            if exclude_run is not None and not self._has_others(case_hash, exclude_run):
+                return found
             for start in range(0, len(keys), 500):
                 chunk = keys[start : start + 500]
                 marks = ",".join("?" * len(chunk))
                 rows = self._db.execute(
                     f"SELECT eval_id, design_key, results, status, message, duration, worker FROM evaluations"
-                    f" WHERE case_hash = ? AND source_id IS NULL AND design_key IN ({marks}) ORDER BY eval_id",
-                    (case_hash, *chunk),
+                    f" WHERE case_hash = ? AND source_id IS NULL AND design_key IN ({marks}){skip} ORDER BY eval_id",
+                    (case_hash, *chunk, *tail),
                 ).fetchall()
                 for eval_id, key, results, status, message, duration, worker in rows:
                     if key not in found:
@@ -282,13 +744,29 @@ class Store:
                         }
         return found
 
-    def evaluations(self, run_id: int | None = None, *, case_hash: str | None = None) -> pd.DataFrame:
-        """Every evaluation of a run (or of a case, or all) as one flat table.
+    def _has_others(self, case_hash: str, run_id: int) -> bool:
+        seen = self._others.get((case_hash, run_id))
+        if seen is not None and time.monotonic() - seen < _OTHERS_TTL:
+            return False
+        (others,) = self._db.execute(
+            "SELECT EXISTS (SELECT 1 FROM evaluations WHERE case_hash = ? AND source_id IS NULL AND run_id <> ?)",
+            (case_hash, run_id),
+        ).fetchone()
+        if others:
+            self._others.pop((case_hash, run_id), None)
+            return True
+        self._others[(case_hash, run_id)] = time.monotonic()
+        return False
+
+    def evaluations(self, run_id: int | None = None, *, case_hash: str | None = None):
+        """Every evaluation of a run (or of a case, or all) as one flat pandas DataFrame.
 
         Columns: ``eval_id``, ``run_id``, ``generation``, ``status``, ``message``,
         ``duration``, ``worker``, ``cached`` (served from the archive), then the
         design's variables and the model's results under their own names.
         """
+        import pandas as pd
+
         query = (
             "SELECT eval_id, run_id, generation, status, message, duration, worker, source_id, design, results"
             " FROM evaluations"
@@ -300,11 +778,10 @@ class Store:
         elif case_hash is not None:
             query += " WHERE case_hash = ?"
             params = (case_hash,)
-        query += " ORDER BY eval_id"
-        with self._lock:
-            rows = self._db.execute(query, params).fetchall()
         records = []
-        for eval_id, rid, gen, status, message, duration, worker, source, design, results in rows:
+        for eval_id, rid, gen, status, message, duration, worker, source, design, results in self._query(
+            query + " ORDER BY eval_id", params
+        ):
             record = {
                 "eval_id": eval_id,
                 "run_id": rid,
@@ -323,49 +800,58 @@ class Store:
 
     def count_evaluations(self, run_id: int) -> int:
         """How many designs the run evaluated itself (served ones not counted)."""
-        with self._lock:
-            row = self._db.execute(
-                "SELECT COUNT(*) FROM evaluations WHERE run_id = ? AND source_id IS NULL", (run_id,)
-            ).fetchone()
-        return int(row[0])
+        ((count,),) = self._query(
+            "SELECT COUNT(*) FROM evaluations WHERE run_id = ? AND source_id IS NULL", (run_id,)
+        )
+        return int(count)
 
     # --------------------------------------------------- history and states
     def add_generation(self, run_id: int, row: dict[str, Any], *, state: bytes | None = None) -> None:
-        """Record one generation's summary (and the search state to resume from) durably."""
+        """Record one generation's summary (and the search state to resume from), and have it committed.
+
+        The writer commits it, with every evaluation recorded before it, at
+        once (or within a tenth of a second of its last commit); the caller
+        does not wait.
+        """
+        generation = int(row["generation"])
         with self._lock:
-            self._db.execute(
-                "INSERT OR REPLACE INTO generations (run_id, generation, row) VALUES (?, ?, ?)",
-                (run_id, int(row["generation"]), _dumps(row)),
-            )
+            messages = [("rows", self._rows)] if self._rows else []
+            self._rows = []
+            messages.append(("sql", "INSERT OR REPLACE INTO generations (run_id, generation, row) VALUES (?, ?, ?)",
+                             (run_id, generation, _dumps(row))))
             if state is not None:
-                self._db.execute(
-                    "INSERT OR REPLACE INTO states (run_id, generation, blob) VALUES (?, ?, ?)",
-                    (run_id, int(row["generation"]), state),
-                )
-            self.flush()
+                messages.append(("sql", "INSERT OR REPLACE INTO states (run_id, generation, blob) VALUES (?, ?, ?)",
+                                 (run_id, generation, state)))
+            messages.append(("commit",))
+            self._commit_wanted = False
+            link = self._writer()
+            self._call(lambda: link.send(("many", messages)))
 
     def save_state(self, run_id: int, generation: int, state: bytes) -> None:
-        """Keep the search state reached after ``generation`` (one state a run: the newest)."""
-        with self._lock:
-            self._db.execute(
-                "INSERT OR REPLACE INTO states (run_id, generation, blob) VALUES (?, ?, ?)",
-                (run_id, generation, state),
-            )
-            self.flush()
+        """Keep the search state reached after ``generation`` (one state a run: the newest).
 
-    def history(self, run_id: int) -> pd.DataFrame:
-        """One row a recorded generation of the run, in order."""
+        Committed by the writer within a tenth of a second, and at :meth:`close`.
+        """
         with self._lock:
-            rows = self._db.execute(
-                "SELECT row FROM generations WHERE run_id = ? ORDER BY generation", (run_id,)
-            ).fetchall()
+            self._hand_over()
+            link = self._writer()
+            self._call(lambda: link.send(("many", [
+                ("sql", "INSERT OR REPLACE INTO states (run_id, generation, blob) VALUES (?, ?, ?)",
+                 (run_id, generation, state)),
+                ("commit",),
+            ])))
+
+    def history(self, run_id: int):
+        """One row a recorded generation of the run, in order, as a pandas DataFrame."""
+        import pandas as pd
+
+        rows = self._query("SELECT row FROM generations WHERE run_id = ? ORDER BY generation", (run_id,))
         return pd.DataFrame.from_records([json.loads(r) for (r,) in rows])
 
     def state(self, run_id: int) -> tuple[int, bytes] | None:
         """The newest saved search state of the run as ``(generation, pickled algorithm)``."""
-        with self._lock:
-            row = self._db.execute("SELECT generation, blob FROM states WHERE run_id = ?", (run_id,)).fetchone()
-        return (int(row[0]), bytes(row[1])) if row else None
+        rows = self._query("SELECT generation, blob FROM states WHERE run_id = ?", (run_id,))
+        return (int(rows[0][0]), bytes(rows[0][1])) if rows else None
 
     def discard_after(self, run_id: int, generation: int) -> None:
         """Forget the run's history rows and served-from-archive rows after ``generation``.
@@ -375,13 +861,12 @@ class Store:
         evaluated itself are kept (the resumed search takes them over).
         """
         with self._lock:
-            self._db.execute(
+            self._write_now(
                 "DELETE FROM evaluations WHERE run_id = ? AND generation > ? AND source_id IS NOT NULL",
                 (run_id, generation),
             )
-            self._db.execute("DELETE FROM generations WHERE run_id = ? AND generation > ?", (run_id, generation))
-            self._db.execute("DELETE FROM states WHERE run_id = ? AND generation > ?", (run_id, generation))
-            self.flush()
+            self._write_now("DELETE FROM generations WHERE run_id = ? AND generation > ?", (run_id, generation))
+            self._write_now("DELETE FROM states WHERE run_id = ? AND generation > ?", (run_id, generation))
 
 
 def open_store(path: str | Path, *, create: bool = True) -> Store:
