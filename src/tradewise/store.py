@@ -24,10 +24,10 @@ __all__ = ["Store", "open_store", "SCHEMA_VERSION"]
 
 SCHEMA_VERSION = 1
 # Evaluations wait at most this long in this process before they go to the writer, which commits
-# them at most _WRITER_COMMIT_EVERY later: together well within the promised second.
+# them at most 0.4 s later (COMMIT_EVERY in the writer program): together well within a second.
 _HAND_OVER_EVERY = 0.1
 _TICK = 0.05
-_ID_BLOCK = 4096  # evaluation ids reserved at a time (a reservation waits for the writer)
+_ID_BLOCK = 4096  # evaluation ids reserved at a time; the next block is asked for half a block ahead
 # How long "this case has no evaluations from other runs" is trusted before asking the file again.
 _OTHERS_TTL = 1.0
 _SQLITE_HEADER = b"SQLite format 3\x00"
