@@ -162,6 +162,8 @@ def test_failures_are_recorded_and_the_run_goes_on(make_case):
                 raise ValueError("too thin to mesh")
             if x > 0.8:
                 return {"cost": math.nan, "mass": 1.0}
+            if 0.45 < x < 0.5:
+                raise SystemExit("solver gave up")
             return {"cost": x, "mass": (1 - x) ** 2 + 0.1}
         """
     )
@@ -170,7 +172,9 @@ def test_failures_are_recorded_and_the_run_goes_on(make_case):
     assert result.n_failed == len(failed[~failed["cached"]]) > 0
     assert failed["message"].str.contains("too thin to mesh").any()
     assert failed["message"].str.contains("finite number").any()
+    assert failed["message"].str.contains("SystemExit: solver gave up").any()
     assert (result.front.table["x"].between(0.2, 0.8)).all()
+    assert not result.front.table["x"].between(0.45, 0.5, inclusive="neither").any()
     assert "failed" in result.message
 
 

@@ -168,6 +168,7 @@ def run_command(case, out, seed, n_seeds, evaluations, generations, population, 
     _summary(result)
     click.echo(f"Wrote {', '.join(p.name for p in written.values())} and {store_path.name} to {folder}")
     if result.status == "interrupted":
+        click.echo(f"Continue it with: tradewise resume {store_path}", err=True)
         sys.exit(130)
 
 

@@ -125,7 +125,7 @@ class PythonModel:
         start = time.perf_counter()
         try:
             raw = function(dict(design))
-        except Exception as exc:  # the designer's model may raise anything; record it
+        except (Exception, SystemExit) as exc:  # the designer's model may raise or exit; record it
             where = _innermost_frame(exc)
             message = f"{type(exc).__name__}: {exc}{where}"
             return Outcome("failed", {}, message, time.perf_counter() - start, _worker_name())

@@ -645,6 +645,7 @@ def _loop(run: _Run, algorithm, algorithm_name: str, space: Space, executor: InP
     n_obj = len(case.objectives)
     n_con = _n_constraint_columns(case)
     generation = len(run.history)
+    fronted = len(run.records)
     idle = 0
     status = ""
     # Elapsed time counts the time spent searching: a resumed run goes on from its last generation.
@@ -699,7 +700,7 @@ def _loop(run: _Run, algorithm, algorithm_name: str, space: Space, executor: InP
                 designs = [designs[i] for i in keep]
                 keys = [keys[i] for i in keep]
                 fresh = fresh[:room]
-            first_new = len(run.records)
+            first_new = fronted = len(run.records)
 
             outcomes: dict[str, Any] = {}
             for key in dict.fromkeys(keys):
@@ -791,6 +792,8 @@ def _loop(run: _Run, algorithm, algorithm_name: str, space: Space, executor: InP
             run.store.save_state(run.run_id, generation, pickle.dumps(algorithm))
     except KeyboardInterrupt:
         status = "interrupted"
+        # Designs evaluated in the interrupted generation count too: they are in the archive.
+        run.update_front(list(range(fronted, len(run.records))))
     _take_over_leftovers(run)
     return _finish(run, status, algorithm_name, started)
 

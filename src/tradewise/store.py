@@ -236,6 +236,10 @@ def main(path):
 
 
 if __name__ == "__main__":
+    # Ctrl-C reaches the whole process group; the search process decides what to do with it and
+    # then tells this writer to close, so the writer itself must not die of it.
+    import signal
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
     # os._exit: the reader thread may still be blocked on the input pipe, which a normal interpreter
     # shutdown does not allow.
     try:
