@@ -6,6 +6,19 @@ from tradewise.front import Front, hypervolume, nondominated, read_front
 
 __version__ = "0.1.0"
 
+_LAZY = {"run_study": "search", "resume_study": "search", "save_run": "search", "run_repeats": "search",
+         "StudyResult": "search"}
+
+
+def __getattr__(name: str):
+    # The search pulls in pymoo; it is imported on first use so that `tradewise --help` stays quick.
+    if name in _LAZY:
+        import importlib
+
+        return getattr(importlib.import_module(f"tradewise.{_LAZY[name]}"), name)
+    raise AttributeError(f"module 'tradewise' has no attribute {name!r}")
+
+
 __all__ = [
     "Case",
     "Constraint",
@@ -13,6 +26,11 @@ __all__ = [
     "SearchSettings",
     "Variable",
     "load_case",
+    "run_study",
+    "resume_study",
+    "save_run",
+    "run_repeats",
+    "StudyResult",
     "Front",
     "read_front",
     "hypervolume",
