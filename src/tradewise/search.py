@@ -86,6 +86,12 @@ class Space:
         self.xl = np.asarray(low, dtype=float)
         self.xu = np.asarray(high, dtype=float)
         self.discrete = np.asarray(discrete, dtype=bool)
+        #: (column, number of options) of every choice and flag
+        self.categorical = [
+            (i, len(v.options) if v.kind == "choice" else 2)
+            for i, v in enumerate(case.variables)
+            if v.kind in ("choice", "flag")
+        ]
         self._round_low = np.where(self.discrete, np.ceil(self.xl), self.xl)
         self._round_high = np.where(self.discrete, np.floor(self.xu), self.xu)
 
@@ -140,6 +146,30 @@ def middle_design(case: Case) -> dict[str, Any]:
     """The design in the middle of every range (first option, flags off): a quick model check."""
     space = Space(case)
     return space.decode(space.repair(((space.xl + space.xu) / 2)[None, :])[0])
+
+
+class _MixedMutation(PM):
+    """Polynomial mutation, plus a random reset of choices and flags.
+
+    On the widened real axis of a choice or a flag, polynomial mutation moves
+    a value by a few per cent of the axis, which almost never reaches another
+    option; left to it, a choice would keep whatever the first generation
+    drew. Each choice and flag is therefore also reset to a uniformly drawn
+    option with the usual per-variable probability min(0.5, 1/n). Cases
+    without choices or flags draw nothing extra, so their runs are unchanged.
+    """
+
+    def __init__(self, space: Space, eta: float = 20.0) -> None:
+        super().__init__(eta=eta)
+        self.space = space
+
+    def _do(self, problem, X, *args, random_state=None, **kwargs):
+        Xp = super()._do(problem, X, *args, random_state=random_state, **kwargs)
+        for column, levels in self.space.categorical:
+            reset = random_state.random(len(Xp)) < min(0.5, 1.0 / problem.n_var)
+            if reset.any():
+                Xp[reset, column] = random_state.integers(0, levels, size=int(reset.sum()))
+        return Xp
 
 
 def design_key(design: dict[str, Any]) -> str:
@@ -360,7 +390,7 @@ def _make_algorithm(case: Case, space: Space, population: int | None, seed: int)
     common = dict(
         sampling=FloatRandomSampling(),
         crossover=SBX(prob=0.9, eta=15),
-        mutation=PM(eta=20),
+        mutation=_MixedMutation(space, eta=20),
         repair=repair,
         eliminate_duplicates=True,
     )
