@@ -172,6 +172,16 @@ class _MixedMutation(PM):
         return Xp
 
 
+def _key_text(value: Any) -> str:
+    if isinstance(value, bool):
+        return "true" if value else "false"
+    if isinstance(value, float):
+        return f"{value:.12g}"
+    if isinstance(value, str):
+        return json.dumps(value)
+    return repr(value)
+
+
 def design_key(design: dict[str, Any]) -> str:
     """A canonical text key of a design: equal designs give equal keys (reals to 12 significant digits).
 
@@ -180,18 +190,7 @@ def design_key(design: dict[str, Any]) -> str:
     >>> design_key({"t": 0.1 + 0.2, "n": 3, "alloy": "6063", "coat": True})
     't=0.3|n=3|alloy="6063"|coat=true'
     """
-    parts = []
-    for name, value in design.items():
-        if isinstance(value, bool):
-            text = "true" if value else "false"
-        elif isinstance(value, float):
-            text = f"{value:.12g}"
-        elif isinstance(value, str):
-            text = json.dumps(value)
-        else:
-            text = repr(value)
-        parts.append(f"{name}={text}")
-    return "|".join(parts)
+    return "|".join(f"{name}={_key_text(value)}" for name, value in design.items())
 
 
 # ----------------------------------------------------------------------------------------- result
@@ -711,7 +710,7 @@ def _loop(run: _Run, algorithm, algorithm_name: str, space: Space, executor: InP
             X = space.repair(proposed)
             if not np.array_equal(X, proposed):
                 pop.set("X", X)
-            designs = [space.decode(x) for x in X]
+            designs = [space.decode(x) for x in X.tolist()]
             keys = [design_key(d) for d in designs]
 
             # Which designs are new: not in this run's memo, not in the archive for this case.
