@@ -49,17 +49,25 @@ class Outcome:
         return self.status == "ok"
 
 
-_WORKER: tuple[int, str] | None = None
+_WORKER: str | None = None
+
+
+def _forget_worker() -> None:
+    global _WORKER
+    _WORKER = None
+
+
+if hasattr(os, "register_at_fork"):
+    os.register_at_fork(after_in_child=_forget_worker)
 
 
 def _worker_name() -> str:
-    """Host and process id of this worker (cached; recomputed after a fork)."""
+    """Host and process id of this worker (worked out once per process)."""
     global _WORKER
-    pid = os.getpid()
-    if _WORKER is None or _WORKER[0] != pid:
+    if _WORKER is None:
         host = os.uname().nodename if hasattr(os, "uname") else "local"
-        _WORKER = (pid, f"{host}:{pid}")
-    return _WORKER[1]
+        _WORKER = f"{host}:{os.getpid()}"
+    return _WORKER
 
 
 def check_results(raw: Any, required: list[str]) -> tuple[dict[str, Any], str]:

@@ -86,6 +86,10 @@ class Space:
         self.xl = np.asarray(low, dtype=float)
         self.xu = np.asarray(high, dtype=float)
         self.discrete = np.asarray(discrete, dtype=bool)
+        self._names = [v.name for v in case.variables]
+        self._kinds = [v.kind for v in case.variables]
+        self._options = [v.options for v in case.variables]
+        self._all_real = all(kind == "real" for kind in self._kinds)
         #: (column, number of options) of every choice and flag
         self.categorical = [
             (i, len(v.options) if v.kind == "choice" else 2)
@@ -107,17 +111,20 @@ class Space:
         X[:, self.discrete] = np.round(X[:, self.discrete])
         return np.clip(X, self._round_low, self._round_high)
 
-    def decode(self, x: np.ndarray) -> dict[str, Any]:
+    def decode(self, x: Any) -> dict[str, Any]:
+        """The design of one (repaired) row: floats, ints, options and booleans under their names."""
+        if self._all_real:
+            return dict(zip(self._names, map(float, x), strict=True))
         design: dict[str, Any] = {}
-        for v, value in zip(self.variables, x, strict=True):
-            if v.kind == "real":
-                design[v.name] = float(value)
-            elif v.kind == "integer":
-                design[v.name] = int(round(value))
-            elif v.kind == "choice":
-                design[v.name] = v.options[int(round(value))]
+        for name, kind, options, value in zip(self._names, self._kinds, self._options, x, strict=True):
+            if kind == "real":
+                design[name] = float(value)
+            elif kind == "integer":
+                design[name] = int(round(value))
+            elif kind == "choice":
+                design[name] = options[int(round(value))]
             else:
-                design[v.name] = bool(round(value))
+                design[name] = bool(round(value))
         return design
 
     def encode(self, design: dict[str, Any]) -> np.ndarray:
@@ -190,7 +197,8 @@ def design_key(design: dict[str, Any]) -> str:
     >>> design_key({"t": 0.1 + 0.2, "n": 3, "alloy": "6063", "coat": True})
     't=0.3|n=3|alloy="6063"|coat=true'
     """
-    return "|".join(f"{name}={_key_text(value)}" for name, value in design.items())
+    return "|".join([f"{name}={value:.12g}" if type(value) is float else f"{name}={_key_text(value)}"
+                     for name, value in design.items()])
 
 
 # ----------------------------------------------------------------------------------------- result
