@@ -552,8 +552,7 @@ def topsis(
     References
     ----------
     Hwang, C.-L., Yoon, K. (1981). Multiple Attribute Decision Making: Methods
-    and Applications. Lecture Notes in Economics and Mathematical Systems 186,
-    Springer.
+    and Applications. Springer, Berlin (LNEMS vol. 186).
 
     Examples
     --------
