@@ -9,6 +9,7 @@ import warnings
 from collections.abc import Iterable, Mapping, Sequence
 from dataclasses import dataclass
 
+import moocore
 import numpy as np
 import pandas as pd
 
@@ -427,9 +428,7 @@ def kneedle(points: np.ndarray, *, sensitivity: float = 1.0) -> tuple[np.ndarray
         )
     n = len(points)
     order = np.lexsort((points[:, 1], points[:, 0]))
-    x, y = points[order, 0], points[order, 1]
-    x = _unit(x)
-    y = _unit(y)
+    x, y = moocore.normalise(points[order]).T
     curve = (1.0 - y) - x
     difference = np.empty(n)
     difference[order] = curve
@@ -444,11 +443,6 @@ def kneedle(points: np.ndarray, *, sensitivity: float = 1.0) -> tuple[np.ndarray
         if np.any(curve[peak + 1 : stop] < threshold):
             knees.append(order[peak])
     return difference, np.asarray(knees, dtype=int)
-
-
-def _unit(values: np.ndarray) -> np.ndarray:
-    low, high = values.min(), values.max()
-    return np.zeros_like(values) if high == low else (values - low) / (high - low)
 
 
 def pseudo_weights(points: np.ndarray) -> np.ndarray:

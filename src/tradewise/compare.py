@@ -24,9 +24,9 @@ from tradewise.case import Objective
 from tradewise.errors import DataError
 from tradewise.front import (
     Front,
+    _flags,
     column_header,
     hypervolume,
-    nondominated,
     objective_matrix,
     read_front,
     read_table,
@@ -61,15 +61,6 @@ _GAIN = 0.01
 
 
 # ------------------------------------------------------------------------------- small helpers
-def _flags(maximise: bool | Sequence[bool], n: int) -> np.ndarray:
-    if isinstance(maximise, bool | np.bool_):
-        return np.full(n, bool(maximise))
-    flags = np.asarray([bool(m) for m in maximise], dtype=bool)
-    if len(flags) != n:
-        raise DataError(f"maximise: got {len(flags)} flags for {n} objectives; give one a column")
-    return flags
-
-
 def _as_points(points: Any, n_obj: int | None = None) -> np.ndarray:
     array = np.asarray(points, dtype=float)
     if array.size == 0:
@@ -102,11 +93,7 @@ def igd_plus(points: Any, reference_set: Any, maximise: bool | Sequence[bool] = 
     >>> igd_plus([[1.5, 3], [3, 1.5]], [[1, 3], [2, 2], [3, 1]])
     0.6666666666666666
     """
-    points, reference_set = _as_points(points), _as_points(reference_set)
-    if len(points) == 0 or len(reference_set) == 0:
-        return math.nan
-    flags = _flags(maximise, points.shape[1])
-    return float(moocore.igd_plus(points, ref=reference_set, maximise=flags))
+    return _against_set(moocore.igd_plus, points, reference_set, maximise)
 
 
 def epsilon_additive(points: Any, reference_set: Any, maximise: bool | Sequence[bool] = False) -> float:
@@ -120,11 +107,15 @@ def epsilon_additive(points: Any, reference_set: Any, maximise: bool | Sequence[
     >>> epsilon_additive([[1.5, 3], [3, 1.5]], [[1, 3], [2, 2], [3, 1]])
     1.0
     """
+    return _against_set(moocore.epsilon_additive, points, reference_set, maximise)
+
+
+def _against_set(indicator: Any, points: Any, reference_set: Any, maximise: bool | Sequence[bool]) -> float:
+    """A moocore indicator of ``points`` against ``reference_set``; NaN when either is empty."""
     points, reference_set = _as_points(points), _as_points(reference_set)
     if len(points) == 0 or len(reference_set) == 0:
         return math.nan
-    flags = _flags(maximise, points.shape[1])
-    return float(moocore.epsilon_additive(points, ref=reference_set, maximise=flags))
+    return float(indicator(points, ref=reference_set, maximise=_flags(maximise, points.shape[1])))
 
 
 def dominated_share(points: Any, others: Any, maximise: bool | Sequence[bool] = False) -> float:
@@ -568,10 +559,7 @@ def compare_fronts(
     everything = np.vstack([union] + ([given] if given is not None else []))
     ideal = _best(everything, flags)
     scale = _scale(ideal, ref, flags)
-    if given is None:
-        target = union[nondominated(union, flags.tolist())]
-    else:
-        target = given[nondominated(given, flags.tolist())]
+    target = moocore.filter_dominated(union if given is None else given, maximise=flags)
     target_n = _normalise(target, ideal, scale, flags)
     unit_ref = np.ones(len(objectives))
 

@@ -147,7 +147,7 @@ def _flags(maximise: bool | Sequence[bool], n: int) -> list[bool]:
         return [bool(maximise)] * n
     flags = [bool(m) for m in maximise]
     if len(flags) != n:
-        raise DataError(f"maximise: got {len(flags)} flags for {n} objectives")
+        raise DataError(f"maximise: got {len(flags)} flags for {n} objectives; give one for each objective")
     return flags
 
 
@@ -563,8 +563,7 @@ def _rates_on_local_plane(front: Front, index: int | None, n_neighbours: int | N
     n, m = points.shape
     low, high = points.min(axis=0), points.max(axis=0)
     span = np.where(high > low, high - low, 1.0)
-    scaled = (points - low) / span
-    scaled[:, front.maximise] = 1.0 - scaled[:, front.maximise]
+    scaled = moocore.normalise(points, maximise=front.maximise)  # the scale of choose.normalised
     k = min(n - 1, n_neighbours if n_neighbours is not None else 2 * m)
     designs = range(n) if index is None else [index]
     rows = []
