@@ -15,6 +15,7 @@ import io
 import math
 import re
 from collections.abc import Mapping, Sequence
+from html import escape
 from pathlib import Path
 from typing import Any
 
@@ -23,18 +24,16 @@ import numpy as np
 import pandas as pd
 from matplotlib import patheffects
 from matplotlib.backends.backend_agg import FigureCanvasAgg
+from matplotlib.collections import LineCollection
 from matplotlib.colors import to_rgb
 from matplotlib.figure import Figure
 from matplotlib.lines import Line2D
+from matplotlib.patches import Patch, Polygon
 
+from tradewise import choose as _choose
 from tradewise.case import Objective
 from tradewise.errors import DataError
 from tradewise.front import Front, objective_matrix
-
-try:  # the choosing methods are optional: figures work without them
-    from tradewise import choose as _choose
-except ImportError:  # pragma: no cover - only while choose.py is absent
-    _choose = None
 
 __all__ = [
     "PALETTE",
@@ -108,6 +107,14 @@ _STYLE = {
     "axes.formatter.limits": (-5, 7),
 }
 
+#: How the evaluations behind the front are drawn: infeasible or failed ones, then feasible ones.
+_CLOUD_STYLES = (
+    {"s": 9, "marker": "x", "linewidths": 0.6, "color": PALETTE["infeasible"], "alpha": 0.7, "zorder": 1,
+     "gid": "infeasible-points"},
+    {"s": 7, "marker": "o", "linewidths": 0, "color": PALETTE["feasible"], "alpha": 0.45, "zorder": 2,
+     "gid": "other-points"},
+)  # fmt: skip
+
 _FORMATS = ("png", "svg", "pdf")
 _MAX_SHOWN_RUNS = 12
 
@@ -143,15 +150,14 @@ def _row_label(row: int) -> str:
 
 
 # ------------------------------------------------------------------------------ helpers
-class _Styled:
+def _styled():
     """Apply our settings while building or saving a figure; the caller's settings come back after."""
+    return matplotlib.rc_context(_STYLE)
 
-    def __enter__(self) -> None:
-        self._context = matplotlib.rc_context(_STYLE)
-        self._context.__enter__()
 
-    def __exit__(self, *exc: object) -> None:
-        self._context.__exit__(*exc)
+def _title(fig: Figure, title: str | None) -> None:
+    if title:
+        fig.suptitle(_plain(_short(title)), fontsize=11, color=PALETTE["ink"])
 
 
 def _new_figure(size: tuple[float, float]) -> Figure:
@@ -168,7 +174,7 @@ def _objectives_of(front: Front) -> tuple[Objective, ...]:
 
 
 def _default_knee(front: Front) -> int | None:
-    if _choose is None or len(front) < 3:
+    if len(front) < 3:
         return None
     try:
         return int(_choose.choose(front, "knee")[0])
@@ -216,12 +222,14 @@ def _marks(
     out = list(marks.values())
     pick_index = 0
     for entry in out:
-        if entry["is_knee"]:
-            entry.update(marker="D", color=PALETTE["highlight"], filled=True, size=80)
-        else:
-            marker, colour = _PICK_STYLES[pick_index % len(_PICK_STYLES)]
+        if entry["is_knee"]:  # filled, ink-edged
+            colour = PALETTE["highlight"]
+            entry.update(marker="D", color=colour, size=80, face=colour, edge=PALETTE["ink"], width=1.0)
+        else:  # hollow, edged in its colour
+            marker, name = _PICK_STYLES[pick_index % len(_PICK_STYLES)]
             pick_index += 1
-            entry.update(marker=marker, color=PALETTE[colour], filled=False, size=90)
+            colour = PALETTE[name]
+            entry.update(marker=marker, color=colour, size=90, face="none", edge=colour, width=2.0)
         entry["text"] = f"{', '.join(entry['labels'])} ({_row_label(entry['row'])})"
     return out
 
@@ -262,7 +270,7 @@ def _cloud(front: Front, evaluations: pd.DataFrame | None) -> tuple[np.ndarray, 
     return values[usable & feasible], values[usable & ~feasible]
 
 
-def _view(front_values: np.ndarray, cloud: np.ndarray, objective: Objective) -> tuple[float, float]:
+def _view(front_values: np.ndarray, cloud: np.ndarray) -> tuple[float, float]:
     """Axis limits that show the whole front, and the cloud only as far as it helps."""
     lo, hi = float(np.min(front_values)), float(np.max(front_values))
     span = hi - lo if hi > lo else (abs(hi) or 1.0)
@@ -290,32 +298,9 @@ def _scatter_panel(
 ) -> None:
     points = front.points()
     feasible, infeasible = cloud
-    if len(infeasible):
-        ax.scatter(
-            infeasible[:, i],
-            infeasible[:, j],
-            s=9,
-            marker="x",
-            linewidths=0.6,
-            color=PALETTE["infeasible"],
-            alpha=0.7,
-            zorder=1,
-            rasterized=rasterize,
-            gid="infeasible-points",
-        )
-    if len(feasible):
-        ax.scatter(
-            feasible[:, i],
-            feasible[:, j],
-            s=7,
-            marker="o",
-            linewidths=0,
-            color=PALETTE["feasible"],
-            alpha=0.45,
-            zorder=2,
-            rasterized=rasterize,
-            gid="other-points",
-        )
+    for values, style in zip((infeasible, feasible), _CLOUD_STYLES, strict=True):
+        if len(values):
+            ax.scatter(values[:, i], values[:, j], rasterized=rasterize, **style)
     order = np.argsort(points[:, i], kind="stable")
     size = float(np.clip(2400.0 / max(len(points), 1), 9.0, 26.0))
     ax.scatter(
@@ -339,12 +324,8 @@ def _scatter_panel(
             alpha=0.55,
             zorder=3,
         )
-    ax.set_xlim(
-        *_view(points[:, i], np.concatenate([feasible[:, i], infeasible[:, i]]), objectives[i])
-    )
-    ax.set_ylim(
-        *_view(points[:, j], np.concatenate([feasible[:, j], infeasible[:, j]]), objectives[j])
-    )
+    ax.set_xlim(*_view(points[:, i], np.concatenate([feasible[:, i], infeasible[:, i]])))
+    ax.set_ylim(*_view(points[:, j], np.concatenate([feasible[:, j], infeasible[:, j]])))
     for k, mark in enumerate(marks):
         x, y = points[mark["row"], i], points[mark["row"], j]
         ax.scatter(
@@ -353,9 +334,9 @@ def _scatter_panel(
             s=mark["size"],
             marker=mark["marker"],
             zorder=6,
-            facecolors=mark["color"] if mark["filled"] else "none",
-            edgecolors=PALETTE["ink"] if mark["filled"] else mark["color"],
-            linewidths=1.0 if mark["filled"] else 2.0,
+            facecolors=mark["face"],
+            edgecolors=mark["edge"],
+            linewidths=mark["width"],
             gid=f"mark-{k + 1}",
         )
         if annotate:
@@ -428,75 +409,38 @@ def _label_groups(ax, xy: np.ndarray, rows: Sequence[int]) -> list[tuple[list[in
     return [(numbers, row) for numbers, row, _ in groups]
 
 
+def _key(label: str, **style: Any) -> Line2D:
+    """A legend entry of one marker, drawn without a line."""
+    return Line2D([], [], linestyle="none", label=label, **style)
+
+
 def _legend_handles(
     front: Front, cloud: tuple[np.ndarray, np.ndarray], marks: list[dict], shortlist: Sequence[int] = ()
 ) -> list[Line2D]:
     handles = [
-        Line2D(
-            [],
-            [],
-            linestyle="none",
-            marker="o",
-            markersize=6,
-            markerfacecolor=PALETTE["front"],
-            markeredgecolor="white",
-            label=f"front ({len(front)} designs)",
-        )
-    ]
+        _key(f"front ({len(front)} designs)", marker="o", markersize=6,
+             markerfacecolor=PALETTE["front"], markeredgecolor="white")
+    ]  # fmt: skip
     if len(cloud[0]):
         handles.append(
-            Line2D(
-                [],
-                [],
-                linestyle="none",
-                marker="o",
-                markersize=4,
-                markerfacecolor=PALETTE["feasible"],
-                markeredgewidth=0,
-                alpha=0.8,
-                label=f"other feasible evaluations ({len(cloud[0])})",
-            )
-        )
+            _key(f"other feasible evaluations ({len(cloud[0])})", marker="o", markersize=4,
+                 markerfacecolor=PALETTE["feasible"], markeredgewidth=0, alpha=0.8)
+        )  # fmt: skip
     if len(cloud[1]):
         handles.append(
-            Line2D(
-                [],
-                [],
-                linestyle="none",
-                marker="x",
-                markersize=4,
-                color=PALETTE["infeasible"],
-                label=f"infeasible or failed ({len(cloud[1])})",
-            )
-        )
+            _key(f"infeasible or failed ({len(cloud[1])})", marker="x", markersize=4,
+                 color=PALETTE["infeasible"])
+        )  # fmt: skip
     for mark in marks:
         handles.append(
-            Line2D(
-                [],
-                [],
-                linestyle="none",
-                marker=mark["marker"],
-                markersize=8,
-                markerfacecolor=mark["color"] if mark["filled"] else "none",
-                markeredgecolor=PALETTE["ink"] if mark["filled"] else mark["color"],
-                markeredgewidth=1.0 if mark["filled"] else 2.0,
-                label=_plain(mark["text"]),
-            )
-        )
+            _key(_plain(mark["text"]), marker=mark["marker"], markersize=8, markerfacecolor=mark["face"],
+                 markeredgecolor=mark["edge"], markeredgewidth=mark["width"])
+        )  # fmt: skip
     if shortlist:
         handles.append(
-            Line2D(
-                [],
-                [],
-                linestyle="none",
-                marker="o",
-                markersize=10,
-                markerfacecolor="none",
-                markeredgecolor=PALETTE["ink"],
-                markeredgewidth=1.6,
-                label=f"shortlist ({len(shortlist)}), numbered in pick order",
-            )
-        )
+            _key(f"shortlist ({len(shortlist)}), numbered in pick order", marker="o", markersize=10,
+                 markerfacecolor="none", markeredgecolor=PALETTE["ink"], markeredgewidth=1.6)
+        )  # fmt: skip
     return handles
 
 
@@ -556,7 +500,7 @@ def plot_front(
         raise DataError("front: holds no designs, so there is nothing to draw")
     objectives = _objectives_of(front)
     m = len(objectives)
-    with _Styled():
+    with _styled():
         cloud = _cloud(front, evaluations)
         marks = _marks(front, knee, picks)
         listed = [_check_row(front, row, "shortlist") for row in (shortlist or ())]
@@ -582,8 +526,7 @@ def plot_front(
             ax.legend(handles=_legend_handles(front, cloud, marks, listed), loc="best")
         else:
             fig = _front_matrix(front, objectives, cloud, marks, rasterize, listed)
-        if title:
-            fig.suptitle(_plain(_short(title)), fontsize=11, color=PALETTE["ink"])
+        _title(fig, title)
     return fig
 
 
@@ -667,9 +610,9 @@ def _front_3d(ax, front: Front, objectives, marks: list[dict], shortlist: Sequen
             s=mark["size"] * 1.2,
             marker=mark["marker"],
             depthshade=False,
-            facecolors=mark["color"] if mark["filled"] else "none",
-            edgecolors=PALETTE["ink"] if mark["filled"] else mark["color"],
-            linewidths=1.0 if mark["filled"] else 2.0,
+            facecolors=mark["face"],
+            edgecolors=mark["edge"],
+            linewidths=mark["width"],
             zorder=10,
         )
     for number, row in enumerate(shortlist, start=1):
@@ -732,27 +675,27 @@ def plot_parallel(
                 )
     else:
         extra = []
+    knee = None
     if isinstance(highlight, str):
         if highlight != "auto":
             raise DataError(
                 f"highlight: expected a row position, 'auto' or None, got {highlight!r}"
             )
-        highlight = _default_knee(front)
-    if highlight is not None:
+        highlight = knee = _default_knee(front)
+    elif highlight is not None:
         highlight = _check_row(front, highlight, "highlight")
+        knee = _default_knee(front)  # the legend calls the highlighted design the knee when it is one
     axes_spec = [_objective_axis(front, o) for o in objectives] + [
         _variable_axis(front, v) for v in extra
     ]
     levels = np.column_stack([spec["levels"] for spec in axes_spec])
     n_axes = len(axes_spec)
-    with _Styled():
+    with _styled():
         fig = _new_figure((max(6.5, 1.15 * n_axes + 1.6), 5.0))
         ax = fig.add_subplot()
         xs = np.arange(n_axes)
         alpha = float(np.clip(12.0 / max(len(front), 1), 0.08, 0.7))
         segments = [np.column_stack([xs, row]) for row in levels]
-        from matplotlib.collections import LineCollection
-
         ax.add_collection(
             LineCollection(
                 segments,
@@ -814,8 +757,6 @@ def plot_parallel(
             )
         ]
         if extra:
-            from matplotlib.patches import Patch
-
             handles.append(
                 Patch(
                     facecolor="#f1f2f6",
@@ -824,8 +765,7 @@ def plot_parallel(
                 )
             )
         if highlight is not None:
-            labels = [lab for lab in ["knee"] if highlight == _default_knee(front)]
-            text = f"{labels[0]} ({_row_label(highlight)})" if labels else _row_label(highlight)
+            text = f"knee ({_row_label(highlight)})" if highlight == knee else _row_label(highlight)
             handles.append(
                 Line2D(
                     [],
@@ -841,8 +781,7 @@ def plot_parallel(
         ax.legend(
             handles=handles, loc="upper center", bbox_to_anchor=(0.5, -0.16), ncol=3, frameon=False
         )
-        if title:
-            fig.suptitle(_plain(_short(title)), fontsize=11, color=PALETTE["ink"])
+        _title(fig, title)
     return fig
 
 
@@ -967,7 +906,7 @@ def plot_history(
     else:
         runs.append((None, np.arange(len(history))))
     evals, hv, size = columns["evaluations"], columns["hypervolume"], columns["front_size"]
-    with _Styled():
+    with _styled():
         fig = _new_figure((7.2, 5.4))
         top, bottom = fig.subplots(2, 1, sharex=True, height_ratios=[1.4, 1.0])
         if len(runs) == 1:
@@ -1054,8 +993,7 @@ def plot_history(
                 )
         top.set_ylim(bottom=min(0.0, float(np.min(hv))))
         bottom.set_ylim(bottom=0)
-        if title:
-            fig.suptitle(_plain(_short(title)), fontsize=11, color=PALETTE["ink"])
+        _title(fig, title)
     return fig
 
 
@@ -1205,7 +1143,7 @@ def plot_attainment(
             drawn[same[0]].append(name)
         else:
             drawn[name] = [name]
-    with _Styled():
+    with _styled():
         fig = _new_figure((7.2, 5.2))
         ax = fig.add_subplot()
         if runs is not None:
@@ -1224,8 +1162,6 @@ def plot_attainment(
         stairs = {name: _staircase(points * sign, corner) for name, points in corners.items()}
         if "best" in stairs and "worst" in stairs:
             # the band between best and worst: where some but not all runs reached
-            from matplotlib.patches import Polygon
-
             band = np.vstack([stairs["best"], stairs["worst"][::-1]]) * sign
             ax.add_patch(
                 Polygon(
@@ -1253,8 +1189,7 @@ def plot_attainment(
         # the lines were drawn worst first so that the best lies on top; the legend lists best first
         handles = list(ax.patches) + list(reversed(ax.lines))
         ax.legend(handles=handles, loc="best")
-        if title:
-            fig.suptitle(_plain(_short(title)), fontsize=11, color=PALETTE["ink"])
+        _title(fig, title)
     return fig
 
 
@@ -1352,7 +1287,7 @@ def _staircase(points: np.ndarray, corner: np.ndarray) -> np.ndarray:
     for x, y in points:
         if y >= best_y:
             continue  # dominated within the level: adds no step
-        if path and best_y < math.inf:
+        if best_y < math.inf:
             path.append((x, best_y))
         path.append((x, y))
         best_y = y
@@ -1420,7 +1355,7 @@ def save_figure(fig: Figure, path: str | Path) -> Path:
     metadata = (
         {"Date": None} if suffix == "svg" else {"CreationDate": None} if suffix == "pdf" else {}
     )
-    with _Styled():
+    with _styled():
         fig.savefig(path, format=suffix, metadata=metadata)
     return path
 
@@ -1437,7 +1372,7 @@ def to_svg(fig: Figure, *, prefix: str = "fig", label: str | None = None) -> str
     ``<title>``), escaped for HTML.
     """
     buffer = io.StringIO()
-    with _Styled():
+    with _styled():
         fig.savefig(buffer, format="svg", metadata={"Date": None})
     text = buffer.getvalue()
     text = text[text.index("<svg") :]
@@ -1450,8 +1385,6 @@ def to_svg(fig: Figure, *, prefix: str = "fig", label: str | None = None) -> str
         text,
     )
     if label is not None:
-        from html import escape
-
         text = text.replace(
             "<svg ", f'<svg role="img" aria-label="{escape(label, quote=True)}" ', 1
         )

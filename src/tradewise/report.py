@@ -22,14 +22,10 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from tradewise import choose as _choose
 from tradewise import plots
 from tradewise.errors import DataError
 from tradewise.front import Front, objective_matrix, tradeoff_rates
-
-try:  # the choosing methods are optional: the page says so when they are missing
-    from tradewise import choose as _choose
-except ImportError:  # pragma: no cover - only while choose.py is absent
-    _choose = None
 
 __all__ = ["build_report", "write_report", "safety_domains"]
 
@@ -424,16 +420,10 @@ def _row(row: int) -> str:
 
 def _marks(front: Front) -> dict[str, Any]:
     """The knee, the agreement of knee methods and the first pick of every other method."""
-    out: dict[str, Any] = {
-        "knee": None,
-        "knees": {},
-        "picks": {},
-        "methods": {},
-        "available": _choose is not None,
-    }
-    if _choose is None or len(front) < 3:
+    out: dict[str, Any] = {"knee": None, "knees": {}, "picks": {}, "methods": {}}
+    if len(front) < 3:
         return out
-    out["methods"] = dict(getattr(_choose, "METHODS", {}))
+    out["methods"] = dict(_choose.METHODS)
     try:
         out["knees"] = _choose.knee_agreement(front)
         out["knee"] = out["knees"].get("knee")
@@ -441,8 +431,7 @@ def _marks(front: Front) -> dict[str, Any]:
     except (DataError, ValueError) as exc:
         out["error"] = str(exc)
         return out
-    knee_methods = set(getattr(_choose, "KNEE_METHODS", ("knee", "tradeoff", "kneedle")))
-    out["picks"] = {m: r for m, r in picks.items() if m not in knee_methods}
+    out["picks"] = {m: r for m, r in picks.items() if m not in _choose.KNEE_METHODS}
     return out
 
 
@@ -545,10 +534,8 @@ def _seed_spread(front: Front, seeds: pd.DataFrame | None) -> dict[str, Any] | N
 
 
 def _grouped(picks: Mapping[str, int]) -> list[tuple[int, list[str]]]:
-    groups: dict[int, list[str]] = {}
-    for method, row in picks.items():
-        groups.setdefault(int(row), []).append(method)
-    return sorted(groups.items(), key=lambda item: (-len(item[1]), item[0]))
+    """Methods grouped by the row they pick, largest group first, then by row."""
+    return sorted(_choose.agreeing_groups(picks), key=lambda item: (-len(item[1]), item[0]))
 
 
 def _figures(front: Front, history, evaluations, marks, listed, attainment) -> dict[str, str]:
@@ -670,7 +657,11 @@ def _facts(front: Front, listed: dict[str, Any] | None, spread: dict[str, Any] |
 
 
 def _table(
-    headers: Sequence[str], rows: Sequence[Sequence[str]], *, numeric: Sequence[int] = ()
+    headers: Sequence[str],
+    rows: Sequence[Sequence[str]],
+    *,
+    numeric: Sequence[int] = (),
+    css_class: str | None = None,
 ) -> str:
     head = "".join(f"<th>{h}</th>" for h in headers)
     body = []
@@ -680,7 +671,8 @@ def _table(
             for k, c in enumerate(row)
         )
         body.append(f"<tr>{cells}</tr>")
-    return f"<table><thead><tr>{head}</tr></thead><tbody>{''.join(body)}</tbody></table>"
+    opening = f'<table class="{css_class}">' if css_class else "<table>"
+    return f"{opening}<thead><tr>{head}</tr></thead><tbody>{''.join(body)}</tbody></table>"
 
 
 def _case_section(front: Front) -> str:
@@ -801,6 +793,22 @@ def _rates(front: Front, row: int) -> list[str]:
     return lines
 
 
+def _card(front: Front, row: int, *, kind: str, heading: str, rates_label: str, also: str = "") -> str:
+    """One design as a card: its objective and variable values, ``also`` (HTML), then its trade-off rates."""
+    parts = [f'<div class="{kind}"><h3>{heading}</h3>', f"<p>{_design_values(front, row)}</p>"]
+    variables = _variable_values(front, row)
+    if variables:
+        parts.append(f'<p class="muted">{variables}</p>')
+    parts.append(also)
+    rates = _rates(front, row)
+    if rates:
+        parts.append(
+            f'<p class="label">{rates_label}</p><ul>' + "".join(f"<li>{_e(t)}</li>" for t in rates) + "</ul>"
+        )
+    parts.append("</div>")
+    return "".join(parts)
+
+
 def _shortlist_section(
     front: Front, listed: dict[str, Any] | None, marks: dict[str, Any], figures: Mapping[str, str]
 ) -> str:
@@ -840,24 +848,14 @@ def _shortlist_section(
             + [_e(_fmt(record[o.name])) for o in front.objectives]
         )
     numeric = (0,) + tuple(range(3, 3 + len(front.objectives)))
-    parts.append(_table(heads, rows, numeric=numeric).replace("<table>", '<table class="shortlist">', 1))
+    parts.append(_table(heads, rows, numeric=numeric, css_class="shortlist"))
     parts.append('<div class="cards">')
     for number, row in designs:
-        parts.append(f'<div class="pick listed"><h3>{number}. {_row(row)}</h3>')
-        parts.append(f"<p>{_design_values(front, row)}</p>")
-        variables = _variable_values(front, row)
-        if variables:
-            parts.append(f'<p class="muted">{variables}</p>')
-        if others.get(row):
-            parts.append(f"<p>Also picked by: {_e(', '.join(others[row]))}.</p>")
-        rates = _rates(front, row)
-        if rates:
-            parts.append(
-                '<p class="label">Trade-off rates on the whole front</p><ul>'
-                + "".join(f"<li>{_e(t)}</li>" for t in rates)
-                + "</ul>"
-            )
-        parts.append("</div>")
+        also = f"<p>Also picked by: {_e(', '.join(others[row]))}.</p>" if others.get(row) else ""
+        parts.append(
+            _card(front, row, kind="pick listed", heading=f"{number}. {_row(row)}", also=also,
+                  rates_label="Trade-off rates on the whole front")
+        )  # fmt: skip
     parts.append("</div></section>")
     return "".join(parts)
 
@@ -889,12 +887,7 @@ def _method_labels(marks: dict[str, Any]) -> dict[int, list[str]]:
 
 def _picks_section(front: Front, marks: dict[str, Any], figures: Mapping[str, str]) -> str:
     parts = [f'<section id="picks"><h2><span class="num">{_SECTION}</span>Designs worth discussing</h2>']
-    if not marks["available"]:
-        parts.append(
-            '<p class="muted">The choosing methods are not installed with this copy of tradewise, so no '
-            "knee or compromise designs are marked.</p>"
-        )
-    elif marks.get("error"):
+    if marks.get("error"):
         parts.append(f'<p class="muted">No designs could be picked: {_e(marks["error"])}</p>')
     elif len(front) < 3:
         parts.append(
@@ -946,26 +939,15 @@ def _picks_section(front: Front, marks: dict[str, Any], figures: Mapping[str, st
                 + [_e(_fmt(record[o.name])) for o in front.objectives]
             )
         numeric = tuple(range(2, 2 + len(front.objectives)))
-        parts.append(
-            _table(heads, rows, numeric=numeric).replace("<table>", '<table class="picks">', 1)
-        )
+        parts.append(_table(heads, rows, numeric=numeric, css_class="picks"))
         parts.append('<div class="cards">')
         for k, (row, _methods) in enumerate(entries):
-            heading = "Knee design" if k == 0 and marks["knee"] is not None else "Compromise design"
-            kind = "pick knee" if heading == "Knee design" else "pick"
-            parts.append(f'<div class="{kind}"><h3>{heading}: {_row(row)}</h3>')
-            parts.append(f"<p>{_design_values(front, row)}</p>")
-            variables = _variable_values(front, row)
-            if variables:
-                parts.append(f'<p class="muted">{variables}</p>')
-            rates = _rates(front, row)
-            if rates:
-                parts.append(
-                    '<p class="label">Trade-off rates</p><ul>'
-                    + "".join(f"<li>{_e(t)}</li>" for t in rates)
-                    + "</ul>"
-                )
-            parts.append("</div>")
+            is_knee = k == 0 and marks["knee"] is not None
+            heading = "Knee design" if is_knee else "Compromise design"
+            parts.append(
+                _card(front, row, kind="pick knee" if is_knee else "pick", heading=f"{heading}: {_row(row)}",
+                      rates_label="Trade-off rates")
+            )  # fmt: skip
         parts.append("</div>")
         used = [m for _, methods in entries for m in methods]
         explained = "".join(
@@ -1125,7 +1107,7 @@ def _seeds_part(front: Front, spread: dict[str, Any], figures: Mapping[str, str]
     heads = [_e(_SEED_COLUMNS[c]) for c in shown]
     rows = [[_e(_fmt(_plain(v))) for v in record] for record in table[shown].itertuples(index=False)]
     numeric = tuple(k for k, c in enumerate(shown) if c != "status")
-    parts.append(_table(heads, rows, numeric=numeric).replace("<table>", '<table class="seeds">', 1))
+    parts.append(_table(heads, rows, numeric=numeric, css_class="seeds"))
     if "attainment" in figures:
         parts.append(
             f'<figure id="figure-attainment">{figures["attainment"]}<figcaption>Figure {_FIGURE}. Attainment '
@@ -1227,12 +1209,11 @@ def _assumptions_section(front: Front) -> str:
             + "; it compares "
             "fronts of the same case and reference, not designs across cases."
         )
-    if _choose is not None:
-        items.append(
-            "Knee and compromise picks scale each objective by its range on this front (best to worst), so "
-            "they can change when designs are added or removed, and they weigh the objectives equally "
-            "unless weights were given."
-        )
+    items.append(
+        "Knee and compromise picks scale each objective by its range on this front (best to worst), so "
+        "they can change when designs are added or removed, and they weigh the objectives equally "
+        "unless weights were given."
+    )
     if len(front.objectives) == 2:
         items.append(
             "Trade-off rates compare a design with its neighbours on the front, in the objectives' own units."
