@@ -6,7 +6,6 @@ import contextlib
 import functools
 import itertools
 import json
-import math
 import pickle
 import sqlite3
 import struct
@@ -18,6 +17,7 @@ from collections.abc import Iterable
 from pathlib import Path
 from typing import Any
 
+from tradewise import _archive_writer
 from tradewise.errors import StoreError
 
 __all__ = ["Store", "open_store", "SCHEMA_VERSION"]
@@ -80,205 +80,11 @@ CREATE TABLE IF NOT EXISTS states (
 """
 _TABLES = frozenset({"meta", "runs", "evaluations", "generations", "states"})
 
-# The archive writer: a small program of the standard library only, run in a process of its own
-# (``python -c``) so that encoding and writing rows never takes time from the search, and so that
+# The archive writer (tradewise/_archive_writer.py): standard library only, run in a process of its
+# own so that encoding and writing rows never takes time from the search, and so that
 # everything handed to it is committed even when the search process is killed. The same code
 # serves in this process when no writer process can be started. Messages are pickled tuples,
 # each preceded by its length (4 bytes, big-endian); the search process is the only sender.
-_WRITER_PROGRAM = r'''
-import json, math, os, pickle, queue, sqlite3, struct, sys, threading, time
-
-COMMIT_EVERY = 0.4  # seconds an evaluation may wait uncommitted here
-COMMIT_GAP = 0.1    # a generation's end commits at once unless the last commit is younger than this
-INSERT = ("INSERT INTO evaluations (eval_id, run_id, case_hash, design_key, design, results, status,"
-          " message, duration, generation, worker, source_id, created)"
-          " VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)")
-
-
-def finite(value):
-    if isinstance(value, float) and not math.isfinite(value):
-        return None
-    if isinstance(value, dict):
-        return {k: finite(v) for k, v in value.items()}
-    if isinstance(value, (list, tuple)):
-        return [finite(v) for v in value]
-    return value
-
-
-def plain(value):
-    if hasattr(value, "item"):  # a numpy number
-        return value.item()
-    raise TypeError(f"cannot store {type(value).__name__}")
-
-
-_encoder = json.JSONEncoder(default=plain, allow_nan=False, separators=(",", ":"))
-try:  # the C encoder built once; json builds a new one for every call otherwise
-    from json.encoder import c_make_encoder, encode_basestring_ascii
-    _fast = c_make_encoder(None, plain, encode_basestring_ascii, None, ":", ",", False, False, False)
-except (ImportError, TypeError):
-    _fast = None
-
-
-def encode(value):
-    try:
-        return "".join(_fast(value, 0)) if _fast is not None else _encoder.encode(value)
-    except ValueError:  # NaN or infinity: JSON has none
-        return _encoder.encode(finite(value))
-
-
-class Writer:
-    """Applies messages to a connection and decides when to commit."""
-
-    def __init__(self, db):
-        self.db = db
-        self.dirty_since = None
-        self.asked = False
-        self.last_commit = time.monotonic()
-
-    def apply(self, message):
-        kind = message[0]
-        if kind == "rows":
-            self.db.executemany(INSERT, [
-                (i, run, case, key, encode(design), encode(results), status, text, duration, gen, worker, source,
-                 created)
-                for i, run, case, key, design, results, status, text, duration, gen, worker, source, created
-                in message[1]
-            ])
-            self.touch()
-        elif kind == "sql":
-            self.db.execute(message[1], message[2])
-            self.touch()
-        elif kind == "commit":
-            self.asked = True
-        elif kind == "many":
-            for part in message[1]:
-                self.apply(part)
-        elif kind == "reserve":
-            self.commit()
-            return ("reserved", reserve(self.db, message[1]))
-        elif kind in ("sync", "close"):
-            self.commit()
-            return message[1]
-        return None
-
-    def touch(self):
-        if self.dirty_since is None:
-            self.dirty_since = time.monotonic()
-
-    def due(self):
-        if self.dirty_since is None:
-            return False
-        now = time.monotonic()
-        return now - self.dirty_since >= COMMIT_EVERY or (self.asked and now - self.last_commit >= COMMIT_GAP)
-
-    def commit(self):
-        self.db.commit()
-        self.dirty_since = None
-        self.asked = False
-        self.last_commit = time.monotonic()
-
-
-def reserve(db, block):
-    """Move the evaluation id counter past a block of ids; return the id before the block."""
-    db.execute("BEGIN IMMEDIATE")
-    try:
-        row = db.execute("SELECT seq FROM sqlite_sequence WHERE name = 'evaluations'").fetchone()
-        (largest,) = db.execute("SELECT COALESCE(MAX(eval_id), 0) FROM evaluations").fetchone()
-        top = max(row[0] if row else 0, largest)
-        if row:
-            db.execute("UPDATE sqlite_sequence SET seq = ? WHERE name = 'evaluations'", (top + block,))
-        else:
-            db.execute("INSERT INTO sqlite_sequence (name, seq) VALUES ('evaluations', ?)", (top + block,))
-        db.commit()
-    except BaseException:
-        db.rollback()
-        raise
-    return top
-
-
-def read_messages(stream, inbox):
-    while True:
-        head = stream.read(4)
-        if len(head) < 4:
-            inbox.put(None)
-            return
-        (size,) = struct.unpack(">I", head)
-        inbox.put(pickle.loads(stream.read(size)))
-
-
-def main(path):
-    db = sqlite3.connect(path, timeout=60)
-    db.execute("PRAGMA synchronous=NORMAL")
-    writer = Writer(db)
-    inbox = queue.Queue()
-    threading.Thread(target=read_messages, args=(sys.stdin.buffer, inbox), daemon=True).start()
-    out = sys.stdout.buffer
-    while True:
-        try:
-            message = inbox.get(timeout=0.05)
-        except queue.Empty:
-            message = ()
-        if message is None:  # the search process closed the archive, or died: keep what it sent
-            writer.commit()
-            db.close()
-            return
-        if message:
-            reply = writer.apply(message)
-            if reply is not None:
-                data = pickle.dumps(reply)
-                out.write(struct.pack(">I", len(data)) + data)
-                out.flush()
-            if message[0] == "close":
-                db.close()
-                return
-        if writer.due():
-            writer.commit()
-
-
-if __name__ == "__main__":
-    # Ctrl-C reaches the whole process group; the search process decides what to do with it and
-    # then tells this writer to close, so the writer itself must not die of it.
-    import signal
-    signal.signal(signal.SIGINT, signal.SIG_IGN)
-    # os._exit: the reader thread may still be blocked on the input pipe, which a normal interpreter
-    # shutdown does not allow.
-    try:
-        main(sys.argv[1])
-    except BaseException as exc:
-        print(f"{type(exc).__name__}: {exc}", file=sys.stderr, flush=True)
-        os._exit(1)
-    os._exit(0)
-'''
-
-
-def _plain(value: Any) -> Any:
-    if hasattr(value, "item"):
-        value = value.item()
-        if isinstance(value, float) and not math.isfinite(value):
-            return None
-        return value
-    raise TypeError(f"cannot store {type(value).__name__}")
-
-
-def _finite(value: Any) -> Any:
-    """A copy with non-finite floats as None (JSON has no NaN)."""
-    if isinstance(value, float) and not math.isfinite(value):
-        return None
-    if isinstance(value, dict):
-        return {k: _finite(v) for k, v in value.items()}
-    if isinstance(value, list | tuple):
-        return [_finite(v) for v in value]
-    return value
-
-
-_encoder = json.JSONEncoder(default=_plain, allow_nan=False, separators=(",", ":"))
-
-
-def _dumps(value: Any) -> str:
-    try:
-        return _encoder.encode(value)
-    except ValueError:  # a NaN or infinity
-        return _encoder.encode(_finite(value))
 
 
 class _ProcessLink:
@@ -289,7 +95,7 @@ class _ProcessLink:
         self.proc = subprocess.Popen(
             # -I -S: isolated from the user's environment and site packages (a json.py in the current
             # folder must not stand in for the standard library's), and quicker to start.
-            [sys.executable, "-I", "-S", "-c", _WRITER_PROGRAM, str(path)],
+            [sys.executable, "-I", "-S", _archive_writer.__file__, str(path)],
             stdin=subprocess.PIPE, stdout=subprocess.PIPE, stderr=subprocess.PIPE,
         )
         self.tokens = itertools.count(1)
@@ -359,11 +165,9 @@ class _LocalLink:
     """The same writer code run in this process, when no writer process can be started."""
 
     def __init__(self, path: Path) -> None:
-        namespace: dict[str, Any] = {"__name__": "tradewise_archive_writer"}
-        exec(compile(_WRITER_PROGRAM, "<archive writer>", "exec"), namespace)
         self.db = sqlite3.connect(path, timeout=60, check_same_thread=False)
         self.db.execute("PRAGMA synchronous=NORMAL")
-        self.writer = namespace["Writer"](self.db)
+        self.writer = _archive_writer.Writer(self.db)
         self.lock = threading.Lock()
         self.reserved: list[int] = []
 
@@ -622,7 +426,7 @@ class Store:
             cursor = self._write_now(
                 "INSERT INTO runs (case_hash, case_title, case_path, case_text, settings, seed, versions,"
                 " status, message, started) VALUES (?, ?, ?, ?, ?, ?, ?, 'running', '', ?)",
-                (case_hash, case_title, case_path, case_text, _dumps(settings), seed, _dumps(versions), time.time()),
+                (case_hash, case_title, case_path, case_text, _archive_writer.encode(settings), seed, _archive_writer.encode(versions), time.time()),
             )
             self._start_writer()  # starts while the search sets up, ready by the first evaluation
             return int(cursor.lastrowid)
@@ -635,7 +439,7 @@ class Store:
                 raise KeyError(key)
         if not fields:
             return
-        values = [_dumps(v) if k in {"reference", "settings"} else v for k, v in fields.items()]
+        values = [_archive_writer.encode(v) if k in {"reference", "settings"} else v for k, v in fields.items()]
         assignments = ", ".join(f"{key} = ?" for key in fields)
         with self._lock:
             self._write_now(f"UPDATE runs SET {assignments} WHERE run_id = ?", (*values, run_id))
@@ -822,7 +626,7 @@ class Store:
             messages = [("rows", self._rows)] if self._rows else []
             self._rows = []
             messages.append(("sql", "INSERT OR REPLACE INTO generations (run_id, generation, row) VALUES (?, ?, ?)",
-                             (run_id, generation, _dumps(row))))
+                             (run_id, generation, _archive_writer.encode(row))))
             if state is not None:
                 messages.append(("sql", "INSERT OR REPLACE INTO states (run_id, generation, blob) VALUES (?, ?, ?)",
                                  (run_id, generation, state)))
