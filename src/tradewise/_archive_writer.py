@@ -131,7 +131,11 @@ def read_messages(stream, inbox):
             inbox.put(None)
             return
         (size,) = struct.unpack(">I", head)
-        inbox.put(pickle.loads(stream.read(size)))
+        try:
+            inbox.put(pickle.loads(stream.read(size)))
+        except BaseException as exc:  # e.g. a value this process cannot unpickle: stop, do not hang
+            inbox.put(exc)
+            return
 
 
 def main(path):
@@ -146,6 +150,9 @@ def main(path):
             message = inbox.get(timeout=0.05)
         except queue.Empty:
             message = ()
+        if isinstance(message, BaseException):
+            writer.commit()
+            raise message
         if message is None:  # the search process closed the archive, or died: keep what it sent
             writer.commit()
             db.close()
