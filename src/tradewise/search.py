@@ -14,7 +14,7 @@ import pickle
 import platform
 import time
 from collections.abc import Callable
-from dataclasses import dataclass, field
+from dataclasses import dataclass, field, replace
 from importlib import metadata
 from pathlib import Path
 from typing import Any
@@ -264,6 +264,7 @@ class _Run:
         # each over when it proposes it again instead of evaluating it twice.
         self.adopt: dict[str, dict[str, Any]] = {}
         self.state_saved_at = -math.inf
+        self.model = None  # made on first use, so that a run that evaluates nothing imports nothing
 
     # -- one evaluation --------------------------------------------------------------------
     def record(self, design: dict[str, Any], key: str, outcome: Outcome | dict[str, Any], generation: int,
@@ -402,9 +403,13 @@ def _make_algorithm(case: Case, space: Space, population: int | None, seed: int)
         eliminate_duplicates=True,
     )
     if n_obj <= 3:
-        return NSGA2(pop_size=population, **common), "NSGA-II"
+        return NSGA2(pop_size=population, **common), _algorithm_name(n_obj)
     directions = get_reference_directions("energy", n_obj, population, seed=seed)
-    return NSGA3(directions, pop_size=population, **common), "NSGA-III"
+    return NSGA3(directions, pop_size=population, **common), _algorithm_name(n_obj)
+
+
+def _algorithm_name(n_obj: int) -> str:
+    return "NSGA-II" if n_obj <= 3 else "NSGA-III"
 
 
 def _problem(case: Case, space: Space) -> Problem:
@@ -607,7 +612,7 @@ def resume_study(
         archive.update_run(run_id, status="running", message="resumed", settings=case.search.as_dict())
         executor = make_executor(workers, dask=dask, scheduler=scheduler)
         try:
-            return _loop(run, algorithm, "NSGA-II" if len(case.objectives) <= 3 else "NSGA-III", space, executor,
+            return _loop(run, algorithm, _algorithm_name(len(case.objectives)), space, executor,
                          progress, on_evaluation, started=record["started"] or time.time())
         finally:
             executor.close()
@@ -642,21 +647,7 @@ def _restore(run: _Run, archive: Store, run_id: int, record: dict[str, Any], *, 
         if row["generation"] != current:
             run.update_front(list(range(start, len(run.records))))
             start, current = len(run.records), row["generation"]
-        violation = 0.0 if row["status"] == "ok" else _FAILED_PENALTY
-        if row["status"] == "ok":
-            violation = sum(c.violation(results[c.name]) for c in case.constraints)
-        run.records.append({"eval_id": row["eval_id"], "generation": row["generation"], "status": row["status"],
-                            "feasible": row["status"] == "ok" and violation == 0.0, "violation": violation,
-                            "cached": bool(row["cached"]), "message": row["message"],
-                            "duration": row["duration"], "worker": row["worker"], **design, **results})
-        if row["cached"]:
-            run.n_cached += 1
-        else:
-            run.n_evals += 1
-            run.memo[key] = {**outcome, "eval_id": row["eval_id"]}
-            if row["status"] != "ok":
-                run.n_failed += 1
-                run.first_failure = run.first_failure or row["message"]
+        run.record(design, key, outcome, row["generation"], cached=bool(row["cached"]), eval_id=row["eval_id"])
     run.update_front(list(range(start, len(run.records))))
     history = archive.history(run_id)
     run.history = history.to_dict("records") if len(history) else []
@@ -847,13 +838,11 @@ def _take_over_leftovers(run: _Run) -> None:
 
 
 def _model_for(run: _Run):
-    model = getattr(run, "_model", None)
-    if model is None:
-        model = make_model(run.case)
-        if hasattr(model, "load"):
-            model.load()  # import errors surface once, before any evaluation
-        run._model = model
-    return model
+    if run.model is None:
+        run.model = make_model(run.case)
+        if hasattr(run.model, "load"):
+            run.model.load()  # import errors surface once, before any evaluation
+    return run.model
 
 
 def _stalled(history: list[dict[str, Any]], window: int, tolerance: float) -> bool:
@@ -912,10 +901,6 @@ def _finish(run: _Run, status: str, algorithm_name: str, started: float) -> Stud
     front = Front.from_table(
         front_table, case.objectives, units=units, variables=case.variable_names,
         constraints=case.constraint_names, reference=run.reference, meta=meta,
-    ) if len(front_table) else Front(
-        table=front_table.reset_index(drop=True), objectives=case.objectives, units=units,
-        variables=tuple(case.variable_names), constraints=tuple(case.constraint_names),
-        reference=tuple(run.reference) if run.reference is not None else None, meta=meta,
     )
     least = None
     parts = [f"Stopped after {run.n_evals} evaluations in {len(run.history)} generations: "
@@ -993,11 +978,7 @@ def save_run(result: StudyResult, folder: str | Path) -> dict[str, Path]:
     meta = dict(result.front.meta)
     meta.update({"message": result.message, "hypervolume": result.hypervolume,
                  "store": result.store_path.name if result.store_path else None, "run_id": result.run_id})
-    front = Front(
-        table=result.front.table, objectives=result.front.objectives, units=result.front.units,
-        variables=result.front.variables, constraints=result.front.constraints,
-        reference=result.front.reference, meta=meta,
-    )
+    front = replace(result.front, meta=meta)
     if len(front):
         written["front"], written["meta"] = front.to_csv(folder / "front.csv")
     else:
@@ -1055,10 +1036,7 @@ class RepeatsResult:
     @property
     def spread(self) -> dict[str, float]:
         """Median, smallest and largest hypervolume of the single runs."""
-        values = np.asarray(self.hypervolumes, dtype=float)
-        if len(values) == 0:
-            return {"median": math.nan, "min": math.nan, "max": math.nan}
-        return {"median": float(np.median(values)), "min": float(values.min()), "max": float(values.max())}
+        return _spread(self.hypervolumes)
 
     def __repr__(self) -> str:
         s = self.spread
@@ -1066,6 +1044,13 @@ class RepeatsResult:
             f"RepeatsResult({len(self.runs)} seeds, front={len(self.front)} designs, hypervolume={self.hypervolume:.6g}, "
             f"single runs median {s['median']:.6g} [{s['min']:.6g}, {s['max']:.6g}])"
         )
+
+
+def _spread(values: Any) -> dict[str, float]:
+    values = np.asarray(values, dtype=float)
+    if len(values) == 0:
+        return {"median": math.nan, "min": math.nan, "max": math.nan}
+    return {"median": float(np.median(values)), "min": float(values.min()), "max": float(values.max())}
 
 
 def _one_seed(case: Case, seed: int, store: str | Path | None, workers: int | None) -> StudyResult:
@@ -1216,12 +1201,12 @@ def _merge_repeats(case: Case, runs: list[StudyResult], *, interrupted: bool) ->
         statuses[0] if len(set(statuses)) == 1 else "mixed")
     n_evals = sum(r.n_evals for r in runs)
     n_failed = sum(r.n_failed for r in runs)
-    hv_values = np.asarray(hvs, dtype=float)
+    spread = _spread(hvs)
     meta = dict(runs[0].meta)
     meta.update({
         "seed": seeds[0], "seeds": list(seeds), "n_seeds": len(seeds), "seed_column": column,
-        "seed_hypervolumes": list(hvs), "hypervolume_median": float(np.median(hv_values)),
-        "hypervolume_min": float(hv_values.min()), "hypervolume_max": float(hv_values.max()),
+        "seed_hypervolumes": list(hvs), "hypervolume_median": spread["median"],
+        "hypervolume_min": spread["min"], "hypervolume_max": spread["max"],
         "status": status, "stop_reason": "; ".join(f"seed {r.seed}: {STATUS_TEXT.get(r.status, r.status)}" for r in runs),
         "n_evals": n_evals, "n_gen": sum(r.n_gen for r in runs), "n_failed": n_failed,
         "n_cached": sum(r.n_cached for r in runs),
@@ -1263,7 +1248,7 @@ def _merge_repeats(case: Case, runs: list[StudyResult], *, interrupted: bool) ->
     if n_failed:
         parts.append(f"{n_failed} evaluation(s) failed.")
     if len(front):
-        s = {"median": float(np.median(hv_values)), "min": float(hv_values.min()), "max": float(hv_values.max())}
+        s = spread
         parts.append(
             f"Merged front of {len(front)} designs, hypervolume {merged_hv:.6g}; single runs: median "
             f"{s['median']:.6g}, min {s['min']:.6g}, max {s['max']:.6g} (spread {s['max'] - s['min']:.3g}) "
