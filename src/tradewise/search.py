@@ -10,7 +10,6 @@ from __future__ import annotations
 
 import json
 import math
-import pickle
 import platform
 import time
 from collections.abc import Callable
@@ -32,6 +31,7 @@ from pymoo.operators.sampling.rnd import FloatRandomSampling
 from pymoo.problems.static import StaticProblem
 from pymoo.util.ref_dirs import get_reference_directions
 
+from tradewise._pymoo import decode_state, encode_state, restore_state, search_state
 from tradewise.case import Case, load_case
 from tradewise.errors import ModelError, StoreError
 from tradewise.executors import InProcess, make_executor
@@ -54,7 +54,7 @@ STATUS_TEXT = {
 _FAILED_PENALTY = 1e6  # violation given to a failed evaluation: always worse than any real violation
 _FAILED_OBJECTIVE = 1e30  # objective values given to a failed design when the case has no constraints
 _EXHAUSTED_AFTER = 25  # generations in a row without a new design before giving up
-# The search state (pickled algorithm, ~50 kB) is saved after a generation when this many seconds
+# The search state (plain data: the surviving population, the random generator, ~50 kB) is saved after a generation when this many seconds
 # have passed since the last save, and at the end. Resuming from an older state costs nothing but
 # pymoo time: the generations after it are replayed with results taken from the archive.
 _STATE_EVERY = 1.0
@@ -589,23 +589,18 @@ def resume_study(
             settings["evaluations"] = evaluations
         case = case.with_search(**{k: v for k, v in settings.items() if v is not None})
         space = Space(case)
+        algorithm, _ = _make_algorithm(case, space, case.search.population, case.search.seed)
+        algorithm.setup(_problem(case, space), termination=NoTermination(), seed=case.search.seed, verbose=False)
         saved = archive.state(run_id)
-        if saved is None:
-            # Killed before its first state was saved: the same seed proposes the same designs again.
+        state = decode_state(saved[1]) if saved is not None else None
+        if state is None:
+            # No usable state (killed before the first was saved, or a state in an older form, which
+            # is never unpickled): the same seed proposes the same designs again, and every design
+            # the run had evaluated is taken over from the archive, so only pymoo's time is spent.
             state_generation = 0
-            algorithm, _ = _make_algorithm(case, space, case.search.population, case.search.seed)
-            algorithm.setup(_problem(case, space), termination=NoTermination(), seed=case.search.seed,
-                            verbose=False)
         else:
-            state_generation, blob = saved
-            try:
-                algorithm = pickle.loads(blob)
-            except Exception as exc:
-                raise StoreError(
-                    f"{path}: run {run_id}'s saved search state cannot be loaded ({type(exc).__name__}: {exc}); "
-                    "it was probably written by other versions of pymoo or numpy"
-                ) from None
-            algorithm.repair.space = space
+            state_generation = saved[0]
+            restore_state(algorithm, state, where=f"{path}: run {run_id}")
         archive.discard_after(run_id, state_generation)
         run = _Run(case, archive, run_id)
         _restore(run, archive, run_id, record, upto=state_generation)
@@ -811,19 +806,25 @@ def _loop(run: _Run, algorithm, algorithm_name: str, space: Space, executor: InP
             if run.store is not None:
                 state = None
                 if time.monotonic() - run.state_saved_at >= _STATE_EVERY:
-                    state, saved_generation = pickle.dumps(algorithm), generation
+                    state, saved_generation = _saved_state(run, algorithm, space, generation), generation
                     run.state_saved_at = time.monotonic()
                 run.store.add_generation(run.run_id, row, state=state)
             if progress:
                 progress(row)
         if run.store is not None and saved_generation != generation:
-            run.store.save_state(run.run_id, generation, pickle.dumps(algorithm))
+            run.store.save_state(run.run_id, generation, _saved_state(run, algorithm, space, generation))
     except KeyboardInterrupt:
         status = "interrupted"
         # Designs evaluated in the interrupted generation count too: they are in the archive.
         run.update_front(list(range(fronted, len(run.records))))
     _take_over_leftovers(run)
     return _finish(run, status, algorithm_name, started)
+
+
+def _saved_state(run: _Run, algorithm, space: Space, generation: int) -> bytes:
+    """The search state after ``generation`` as plain data (JSON), with the survivors' evaluation ids."""
+    ids = [run.memo.get(design_key(space.decode(x)), {}).get("eval_id") for x in algorithm.pop.get("X").tolist()]
+    return encode_state(search_state(algorithm, generation=generation, eval_ids=ids))
 
 
 def _take_over_leftovers(run: _Run) -> None:

@@ -657,7 +657,7 @@ class Store:
         return pd.DataFrame.from_records([json.loads(r) for (r,) in rows])
 
     def state(self, run_id: int) -> tuple[int, bytes] | None:
-        """The newest saved search state of the run as ``(generation, pickled algorithm)``."""
+        """The newest saved search state of the run as ``(generation, JSON bytes)``; never unpickled."""
         rows = self._query("SELECT generation, blob FROM states WHERE run_id = ?", (run_id,))
         return (int(rows[0][0]), bytes(rows[0][1])) if rows else None
 
