@@ -183,3 +183,122 @@ def test_dtlz2_median_attainment_surface_near_the_true_front():
     a, b = np.meshgrid(np.linspace(0, math.pi / 2, 151), np.linspace(0, math.pi / 2, 151))
     sphere = np.c_[(np.cos(a) * np.cos(b)).ravel(), (np.cos(a) * np.sin(b)).ravel(), np.sin(a).ravel()]
     assert moocore.igd_plus(median, ref=sphere) <= 0.04
+
+
+# ------------------------------------------------------------------------ interrupted sets of seeds
+NO_WORST_MODEL = '''
+import json, os, time
+
+def evaluate(design):
+    time.sleep(float(os.environ.get("TW_TEST_SLEEP", "0")))
+    x, y = design["x"], design["y"]
+    log = os.environ.get("TW_EVAL_LOG")
+    if log:
+        with open(log, "a", encoding="utf-8") as handle:
+            handle.write("1\\n")
+    return {"cost": x + 0.3 * y, "grip": 10 * x ** 0.5 - 2 * y}
+'''
+
+NO_WORST_TOML = '''
+title = "tiny, no worst values"
+model = "model.py:evaluate"
+[variables]
+x = { type = "real", low = 0.0, high = 1.0 }
+y = { type = "real", low = 0.0, high = 1.0 }
+[objectives]
+cost = { goal = "min", unit = "EUR" }
+grip = { goal = "max", unit = "N" }
+[search]
+population = 10
+evaluations = 60
+seed = 4
+stall_generations = 0
+'''
+
+
+def _merged(result) -> pd.DataFrame:
+    names = ["x", "y", "cost", "grip", "seed"]
+    return result.front.table[names].sort_values(names).reset_index(drop=True)
+
+
+def test_an_interrupted_set_of_seeds_resumes_every_seed(make_case, tmp_path):
+    """Three seeds interrupted in the second: the result says which seeds did not run, and resuming the
+    archive finishes the second, runs the third and merges all three, as one uninterrupted set would."""
+    from tradewise.search import resume_repeats
+
+    folder = make_case(NO_WORST_TOML, NO_WORST_MODEL)
+
+    def stop_in_seed_five(row):
+        if row["seed"] == 5 and row["generation"] == 2:
+            raise KeyboardInterrupt
+
+    cut = run_repeats(folder, 3, store=tmp_path / "cut.sqlite", progress=stop_in_seed_five)
+    assert cut.status == "interrupted" and cut.seeds == (4, 5)
+    assert "Seed(s) 6 did not run" in cut.message and cut.meta["missing_seeds"] == [6]
+    resumed = resume_repeats(tmp_path / "cut.sqlite")
+    whole = run_repeats(folder, 3, store=tmp_path / "whole.sqlite")
+    assert resumed.seeds == whole.seeds == (4, 5, 6)
+    assert [r.status for r in resumed.runs] == ["budget"] * 3 and resumed.status == "budget"
+    assert resumed.n_evals == whole.n_evals == 180
+    pd.testing.assert_frame_equal(_merged(resumed), _merged(whole))
+    assert resumed.hypervolumes == whole.hypervolumes
+    with open_store(tmp_path / "cut.sqlite", create=False) as archive:
+        assert sorted(archive.runs()["seed"]) == [4, 5, 6]
+
+
+def test_one_reference_for_everything_about_a_set_of_seeds(make_case, tmp_path):
+    """Without `worst` each seed fixes its own reference, yet the history, each seed's folder, seeds.csv and
+    the messages all use the common one: the last history row of each seed equals its seeds.csv value."""
+    folder = make_case(NO_WORST_TOML, NO_WORST_MODEL)
+    result = run_repeats(folder, 3, evaluations=100)
+    save_repeats(result, tmp_path / "run")
+    seeds = pd.read_csv(tmp_path / "run" / "seeds.csv").set_index("seed")
+    history = pd.read_csv(tmp_path / "run" / "history.csv")
+    for run, hv in zip(result.runs, result.hypervolumes, strict=True):
+        last = history[history["seed"] == run.seed]["hypervolume"].iloc[-1]
+        assert last == pytest.approx(hv, rel=1e-12) == pytest.approx(seeds.loc[run.seed, "hypervolume"])
+        meta = json.loads((tmp_path / "run" / "seeds" / f"seed-{run.seed}" / "front.json").read_text())
+        assert tuple(meta["reference_point"]) == pytest.approx(result.reference, rel=1e-12)
+        assert meta["hypervolume"] == pytest.approx(hv, rel=1e-12)
+        assert f"hypervolume {hv:.6g} on the seeds' common reference point" in run.message
+    # The seeds really had different references of their own (else this test would prove nothing).
+    alone = [run_study(folder, seed=s, evaluations=100).reference for s in result.seeds]
+    assert len(set(alone)) > 1
+
+
+@pytest.mark.slow
+def test_cli_set_of_seeds_killed_then_resumed(make_case, tmp_path):
+    """`run --seeds 3` killed with SIGKILL part-way; `resume STORE` finishes every seed and writes the merged
+    folder with all three seeds, as the uninterrupted command would."""
+    import os
+    import signal
+    import subprocess
+    import sys
+    import time
+
+    folder = make_case(NO_WORST_TOML, NO_WORST_MODEL)
+    log = tmp_path / "log.txt"
+    env = dict(os.environ, TW_EVAL_LOG=str(log), TW_TEST_SLEEP="0.02")
+    args = [sys.executable, "-m", "tradewise.cli", "run", str(folder), "--seeds", "3", "--out",
+            str(tmp_path / "run"), "--quiet"]
+    proc = subprocess.Popen(args, env=env, start_new_session=True, stdout=subprocess.DEVNULL,
+                            stderr=subprocess.DEVNULL)
+    deadline = time.monotonic() + 60
+    while not log.exists() or len(log.read_text().splitlines()) < 80:
+        assert proc.poll() is None and time.monotonic() < deadline
+        time.sleep(0.02)
+    os.killpg(proc.pid, signal.SIGKILL)
+    proc.wait()
+    store = tmp_path / "run" / "archive.sqlite"
+    done = subprocess.run([sys.executable, "-m", "tradewise.cli", "resume", str(store), "--quiet"],
+                          env=dict(env, TW_TEST_SLEEP="0"), capture_output=True, text=True, timeout=300)
+    assert done.returncode == 0, done.stderr
+    seeds = pd.read_csv(tmp_path / "run" / "seeds.csv")
+    assert seeds["seed"].tolist() == [4, 5, 6] and (seeds["status"] == "budget").all()
+    assert (seeds["evaluations"] == 60).all()
+    whole = run_repeats(folder, 3)
+    front = pd.read_csv(tmp_path / "run" / "front.csv")
+    front.columns = [c.split(" [")[0] for c in front.columns]
+    names = ["x", "y", "cost", "grip", "seed"]
+    pd.testing.assert_frame_equal(front[names].sort_values(names).reset_index(drop=True), _merged(whole),
+                                  check_dtype=False)

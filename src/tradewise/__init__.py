@@ -7,7 +7,7 @@ from tradewise.front import Front, hypervolume, nondominated, read_front
 __version__ = "0.1.0"
 
 _LAZY = {"run_study": "search", "resume_study": "search", "save_run": "search", "run_repeats": "search",
-         "StudyResult": "search"}
+         "resume_repeats": "search", "StudyResult": "search"}
 
 
 def __getattr__(name: str):
@@ -30,6 +30,7 @@ __all__ = [
     "resume_study",
     "save_run",
     "run_repeats",
+    "resume_repeats",
     "StudyResult",
     "Front",
     "read_front",

@@ -199,6 +199,10 @@ def resume_command(store, run_id, evaluations, out, case, workers, dask, schedul
         run_id = run_id or archive.latest_run()
         record = archive.run(run_id)
         done = archive.count_evaluations(run_id)
+    folder = Path(out) if out else Path(store).parent
+    if (record["settings"] or {}).get("seed_set"):
+        return _resume_seeds(store, run_id, folder, evaluations=evaluations, case=case, workers=workers, dask=dask,
+                             scheduler=scheduler, quiet=quiet)
     budget = evaluations or record["settings"]["evaluations"]
     bar = _Progress(max(budget, done), quiet=quiet, initial=done)
     try:
@@ -208,12 +212,22 @@ def resume_command(store, run_id, evaluations, out, case, workers, dask, schedul
         )
     finally:
         bar.close()
-    folder = Path(out) if out else Path(store).parent
     written = save_run(result, folder)
     _summary(result)
     click.echo(f"Resumed run {run_id}; wrote {', '.join(p.name for p in written.values())} to {folder}")
     if result.status == "interrupted":
         sys.exit(130)
+
+
+def _resume_seeds(store, run_id, folder, *, quiet: bool, **options) -> None:
+    """``resume`` of a run made with --seeds: every seed of the set is finished, and the folder written anew."""
+    from pathlib import Path
+
+    from tradewise.search import resume_repeats
+
+    click.echo(f"Run {run_id} is one of a set of seeds: resuming every unfinished seed of the set.", err=True)
+    result = resume_repeats(store, run_id=run_id, on_run=_seed_finished(quiet), **options)
+    _write_seeds(result, folder, Path(store))
 
 
 @main.command("check")
@@ -448,24 +462,41 @@ def report_command(run, out, shortlist_path) -> None:
 
 def _run_seeds(case, n_seeds: int, folder, store_path, *, quiet: bool, workers, **settings) -> None:
     """``run --seeds K``: K runs, their merged front, each seed's own, the attainment surfaces and the spread."""
-    from tradewise.compare import attainment, write_attainment
-    from tradewise.search import run_repeats, save_repeats
+    from tradewise.search import run_repeats
 
     parallel = bool(workers and workers > 1 and not (settings.get("dask") or settings.get("scheduler")))
     budget = (settings.get("evaluations") or case.search.evaluations) * n_seeds
     bar = _Progress(budget, quiet=quiet or parallel)
 
-    def finished(run) -> None:
-        if not quiet:
-            click.echo(f"seed {run.seed}: {run.message}", err=True)
-
     try:
         result = run_repeats(case, n_seeds, store=store_path, workers=workers, progress=bar.generation,
-                             on_evaluation=bar.evaluation, on_run=finished, **settings)
+                             on_evaluation=bar.evaluation, on_run=_seed_finished(quiet), **settings)
     finally:
         bar.close()
+    _write_seeds(result, folder, store_path)
+
+
+def _seed_finished(quiet: bool):
+    """A line as each seed ends; its hypervolume comes at the end, on the seeds' common reference point."""
+    from tradewise.search import STATUS_TEXT
+
+    def finished(run) -> None:
+        if not quiet:
+            click.echo(f"seed {run.seed}: {STATUS_TEXT.get(run.status, run.status)} after {run.n_evals} "
+                       f"evaluations; front of {len(run.front)} designs", err=True)
+
+    return finished
+
+
+def _write_seeds(result, folder, store_path) -> None:
+    """Write the folder of a set of seeds (merged front, each seed's folder, attainment) and summarise it."""
+    from tradewise.compare import attainment, write_attainment
+    from tradewise.search import save_repeats
+
     written = save_repeats(result, folder)
     _summary(result)
+    for run, hv in zip(result.runs, result.hypervolumes, strict=True):
+        click.echo(f"  seed {run.seed}: hypervolume {hv:.6g} on the common reference point")
     fronts = [run.front for run in result.runs]
     if len(result.runs) > 1 and any(len(f) for f in fronts) and len(result.front.objectives) <= 3:
         spread = attainment(fronts, reference=result.reference)
@@ -474,6 +505,7 @@ def _run_seeds(case, n_seeds: int, folder, store_path, *, quiet: bool, workers, 
             click.echo(line)
     click.echo(f"Wrote {', '.join(p.name for p in written.values())}, seeds/ and {store_path.name} to {folder}")
     if result.status == "interrupted":
+        click.echo(f"Continue every seed with: tradewise resume {store_path}", err=True)
         sys.exit(130)
 
 

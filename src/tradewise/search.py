@@ -12,6 +12,7 @@ import json
 import math
 import platform
 import time
+import uuid
 from collections.abc import Callable
 from dataclasses import dataclass, field, replace
 from importlib import metadata
@@ -39,7 +40,8 @@ from tradewise.front import Front, hypervolume, nondominated, reference_point
 from tradewise.models import Outcome, make_model
 from tradewise.store import Store, open_store
 
-__all__ = ["StudyResult", "run_study", "middle_design", "resume_study", "save_run", "design_key", "Space", "STATUS_TEXT"]
+__all__ = ["StudyResult", "run_study", "middle_design", "resume_study", "save_run", "design_key", "Space", "STATUS_TEXT",
+           "run_repeats", "resume_repeats", "save_repeats", "RepeatsResult"]
 
 #: Why a run stopped, in words for the summary.
 STATUS_TEXT = {
@@ -457,6 +459,7 @@ def run_study(
     executor: InProcess | None = None,
     progress: Callable[[dict[str, Any]], None] | None = None,
     on_evaluation: Callable[[dict[str, Any]], None] | None = None,
+    seed_set: dict[str, Any] | None = None,
 ) -> StudyResult:
     """Search a case for its Pareto front.
 
@@ -478,6 +481,10 @@ def run_study(
         Called with each generation's history row.
     on_evaluation : callable, optional
         Called with each evaluation's record as it completes.
+    seed_set : dict, optional
+        Set by :func:`run_repeats`: the set of seeds this run is one of
+        (``{"id": ..., "seeds": [...]}``), recorded with the run so that
+        resuming any of them resumes them all.
 
     Returns
     -------
@@ -517,7 +524,7 @@ def run_study(
                 case_title=case.title,
                 case_path=str(case.path.resolve()),
                 case_text=case.text,
-                settings=case.search.as_dict(),
+                settings=case.search.as_dict() | ({"seed_set": seed_set} if seed_set else {}),
                 seed=case.search.seed,
                 versions=_versions(),
             )
@@ -542,6 +549,7 @@ def resume_study(
     workers: int | None = None,
     dask: bool = False,
     scheduler: str | None = None,
+    executor: InProcess | None = None,
     progress: Callable[[dict[str, Any]], None] | None = None,
     on_evaluation: Callable[[dict[str, Any]], None] | None = None,
 ) -> StudyResult:
@@ -572,19 +580,9 @@ def resume_study(
     try:
         run_id = run_id if run_id is not None else archive.latest_run()
         record = archive.run(run_id)
-        if case is None:
-            case_path = Path(record["case_path"])
-            if not case_path.exists():
-                raise StoreError(f"{path}: run {run_id}'s case file {case_path} no longer exists; pass the case")
-            case = load_case(case_path)
-        elif not isinstance(case, Case):
-            case = load_case(case)
-        if case.hash != record["case_hash"]:
-            raise StoreError(
-                f"{path}: run {run_id} belongs to case {record['case_title']!r} (hash {record['case_hash']}), "
-                f"not to {case.path} (hash {case.hash}); the case or its model changed"
-            )
+        case = _case_of_run(path, record, case)
         settings = dict(record["settings"])
+        seed_set = settings.pop("seed_set", None)
         if evaluations is not None:
             settings["evaluations"] = evaluations
         case = case.with_search(**{k: v for k, v in settings.items() if v is not None})
@@ -604,15 +602,36 @@ def resume_study(
         archive.discard_after(run_id, state_generation)
         run = _Run(case, archive, run_id)
         _restore(run, archive, run_id, record, upto=state_generation)
-        archive.update_run(run_id, status="running", message="resumed", settings=case.search.as_dict())
-        executor = make_executor(workers, dask=dask, scheduler=scheduler)
+        archive.update_run(run_id, status="running", message="resumed",
+                           settings=case.search.as_dict() | ({"seed_set": seed_set} if seed_set else {}))
+        own_executor = executor is None
+        executor = executor or make_executor(workers, dask=dask, scheduler=scheduler)
         try:
             return _loop(run, algorithm, _algorithm_name(len(case.objectives)), space, executor,
                          progress, on_evaluation, started=record["started"] or time.time())
         finally:
-            executor.close()
+            if own_executor:
+                executor.close()
     finally:
         archive.close()
+
+
+def _case_of_run(path: Path, record: dict[str, Any], case: Case | str | Path | None) -> Case:
+    """The case of an archived run: the given one, or the case file recorded with it; its hash must match."""
+    run_id = record["run_id"]
+    if case is None:
+        case_path = Path(record["case_path"])
+        if not case_path.exists():
+            raise StoreError(f"{path}: run {run_id}'s case file {case_path} no longer exists; pass the case")
+        case = load_case(case_path)
+    elif not isinstance(case, Case):
+        case = load_case(case)
+    if case.hash != record["case_hash"]:
+        raise StoreError(
+            f"{path}: run {run_id} belongs to case {record['case_title']!r} (hash {record['case_hash']}), "
+            f"not to {case.path} (hash {case.hash}); the case or its model changed"
+        )
+    return case
 
 
 def _restore(run: _Run, archive: Store, run_id: int, record: dict[str, Any], *, upto: int) -> None:
@@ -1054,9 +1073,12 @@ def _spread(values: Any) -> dict[str, float]:
     return {"median": float(np.median(values)), "min": float(values.min()), "max": float(values.max())}
 
 
-def _one_seed(case: Case, seed: int, store: str | Path | None, workers: int | None) -> StudyResult:
-    """One run of a repeat, in a worker process (module level so that it pickles)."""
-    return run_study(case, seed=seed, store=store, workers=workers)
+def _one_seed_of_set(case: Case, seed: int, store: str | Path | None, workers: int | None,
+                     seed_set: dict[str, Any], run_id: int | None, evaluations: int | None) -> StudyResult:
+    """One run of a set of seeds, started or resumed, in a worker process (module level so that it pickles)."""
+    if run_id is not None:
+        return resume_study(store, run_id=run_id, evaluations=evaluations, case=case, workers=workers)
+    return run_study(case, seed=seed, store=store, workers=workers, seed_set=seed_set)
 
 
 def run_repeats(
@@ -1119,9 +1141,6 @@ def run_repeats(
     >>> result.spread                                                     # doctest: +SKIP
     {'median': ..., 'min': ..., 'max': ...}
     """
-    import concurrent.futures as cf
-    import contextlib
-
     from tradewise.errors import CaseError
 
     if isinstance(n_seeds, bool) or not isinstance(n_seeds, int | np.integer) or n_seeds < 1:
@@ -1135,6 +1154,25 @@ def run_repeats(
     if store is not None:
         # Create the file and switch it to WAL once, before several writers open it.
         open_store(store).close()
+    seed_set = {"id": uuid.uuid4().hex, "seeds": seeds}
+    return _run_seed_set(case, seeds, {}, seed_set=seed_set, store=store, workers=workers, dask=dask,
+                         scheduler=scheduler, progress=progress, on_evaluation=on_evaluation, on_run=on_run)
+
+
+def _run_seed_set(case: Case, seeds: list[int], existing: dict[int, int], *, seed_set: dict[str, Any],
+                  store: str | Path | None, workers: int | None, dask: bool, scheduler: str | None,
+                  progress, on_evaluation, on_run, evaluations: int | None = None) -> RepeatsResult:
+    """Run (or, for seeds in ``existing``, resume by run id) every seed of a set, and merge their fronts."""
+    import concurrent.futures as cf
+    import contextlib
+
+    def start(s: int, inner: int | None = None, executor=None, tagged=None):
+        if s in existing:
+            return resume_study(store, run_id=existing[s], evaluations=evaluations, case=case, workers=inner,
+                                executor=executor, progress=tagged, on_evaluation=on_evaluation)
+        return run_study(case, seed=s, store=store, workers=inner, executor=executor, progress=tagged,
+                         on_evaluation=on_evaluation, seed_set=seed_set)
+
     results: dict[int, StudyResult] = {}
     interrupted = False
     parallel = bool(workers and workers > 1 and not (dask or scheduler) and len(seeds) > 1)
@@ -1142,7 +1180,8 @@ def run_repeats(
         n_proc = min(int(workers), len(seeds))
         inner = int(workers) // n_proc
         pool = cf.ProcessPoolExecutor(max_workers=n_proc)
-        futures = {pool.submit(_one_seed, case, s, store, inner if inner > 1 else None): s for s in seeds}
+        futures = {pool.submit(_one_seed_of_set, case, s, store, inner if inner > 1 else None, seed_set,
+                               existing.get(s), evaluations): s for s in seeds}
         try:
             for future in cf.as_completed(futures):
                 results[futures[future]] = future.result()
@@ -1163,8 +1202,7 @@ def run_repeats(
         try:
             for s in seeds:
                 tagged = (lambda row, s=s: progress({**row, "seed": s})) if progress else None
-                result = run_study(case, seed=s, store=store, executor=executor, progress=tagged,
-                                   on_evaluation=on_evaluation)
+                result = start(s, executor=executor, tagged=tagged)
                 results[s] = result
                 if on_run:
                     on_run(result)
@@ -1175,10 +1213,92 @@ def run_repeats(
             executor.close()
     if not results:
         raise KeyboardInterrupt
-    return _merge_repeats(case, [results[s] for s in seeds if s in results], interrupted=interrupted)
+    missing = [s for s in seeds if s not in results]
+    return _merge_repeats(case, [results[s] for s in seeds if s in results], interrupted=interrupted,
+                          missing=missing)
 
 
-def _merge_repeats(case: Case, runs: list[StudyResult], *, interrupted: bool) -> RepeatsResult:
+def resume_repeats(
+    store: str | Path,
+    *,
+    run_id: int | None = None,
+    evaluations: int | None = None,
+    case: Case | str | Path | None = None,
+    workers: int | None = None,
+    dask: bool = False,
+    scheduler: str | None = None,
+    progress: Callable[[dict[str, Any]], None] | None = None,
+    on_evaluation: Callable[[dict[str, Any]], None] | None = None,
+    on_run: Callable[[StudyResult], None] | None = None,
+) -> RepeatsResult:
+    """Continue a set of seeds made by :func:`run_repeats`: every unfinished seed resumed, every seed that
+    never started run, and the fronts merged again.
+
+    ``run_id`` is any run of the set (default: the newest in the file); the
+    other parameters are as for :func:`resume_study`. Finished seeds are
+    read back from the archive without evaluating anything.
+    """
+    path = Path(store)
+    with open_store(path, create=False) as archive:
+        run_id = run_id if run_id is not None else archive.latest_run()
+        record = archive.run(run_id)
+        seed_set = (record["settings"] or {}).get("seed_set")
+        if not isinstance(seed_set, dict) or not isinstance(seed_set.get("seeds"), list):
+            raise StoreError(f"{path}: run {run_id} is a single run, not one of a set of seeds; use resume")
+        existing: dict[int, int] = {}
+        for other in archive.runs()["run_id"].tolist():
+            settings = archive.run(int(other))["settings"] or {}
+            if (settings.get("seed_set") or {}).get("id") == seed_set["id"]:
+                existing[int(archive.run(int(other))["seed"])] = int(other)
+    loaded = _case_of_run(path, record, case)
+    settings = {k: v for k, v in record["settings"].items() if k not in ("seed_set", "seed") and v is not None}
+    if evaluations is not None:
+        settings["evaluations"] = evaluations
+    loaded = loaded.with_search(**settings)
+    seeds = [int(s) for s in seed_set["seeds"]]
+    return _run_seed_set(loaded, seeds, existing, seed_set=seed_set, store=path, workers=workers, dask=dask,
+                         scheduler=scheduler, progress=progress, on_evaluation=on_evaluation, on_run=on_run,
+                         evaluations=evaluations)
+
+
+def _history_on(run: StudyResult, reference: np.ndarray) -> pd.DataFrame:
+    """The run's history with each generation's hypervolume recomputed on another reference point."""
+    history = run.history.copy()
+    if not len(history) or "hypervolume" not in history.columns:
+        return history
+    table = run.evaluations
+    names = run.case.objective_names
+    if not len(table) or "feasible" not in table.columns:
+        history["hypervolume"] = 0.0
+        return history
+    ok = table[table["feasible"].astype(bool)]
+    generations = ok["generation"].to_numpy()
+    points = ok[names].to_numpy(dtype=float)
+    front = np.empty((0, len(names)))
+    values, done = [], -math.inf
+    for generation in history["generation"].tolist():
+        new = points[(generations > done) & (generations <= generation)]
+        done = generation
+        if len(new):
+            candidates = np.vstack([front, new])
+            front = candidates[nondominated(candidates, run.case.maximise)]
+        values.append(hypervolume(front, reference, run.case.maximise) if len(front) else 0.0)
+    history["hypervolume"] = values
+    return history
+
+
+def _on_common_reference(run: StudyResult, reference: np.ndarray, hv: float) -> StudyResult:
+    """The run restated on the seeds' common reference point: its hypervolume, history and message."""
+    own = f"Front of {len(run.front)} designs, hypervolume {run.hypervolume:.6g}."
+    common = f"Front of {len(run.front)} designs, hypervolume {hv:.6g} on the seeds' common reference point."
+    meta = dict(run.meta) | {"reference_source": "the worst, per objective, of the seeds' own reference points"}
+    front = replace(run.front, reference=tuple(float(v) for v in reference), meta=meta)
+    return replace(run, front=front, hypervolume=hv, reference=tuple(float(v) for v in reference),
+                   history=_history_on(run, reference), message=run.message.replace(own, common), meta=meta)
+
+
+def _merge_repeats(case: Case, runs: list[StudyResult], *, interrupted: bool,
+                   missing: list[int] | None = None) -> RepeatsResult:
     flags = np.asarray(case.maximise, dtype=bool)
     recorded = [np.asarray(r.reference, dtype=float) for r in runs if r.reference is not None]
     reference = np.where(flags, np.min(recorded, axis=0), np.max(recorded, axis=0)) if recorded else None
@@ -1186,6 +1306,9 @@ def _merge_repeats(case: Case, runs: list[StudyResult], *, interrupted: bool) ->
         hypervolume(r.front.points(), reference, case.maximise) if reference is not None and len(r.front) else 0.0
         for r in runs
     )
+    if reference is not None:
+        # One reference for everything about a set of seeds: each run's history, message and folder too.
+        runs = [_on_common_reference(r, reference, hv) for r, hv in zip(runs, hvs, strict=True)]
     names = set(case.variable_names) | set(case.objective_names) | set(case.constraint_names) | set(case.outputs)
     for r in runs:
         names |= set(map(str, r.front.table.columns))
@@ -1211,7 +1334,7 @@ def _merge_repeats(case: Case, runs: list[StudyResult], *, interrupted: bool) ->
         "status": status, "stop_reason": "; ".join(f"seed {r.seed}: {STATUS_TEXT.get(r.status, r.status)}" for r in runs),
         "n_evals": n_evals, "n_gen": sum(r.n_gen for r in runs), "n_failed": n_failed,
         "n_cached": sum(r.n_cached for r in runs),
-        "reference_source": "the worst, per objective, of the single runs' reference points",
+        "reference_source": "the worst, per objective, of the seeds' own reference points",
         "started": min(r.meta.get("started", math.inf) for r in runs),
         "finished": max(r.meta.get("finished", -math.inf) for r in runs),
     })
@@ -1257,6 +1380,12 @@ def _merge_repeats(case: Case, runs: list[StudyResult], *, interrupted: bool) ->
         )
     else:
         parts.append("No run found a feasible design.")
+    if missing:
+        listed = ", ".join(str(m) for m in missing)
+        parts.append(f"Seed(s) {listed} did not run: the merged front stands for {len(runs)} of "
+                     f"{len(runs) + len(missing)} seeds; resume the archive to run the rest.")
+        status = meta["status"] = "interrupted"
+    meta["missing_seeds"] = list(missing or [])
     return RepeatsResult(
         status=status, message=" ".join(parts), front=front, runs=tuple(runs), seeds=seeds, hypervolumes=hvs,
         hypervolume=merged_hv, reference=tuple(float(v) for v in reference) if reference is not None else None,
