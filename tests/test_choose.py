@@ -20,6 +20,7 @@ from tradewise.choose import (
     asf,
     choose,
     describe_choice,
+    find_knees,
     knee_agreement,
     knee_distance,
     kneedle,
@@ -520,3 +521,140 @@ def test_describe_choice_three_objectives_lists_nearest_moves():
     # Nearest to (0.2, 0.2, 0.2) in normalised space is (0.5, 0.3, 0.1): +0.3 kg, +0.1 EUR, -0.1 W.
     assert "+0.3 kg, f2 +0.1 EUR, f3 -0.1 W" in text
     assert text.count("locally:") == 3
+
+
+# ----------------------------------------------------------------- knee or no knee
+def deb3dk(k: int, c: float = 1.0, n: int = 101) -> np.ndarray:
+    """DEB3DK front (Branke, Deb, Dierolf, Osswald 2004) on an n x n grid of (x1, x2), g = 1.
+
+    ``c`` is the cosine coefficient, 1 in one port and 2 in another (reference notes 3.3:
+    which one the paper uses is unresolved).
+    """
+    import moocore
+
+    x1, x2 = (a.ravel() for a in np.meshgrid(np.linspace(0, 1, n), np.linspace(0, 1, n)))
+    r = (
+        (5 + 10 * (x1 - 0.5) ** 2 + c / k * np.cos(2 * k * np.pi * x1))
+        + (5 + 10 * (x2 - 0.5) ** 2 + c / k * np.cos(2 * k * np.pi * x2))
+    ) / 2
+    s1, c1 = np.sin(np.pi * x1 / 2), np.cos(np.pi * x1 / 2)
+    F = np.column_stack([r * s1 * np.sin(np.pi * x2 / 2), r * s1 * np.cos(np.pi * x2 / 2), r * c1])
+    return F[moocore.is_nondominated(F)]
+
+
+def test_deb3dk_k1_knee_is_the_centre():
+    """DEB3DK with K = 1 has one knee, at x1 = x2 = 0.5, i.e. F = (2, 2, 2.828427) for c = 1."""
+    # Reference notes 3.3 (X, 301 x 301 grid): the largest-distance point lies within 0.007 of
+    # (0.5, 0.5) in x; F there is (2, 2, 2 sqrt 2) with c = 1.
+    front = make_front(deb3dk(1))
+    verdict = find_knees(front)
+    assert verdict.has_knee and len(verdict.knees) == 1
+    for method in ("knee", "tradeoff"):
+        found = row_values(front, choose(front, method)[0])
+        assert np.allclose(found, (2, 2, 2 * np.sqrt(2)), atol=0.05), method
+
+
+@pytest.mark.parametrize("k", [2, 3])
+def test_deb3dk_corner_is_never_offered_as_a_knee(k):
+    """On DEB3DK (K = 2, 3, c = 1) no knee method presents a corner; the verdict says no knee."""
+    # With c = 1 the bulges of K = 2, 3 stay within the 0.02 margin of the extreme plane (largest
+    # interior bulge 0.007 for K = 2 on a 301 x 301 grid, computed here); the corners (0, 0, 6.5)
+    # and (8, 0, 0) lie farther from the fallback plane but are best in two objectives.
+    front = make_front(deb3dk(k))
+    verdict = find_knees(front)
+    assert not verdict.has_knee and "no knee" in verdict.message
+    scaled = normalised(front)
+    for method in ("knee", "tradeoff"):
+        row = choose(front, method)[0]
+        assert row == verdict.instead, method
+        assert (scaled[row] > 0.05).all()  # an inner design, not a corner or an edge
+    assert knee_agreement(front) == {}
+
+
+def test_deb2dk_knee_counts():
+    """DEB2DK has one knee for K = 1 and the two extreme-line knees for K = 2 (mirror images)."""
+    # Reference notes 3.1 (X): K = 2 largest-distance knees at x1 = 0.729463 -> (4.594535,
+    # 2.079184) and its mirror; the inner minima of r at 0.303708/0.696293 bulge less.
+    assert len(find_knees(make_front(deb2dk(1))).knees) == 1
+    front = make_front(deb2dk(2))
+    knees = find_knees(front).knees
+    found = sorted(tuple(row_values(front, r).round(2)) for r in knees[:2])
+    assert np.allclose(found, [(2.08, 4.59), (4.59, 2.08)], atol=TOL)
+
+
+@pytest.mark.parametrize(
+    ("shape", "has_knee"),
+    [("convex", True), ("linear", False), ("concave", False)],
+)
+def test_knee_verdict_on_simple_shapes(shape, has_knee):
+    """A convex front has a knee at (1/4, 1/2); a straight and a bulging-away front have none."""
+    # ZDT1 f2 = 1 - sqrt(f1), knee (1/4, 1/2) (reference notes 1.5); ZDT2 f2 = 1 - f1^2 bulges
+    # away from the ideal point (notes 1.5); the line f1 + f2 = 1 has no bulge at all.
+    f1 = np.linspace(0, 1, 401)
+    f2 = {"convex": 1 - np.sqrt(f1), "linear": 1 - f1, "concave": 1 - f1**2}[shape]
+    front = make_front(np.column_stack([f1, f2]))
+    verdict = find_knees(front)
+    assert verdict.has_knee is has_knee
+    row = choose(front, "knee")[0]
+    if has_knee:
+        assert np.allclose(row_values(front, row), (0.25, 0.5), atol=3e-3)
+    else:
+        assert row == verdict.instead
+        assert 0 < row < len(front) - 1  # not an end of the front
+        text = "\n".join(describe_choice(front, [row], method="knee"))
+        assert "This front has no knee" in text and "Knee methods: the front has no knee" in text
+
+
+def test_deb3dk_k1_knee_survives_a_big_front():
+    """On 10^4+ designs (the sampled trade-off path) the DEB3DK K = 1 knee is still found."""
+    front = make_front(deb3dk(1, n=141))
+    assert len(front) > 4000
+    assert np.allclose(
+        row_values(front, choose(front, "tradeoff")[0]), (2, 2, 2 * np.sqrt(2)), atol=0.05
+    )
+
+
+# ----------------------------------------------------------------- fast paths against the old code
+def _supported_pairwise(points):
+    """The former O(n^2) interval check of weighted-sum reachability, kept as a reference."""
+    n = len(points)
+    result = np.zeros(n, dtype=bool)
+    for i in range(n):
+        d = points[i] - points
+        slope, bound = d[:, 0] - d[:, 1], -d[:, 1]
+        low, high = 0.0, 1.0
+        pos, neg, flat = slope > 1e-12, slope < -1e-12, np.abs(slope) <= 1e-12
+        if np.any(flat & (bound < -1e-12)):
+            continue
+        if pos.any():
+            high = min(high, float(np.min(bound[pos] / slope[pos])))
+        if neg.any():
+            low = max(low, float(np.max(bound[neg] / slope[neg])))
+        result[i] = low <= high + 1e-9
+    return result
+
+
+def test_supported_matches_the_pairwise_check():
+    """The envelope check of weighted-sum reachability agrees with the pairwise one on random sets."""
+    rng = np.random.default_rng(7)
+    for trial in range(200):
+        n = int(rng.integers(1, 200))
+        points = rng.random((n, 2))
+        if trial % 3 == 1:
+            points = np.round(points * 5) / 5  # ties and duplicates
+        if trial % 3 == 2:
+            x = rng.random(n)
+            points = np.column_stack([x, 1 - np.sqrt(x)])  # every point reachable
+        assert supported(points).tolist() == _supported_pairwise(points).tolist(), trial
+
+
+def test_sampled_tradeoff_bounds_the_exact_one():
+    """Above the exact limit mu is an upper bound of every-pair mu and keeps its largest point."""
+    rng = np.random.default_rng(3)
+    x = np.abs(rng.normal(size=(1500, 3)))
+    x /= np.linalg.norm(x, axis=1, keepdims=True)
+    for points in (x, 1 - x):
+        exact = tradeoff_measure(points)
+        sampled = tradeoff_measure(points, exact_up_to=100)
+        assert np.all(sampled >= exact - 1e-12)
+        assert exact[np.nanargmax(sampled)] == pytest.approx(np.nanmax(exact))

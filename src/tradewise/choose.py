@@ -21,6 +21,9 @@ __all__ = [
     "KNEE_METHODS",
     "WEIGHTED_METHODS",
     "NonConvexWarning",
+    "KNEE_MARGIN",
+    "KneeVerdict",
+    "find_knees",
     "Limit",
     "parse_limit",
     "parse_values",
@@ -66,6 +69,10 @@ KNEE_METHODS = ("knee", "tradeoff", "kneedle")
 WEIGHTED_METHODS = ("pseudo-weights", "asf", "topsis", "weighted-sum")
 
 _ASF_RHO = 1e-6
+
+#: How far (normalised objectives) a design must lie on the ideal side of the plane through
+#: the extreme designs to count as a knee. Our own choice: a bulge of 2 % of every range.
+KNEE_MARGIN = 0.02
 
 
 class NonConvexWarning(UserWarning):
@@ -322,7 +329,17 @@ def knee_distance(points: np.ndarray) -> np.ndarray:
     return (1.0 - points @ normal) / np.linalg.norm(normal)
 
 
-def tradeoff_measure(points: np.ndarray, *, radius: float | None = None) -> np.ndarray:
+#: Up to this many points the trade-off measure compares every pair of points (exact).
+_TRADEOFF_EXACT = 4000
+#: Beyond it, each point is compared with its nearest neighbours and with this many points
+#: spread over the front (our own choice: about 2 s for 10^5 points on two cores).
+_TRADEOFF_NEAREST = 16
+_TRADEOFF_SPREAD = 1500
+
+
+def tradeoff_measure(
+    points: np.ndarray, *, radius: float | None = None, exact_up_to: int = _TRADEOFF_EXACT
+) -> np.ndarray:
     """The trade-off measure mu of each point (Rachmawati and Srinivasan 2009).
 
     Moving from point ``i`` to a neighbour ``j`` loses
@@ -340,6 +357,13 @@ def tradeoff_measure(points: np.ndarray, *, radius: float | None = None) -> np.n
         Neighbours are the points within this distance, and at least the
         ``2 M`` nearest (the neighbourhood pymoo's ``HighTradeoffPoints`` uses
         with radius 0.125). By default every other point is a neighbour.
+    exact_up_to : int
+        Without ``radius``, on up to this many points every pair is compared.
+        On more, the neighbours of a point are its 16 nearest points and 1500
+        points spread evenly over the range of ``sum(f)``; a least ratio over
+        fewer neighbours can only be larger, so mu is then an upper bound of
+        the every-point value (``tests/benchmarks/bench_pick.py`` measures
+        how close it stays).
 
     Returns
     -------
@@ -360,16 +384,15 @@ def tradeoff_measure(points: np.ndarray, *, radius: float | None = None) -> np.n
     """
     points = np.asarray(points, dtype=float)
     n, m = points.shape
+    if radius is None and n > exact_up_to:
+        return _tradeoff_sampled(points)
     mu = np.full(n, np.nan)
     n_min = min(2 * m, n - 1)
     chunk = max(1, 4_000_000 // max(n * m, 1))
     for start in range(0, n, chunk):
         block = points[start : start + chunk]
         diff = points[None, :, :] - block[:, None, :]  # (b, n, m): from block row i to point j
-        loss = np.maximum(diff, 0.0).sum(axis=2)
-        gain = np.maximum(-diff, 0.0).sum(axis=2)
-        with np.errstate(divide="ignore", invalid="ignore"):
-            ratio = np.where(gain > 0, loss / np.where(gain > 0, gain, 1.0), np.inf)
+        ratio = _loss_over_gain(diff)
         if radius is not None:
             dist = np.sqrt((diff**2).sum(axis=2))
             rows = np.arange(len(block))
@@ -382,6 +405,52 @@ def tradeoff_measure(points: np.ndarray, *, radius: float | None = None) -> np.n
         best = ratio.min(axis=1)
         mu[start : start + len(block)] = np.where(np.isfinite(best), best, np.nan)
     return mu
+
+
+def _loss_over_gain(diff: np.ndarray) -> np.ndarray:
+    """T for moves ``diff`` (..., M): loss over gain, ``inf`` where nothing is gained."""
+    loss = np.maximum(diff, 0.0).sum(axis=-1)
+    gain = np.maximum(-diff, 0.0).sum(axis=-1)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(gain > 0, loss / np.where(gain > 0, gain, 1.0), np.inf)
+
+
+def _least_move(origin: np.ndarray, others: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """For each origin (b, M), the position among ``others`` (b or 1, k, M) of least q, and that q."""
+    total = np.zeros((len(origin), others.shape[1]))
+    length = np.zeros_like(total)
+    for j in range(origin.shape[1]):
+        d = others[:, :, j] - origin[:, j][:, None]
+        total += d
+        length += np.abs(d)
+    with np.errstate(divide="ignore", invalid="ignore"):
+        q = np.where(length > 0, total / length, np.inf)
+    at = np.argmin(q, axis=1)
+    return at, q[np.arange(len(q)), at]
+
+
+def _tradeoff_sampled(points: np.ndarray) -> np.ndarray:
+    """mu over the nearest points and a spread of points (see :func:`tradeoff_measure`)."""
+    from scipy.spatial import cKDTree
+
+    n, m = points.shape
+    _, nearest = cKDTree(points).query(points, k=min(_TRADEOFF_NEAREST + 1, n))
+    by_sum = np.argsort(points.sum(axis=1), kind="stable")
+    spread = by_sum[np.unique(np.linspace(0, n - 1, min(_TRADEOFF_SPREAD, n)).round().astype(int))]
+    best = np.empty(n, dtype=int)
+    chunk = max(1, 2_000_000 // len(spread))
+    for start in range(0, n, chunk):
+        rows = slice(start, min(start + chunk, n))
+        # with L + G = |d|_1 and L - G = sum(d), T = L / G = (1 + q) / (1 - q) for
+        # q = sum(d) / |d|_1, so the least T is the least q: cheap on (rows, others) arrays
+        far, far_q = spread, _least_move(points[rows], points[spread][None, :, :])
+        near = nearest[rows]
+        near_q = _least_move(points[rows], points[near])
+        pick_near = near_q[1] < far_q[1]
+        at = np.arange(len(near))
+        best[rows] = np.where(pick_near, near[at, near_q[0]], far[far_q[0]])
+    mu = _loss_over_gain(points[best] - points)  # the exact T of each point's best move
+    return np.where(np.isfinite(mu), mu, np.nan)
 
 
 def kneedle(points: np.ndarray, *, sensitivity: float = 1.0) -> tuple[np.ndarray, np.ndarray]:
@@ -595,31 +664,69 @@ def supported(points: np.ndarray) -> np.ndarray | None:
     """Which points some weighted sum with non-negative weights can pick.
 
     Exact for two objectives: point ``i`` is picked by weights ``(w, 1 - w)``
-    when ``w a_j + (1 - w) b_j <= 0`` for every ``j``, with ``a_j``, ``b_j`` the
-    differences to ``j``; the set of such ``w`` is an interval. For three or
-    more objectives the check needs linear programming and is not done:
-    the result is ``None``.
+    when ``w f_1 + (1 - w) f_2`` at ``i`` is no larger than the lower envelope
+    ``h(w) = min_j (w f_1(j) + (1 - w) f_2(j))`` for some ``w`` in [0, 1]. The
+    gap between the two is convex in ``w`` and smallest at a corner of the
+    envelope, found by bisection on the envelope's slopes, so the check takes
+    ``O(n log n)``. For three or more objectives the check needs linear
+    programming and is not done: the result is ``None``.
     """
     points = np.asarray(points, dtype=float)
     n, m = points.shape
     if m != 2:
         return None
-    tol = 1e-12
-    result = np.zeros(n, dtype=bool)
-    for i in range(n):
-        d = points[i] - points  # w*d0 + (1-w)*d1 <= 0  <=>  w*(d0 - d1) <= -d1
-        slope = d[:, 0] - d[:, 1]
-        bound = -d[:, 1]
-        low, high = 0.0, 1.0
-        pos, neg, flat = slope > tol, slope < -tol, np.abs(slope) <= tol
-        if np.any(flat & (bound < -tol)):
-            continue
-        if pos.any():
-            high = min(high, float(np.min(bound[pos] / slope[pos])))
-        if neg.any():
-            low = max(low, float(np.max(bound[neg] / slope[neg])))
-        result[i] = low <= high + 1e-9
-    return result
+    if n == 0:
+        return np.zeros(0, dtype=bool)
+    corners, heights, slopes = _lower_envelope(points[:, 1], points[:, 0] - points[:, 1])
+    own = points[:, 0] - points[:, 1]  # slope of w -> w f_1 + (1 - w) f_2 for each point
+    # the gap's slope own - h'(w) rises with w; it changes sign at the corner after the last
+    # envelope piece steeper than the point's own line; its neighbours guard against ties
+    at = np.searchsorted(-slopes, -own, side="left")
+    gap = np.full(n, np.inf)
+    for shift in (-1, 0, 1):
+        k = np.clip(at + shift, 0, len(corners) - 1)
+        w = corners[k]
+        gap = np.minimum(gap, w * points[:, 0] + (1 - w) * points[:, 1] - heights[k])
+    scale = np.abs(points).max() if np.isfinite(points).all() else 1.0
+    return gap <= 1e-9 * max(scale, 1.0)
+
+
+def _lower_envelope(
+    intercepts: np.ndarray, slopes: np.ndarray
+) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Corners (w in [0, 1]), heights there and the slopes of the pieces of ``min_j (b_j + s_j w)``.
+
+    ``slopes[p]`` is the slope of the piece that starts at ``corners[p]``; the
+    corners run from 0 to 1 and the slopes fall.
+    """
+    order = np.lexsort((intercepts, -slopes))  # steepest first; equal slopes: lowest first
+    stack: list[int] = []
+    starts: list[float] = []
+    for j in order.tolist():
+        b, s = intercepts[j], slopes[j]
+        if stack and slopes[stack[-1]] == s:
+            continue  # same slope, higher or equal line
+        while stack:
+            top = stack[-1]
+            # where the new line crosses the top line (the new one is flatter, so lower after it)
+            cross = (b - intercepts[top]) / (slopes[top] - s)
+            if cross <= starts[-1]:
+                stack.pop()
+                starts.pop()
+            else:
+                break
+        cross = (b - intercepts[stack[-1]]) / (slopes[stack[-1]] - s) if stack else -np.inf
+        stack.append(j)
+        starts.append(cross)
+    lines = np.asarray(stack)
+    begin = np.asarray(starts, dtype=float)
+    end = np.append(begin[1:], np.inf)
+    keep = (end > 0) & (begin < 1)
+    lines, begin = lines[keep], np.clip(begin[keep], 0.0, 1.0)
+    corners = np.append(begin, 1.0)
+    piece = np.append(np.arange(len(lines)), len(lines) - 1)
+    heights = intercepts[lines[piece]] + slopes[lines[piece]] * corners
+    return corners, heights, np.append(slopes[lines], slopes[lines[-1]])
 
 
 def _unit_weights(weights: Sequence[float] | None, m: int) -> np.ndarray:
@@ -705,6 +812,89 @@ def scores(
     return -weighted_sum(scaled, weights=w)
 
 
+@dataclass(frozen=True)
+class KneeVerdict:
+    """Whether a front has a knee, which designs are knees, and what stands out when none is.
+
+    ``knees`` are row positions in the front's table, strongest first; an empty
+    tuple means the front has no knee, and ``instead`` is then the row of the
+    design closest to the ideal point in normalised objectives. ``message``
+    says so in one sentence.
+    """
+
+    knees: tuple[int, ...]
+    instead: int | None
+    message: str
+
+    @property
+    def has_knee(self) -> bool:
+        """True when the front has at least one knee."""
+        return bool(self.knees)
+
+
+def find_knees(front: Front, *, limits: Iterable[Limit | str] = ()) -> KneeVerdict:
+    """The knees of ``front``, or a plain statement that it has none.
+
+    A knee is a design that (1) lies at least :data:`KNEE_MARGIN` on the ideal
+    side of the plane through the extreme designs (normalised objectives, see
+    :func:`knee_distance`), (2) bulges more than its neighbours (its distance is
+    the largest among its ``2 M`` nearest designs) and (3) is best in no
+    objective: an extreme or a design on the edge of the front is a corner, not
+    a knee. A front that is flat or bulges away from the ideal point has no
+    knee; the design closest to the ideal point (Euclidean distance in
+    normalised objectives, compromise programming) is offered instead.
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> from tradewise.case import Objective
+    >>> table = pd.DataFrame({"cost": [0.0, 0.5, 1.0], "mass": [1.0, 0.6, 0.0]})
+    >>> verdict = find_knees(Front.from_table(table, [Objective("cost"), Objective("mass")]))
+    >>> verdict.has_knee, verdict.instead
+    (False, 1)
+    """
+    limits = [parse_limit(limit) for limit in limits]
+    rows = np.flatnonzero(_limit_mask(front, limits))
+    if len(rows) == 0:
+        raise DataError("the front holds no designs to choose from")
+    scaled = normalised(front.with_table(front.table.iloc[rows]))
+    knees = _knee_positions(scaled)
+    if len(knees):
+        found = tuple(int(rows[k]) for k in knees)
+        shown = ", ".join(f"row {r + 1}" for r in found[:5]) + (", ..." if len(found) > 5 else "")
+        word = "knee" if len(found) == 1 else "knees"
+        return KneeVerdict(
+            found,
+            None,
+            f"{len(found)} {word} ({shown}): designs that bulge toward the ideal point at least "
+            f"{KNEE_MARGIN:g} (normalised) beyond the plane through the extreme designs",
+        )
+    instead = int(rows[int(np.argmin(np.linalg.norm(scaled, axis=1)))])
+    return KneeVerdict(
+        (),
+        instead,
+        f"this front has no knee: no design other than its corners lies {KNEE_MARGIN:g} (normalised) "
+        f"or more toward the ideal point beyond the plane through its extreme designs; "
+        f"row {instead + 1}, the design closest to the ideal point in normalised objectives, "
+        "is offered instead",
+    )
+
+
+def _knee_positions(scaled: np.ndarray) -> np.ndarray:
+    """Positions of the knees among normalised points, strongest first (see :func:`find_knees`)."""
+    n, m = scaled.shape
+    if n < 3:
+        return np.zeros(0, dtype=int)
+    from scipy.spatial import cKDTree
+
+    distance = knee_distance(scaled)
+    _, nearest = cKDTree(scaled).query(scaled, k=min(2 * m, n - 1) + 1)
+    bulges = distance >= distance[nearest[:, 1:]].max(axis=1)
+    inside = (scaled > 1e-12).all(axis=1)  # best in no objective
+    knees = np.flatnonzero(bulges & inside & (distance >= KNEE_MARGIN))
+    return knees[np.argsort(-distance[knees], kind="stable")]
+
+
 def choose(
     front: Front,
     method: str = "knee",
@@ -717,8 +907,11 @@ def choose(
     """Row positions in ``front.table`` of the ``top`` designs preferred by ``method``.
 
     Limits are applied first; the method then sees only the designs that meet
-    them (normalisation included). Kneedle ranks its confirmed knees before
-    every other design. Ties keep table order.
+    them (normalisation included). The knee methods rank knees first:
+    ``knee`` the knees of :func:`find_knees` by their bulge, ``tradeoff`` the
+    same knees by mu, ``kneedle`` its confirmed knees. On a front without a
+    knee they put the design closest to the ideal point first instead (see
+    :func:`find_knees`, which says so), never a corner. Ties keep table order.
 
     Parameters
     ----------
@@ -763,11 +956,22 @@ def choose(
         scores(sub, method, weights=weights, target=target), nan=-np.inf, posinf=np.inf
     )
     order = np.argsort(-value, kind="stable")
-    if method == "kneedle":
-        knees = set(kneedle(normalised(sub))[1].tolist())
-        order = np.concatenate(
-            [[k for k in order if k in knees], [k for k in order if k not in knees]]
-        ).astype(int)
+    if method in KNEE_METHODS:
+        scaled = normalised(sub)
+        if method == "kneedle":
+            first = kneedle(scaled)[1].tolist()
+        else:
+            knees = _knee_positions(scaled)
+            # the knee method ranks the knees by their bulge; the trade-off measure ranks them by mu
+            first = (
+                knees.tolist()
+                if method == "knee"
+                else [k for k in order if k in set(knees.tolist())]
+            )
+        if not first:  # no knee: the design closest to the ideal point stands in
+            first = [int(np.argmin(np.linalg.norm(scaled, axis=1)))]
+        chosen = set(first)
+        order = np.concatenate([first, [k for k in order if k not in chosen]]).astype(int)
     return [int(rows[k]) for k in order[:top]]
 
 
@@ -804,7 +1008,8 @@ def knee_agreement(front: Front, *, limits: Iterable[Limit | str] = ()) -> dict[
     """The knee each knee method finds (method name to row position in ``front.table``).
 
     Runs ``knee`` and ``tradeoff``, and ``kneedle`` on two objectives. Use
-    :func:`agreeing_groups` to see where they agree.
+    :func:`agreeing_groups` to see where they agree. Empty when the front has
+    no knee (:func:`find_knees` says what stands out instead).
 
     Examples
     --------
@@ -816,6 +1021,8 @@ def knee_agreement(front: Front, *, limits: Iterable[Limit | str] = ()) -> dict[
     {'knee': 2, 'tradeoff': 2, 'kneedle': 2}
     """
     limits = [parse_limit(limit) for limit in limits]
+    if not find_knees(front, limits=limits).has_knee:
+        return {}
     methods = [m for m in KNEE_METHODS if m != "kneedle" or len(front.objectives) == 2]
     return {m: choose(front, m, limits=limits)[0] for m in methods}
 
@@ -927,6 +1134,9 @@ def describe_choice(
     if limits:
         lines.append(f"{len(sub)} of them meet the limits {' and '.join(map(str, limits))}.")
     lines.append(f"Method: {method}, {METHODS[method]}.")
+    verdict = find_knees(front, limits=limits)
+    if method in KNEE_METHODS:
+        lines.append(f"{verdict.message[0].upper()}{verdict.message[1:]}.")
     ranks = objective_ranks(sub)
     picks = all_picks(front, weights=weights, target=target, limits=limits)
     contributions = front.contributions()
@@ -975,7 +1185,12 @@ def describe_choice(
     knees = {m: r for m, r in picks.items() if m in KNEE_METHODS}
     groups = agreeing_groups(knees)
     lines.append("")
-    if len(groups) == 1:
+    if not verdict.has_knee:
+        lines.append(
+            f"Knee methods: the front has no knee; row {verdict.instead + 1} is the design "
+            "closest to the ideal point."
+        )
+    elif len(groups) == 1:
         lines.append(
             f"Knee methods: {', '.join(groups[0][1])} all point at row {groups[0][0] + 1}."
         )
