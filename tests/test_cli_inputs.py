@@ -1,0 +1,115 @@
+"""The command line keeps its inputs safe: --out never replaces what a command reads or a run's data."""
+
+from __future__ import annotations
+
+import shutil
+
+import pytest
+from click.testing import CliRunner
+
+from support import CASES
+from tradewise.cli import main
+
+
+def invoke(*args):
+    result = CliRunner().invoke(main, [str(a) for a in args])
+    if result.exception and not isinstance(result.exception, SystemExit):
+        raise result.exception
+    return result
+
+
+def one_error_line(result) -> str:
+    assert result.exit_code == 2, result.output
+    lines = result.output.strip().splitlines()
+    assert len(lines) == 1 and lines[0].startswith("Error: "), result.output
+    assert "Traceback" not in result.output
+    return lines[0]
+
+
+@pytest.fixture(scope="module")
+def made_run(tmp_path_factory):
+    """A small real run folder, made once; tests copy it before touching it."""
+    folder = tmp_path_factory.mktemp("made") / "run"
+    result = invoke(
+        "run", CASES / "mixed", "--out", folder, "--evaluations", "100", "--seed", "2", "--quiet"
+    )
+    assert result.exit_code == 0, result.output
+    return folder
+
+
+@pytest.fixture
+def run_folder(made_run, tmp_path):
+    folder = tmp_path / "run"
+    shutil.copytree(made_run, folder)
+    return folder
+
+
+# ------------------------------------------------------------- --out against inputs
+def test_pick_out_onto_the_front_is_refused(run_folder):
+    """`pick RUN --out RUN/front.csv` is refused with one line, and front.csv and front.json stay as they were."""
+    before = {name: (run_folder / name).read_bytes() for name in ("front.csv", "front.json")}
+    line = one_error_line(invoke("pick", run_folder, "--out", run_folder / "front.csv"))
+    assert "front.csv" in line and "--out" in line
+    assert {name: (run_folder / name).read_bytes() for name in before} == before
+
+
+def test_front_out_onto_its_own_table_is_refused(tmp_path):
+    """`front x.csv --out x.csv` is refused and x.csv is unchanged."""
+    table = tmp_path / "x.csv"
+    table.write_text("cost,mass\n1,3\n2,2\n3,3\n", encoding="utf-8")
+    line = one_error_line(invoke("front", table, "--min", "cost", "--min", "mass", "--out", table))
+    assert "x.csv" in line
+    assert table.read_text(encoding="utf-8") == "cost,mass\n1,3\n2,2\n3,3\n"
+
+
+def test_front_out_whose_json_is_the_input_is_refused(tmp_path):
+    """The .json written beside --out counts too: `front x.json --out x.csv` would replace x.json."""
+    table = tmp_path / "x.json"
+    table.write_text("cost,mass\n1,3\n2,2\n", encoding="utf-8")
+    line = one_error_line(
+        invoke("front", table, "--min", "cost", "--min", "mass", "--out", tmp_path / "x.csv")
+    )
+    assert "x.json" in line
+
+
+def test_out_through_a_symlink_to_an_input_is_refused(run_folder, tmp_path):
+    """A symlink to front.json is the same file: report --out through it is refused."""
+    link = tmp_path / "page.html"
+    link.symlink_to(run_folder / "front.json")
+    before = (run_folder / "front.json").read_bytes()
+    one_error_line(invoke("report", run_folder, "--out", link))
+    assert (run_folder / "front.json").read_bytes() == before
+
+
+@pytest.mark.parametrize(
+    "name", ["history.csv", "archive.sqlite", "front.json", "representatives.csv"]
+)
+def test_compare_out_onto_run_data_is_refused(run_folder, name):
+    """compare --out onto any data file of a run folder is refused (also one it does not hold yet)."""
+    target = run_folder / name
+    before = target.read_bytes() if target.exists() else None
+    line = one_error_line(invoke("compare", run_folder, "--out", target))
+    assert name in line
+    assert (target.read_bytes() if target.exists() else None) == before
+
+
+def test_front_out_into_another_run_folder_is_refused(run_folder, tmp_path):
+    """A table's front may not be written over another run's front.csv either."""
+    table = tmp_path / "x.csv"
+    table.write_text("cost,life\n1,3\n2,4\n", encoding="utf-8")
+    one_error_line(
+        invoke("front", table, "--min", "cost", "--max", "life", "--out", run_folder / "front.csv")
+    )
+
+
+def test_ordinary_outputs_are_still_written(run_folder, tmp_path):
+    """Writing next to the inputs under other names works, and writing a front file twice over itself works."""
+    assert invoke("pick", run_folder, "--out", run_folder / "shortlist.csv").exit_code == 0
+    assert invoke("plot", run_folder, "--out", run_folder / "front.png").exit_code == 0
+    assert invoke("plot", run_folder, "--out", run_folder / "front.png").exit_code == 0
+    table = tmp_path / "x.csv"
+    table.write_text("cost,mass\n1,3\n2,2\n3,3\n", encoding="utf-8")
+    out = tmp_path / "made" / "front.csv"
+    for _ in range(2):
+        result = invoke("front", table, "--min", "cost", "--min", "mass", "--out", out)
+        assert result.exit_code == 0, result.output
