@@ -113,3 +113,32 @@ def test_ordinary_outputs_are_still_written(run_folder, tmp_path):
     for _ in range(2):
         result = invoke("front", table, "--min", "cost", "--min", "mass", "--out", out)
         assert result.exit_code == 0, result.output
+
+
+# ------------------------------------------------------------- one readable error line
+def test_garbage_table_gives_one_short_line(tmp_path):
+    """A file whose header is 5000 characters of garbage gives one line of readable length."""
+    path = tmp_path / "garbage.csv"
+    path.write_text("a" * 5000 + "\n1\n", encoding="utf-8")
+    line = one_error_line(invoke("front", path, "--min", "cost", "--min", "mass"))
+    assert "garbage.csv" in line and "no column 'cost'" in line
+    assert len(line) <= 400 + len("Error: ") and "…" in line
+
+
+def test_error_printer_makes_every_message_one_line(make_case):
+    """A message with line breaks and a long quoted value still prints as one capped line."""
+    from tradewise.errors import one_line
+
+    text = one_line("bad\nthing: got '" + "x" * 500 + "'\r\n(end)")
+    assert "\n" not in text and "\r" not in text
+    assert text.startswith("bad thing: got 'xxx") and text.endswith("…' (end)")
+    assert len(text) < 110
+    folder = make_case(
+        model="def evaluate(d):\n    raise ValueError('first\\nsecond' + 'y' * 300)\n"
+    )
+    result = CliRunner().invoke(main, ["check", str(folder)])
+    assert result.exit_code == 2
+    last = result.output.strip().splitlines()[-1]
+    assert (
+        last.startswith("Error: ") and "first second" in last and len(last) <= 400 + len("Error: ")
+    )

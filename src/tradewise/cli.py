@@ -6,7 +6,7 @@ import sys
 
 import click
 
-from tradewise.errors import TradewiseError
+from tradewise.errors import TradewiseError, one_line
 
 
 class _Group(click.Group):
@@ -18,7 +18,7 @@ class _Group(click.Group):
         except TradewiseError as exc:
             if ctx.obj and ctx.obj.get("debug"):
                 raise
-            click.echo(f"Error: {exc}", err=True)
+            click.echo(f"Error: {one_line(str(exc))}", err=True)
             ctx.exit(exc.exit_code)
 
 

@@ -8,6 +8,7 @@ from moocore.
 
 from __future__ import annotations
 
+import csv
 import json
 import math
 import re
@@ -21,7 +22,7 @@ import numpy as np
 import pandas as pd
 
 from tradewise.case import Objective
-from tradewise.errors import DataError
+from tradewise.errors import DataError, quote, undecodable
 
 __all__ = [
     "Front",
@@ -47,11 +48,18 @@ def column_header(name: str, unit: str) -> str:
     return f"{name} [{unit}]" if unit else name
 
 
-def objective_matrix(table: pd.DataFrame, objectives: Sequence[Objective], *, where: str = "table") -> np.ndarray:
-    """The objective columns of ``table`` as a float array, checked for missing and non-numeric values."""
+def objective_matrix(
+    table: pd.DataFrame, objectives: Sequence[Objective], *, where: str = "table", source: str | Path | None = None
+) -> np.ndarray:
+    """The objective columns of ``table`` as a float array, checked for missing and non-numeric values.
+
+    ``source`` is the CSV file the table was read from (by :func:`read_table`,
+    rows in file order); with it a bad cell is named by its line in that
+    file and told apart as empty or holding text such as ``NaN``.
+    """
     missing = [o.name for o in objectives if o.name not in table.columns]
     if missing:
-        raise DataError(f"{where}: no column {missing[0]!r}; columns: {', '.join(map(str, table.columns))}")
+        raise DataError(f"{where}: no column {missing[0]!r}; columns: {_columns_text(table.columns)}")
     columns = []
     for objective in objectives:
         raw = table[objective.name]
@@ -59,13 +67,51 @@ def objective_matrix(table: pd.DataFrame, objectives: Sequence[Objective], *, wh
         bad = values.isna() | ~np.isfinite(values.to_numpy(dtype=float, na_value=np.nan))
         if bad.any():
             position = int(np.flatnonzero(bad.to_numpy())[0])
-            got = "an empty cell" if pd.isna(raw.iloc[position]) else repr(raw.iloc[position])
-            raise DataError(
-                f"{where}: row {position + 1} column {objective.name!r}: "
-                f"expected a finite number, got {got}"
-            )
+            cell = raw.iloc[position]
+            got, row = ("NaN (not a number)" if pd.isna(cell) else quote(cell)), f"row {position + 1}"
+            if source is not None:
+                line, text = _raw_cell(source, position, objective.name)
+                if line is not None:
+                    row = f"line {line} (data row {position + 1})"
+                if text is not None and pd.isna(cell):
+                    got = "an empty cell" if not text.strip() else f"{quote(text)} (not a number)"
+            raise DataError(f"{where}: {row} column {objective.name!r}: expected a finite number, got {got}")
         columns.append(values.to_numpy(dtype=float))
     return np.column_stack(columns) if columns else np.empty((len(table), 0))
+
+
+def _columns_text(columns: Sequence[Any], limit: int = 12) -> str:
+    names = [quote(str(c), 40) for c in columns]
+    return ", ".join(names[:limit]) + (f" and {len(names) - limit} more" if len(names) > limit else "")
+
+
+def _raw_cell(path: str | Path, position: int, name: str) -> tuple[int | None, str | None]:
+    """The 1-based line of data row ``position`` of a CSV file and the text of its cell in column ``name``.
+
+    Blank lines are skipped as pandas skips them; ``(None, None)`` when the
+    file cannot be matched up with the table.
+    """
+    try:
+        with open(path, newline="", encoding="utf-8") as handle:
+            reader = csv.reader(handle)
+            header = next((row for row in reader if row), None)
+            if header is None:
+                return None, None
+            names = [_strip_unit(h) for h in header]
+            if name not in names:
+                return None, None
+            column = names.index(name)
+            seen, start = -1, reader.line_num + 1
+            for row in reader:
+                first, start = start, reader.line_num + 1  # a quoted cell may span several lines
+                if not row or (len(row) == 1 and not row[0].strip()):
+                    continue
+                seen += 1
+                if seen == position:
+                    return first, row[column] if column < len(row) else ""
+    except (OSError, UnicodeDecodeError, csv.Error):
+        pass
+    return None, None
 
 
 def nondominated(points: Any, maximise: bool | Sequence[bool] = False, *, keep_weakly: bool = False) -> np.ndarray:
@@ -324,7 +370,7 @@ def read_front(path: str | Path) -> Front:
     )
     if len(objectives) < 2:
         raise DataError(f"{meta_path}: lists {len(objectives)} objective(s); a front needs at least two")
-    objective_matrix(table, objectives, where=str(path))
+    objective_matrix(table, objectives, where=str(path), source=path)
     reference = meta.get("reference_point")
     known = {k: meta[k] for k in meta if k not in {"objectives", "variables", "constraints", "units", "reference_point"}}
     return Front(
@@ -381,21 +427,46 @@ def read_table(path: str | Path) -> tuple[pd.DataFrame, dict[str, str]]:
         table = pd.read_csv(path)
     except pd.errors.EmptyDataError:
         raise DataError(f"{path}: the file is empty; expected a CSV table with a header row") from None
-    except (OSError, ValueError, UnicodeDecodeError) as exc:
-        reason = " ".join(str(exc).split())
-        raise DataError(f"{path}: cannot be read as CSV ({reason})") from None
+    except UnicodeDecodeError:
+        raise DataError(f"{path}: {_where_not_utf8(path)}; save it as UTF-8 CSV") from None
+    except (OSError, ValueError) as exc:
+        raise DataError(f"{path}: cannot be read as CSV ({exc})") from None
+    _check_header(path)
     units: dict[str, str] = {}
     names: list[str] = []
     for header in table.columns:
         match = _HEADER.match(str(header))
         name = match.group("name") if match else str(header)
         if name in names:
-            raise DataError(f"{path}: two columns are named {name!r}; column names must differ")
+            raise DataError(f"{path}: two columns are named {quote(name)}; column names must differ")
         names.append(name)
         if match and match.group("unit"):
             units[name] = match.group("unit")
     table.columns = names
     return table, units
+
+
+def _where_not_utf8(path: Path) -> str:
+    data = path.read_bytes()
+    try:
+        data.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        return undecodable(data, exc)
+    return "is not UTF-8 text"
+
+
+def _check_header(path: Path) -> None:
+    """Refuse a header row that names a column twice (pandas would quietly rename the second ``cost.1``)."""
+    with open(path, newline="", encoding="utf-8") as handle:
+        header = next((row for row in csv.reader(handle) if row), [])
+    seen: dict[str, str] = {}
+    for cell in header:
+        name = _strip_unit(cell.strip())
+        if name in seen:
+            same = "" if seen[name] == cell else f" ({quote(seen[name])} and {quote(cell)})"
+            raise DataError(f"{path}: the header row names the column {quote(name)} twice{same}; "
+                            "column names must differ")
+        seen[name] = cell
 
 
 def front_from_csv(
@@ -444,13 +515,14 @@ def front_from_csv(
         raise DataError(f"{where}: a front needs at least two objectives (--min/--max), got {len(names)}")
     for name in names + [_strip_unit(k) for k in keep or ()]:
         if name not in table.columns:
-            raise DataError(f"{where}: no column {name!r}; columns: {', '.join(map(str, table.columns))}")
+            raise DataError(f"{where}: no column {quote(name)}; columns: {_columns_text(table.columns)}")
     if len(table) == 0:
         raise DataError(f"{where}: the table has a header but no rows")
     if keep is not None:
         kept = [_strip_unit(k) for k in keep]
         table = table[names + [c for c in table.columns if c in kept and c not in names]]
     objectives = [Objective(n, goal, units.get(n, "")) for n, (_, goal) in zip(names, wanted, strict=True)]
+    objective_matrix(table, objectives, where=where, source=path)
     front = Front.from_table(table, objectives, units=units, where=where)
     return replace(front, reference=tuple(front.reference_point()), meta={"source": where, "n_rows": len(table)})
 
