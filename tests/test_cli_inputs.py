@@ -142,3 +142,47 @@ def test_error_printer_makes_every_message_one_line(make_case):
     assert (
         last.startswith("Error: ") and "first second" in last and len(last) <= 400 + len("Error: ")
     )
+
+
+# ------------------------------------------------------------- front.json of the wrong shape
+def _spoil(folder, key, value):
+    import json
+
+    path = folder / "front.json"
+    meta = json.loads(path.read_text(encoding="utf-8"))
+    target = meta
+    *parents, last = key
+    for part in parents:
+        target = target[part]
+    target[last] = value
+    path.write_text(json.dumps(meta), encoding="utf-8")
+
+
+SPOILED = [
+    (("objectives",), "cost,life", "'objectives'"),
+    (("units",), ["EUR", "h"], "'units'"),
+    (("reference_point",), {"cost": 1}, "'reference_point'"),
+    (("reference_point",), ["13.6", "0.8"], "'reference_point'"),
+    (("objectives", 0, "goal"), "least", "'objectives[0].goal'"),
+    (("objectives", 1, "worst"), "12", "'objectives[1].worst'"),
+    (("objectives", 0, "name"), 3, "'objectives[0].name'"),
+    (("units", "cost"), 5, "'units.cost'"),
+    (("settings", "evaluations"), "200", "'settings.evaluations'"),
+    (("variables",), "width", "'variables'"),
+    (("n_evals",), "200", "'n_evals'"),
+    (("hypervolume",), "big", "'hypervolume'"),
+    (("design_space", 0, "low"), "0.5", "'design_space[0].low'"),
+    (("constraint_limits", 0, "min"), [1], "'constraint_limits[0].min'"),
+    (("title",), {"a": 1}, "'title'"),
+]
+
+
+@pytest.mark.parametrize(
+    ("key", "value", "named"), SPOILED, ids=[".".join(map(str, k)) for k, _, _ in SPOILED]
+)
+@pytest.mark.parametrize("command", ["plot", "report", "compare", "pick"])
+def test_front_json_of_wrong_shape_is_one_line(run_folder, command, key, value, named):
+    """A front.json with a wrongly typed value gives one Error line naming the file and the key, for each reader."""
+    _spoil(run_folder, key, value)
+    line = one_error_line(invoke(command, run_folder))
+    assert "front.json" in line and named in line

@@ -32,6 +32,7 @@ __all__ = [
     "hv_contributions",
     "reference_point",
     "read_front",
+    "check_front_meta",
     "column_header",
     "objective_matrix",
     "read_table",
@@ -360,28 +361,146 @@ def read_front(path: str | Path) -> Front:
         raise DataError(f"{meta_path}: not readable JSON ({exc})") from None
     if not isinstance(meta, dict) or meta.get("format") != FRONT_FORMAT:
         raise DataError(f"{meta_path}: not a tradewise front description (format {FRONT_FORMAT!r} expected)")
+    check_front_meta(meta, meta_path)
     try:
         table = pd.read_csv(path)
     except (OSError, ValueError) as exc:
         raise DataError(f"{path}: cannot be read as CSV ({exc})") from None
     table = table.rename(columns=_strip_unit)
     objectives = tuple(
-        Objective(o["name"], o.get("goal", "min"), o.get("unit", ""), o.get("worst")) for o in meta.get("objectives", [])
+        Objective(o["name"], o.get("goal", "min"), o.get("unit", "") or "", o.get("worst")) for o in meta["objectives"]
     )
-    if len(objectives) < 2:
-        raise DataError(f"{meta_path}: lists {len(objectives)} objective(s); a front needs at least two")
     objective_matrix(table, objectives, where=str(path), source=path)
     reference = meta.get("reference_point")
     known = {k: meta[k] for k in meta if k not in {"objectives", "variables", "constraints", "units", "reference_point"}}
     return Front(
         table=table,
         objectives=objectives,
-        units=dict(meta.get("units", {})),
-        variables=tuple(meta.get("variables", [])),
-        constraints=tuple(meta.get("constraints", [])),
-        reference=tuple(reference) if reference is not None else None,
+        units=dict(meta.get("units") or {}),
+        variables=tuple(meta.get("variables") or []),
+        constraints=tuple(meta.get("constraints") or []),
+        reference=tuple(float(r) for r in reference) if reference is not None else None,
         meta=known,
     )
+
+
+# What each key of front.json may hold, as data: one check, one shape of message. None (null) is
+# allowed for every key but objectives and format. Keys not listed are kept unchecked.
+_TEXT, _COUNT, _NUMBER, _FLAG, _TABLE = "text", "a whole number", "a number", "true or false", "a JSON object"
+_META_KINDS: dict[str, str] = {
+    **dict.fromkeys(
+        ("title", "description", "cautions", "case_file", "case_hash", "algorithm", "status", "stop_reason",
+         "message", "reference_source", "store", "source", "seed_column"), _TEXT),
+    **dict.fromkeys(("seed", "n_evals", "n_gen", "n_failed", "n_cached", "n_seeds", "run_id", "n_designs",
+                     "n_rows"), _COUNT),
+    **dict.fromkeys(("hypervolume", "started", "finished", "hypervolume_median", "hypervolume_min",
+                     "hypervolume_max"), _NUMBER),
+    "feasible": _FLAG,
+    **dict.fromkeys(("settings", "versions", "descriptions", "shortlist"), _TABLE),
+}
+_META_LISTS = {  # key: what each item must be
+    "variables": _TEXT, "constraints": _TEXT, "seeds": _COUNT, "seed_hypervolumes": _NUMBER,
+    "design_space": _TABLE, "constraint_limits": _TABLE,
+}
+_ITEM_KINDS = {  # keys of the objects inside lists and objects
+    "objectives": {"name": _TEXT, "goal": _TEXT, "unit": _TEXT, "worst": _NUMBER},
+    "design_space": {"name": _TEXT, "type": _TEXT, "low": _NUMBER, "high": _NUMBER, "unit": _TEXT},
+    "constraint_limits": {"name": _TEXT, "min": _NUMBER, "max": _NUMBER, "unit": _TEXT},
+    "settings": {"population": _COUNT, "evaluations": _COUNT, "generations": _COUNT, "seed": _COUNT,
+                 "stall_generations": _COUNT, "time_limit": _NUMBER, "stall_tolerance": _NUMBER},
+}
+
+
+def _is(value: Any, kind: str) -> bool:
+    if kind == _TEXT:
+        return isinstance(value, str)
+    if kind == _FLAG:
+        return isinstance(value, bool)
+    if kind == _TABLE:
+        return isinstance(value, dict)
+    if isinstance(value, bool):
+        return False
+    if kind == _COUNT:
+        return isinstance(value, int)
+    return isinstance(value, int | float)
+
+
+def _kind_of(value: Any) -> str:
+    names = {str: "text", bool: "true/false", int: "a number", float: "a number", list: "a list",
+             dict: "a JSON object", type(None): "null"}
+    return f"{names.get(type(value), type(value).__name__)} {quote(value, 40)}"
+
+
+def check_front_meta(meta: dict[str, Any], where: str | Path) -> None:
+    """Check the shape of a front description (front.json) once, where it is read.
+
+    Raises
+    ------
+    DataError
+        Naming the file and the key (``objectives[1].goal``, ``units.mass``)
+        whose value has the wrong type, with what it holds and what is allowed.
+    """
+
+    def bad(key: str, value: Any, allowed: str) -> DataError:
+        return DataError(f"{where}: key {key!r} must be {allowed}, got {_kind_of(value)}")
+
+    def check_item(key: str, item: Any, kinds: dict[str, str]) -> None:
+        for name, kind in kinds.items():
+            value = item.get(name)
+            if value is not None and not _is(value, kind):
+                raise bad(f"{key}.{name}", value, kind)
+
+    objectives = meta.get("objectives")
+    if not isinstance(objectives, list):
+        raise bad("objectives", objectives, "a list of objects with a name and a goal")
+    if len(objectives) < 2:
+        raise DataError(f"{where}: lists {len(objectives)} objective(s); a front needs at least two")
+    for i, item in enumerate(objectives):
+        key = f"objectives[{i}]"
+        if not isinstance(item, dict):
+            raise bad(key, item, "an object with a name and a goal")
+        if not isinstance(item.get("name"), str) or not item["name"]:
+            raise bad(f"{key}.name", item.get("name"), "the objective's name as text")
+        if item.get("goal", "min") not in ("min", "max"):
+            raise bad(f"{key}.goal", item.get("goal"), "'min' or 'max'")
+        check_item(key, item, _ITEM_KINDS["objectives"])
+        if item.get("worst") is not None and not math.isfinite(item["worst"]):
+            raise bad(f"{key}.worst", item["worst"], "a finite number or null")
+    for key, kind in _META_KINDS.items():
+        value = meta.get(key)
+        if value is not None and not _is(value, kind):
+            raise bad(key, value, kind)
+    for key, kind in _META_LISTS.items():
+        value = meta.get(key)
+        if value is None:
+            continue
+        if not isinstance(value, list):
+            raise bad(key, value, f"a list of {'objects' if kind == _TABLE else kind}")
+        for i, item in enumerate(value):
+            if not _is(item, kind):
+                raise bad(f"{key}[{i}]", item, kind)
+            if key in _ITEM_KINDS:
+                check_item(f"{key}[{i}]", item, _ITEM_KINDS[key])
+    units = meta.get("units")
+    if units is not None:
+        if not isinstance(units, dict):
+            raise bad("units", units, "a JSON object of column name to unit text")
+        for name, unit in units.items():
+            if unit is not None and not isinstance(unit, str):
+                raise bad(f"units.{name}", unit, "the unit as text")
+    for key in ("versions", "descriptions"):
+        for name, value in (meta.get(key) or {}).items():
+            if value is not None and not isinstance(value, str):
+                raise bad(f"{key}.{name}", value, "text")
+    check_item("settings", meta.get("settings") or {}, _ITEM_KINDS["settings"])
+    for name, value in (meta.get("settings") or {}).items():
+        if value is not None and not isinstance(value, str | int | float | bool):
+            raise bad(f"settings.{name}", value, "a number, text, true/false or null")
+    reference = meta.get("reference_point")
+    if reference is not None:
+        fine = isinstance(reference, list) and all(_is(r, _NUMBER) and math.isfinite(r) for r in reference)
+        if not fine or len(reference) != len(objectives):
+            raise bad("reference_point", reference, f"a list of {len(objectives)} finite numbers or null")
 
 
 def _strip_unit(header: str) -> str:
