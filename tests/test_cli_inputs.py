@@ -186,3 +186,23 @@ def test_front_json_of_wrong_shape_is_one_line(run_folder, command, key, value, 
     _spoil(run_folder, key, value)
     line = one_error_line(invoke(command, run_folder))
     assert "front.json" in line and named in line
+
+
+# ------------------------------------------------------------- values near the float limit
+def test_front_near_the_float_limit_reports_and_plots_without_a_crash(tmp_path):
+    """A front whose values reach 1.7e308: the reference point is finite, report writes a page, plot says why not."""
+    import json
+
+    table = tmp_path / "huge.csv"
+    rows = [(1.7e308 * (2 * x - 1), (1 - x) * 1.7e308) for x in (0.0, 0.25, 0.5, 0.75, 1.0)]
+    table.write_text("cost,mass\n" + "".join(f"{a!r},{b!r}\n" for a, b in rows), encoding="utf-8")
+    folder = tmp_path / "huge"
+    made = invoke("front", table, "--min", "cost", "--max", "mass", "--out", folder / "front.csv")
+    assert made.exit_code == 0, made.output
+    reference = json.loads((folder / "front.json").read_text(encoding="utf-8"))["reference_point"]
+    assert all(isinstance(r, float) for r in reference)
+    page = invoke("report", folder)
+    assert page.exit_code == 0, page.output
+    assert (folder / "review.html").stat().st_size > 0
+    line = one_error_line(invoke("plot", folder))
+    assert "float limit" in line and "cost" in line

@@ -18,9 +18,11 @@ from tradewise.front import (
     Front,
     front_from_csv,
     hypervolume,
+    hypervolume_problem,
     nondominated,
     read_front,
     read_table,
+    reference_point,
     tradeoff_rates,
 )
 
@@ -376,3 +378,28 @@ def test_non_utf8_byte_is_reported_at_its_line(tmp_path):
     path.write_bytes(b"cost,mass\n1,\xe9\n")
     with pytest.raises(DataError, match=r"latin\.csv: line 2 holds the byte 0xe9, which is not UTF-8 text"):
         read_table(path)
+
+
+# ------------------------------------------------------------- values near the float limit
+def test_reference_point_stays_finite_near_the_float_limit():
+    """Objectives spanning -1.7e308 to 1.7e308 (span inf) still give a finite reference point."""
+    points = np.array([[-1.7e308, 1.7e308], [1.7e308, -1.7e308], [0.0, 0.0]])
+    for maximise in (False, [True, False]):
+        ref = reference_point(points, maximise)
+        assert np.isfinite(ref).all()
+    ref = reference_point(points)
+    assert (ref >= points.max(axis=0)).all()
+
+
+def test_reference_point_unchanged_for_ordinary_values():
+    """Ordinary values keep the nadir plus 10 % of the range (common practice)."""
+    assert reference_point([[1.0, 4.0], [3.0, 2.0]]).tolist() == pytest.approx([3.2, 4.2])
+
+
+def test_hypervolume_problem_names_the_objective():
+    """When the extents multiply past the largest float the problem names the widest objective."""
+    points = np.array([[-1.7e308, 1.0], [1.7e308, 0.5]])
+    ref = reference_point(points)
+    text = hypervolume_problem(points, ref, names=["cost", "mass"])
+    assert "cannot be computed" in text and "'cost'" in text
+    assert hypervolume_problem([[1.0, 2.0], [2.0, 1.0]], [3.0, 3.0]) == ""

@@ -91,8 +91,18 @@ def _summary(result) -> None:
     click.echo(result.message)
     front = result.front
     if len(front):
-        click.echo(f"Front: {len(front)} designs, hypervolume {result.hypervolume:.6g} "
+        import math
+
+        from tradewise.front import hypervolume_problem
+
+        problem = "" if math.isfinite(result.hypervolume) else hypervolume_problem(
+            front.points(), result.reference, front.maximise, names=front.objective_names
+        ) or "the hypervolume is not a finite number"
+        hv = "hypervolume not computable" if problem else f"hypervolume {result.hypervolume:.6g}"
+        click.echo(f"Front: {len(front)} designs, {hv} "
                    f"(reference point {', '.join(f'{r:g}' for r in result.reference)})")
+        if problem:
+            click.echo(f"Note: {problem[0].upper()}{problem[1:]}.")
         width = max(len(column_header(o.name, o.unit)) for o in front.objectives)
         for o in front.objectives:
             values = front.table[o.name]

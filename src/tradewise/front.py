@@ -31,6 +31,7 @@ __all__ = [
     "hypervolume",
     "hv_contributions",
     "reference_point",
+    "hypervolume_problem",
     "read_front",
     "check_front_meta",
     "column_header",
@@ -170,6 +171,10 @@ def reference_point(
 
     A common practice (not a standard): the nadir plus 10 % of the range, so
     that the end points of the front count in the hypervolume.
+
+    The point is always finite: for values so near the float limit that the
+    margin would overflow, it is the largest float (the smallest for a
+    maximised objective), and the worst designs then add nothing.
     """
     points = np.atleast_2d(np.asarray(points, dtype=float))
     n = points.shape[1]
@@ -182,11 +187,51 @@ def reference_point(
             continue
         column = points[:, j]
         lo, hi = float(np.min(column)), float(np.max(column))
-        span = hi - lo
-        if span <= 0:
-            span = abs(hi) if hi != 0 else 1.0
-        ref[j] = lo - margin * span if flags[j] else hi + margin * span
+        with np.errstate(over="ignore"):
+            # half of each end, so that the span of values near the float limit does not overflow
+            span = 2.0 * (hi / 2.0 - lo / 2.0)
+            if not span > 0:
+                span = abs(hi) if hi != 0 else 1.0
+            value = lo - margin * span if flags[j] else hi + margin * span
+        if not math.isfinite(value):
+            value = -_LARGEST if flags[j] else _LARGEST
+        ref[j] = value
     return ref
+
+
+_LARGEST = float(np.finfo(float).max)
+
+
+def hypervolume_problem(
+    points: Any,
+    reference: Sequence[float],
+    maximise: bool | Sequence[bool] = False,
+    *,
+    names: Sequence[str] | None = None,
+) -> str:
+    """Why the hypervolume of ``points`` for ``reference`` cannot be computed ('' when it can).
+
+    The hypervolume multiplies each objective's extent from the best value to
+    the reference point; near the float limit that product (or one extent)
+    is larger than any float, and the objective with the largest extent is
+    named.
+    """
+    points = np.atleast_2d(np.asarray(points, dtype=float))
+    if points.size == 0:
+        return ""
+    flags = np.asarray(_flags(maximise, points.shape[1]))
+    ref = np.asarray(reference, dtype=float)
+    best = np.where(flags, points.max(axis=0), points.min(axis=0))
+    with np.errstate(over="ignore", invalid="ignore"):
+        extent = np.abs(ref - best)
+        product = float(np.prod(extent))
+    if math.isfinite(product) and np.isfinite(ref).all():
+        return ""
+    j = int(np.nanargmax(np.where(np.isfinite(extent), extent, np.inf)))
+    name = repr(str(names[j])) if names is not None else f"{j + 1}"
+    return (f"the hypervolume cannot be computed at this scale: the objectives' extents to the reference point "
+            f"multiply past the largest float (objective {name} spans {extent[j]:.3g}); rescale that objective, "
+            "e.g. change its unit")
 
 
 def _flags(maximise: bool | Sequence[bool], n: int) -> list[bool]:
