@@ -206,3 +206,18 @@ def test_front_near_the_float_limit_reports_and_plots_without_a_crash(tmp_path):
     assert (folder / "review.html").stat().st_size > 0
     line = one_error_line(invoke("plot", folder))
     assert "float limit" in line and "cost" in line
+
+
+# ------------------------------------------------------------- an archive from another case
+@pytest.mark.parametrize("command", ["plot", "report"])
+def test_archive_of_another_case_is_refused(run_folder, make_case, tmp_path, command):
+    """plot and report refuse a run folder whose archive holds another case, naming both cases."""
+    other = tmp_path / "other"
+    folder = make_case(name="tiny-case")
+    made = invoke(
+        "run", folder, "--out", other, "--evaluations", "40", "--population", "8", "--quiet"
+    )
+    assert made.exit_code == 0, made.output
+    shutil.copy(other / "archive.sqlite", run_folder / "archive.sqlite")
+    line = one_error_line(invoke(command, run_folder))
+    assert "'tiny'" in line and "Mixed-variable" in line

@@ -438,6 +438,14 @@ def _read_run(run: str, *, evaluations: bool = True):
     store_name, run_id = front.meta.get("store"), front.meta.get("run_id")
     if evaluations and store_name and run_id is not None and (folder / store_name).is_file():
         with open_store(folder / store_name, create=False) as archive:
+            record = archive.run(int(run_id))
+            ours = front.meta.get("case_hash")
+            if ours and record["case_hash"] != ours:
+                raise DataError(
+                    f"{folder / store_name}: run {run_id} of this archive is of the case "
+                    f"{record['case_title']!r} ({record['case_hash']}), but {meta_path} is of the case "
+                    f"{front.meta.get('title')!r} ({ours}); put the run's own archive beside its front.json"
+                )
             table = archive.evaluations(int(run_id))
     return front, history, table
 
