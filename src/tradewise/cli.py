@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import logging
 import sys
 
 import click
@@ -33,6 +34,21 @@ def main(ctx: click.Context, debug: bool) -> None:
     `tradewise run heat-sink` to search one of them.
     """
     ctx.obj = {"debug": debug}
+    _show_notices()
+
+
+class _Notices(logging.Handler):
+    """Shows the library's notices (such as waiting for a locked archive) as plain lines on standard error."""
+
+    def emit(self, record: logging.LogRecord) -> None:
+        click.echo(one_line(record.getMessage()), err=True)
+
+
+def _show_notices() -> None:
+    logger = logging.getLogger("tradewise")
+    if not any(isinstance(h, _Notices) for h in logger.handlers):
+        logger.addHandler(_Notices(logging.INFO))
+        logger.propagate = False
 
 
 @main.command("cases")
