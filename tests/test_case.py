@@ -92,3 +92,76 @@ def test_with_search_overrides_and_checks():
     assert case.search.population == 8 and case.search.seed == 1
     with pytest.raises(CaseError, match="population"):
         case.with_search(population=1)
+
+
+# ------------------------------------------------------------- ranges and model files
+@pytest.mark.parametrize("low, high", [("-1.7e308", "1.7e308"), ("-1e308", "1e308")])
+def test_range_too_wide_for_a_float_is_refused(make_case, low, high):
+    """Bounds whose span overflows a float (high - low is inf) are refused at load, naming the variable."""
+    toml = GOOD_TOML.replace("x = { type = \"real\", low = 0.0, high = 1.0 }",
+                             f"x = {{ type = \"real\", low = {low}, high = {high} }}")
+    with pytest.raises(CaseError, match=r"\[variables\] x: the range .* too wide") as caught:
+        load_case(make_case(toml=toml))
+    assert "\n" not in str(caught.value)
+
+
+def test_wide_but_finite_range_is_accepted(make_case):
+    """A span of 1e308 is still a float, so the bounds load."""
+    toml = GOOD_TOML.replace("low = 0.0, high = 1.0", "low = 0.0, high = 1e308")
+    assert load_case(make_case(toml=toml)).variables[0].high == 1e308
+
+
+@pytest.mark.parametrize("model", ["../x.py:evaluate", "../../x.py:evaluate", "sub/../../x.py:evaluate"])
+def test_model_outside_the_case_folder_is_refused(make_case, tmp_path, model):
+    """A model path with '..' is refused even when the file exists there: the model lives in the case folder."""
+    (tmp_path / "x.py").write_text("def evaluate(d):\n    return {}\n", encoding="utf-8")
+    folder = make_case(toml=GOOD_TOML.replace('model = "model.py:evaluate"', f'model = "{model}"'))
+    with pytest.raises(CaseError, match="must be a path inside the case folder"):
+        load_case(folder)
+
+
+def test_absolute_model_path_is_refused(make_case, tmp_path):
+    """An absolute model path is refused even though the file exists."""
+    other = tmp_path / "elsewhere.py"
+    other.write_text("def evaluate(d):\n    return {}\n", encoding="utf-8")
+    folder = make_case(toml=GOOD_TOML.replace('model = "model.py:evaluate"', f'model = "{other.as_posix()}:evaluate"'))
+    with pytest.raises(CaseError, match="must be a path inside the case folder"):
+        load_case(folder)
+
+
+def test_model_through_a_link_out_of_the_folder_is_refused(make_case, tmp_path):
+    """A subfolder that is a symlink to somewhere else does not let the model escape the case folder."""
+    outside = tmp_path / "outside"
+    outside.mkdir()
+    (outside / "model.py").write_text("def evaluate(d):\n    return {}\n", encoding="utf-8")
+    folder = make_case(toml=GOOD_TOML.replace('model = "model.py:evaluate"', 'model = "lib/model.py:evaluate"'))
+    (folder / "lib").symlink_to(outside, target_is_directory=True)
+    with pytest.raises(CaseError, match="leads outside the case folder"):
+        load_case(folder)
+
+
+def test_model_in_a_subfolder_is_used(make_case):
+    """A model in a subfolder of the case folder loads and answers (the rule allows subfolders)."""
+    from tradewise.models import make_model
+
+    folder = make_case(toml=GOOD_TOML.replace('model = "model.py:evaluate"', 'model = "lib/model.py:evaluate"'))
+    (folder / "lib").mkdir()
+    (folder / "model.py").rename(folder / "lib" / "model.py")
+    case = load_case(folder)
+    outcome = make_model(case)({"x": 0.5})
+    assert outcome.ok and outcome.results["cost"] == 0.5
+
+
+def test_missing_model_message_names_the_case_folder(make_case):
+    """A missing model file is reported as not found in the case folder."""
+    folder = make_case(toml=GOOD_TOML.replace('model = "model.py:evaluate"', 'model = "nothere.py:evaluate"'))
+    with pytest.raises(CaseError, match=r"model file 'nothere.py' not found in the case folder"):
+        load_case(folder)
+
+
+def test_case_file_not_utf8_names_the_line(make_case):
+    """A byte that is not UTF-8 on line 2 of case.toml is reported at line 2 with the byte."""
+    folder = make_case()
+    (folder / "case.toml").write_bytes(b'title = "t"\n# caf\xe9\n')
+    with pytest.raises(CaseError, match=r"case\.toml: line 2 holds the byte 0xe9"):
+        load_case(folder)

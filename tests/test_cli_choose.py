@@ -90,12 +90,12 @@ def test_front_agrees_with_a_plain_moocore_filter(tmp_path):
         (
             DESIGNS.replace("3,8,a,15,40", "3,8,a,15,heavy"),
             ["--min", "cost", "--min", "mass"],
-            "row 3 column 'mass': expected a finite number, got 'heavy'",
+            "line 4 (data row 3) column 'mass': expected a finite number, got 'heavy'",
         ),
         (
             DESIGNS.replace("3,8,a,15,40", "3,8,a,15,"),
             ["--min", "cost", "--min", "mass"],
-            "row 3 column 'mass': expected a finite number, got an empty cell",
+            "line 4 (data row 3) column 'mass': expected a finite number, got an empty cell",
         ),
         (DESIGNS, ["--min", "cost"], "at least two objectives"),
         (DESIGNS, ["--min", "cost", "--max", "cost"], "given as an objective twice"),

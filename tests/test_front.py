@@ -18,8 +18,11 @@ from tradewise.front import (
     Front,
     front_from_csv,
     hypervolume,
+    hypervolume_problem,
     nondominated,
+    read_front,
     read_table,
+    reference_point,
     tradeoff_rates,
 )
 
@@ -152,12 +155,12 @@ def test_front_from_csv_accepts_bare_and_full_headers(tmp_path):
         (
             "a,b\n1,2\n2,x\n",
             {"minimise": ["a", "b"]},
-            "row 2 column 'b': expected a finite number, got 'x'",
+            r"line 3 \(data row 2\) column 'b': expected a finite number, got 'x'",
         ),
         (
             "a,b\n1,2\n2,\n",
             {"minimise": ["a", "b"]},
-            "row 2 column 'b': expected a finite number, got an empty cell",
+            r"line 3 \(data row 2\) column 'b': expected a finite number, got an empty cell",
         ),
         ("a,b\n1,2\n", {"minimise": ["a"]}, "at least two objectives"),
         (
@@ -167,7 +170,7 @@ def test_front_from_csv_accepts_bare_and_full_headers(tmp_path):
         ),
         ("a,b\n", {"minimise": ["a", "b"]}, "no rows"),
         ("", {"minimise": ["a", "b"]}, "the file is empty"),
-        ("a [g],a [kg]\n1,2\n", {"minimise": ["a"]}, "two columns are named 'a'"),
+        ("a [g],a [kg]\n1,2\n", {"minimise": ["a"]}, "names the column 'a' twice"),
     ],
 )
 def test_front_from_csv_errors(tmp_path, text, kwargs, needle):
@@ -333,3 +336,70 @@ def test_three_objective_rates_from_three_designs():
     assert tradeoff_rates(front, 0)["rate"].to_numpy() == pytest.approx([1.0, 1.0, 1.0])
     two = make_front([(1, 2, 3), (3, 2, 1)], ["min"] * 3, ["a", "b", "c"])
     assert tradeoff_rates(two, 0)["text"].str.startswith("too few designs").all()
+
+
+# ------------------------------------------------------------- trust in what a table says
+def test_repeated_header_is_refused_not_renamed(tmp_path):
+    """A header row naming `cost` twice is refused naming the file and the header (pandas would make `cost.1`)."""
+    path = tmp_path / "twice.csv"
+    path.write_text("cost,mass,cost\n1,2,3\n2,1,4\n", encoding="utf-8")
+    with pytest.raises(DataError, match=r"twice\.csv: the header row names the column 'cost' twice"):
+        read_table(path)
+
+
+@pytest.mark.parametrize(
+    ("cell", "said"),
+    [("nan", "'nan' (not a number)"), ("NaN", "'NaN' (not a number)"), ("", "an empty cell")],
+)
+def test_missing_values_are_told_apart(tmp_path, cell, said):
+    """A cell reading NaN is called not a number, an empty one empty; the row is named by its line too."""
+    path = tmp_path / "t.csv"
+    path.write_text(f"cost,mass\n1,2\n\n2,{cell}\n", encoding="utf-8")  # a blank line, which pandas skips
+    with pytest.raises(DataError) as caught:
+        front_from_csv(path, minimise=["cost", "mass"])
+    assert str(caught.value) == (
+        f"t.csv: line 4 (data row 2) column 'mass': expected a finite number, got {said}"
+    )
+
+
+def test_bad_cell_in_a_run_front_names_its_line(tmp_path):
+    """read_front names the line of front.csv that holds the bad value."""
+    table = pd.DataFrame({"cost": [1.0, 2.0], "mass": [2.0, 1.0]})
+    front = Front.from_table(table, [Objective("cost"), Objective("mass")])
+    csv_path, _ = front.to_csv(tmp_path / "front.csv")
+    csv_path.write_text(csv_path.read_text().replace("2.0,1.0", "2.0,NaN"), encoding="utf-8")
+    with pytest.raises(DataError, match=r"line 3 \(data row 2\) column 'mass'.*'NaN' \(not a number\)"):
+        read_front(tmp_path)
+
+
+def test_non_utf8_byte_is_reported_at_its_line(tmp_path):
+    """A byte that is not UTF-8 on the second line is reported as line 2 with the byte, not 'position 0'."""
+    path = tmp_path / "latin.csv"
+    path.write_bytes(b"cost,mass\n1,\xe9\n")
+    with pytest.raises(DataError, match=r"latin\.csv: line 2 holds the byte 0xe9, which is not UTF-8 text"):
+        read_table(path)
+
+
+# ------------------------------------------------------------- values near the float limit
+def test_reference_point_stays_finite_near_the_float_limit():
+    """Objectives spanning -1.7e308 to 1.7e308 (span inf) still give a finite reference point."""
+    points = np.array([[-1.7e308, 1.7e308], [1.7e308, -1.7e308], [0.0, 0.0]])
+    for maximise in (False, [True, False]):
+        ref = reference_point(points, maximise)
+        assert np.isfinite(ref).all()
+    ref = reference_point(points)
+    assert (ref >= points.max(axis=0)).all()
+
+
+def test_reference_point_unchanged_for_ordinary_values():
+    """Ordinary values keep the nadir plus 10 % of the range (common practice)."""
+    assert reference_point([[1.0, 4.0], [3.0, 2.0]]).tolist() == pytest.approx([3.2, 4.2])
+
+
+def test_hypervolume_problem_names_the_objective():
+    """When the extents multiply past the largest float the problem names the widest objective."""
+    points = np.array([[-1.7e308, 1.0], [1.7e308, 0.5]])
+    ref = reference_point(points)
+    text = hypervolume_problem(points, ref, names=["cost", "mass"])
+    assert "cannot be computed" in text and "'cost'" in text
+    assert hypervolume_problem([[1.0, 2.0], [2.0, 1.0]], [3.0, 3.0]) == ""

@@ -311,3 +311,59 @@ def test_cli_resume_of_a_bad_store_exits_2_and_touches_nothing(tmp_path, kind):
     assert result.output.strip().count("\n") == 0 and result.output.startswith("Error: ")
     assert (_digest(path) if path.exists() else None) == before
     assert sorted(p.name for p in tmp_path.iterdir()) == ([] if kind == "missing" else ["bad.sqlite"])
+
+
+# ------------------------------------------------------------- an archive locked by another process
+def test_locked_archive_waits_then_ends_with_one_line(make_case, tmp_path, monkeypatch):
+    """A run whose archive stays locked says it waits, then ends with one Error line and exit 2 (no traceback)."""
+    import sqlite3
+
+    from click.testing import CliRunner
+
+    from tradewise import store as store_module
+    from tradewise.cli import main
+
+    monkeypatch.setattr(store_module, "LOCK_WAIT", 0.6)
+    monkeypatch.setattr(store_module, "LOCK_NOTICE", 0.2)
+    path = tmp_path / "shared.sqlite"
+    open_store(path).close()
+    holder = sqlite3.connect(path)
+    holder.execute("BEGIN IMMEDIATE")  # another program holding the write lock
+    try:
+        result = CliRunner().invoke(main, ["run", str(make_case()), "--out", str(tmp_path / "run"),
+                                           "--store", str(path), "--evaluations", "20", "--quiet"])
+    finally:
+        holder.rollback()
+        holder.close()
+    assert result.exit_code == 2, result.output
+    assert "Traceback" not in result.output and not isinstance(result.exception, sqlite3.Error)
+    assert f"the archive {path} is locked by another process; waiting" in result.output
+    last = result.output.strip().splitlines()[-1]
+    assert last.startswith("Error: ") and "locked by another process" in last and "0.6 s" in last
+    with open_store(path) as archive:  # nothing was lost or broken: the archive opens as before
+        assert archive.runs().empty
+
+
+def test_lock_released_in_time_lets_the_run_go_on(make_case, tmp_path, monkeypatch):
+    """A lock released within the waiting time only delays the run."""
+    import sqlite3
+    import threading
+
+    from tradewise import store as store_module
+    from tradewise.case import load_case
+    from tradewise.search import run_study
+
+    monkeypatch.setattr(store_module, "LOCK_WAIT", 10.0)
+    monkeypatch.setattr(store_module, "LOCK_NOTICE", 0.1)
+    path = tmp_path / "shared.sqlite"
+    open_store(path).close()
+    holder = sqlite3.connect(path, check_same_thread=False)
+    holder.execute("BEGIN IMMEDIATE")
+    release = threading.Timer(0.5, holder.rollback)
+    release.start()
+    try:
+        result = run_study(load_case(make_case()), evaluations=20, population=10, store=path)
+    finally:
+        release.join()
+        holder.close()
+    assert result.n_evals == 20

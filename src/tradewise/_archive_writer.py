@@ -138,8 +138,8 @@ def read_messages(stream, inbox):
             return
 
 
-def main(path):
-    db = sqlite3.connect(path, timeout=60)
+def main(path, wait=60.0):
+    db = sqlite3.connect(path, timeout=wait)
     db.execute("PRAGMA synchronous=NORMAL")
     writer = Writer(db)
     inbox = queue.Queue()
@@ -178,7 +178,7 @@ if __name__ == "__main__":
     # os._exit: the reader thread may still be blocked on the input pipe, which a normal interpreter
     # shutdown does not allow.
     try:
-        main(sys.argv[1])
+        main(sys.argv[1], *(float(a) for a in sys.argv[2:3]))
     except BaseException as exc:
         print(f"{type(exc).__name__}: {exc}", file=sys.stderr, flush=True)
         os._exit(1)

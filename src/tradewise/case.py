@@ -12,7 +12,7 @@ from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Any
 
-from tradewise.errors import CaseError
+from tradewise.errors import CaseError, quote, undecodable
 
 __all__ = [
     "Variable",
@@ -297,7 +297,7 @@ def load_case(path: str | Path) -> Case:
     try:
         text = raw.decode("utf-8")
     except UnicodeDecodeError as exc:
-        raise CaseError(f"{file}: is not UTF-8 text (byte {exc.start})") from None
+        raise CaseError(f"{file}: {undecodable(raw, exc)}; save it as UTF-8") from None
     try:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:
@@ -482,6 +482,11 @@ def _variable(name: str, entry: dict[str, Any], where: str) -> Variable:
     high = _number(entry["high"], f"{where}: high", integer=integer)
     if low >= high:
         raise CaseError(f"{where}: 'low' ({low}) must be below 'high' ({high})")
+    if not math.isfinite(float(high) - float(low)):
+        raise CaseError(
+            f"{where}: the range from {low:g} to {high:g} is too wide to compute with (high - low overflows "
+            "a float); narrow it or change the variable's unit"
+        )
     if not integer:
         low, high = float(low), float(high)
     return Variable(name, kind, low=low, high=high, unit=unit, description=description)
@@ -588,9 +593,9 @@ def _model(data: dict[str, Any], file: Path) -> tuple[str | None, tuple[str, ...
     if model.count(":") != 1:
         raise CaseError(f"{file}: model must look like \"model.py:evaluate\", got {model!r}")
     module_name, function = model.split(":")
-    module_file = file.parent / module_name
+    module_file = _inside_case_folder(module_name, file)
     if not module_name.endswith(".py") or not module_file.is_file():
-        raise CaseError(f"{file}: model file {module_name!r} not found beside the case file")
+        raise CaseError(f"{file}: model file {quote(module_name)} not found in the case folder {file.parent}")
     if not function.isidentifier():
         raise CaseError(f"{file}: model function {function!r} is not a Python name")
     try:
@@ -603,6 +608,25 @@ def _model(data: dict[str, Any], file: Path) -> tuple[str | None, tuple[str, ...
             f"{file}: model function {function!r} not found in {module_name}{_suggest(function, defined)}"
         )
     return model, None, timeout
+
+
+def _inside_case_folder(name: str, file: Path) -> Path:
+    """The model file ``name`` in the case folder of ``file``; it may sit in a subfolder, never outside.
+
+    A case folder is meant to be moved and shared whole, and a case file must
+    not be able to point tradewise at code elsewhere on the machine.
+    """
+    relative = Path(name)
+    if relative.is_absolute() or relative.drive or ".." in relative.parts or "\\" in name:
+        raise CaseError(
+            f"{file}: model file {quote(name)} must be a path inside the case folder "
+            "(such as \"model.py\" or \"src/model.py\"), without '..' or an absolute path"
+        )
+    folder = file.parent.resolve()
+    found = (folder / relative).resolve()
+    if not found.is_relative_to(folder):
+        raise CaseError(f"{file}: model file {quote(name)} leads outside the case folder {file.parent} (through a link)")
+    return file.parent / relative
 
 
 def _top_level_names(tree: ast.Module) -> list[str]:

@@ -2,11 +2,12 @@
 
 from __future__ import annotations
 
+import logging
 import sys
 
 import click
 
-from tradewise.errors import TradewiseError
+from tradewise.errors import TradewiseError, one_line
 
 
 class _Group(click.Group):
@@ -18,7 +19,7 @@ class _Group(click.Group):
         except TradewiseError as exc:
             if ctx.obj and ctx.obj.get("debug"):
                 raise
-            click.echo(f"Error: {exc}", err=True)
+            click.echo(f"Error: {one_line(str(exc))}", err=True)
             ctx.exit(exc.exit_code)
 
 
@@ -33,6 +34,21 @@ def main(ctx: click.Context, debug: bool) -> None:
     `tradewise run heat-sink` to search one of them.
     """
     ctx.obj = {"debug": debug}
+    _show_notices()
+
+
+class _Notices(logging.Handler):
+    """Shows the library's notices (such as waiting for a locked archive) as plain lines on standard error."""
+
+    def emit(self, record: logging.LogRecord) -> None:
+        click.echo(one_line(record.getMessage()), err=True)
+
+
+def _show_notices() -> None:
+    logger = logging.getLogger("tradewise")
+    if not any(isinstance(h, _Notices) for h in logger.handlers):
+        logger.addHandler(_Notices(logging.INFO))
+        logger.propagate = False
 
 
 @main.command("cases")
@@ -91,8 +107,18 @@ def _summary(result) -> None:
     click.echo(result.message)
     front = result.front
     if len(front):
-        click.echo(f"Front: {len(front)} designs, hypervolume {result.hypervolume:.6g} "
+        import math
+
+        from tradewise.front import hypervolume_problem
+
+        problem = "" if math.isfinite(result.hypervolume) else hypervolume_problem(
+            front.points(), result.reference, front.maximise, names=front.objective_names
+        ) or "the hypervolume is not a finite number"
+        hv = "hypervolume not computable" if problem else f"hypervolume {result.hypervolume:.6g}"
+        click.echo(f"Front: {len(front)} designs, {hv} "
                    f"(reference point {', '.join(f'{r:g}' for r in result.reference)})")
+        if problem:
+            click.echo(f"Note: {problem[0].upper()}{problem[1:]}.")
         width = max(len(column_header(o.name, o.unit)) for o in front.objectives)
         for o in front.objectives:
             values = front.table[o.name]
@@ -253,6 +279,72 @@ def check_command(case) -> None:
     click.echo(f"The case is valid and its model answered in {outcome.duration * 1000:.3g} ms.")
 
 
+#: Files a run folder holds as data; no command may write its --out over one of them.
+_RUN_DATA = frozenset({
+    "front.csv", "front.json", "history.csv", "archive.sqlite", "archive.sqlite-wal", "archive.sqlite-shm",
+    "representatives.csv", "least_infeasible.csv", "least_infeasible.json", "seeds.csv", "attainment.csv",
+    "disagreement.csv",
+})
+
+
+def _is_run_folder(folder) -> bool:
+    """Whether ``folder`` was written by a run (its front.json names a case, or it holds a history or archive)."""
+    import json
+
+    if (folder / "history.csv").is_file() or (folder / "archive.sqlite").is_file():
+        return True
+    try:
+        meta = json.loads((folder / "front.json").read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return False
+    return isinstance(meta, dict) and bool(meta.get("case_hash"))
+
+
+def _same_file(a, b) -> bool:
+    import os
+
+    if a.resolve() == b.resolve():
+        return True
+    try:
+        return os.path.samefile(a, b)  # hard links
+    except OSError:
+        return False
+
+
+def _check_out(out, inputs=(), *, with_json: bool = False) -> None:
+    """Refuse an --out that would replace one of the command's inputs or a run folder's data.
+
+    Paths are compared resolved (symlinks followed). With ``with_json`` the
+    ``.json`` written beside ``out`` is checked as well.
+    """
+    from pathlib import Path
+
+    from tradewise.errors import DataError
+
+    if out is None:
+        return
+    targets = [Path(out)] + ([Path(out).with_suffix(".json")] if with_json else [])
+    for target in targets:
+        for given in inputs:
+            if given is not None and _same_file(target, Path(given)):
+                also = "" if target == Path(out) else f" (the .json written beside it, {target.name})"
+                raise DataError(f"--out: {out}{also} is the input file {given}; writing there would replace "
+                                "it, choose another file")
+        resolved = target.resolve()
+        if resolved.name in _RUN_DATA and _is_run_folder(resolved.parent):
+            raise DataError(f"--out: {target} is the {resolved.name} of the run folder {resolved.parent}, which "
+                            "holds the run's data; choose another file name")
+
+
+def _front_inputs(path) -> list:
+    """The files that reading the front at ``path`` (a run folder or a CSV) takes in."""
+    from pathlib import Path
+
+    path = Path(path)
+    table = path / "front.csv" if path.is_dir() else path
+    return [table, table.with_suffix(".json")]
+
+
 @main.command("front")
 @click.argument("table", metavar="TABLE.csv")
 @click.option("--min", "minimise", multiple=True, metavar="COL", help="A column to make small (repeat for more).")
@@ -270,6 +362,7 @@ def front_command(table, minimise, maximise, keep, out) -> None:
     """
     from tradewise.front import column_header, front_from_csv
 
+    _check_out(out, [table], with_json=True)
     front = front_from_csv(table, minimise=minimise, maximise=maximise, keep=keep or None)
     summary = f"{len(front)} of {front.meta['n_rows']} rows are on the front"
     if out:
@@ -305,6 +398,7 @@ def pick_command(front_path, method, weights, target, limits, top, minimise, max
     from tradewise.choose import NonConvexWarning, choose, describe_choice, parse_values
     from tradewise.front import front_from_csv, read_front
 
+    _check_out(out, _front_inputs(front_path), with_json=True)
     if minimise or maximise:
         front = front_from_csv(front_path, minimise=minimise, maximise=maximise)
     else:
@@ -327,6 +421,17 @@ def pick_command(front_path, method, weights, target, limits, top, minimise, max
         picked = replace(front.with_table(shortlist), meta={**front.meta, "shortlist": settings})
         written = picked.to_csv(out)
         click.echo(f"Wrote {written[0]} and {written[1].name}")
+
+
+def _run_inputs(run) -> list:
+    """The data files of a run folder and of its seeds (or the front CSV and its .json, for a file)."""
+    from pathlib import Path
+
+    path = Path(run)
+    if not path.is_dir():
+        return _front_inputs(path)
+    folders = [path, *sorted(p for p in (path / "seeds").glob("seed-*") if p.is_dir())]
+    return [folder / name for folder in folders for name in sorted(_RUN_DATA)]
 
 
 def _read_run(run: str, *, evaluations: bool = True):
@@ -363,6 +468,14 @@ def _read_run(run: str, *, evaluations: bool = True):
     store_name, run_id = front.meta.get("store"), front.meta.get("run_id")
     if evaluations and store_name and run_id is not None and (folder / store_name).is_file():
         with open_store(folder / store_name, create=False) as archive:
+            record = archive.run(int(run_id))
+            ours = front.meta.get("case_hash")
+            if ours and record["case_hash"] != ours:
+                raise DataError(
+                    f"{folder / store_name}: run {run_id} of this archive is of the case "
+                    f"{record['case_title']!r} ({record['case_hash']}), but {meta_path} is of the case "
+                    f"{front.meta.get('title')!r} ({ours}); put the run's own archive beside its front.json"
+                )
             table = archive.evaluations(int(run_id))
     return front, history, table
 
@@ -414,6 +527,7 @@ def plot_command(run, kind, out, row, variables) -> None:
     from tradewise.errors import DataError
     from tradewise.plots import plot_attainment, plot_kind, save_figure
 
+    _check_out(out, _run_inputs(run))
     front, history, evaluations = _read_run(run, evaluations=kind == "front")
     if row is not None and row > len(front):
         raise DataError(f"--row: {row} is past the last design of the front ({len(front)} rows)")
@@ -449,6 +563,7 @@ def report_command(run, out, shortlist_path) -> None:
     from tradewise.front import read_front, read_table
     from tradewise.report import write_report
 
+    _check_out(out, _run_inputs(run) + ([*_front_inputs(shortlist_path)] if shortlist_path else []))
     front, history, evaluations = _read_run(run)
     seeds, surfaces = _read_seeds(run, front)
     shortlist = None
@@ -528,6 +643,8 @@ def compare_command(runs, reference, out) -> None:
 
     from tradewise.compare import compare_runs
 
+    _check_out(out, [p for run in runs for p in _run_inputs(run)]
+               + (_front_inputs(reference) if reference else []))
     result = compare_runs(runs, reference=reference)
     table = result.table
     width = max(len(str(r)) for r in table["run"])

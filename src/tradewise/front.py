@@ -8,6 +8,7 @@ from moocore.
 
 from __future__ import annotations
 
+import csv
 import json
 import math
 import re
@@ -21,7 +22,7 @@ import numpy as np
 import pandas as pd
 
 from tradewise.case import Objective
-from tradewise.errors import DataError
+from tradewise.errors import DataError, quote, undecodable
 
 __all__ = [
     "Front",
@@ -30,7 +31,9 @@ __all__ = [
     "hypervolume",
     "hv_contributions",
     "reference_point",
+    "hypervolume_problem",
     "read_front",
+    "check_front_meta",
     "column_header",
     "objective_matrix",
     "read_table",
@@ -47,11 +50,18 @@ def column_header(name: str, unit: str) -> str:
     return f"{name} [{unit}]" if unit else name
 
 
-def objective_matrix(table: pd.DataFrame, objectives: Sequence[Objective], *, where: str = "table") -> np.ndarray:
-    """The objective columns of ``table`` as a float array, checked for missing and non-numeric values."""
+def objective_matrix(
+    table: pd.DataFrame, objectives: Sequence[Objective], *, where: str = "table", source: str | Path | None = None
+) -> np.ndarray:
+    """The objective columns of ``table`` as a float array, checked for missing and non-numeric values.
+
+    ``source`` is the CSV file the table was read from (by :func:`read_table`,
+    rows in file order); with it a bad cell is named by its line in that
+    file and told apart as empty or holding text such as ``NaN``.
+    """
     missing = [o.name for o in objectives if o.name not in table.columns]
     if missing:
-        raise DataError(f"{where}: no column {missing[0]!r}; columns: {', '.join(map(str, table.columns))}")
+        raise DataError(f"{where}: no column {missing[0]!r}; columns: {_columns_text(table.columns)}")
     columns = []
     for objective in objectives:
         raw = table[objective.name]
@@ -59,13 +69,51 @@ def objective_matrix(table: pd.DataFrame, objectives: Sequence[Objective], *, wh
         bad = values.isna() | ~np.isfinite(values.to_numpy(dtype=float, na_value=np.nan))
         if bad.any():
             position = int(np.flatnonzero(bad.to_numpy())[0])
-            got = "an empty cell" if pd.isna(raw.iloc[position]) else repr(raw.iloc[position])
-            raise DataError(
-                f"{where}: row {position + 1} column {objective.name!r}: "
-                f"expected a finite number, got {got}"
-            )
+            cell = raw.iloc[position]
+            got, row = ("NaN (not a number)" if pd.isna(cell) else quote(cell)), f"row {position + 1}"
+            if source is not None:
+                line, text = _raw_cell(source, position, objective.name)
+                if line is not None:
+                    row = f"line {line} (data row {position + 1})"
+                if text is not None and pd.isna(cell):
+                    got = "an empty cell" if not text.strip() else f"{quote(text)} (not a number)"
+            raise DataError(f"{where}: {row} column {objective.name!r}: expected a finite number, got {got}")
         columns.append(values.to_numpy(dtype=float))
     return np.column_stack(columns) if columns else np.empty((len(table), 0))
+
+
+def _columns_text(columns: Sequence[Any], limit: int = 12) -> str:
+    names = [quote(str(c), 40) for c in columns]
+    return ", ".join(names[:limit]) + (f" and {len(names) - limit} more" if len(names) > limit else "")
+
+
+def _raw_cell(path: str | Path, position: int, name: str) -> tuple[int | None, str | None]:
+    """The 1-based line of data row ``position`` of a CSV file and the text of its cell in column ``name``.
+
+    Blank lines are skipped as pandas skips them; ``(None, None)`` when the
+    file cannot be matched up with the table.
+    """
+    try:
+        with open(path, newline="", encoding="utf-8") as handle:
+            reader = csv.reader(handle)
+            header = next((row for row in reader if row), None)
+            if header is None:
+                return None, None
+            names = [_strip_unit(h) for h in header]
+            if name not in names:
+                return None, None
+            column = names.index(name)
+            seen, start = -1, reader.line_num + 1
+            for row in reader:
+                first, start = start, reader.line_num + 1  # a quoted cell may span several lines
+                if not row or (len(row) == 1 and not row[0].strip()):
+                    continue
+                seen += 1
+                if seen == position:
+                    return first, row[column] if column < len(row) else ""
+    except (OSError, UnicodeDecodeError, csv.Error):
+        pass
+    return None, None
 
 
 def nondominated(points: Any, maximise: bool | Sequence[bool] = False, *, keep_weakly: bool = False) -> np.ndarray:
@@ -123,6 +171,10 @@ def reference_point(
 
     A common practice (not a standard): the nadir plus 10 % of the range, so
     that the end points of the front count in the hypervolume.
+
+    The point is always finite: for values so near the float limit that the
+    margin would overflow, it is the largest float (the smallest for a
+    maximised objective), and the worst designs then add nothing.
     """
     points = np.atleast_2d(np.asarray(points, dtype=float))
     n = points.shape[1]
@@ -135,11 +187,51 @@ def reference_point(
             continue
         column = points[:, j]
         lo, hi = float(np.min(column)), float(np.max(column))
-        span = hi - lo
-        if span <= 0:
-            span = abs(hi) if hi != 0 else 1.0
-        ref[j] = lo - margin * span if flags[j] else hi + margin * span
+        with np.errstate(over="ignore"):
+            # half of each end, so that the span of values near the float limit does not overflow
+            span = 2.0 * (hi / 2.0 - lo / 2.0)
+            if not span > 0:
+                span = abs(hi) if hi != 0 else 1.0
+            value = lo - margin * span if flags[j] else hi + margin * span
+        if not math.isfinite(value):
+            value = -_LARGEST if flags[j] else _LARGEST
+        ref[j] = value
     return ref
+
+
+_LARGEST = float(np.finfo(float).max)
+
+
+def hypervolume_problem(
+    points: Any,
+    reference: Sequence[float],
+    maximise: bool | Sequence[bool] = False,
+    *,
+    names: Sequence[str] | None = None,
+) -> str:
+    """Why the hypervolume of ``points`` for ``reference`` cannot be computed ('' when it can).
+
+    The hypervolume multiplies each objective's extent from the best value to
+    the reference point; near the float limit that product (or one extent)
+    is larger than any float, and the objective with the largest extent is
+    named.
+    """
+    points = np.atleast_2d(np.asarray(points, dtype=float))
+    if points.size == 0:
+        return ""
+    flags = np.asarray(_flags(maximise, points.shape[1]))
+    ref = np.asarray(reference, dtype=float)
+    best = np.where(flags, points.max(axis=0), points.min(axis=0))
+    with np.errstate(over="ignore", invalid="ignore"):
+        extent = np.abs(ref - best)
+        product = float(np.prod(extent))
+    if math.isfinite(product) and np.isfinite(ref).all():
+        return ""
+    j = int(np.nanargmax(np.where(np.isfinite(extent), extent, np.inf)))
+    name = repr(str(names[j])) if names is not None else f"{j + 1}"
+    return (f"the hypervolume cannot be computed at this scale: the objectives' extents to the reference point "
+            f"multiply past the largest float (objective {name} spans {extent[j]:.3g}); rescale that objective, "
+            "e.g. change its unit")
 
 
 def _flags(maximise: bool | Sequence[bool], n: int) -> list[bool]:
@@ -314,28 +406,146 @@ def read_front(path: str | Path) -> Front:
         raise DataError(f"{meta_path}: not readable JSON ({exc})") from None
     if not isinstance(meta, dict) or meta.get("format") != FRONT_FORMAT:
         raise DataError(f"{meta_path}: not a tradewise front description (format {FRONT_FORMAT!r} expected)")
+    check_front_meta(meta, meta_path)
     try:
         table = pd.read_csv(path)
     except (OSError, ValueError) as exc:
         raise DataError(f"{path}: cannot be read as CSV ({exc})") from None
     table = table.rename(columns=_strip_unit)
     objectives = tuple(
-        Objective(o["name"], o.get("goal", "min"), o.get("unit", ""), o.get("worst")) for o in meta.get("objectives", [])
+        Objective(o["name"], o.get("goal", "min"), o.get("unit", "") or "", o.get("worst")) for o in meta["objectives"]
     )
-    if len(objectives) < 2:
-        raise DataError(f"{meta_path}: lists {len(objectives)} objective(s); a front needs at least two")
-    objective_matrix(table, objectives, where=str(path))
+    objective_matrix(table, objectives, where=str(path), source=path)
     reference = meta.get("reference_point")
     known = {k: meta[k] for k in meta if k not in {"objectives", "variables", "constraints", "units", "reference_point"}}
     return Front(
         table=table,
         objectives=objectives,
-        units=dict(meta.get("units", {})),
-        variables=tuple(meta.get("variables", [])),
-        constraints=tuple(meta.get("constraints", [])),
-        reference=tuple(reference) if reference is not None else None,
+        units=dict(meta.get("units") or {}),
+        variables=tuple(meta.get("variables") or []),
+        constraints=tuple(meta.get("constraints") or []),
+        reference=tuple(float(r) for r in reference) if reference is not None else None,
         meta=known,
     )
+
+
+# What each key of front.json may hold, as data: one check, one shape of message. None (null) is
+# allowed for every key but objectives and format. Keys not listed are kept unchecked.
+_TEXT, _COUNT, _NUMBER, _FLAG, _TABLE = "text", "a whole number", "a number", "true or false", "a JSON object"
+_META_KINDS: dict[str, str] = {
+    **dict.fromkeys(
+        ("title", "description", "cautions", "case_file", "case_hash", "algorithm", "status", "stop_reason",
+         "message", "reference_source", "store", "source", "seed_column"), _TEXT),
+    **dict.fromkeys(("seed", "n_evals", "n_gen", "n_failed", "n_cached", "n_seeds", "run_id", "n_designs",
+                     "n_rows"), _COUNT),
+    **dict.fromkeys(("hypervolume", "started", "finished", "hypervolume_median", "hypervolume_min",
+                     "hypervolume_max"), _NUMBER),
+    "feasible": _FLAG,
+    **dict.fromkeys(("settings", "versions", "descriptions", "shortlist"), _TABLE),
+}
+_META_LISTS = {  # key: what each item must be
+    "variables": _TEXT, "constraints": _TEXT, "seeds": _COUNT, "seed_hypervolumes": _NUMBER,
+    "design_space": _TABLE, "constraint_limits": _TABLE,
+}
+_ITEM_KINDS = {  # keys of the objects inside lists and objects
+    "objectives": {"name": _TEXT, "goal": _TEXT, "unit": _TEXT, "worst": _NUMBER},
+    "design_space": {"name": _TEXT, "type": _TEXT, "low": _NUMBER, "high": _NUMBER, "unit": _TEXT},
+    "constraint_limits": {"name": _TEXT, "min": _NUMBER, "max": _NUMBER, "unit": _TEXT},
+    "settings": {"population": _COUNT, "evaluations": _COUNT, "generations": _COUNT, "seed": _COUNT,
+                 "stall_generations": _COUNT, "time_limit": _NUMBER, "stall_tolerance": _NUMBER},
+}
+
+
+def _is(value: Any, kind: str) -> bool:
+    if kind == _TEXT:
+        return isinstance(value, str)
+    if kind == _FLAG:
+        return isinstance(value, bool)
+    if kind == _TABLE:
+        return isinstance(value, dict)
+    if isinstance(value, bool):
+        return False
+    if kind == _COUNT:
+        return isinstance(value, int)
+    return isinstance(value, int | float)
+
+
+def _kind_of(value: Any) -> str:
+    names = {str: "text", bool: "true/false", int: "a number", float: "a number", list: "a list",
+             dict: "a JSON object", type(None): "null"}
+    return f"{names.get(type(value), type(value).__name__)} {quote(value, 40)}"
+
+
+def check_front_meta(meta: dict[str, Any], where: str | Path) -> None:
+    """Check the shape of a front description (front.json) once, where it is read.
+
+    Raises
+    ------
+    DataError
+        Naming the file and the key (``objectives[1].goal``, ``units.mass``)
+        whose value has the wrong type, with what it holds and what is allowed.
+    """
+
+    def bad(key: str, value: Any, allowed: str) -> DataError:
+        return DataError(f"{where}: key {key!r} must be {allowed}, got {_kind_of(value)}")
+
+    def check_item(key: str, item: Any, kinds: dict[str, str]) -> None:
+        for name, kind in kinds.items():
+            value = item.get(name)
+            if value is not None and not _is(value, kind):
+                raise bad(f"{key}.{name}", value, kind)
+
+    objectives = meta.get("objectives")
+    if not isinstance(objectives, list):
+        raise bad("objectives", objectives, "a list of objects with a name and a goal")
+    if len(objectives) < 2:
+        raise DataError(f"{where}: lists {len(objectives)} objective(s); a front needs at least two")
+    for i, item in enumerate(objectives):
+        key = f"objectives[{i}]"
+        if not isinstance(item, dict):
+            raise bad(key, item, "an object with a name and a goal")
+        if not isinstance(item.get("name"), str) or not item["name"]:
+            raise bad(f"{key}.name", item.get("name"), "the objective's name as text")
+        if item.get("goal", "min") not in ("min", "max"):
+            raise bad(f"{key}.goal", item.get("goal"), "'min' or 'max'")
+        check_item(key, item, _ITEM_KINDS["objectives"])
+        if item.get("worst") is not None and not math.isfinite(item["worst"]):
+            raise bad(f"{key}.worst", item["worst"], "a finite number or null")
+    for key, kind in _META_KINDS.items():
+        value = meta.get(key)
+        if value is not None and not _is(value, kind):
+            raise bad(key, value, kind)
+    for key, kind in _META_LISTS.items():
+        value = meta.get(key)
+        if value is None:
+            continue
+        if not isinstance(value, list):
+            raise bad(key, value, f"a list of {'objects' if kind == _TABLE else kind}")
+        for i, item in enumerate(value):
+            if not _is(item, kind):
+                raise bad(f"{key}[{i}]", item, kind)
+            if key in _ITEM_KINDS:
+                check_item(f"{key}[{i}]", item, _ITEM_KINDS[key])
+    units = meta.get("units")
+    if units is not None:
+        if not isinstance(units, dict):
+            raise bad("units", units, "a JSON object of column name to unit text")
+        for name, unit in units.items():
+            if unit is not None and not isinstance(unit, str):
+                raise bad(f"units.{name}", unit, "the unit as text")
+    for key in ("versions", "descriptions"):
+        for name, value in (meta.get(key) or {}).items():
+            if value is not None and not isinstance(value, str):
+                raise bad(f"{key}.{name}", value, "text")
+    check_item("settings", meta.get("settings") or {}, _ITEM_KINDS["settings"])
+    for name, value in (meta.get("settings") or {}).items():
+        if value is not None and not isinstance(value, str | int | float | bool):
+            raise bad(f"settings.{name}", value, "a number, text, true/false or null")
+    reference = meta.get("reference_point")
+    if reference is not None:
+        fine = isinstance(reference, list) and all(_is(r, _NUMBER) and math.isfinite(r) for r in reference)
+        if not fine or len(reference) != len(objectives):
+            raise bad("reference_point", reference, f"a list of {len(objectives)} finite numbers or null")
 
 
 def _strip_unit(header: str) -> str:
@@ -381,21 +591,46 @@ def read_table(path: str | Path) -> tuple[pd.DataFrame, dict[str, str]]:
         table = pd.read_csv(path)
     except pd.errors.EmptyDataError:
         raise DataError(f"{path}: the file is empty; expected a CSV table with a header row") from None
-    except (OSError, ValueError, UnicodeDecodeError) as exc:
-        reason = " ".join(str(exc).split())
-        raise DataError(f"{path}: cannot be read as CSV ({reason})") from None
+    except UnicodeDecodeError:
+        raise DataError(f"{path}: {_where_not_utf8(path)}; save it as UTF-8 CSV") from None
+    except (OSError, ValueError) as exc:
+        raise DataError(f"{path}: cannot be read as CSV ({exc})") from None
+    _check_header(path)
     units: dict[str, str] = {}
     names: list[str] = []
     for header in table.columns:
         match = _HEADER.match(str(header))
         name = match.group("name") if match else str(header)
         if name in names:
-            raise DataError(f"{path}: two columns are named {name!r}; column names must differ")
+            raise DataError(f"{path}: two columns are named {quote(name)}; column names must differ")
         names.append(name)
         if match and match.group("unit"):
             units[name] = match.group("unit")
     table.columns = names
     return table, units
+
+
+def _where_not_utf8(path: Path) -> str:
+    data = path.read_bytes()
+    try:
+        data.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        return undecodable(data, exc)
+    return "is not UTF-8 text"
+
+
+def _check_header(path: Path) -> None:
+    """Refuse a header row that names a column twice (pandas would quietly rename the second ``cost.1``)."""
+    with open(path, newline="", encoding="utf-8") as handle:
+        header = next((row for row in csv.reader(handle) if row), [])
+    seen: dict[str, str] = {}
+    for cell in header:
+        name = _strip_unit(cell.strip())
+        if name in seen:
+            same = "" if seen[name] == cell else f" ({quote(seen[name])} and {quote(cell)})"
+            raise DataError(f"{path}: the header row names the column {quote(name)} twice{same}; "
+                            "column names must differ")
+        seen[name] = cell
 
 
 def front_from_csv(
@@ -444,13 +679,14 @@ def front_from_csv(
         raise DataError(f"{where}: a front needs at least two objectives (--min/--max), got {len(names)}")
     for name in names + [_strip_unit(k) for k in keep or ()]:
         if name not in table.columns:
-            raise DataError(f"{where}: no column {name!r}; columns: {', '.join(map(str, table.columns))}")
+            raise DataError(f"{where}: no column {quote(name)}; columns: {_columns_text(table.columns)}")
     if len(table) == 0:
         raise DataError(f"{where}: the table has a header but no rows")
     if keep is not None:
         kept = [_strip_unit(k) for k in keep]
         table = table[names + [c for c in table.columns if c in kept and c not in names]]
     objectives = [Objective(n, goal, units.get(n, "")) for n, (_, goal) in zip(names, wanted, strict=True)]
+    objective_matrix(table, objectives, where=where, source=path)
     front = Front.from_table(table, objectives, units=units, where=where)
     return replace(front, reference=tuple(front.reference_point()), meta={"source": where, "n_rows": len(table)})
 

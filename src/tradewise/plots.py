@@ -500,6 +500,7 @@ def plot_front(
         raise DataError("front: holds no designs, so there is nothing to draw")
     objectives = _objectives_of(front)
     m = len(objectives)
+    _check_drawable(front)
     with _styled():
         cloud = _cloud(front, evaluations)
         marks = _marks(front, knee, picks)
@@ -1356,8 +1357,45 @@ def save_figure(fig: Figure, path: str | Path) -> Path:
         {"Date": None} if suffix == "svg" else {"CreationDate": None} if suffix == "pdf" else {}
     )
     with _styled():
-        fig.savefig(path, format=suffix, metadata=metadata)
+        _draw(fig, path, format=suffix, metadata=metadata)
     return path
+
+
+#: Beyond this magnitude matplotlib cannot place ticks (its axis margins overflow a float).
+_DRAWABLE = 1e307
+
+
+def _check_drawable(front: Front) -> None:
+    """Refuse, in one line, a front whose values are too near the float limit for axes in its own units."""
+    with np.errstate(over="ignore"):
+        points = front.points()
+        spans = np.ptp(points, axis=0) if len(points) else np.zeros(points.shape[1])
+    for j, objective in enumerate(front.objectives):
+        column = points[:, j]
+        if np.abs(column).max(initial=0.0) > _DRAWABLE or not math.isfinite(float(spans[j])):
+            raise DataError(
+                f"the figure cannot be drawn: the objective {objective.name!r} reaches values near the float "
+                f"limit (beyond {_DRAWABLE:g}); rescale that objective, e.g. change its unit"
+            )
+
+
+def _draw(fig: Figure, target: Any, **options: Any) -> None:
+    """``fig.savefig`` with a plain DataError when the data lie too near the float limit to draw."""
+    try:
+        fig.savefig(target, **options)
+    except (ValueError, OverflowError):
+        huge = [
+            label
+            for ax in fig.axes
+            for label, limits in ((ax.get_xlabel(), ax.get_xlim()), (ax.get_ylabel(), ax.get_ylim()))
+            if any(not math.isfinite(v) or abs(v) > _DRAWABLE for v in limits)
+        ]
+        if not huge:
+            raise
+        raise DataError(
+            f"the figure cannot be drawn: the axis {huge[0]!r} reaches values near the float limit "
+            f"(beyond {_DRAWABLE:g}); rescale that objective, e.g. change its unit"
+        ) from None
 
 
 _SVG_ID = re.compile(r'\bid="([^"]+)"')
@@ -1373,7 +1411,7 @@ def to_svg(fig: Figure, *, prefix: str = "fig", label: str | None = None) -> str
     """
     buffer = io.StringIO()
     with _styled():
-        fig.savefig(buffer, format="svg", metadata={"Date": None})
+        _draw(fig, buffer, format="svg", metadata={"Date": None})
     text = buffer.getvalue()
     text = text[text.index("<svg") :]
     text = re.sub(r"<metadata>.*?</metadata>\s*", "", text, flags=re.S)

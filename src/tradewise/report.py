@@ -9,6 +9,7 @@ Every piece of text that comes from a case file or a table is HTML-escaped.
 from __future__ import annotations
 
 import base64
+import contextlib
 import datetime as _dt
 import hashlib
 import math
@@ -540,40 +541,47 @@ def _grouped(picks: Mapping[str, int]) -> list[tuple[int, list[str]]]:
 
 def _figures(front: Front, history, evaluations, marks, listed, attainment) -> dict[str, str]:
     figures: dict[str, str] = {}
+
+    def add(name: str, draw, label: str) -> None:
+        # a figure that cannot be drawn (values near the float limit) is left out; the tables remain
+        with contextlib.suppress(DataError):
+            figures[name] = plots.to_svg(draw(), prefix=name, label=label)
+
     picks = {
         ", ".join(methods): row for row, methods in _grouped(marks["picks"]) if row != marks["knee"]
     }
-    fig = plots.plot_front(front, evaluations=evaluations, knee=marks["knee"], picks=picks or None)
-    figures["front"] = plots.to_svg(
-        fig, prefix="front", label="The front with the knee and the compromise picks marked"
+    add(
+        "front",
+        lambda: plots.plot_front(front, evaluations=evaluations, knee=marks["knee"], picks=picks or None),
+        "The front with the knee and the compromise picks marked",
     )
-    fig = plots.plot_parallel(front, highlight=marks["knee"], variables=_few_variables(front))
-    figures["parallel"] = plots.to_svg(
-        fig, prefix="parallel", label="Parallel coordinates of the front"
+    add(
+        "parallel",
+        lambda: plots.plot_parallel(front, highlight=marks["knee"], variables=_few_variables(front)),
+        "Parallel coordinates of the front",
     )
     if history is not None and len(history):
         budget = (front.meta.get("settings") or {}).get("evaluations")
-        fig = plots.plot_history(history, stop_reason=front.meta.get("stop_reason"), budget=budget)
-        figures["history"] = plots.to_svg(
-            fig, prefix="history", label="Hypervolume and front size against evaluations"
+        add(
+            "history",
+            lambda: plots.plot_history(history, stop_reason=front.meta.get("stop_reason"), budget=budget),
+            "Hypervolume and front size against evaluations",
         )
     if listed:
-        fig = plots.plot_front(
-            front,
-            evaluations=evaluations,
-            knee=marks["knee"],
-            shortlist=[row for _, row in listed["designs"]],
-        )
-        figures["shortlist"] = plots.to_svg(
-            fig, prefix="shortlist", label="The whole front with the shortlisted designs numbered"
+        shortlisted = [row for _, row in listed["designs"]]
+        add(
+            "shortlist",
+            lambda: plots.plot_front(front, evaluations=evaluations, knee=marks["knee"], shortlist=shortlisted),
+            "The whole front with the shortlisted designs numbered",
         )
     if attainment is not None and len(front.objectives) == 2:
         objectives = [
             replace(o, unit=_unit(front, o.name) or o.unit) for o in front.objectives
         ]
-        fig = plots.plot_attainment(attainment, objectives)
-        figures["attainment"] = plots.to_svg(
-            fig, prefix="attainment", label="Attainment surfaces of the seeds"
+        add(
+            "attainment",
+            lambda: plots.plot_attainment(attainment, objectives),
+            "Attainment surfaces of the seeds",
         )
     return figures
 

@@ -6,6 +6,7 @@ import contextlib
 import functools
 import itertools
 import json
+import logging
 import pickle
 import sqlite3
 import struct
@@ -31,6 +32,12 @@ _ID_BLOCK = 4096  # evaluation ids reserved at a time; the next block is asked f
 # How long "this case has no evaluations from other runs" is trusted before asking the file again.
 _OTHERS_TTL = 1.0
 _SQLITE_HEADER = b"SQLite format 3\x00"
+#: Seconds to wait for another process to release a locked archive before stopping with a StoreError.
+LOCK_WAIT = 30.0
+#: Seconds of waiting after which the wait is announced (on the "tradewise" logger, which prints to
+#: standard error when nothing else is set up).
+LOCK_NOTICE = 1.0
+_log = logging.getLogger("tradewise")
 
 _SCHEMA = """
 CREATE TABLE IF NOT EXISTS meta (key TEXT PRIMARY KEY, value TEXT);
@@ -87,6 +94,37 @@ _TABLES = frozenset({"meta", "runs", "evaluations", "generations", "states"})
 # each preceded by its length (4 bytes, big-endian); the search process is the only sender.
 
 
+def _is_locked(exc: BaseException) -> bool:
+    return isinstance(exc, sqlite3.OperationalError) and ("locked" in str(exc) or "busy" in str(exc))
+
+
+def _patiently(path: Path, db: sqlite3.Connection, action):
+    """Run ``action`` (writes on ``db``), waiting up to :data:`LOCK_WAIT` seconds for another process's lock.
+
+    The wait is announced once after :data:`LOCK_NOTICE` seconds; a lock held
+    longer ends in one StoreError line instead of a traceback.
+    """
+    notice = min(LOCK_NOTICE, LOCK_WAIT)
+    try:
+        for wait in (notice, LOCK_WAIT - notice):
+            db.execute(f"PRAGMA busy_timeout = {int(max(wait, 0.0) * 1000)}")
+            try:
+                return action()
+            except sqlite3.OperationalError as exc:
+                if not _is_locked(exc):
+                    raise
+                if db.in_transaction:
+                    db.rollback()  # a stale read snapshot could not take the write lock later
+            if wait == notice:
+                _log.warning("the archive %s is locked by another process; waiting up to %g s...", path, LOCK_WAIT)
+        raise StoreError(
+            f"{path}: the archive is locked by another process and stayed locked for {LOCK_WAIT:g} s; "
+            "close the program or run that holds it and try again"
+        )
+    finally:
+        db.execute(f"PRAGMA busy_timeout = {int(LOCK_WAIT * 1000)}")
+
+
 class _ProcessLink:
     """The writer in a process of its own, fed through its standard input."""
 
@@ -95,7 +133,7 @@ class _ProcessLink:
         self.proc = subprocess.Popen(
             # -I -S: isolated from the user's environment and site packages (a json.py in the current
             # folder must not stand in for the standard library's), and quicker to start.
-            [sys.executable, "-I", "-S", _archive_writer.__file__, str(path)],
+            [sys.executable, "-I", "-S", _archive_writer.__file__, str(path), str(LOCK_WAIT)],
             stdin=subprocess.PIPE, stdout=subprocess.PIPE, stderr=subprocess.PIPE,
         )
         self.tokens = itertools.count(1)
@@ -165,7 +203,7 @@ class _LocalLink:
     """The same writer code run in this process, when no writer process can be started."""
 
     def __init__(self, path: Path) -> None:
-        self.db = sqlite3.connect(path, timeout=60, check_same_thread=False)
+        self.db = sqlite3.connect(path, timeout=LOCK_WAIT, check_same_thread=False)
         self.db.execute("PRAGMA synchronous=NORMAL")
         self.writer = _archive_writer.Writer(self.db)
         self.lock = threading.Lock()
@@ -350,9 +388,13 @@ class Store:
         """
         if self._link is not None:
             self._sync()
-        cursor = self._db.execute(sql, params)
-        self._db.commit()
-        return cursor
+
+        def write() -> sqlite3.Cursor:
+            cursor = self._db.execute(sql, params)
+            self._db.commit()
+            return cursor
+
+        return _patiently(self.path, self._db, write)
 
     def _take_id(self) -> int:
         """The next evaluation id of this store's reserved block; call with the lock held.
@@ -380,6 +422,9 @@ class Store:
         """Reserve a block of ids through this process's connection; call with the lock held."""
         if self._link is not None and self._proven:
             self._sync()  # the writer must not hold an open transaction
+        return _patiently(self.path, self._db, self._reserve_block)
+
+    def _reserve_block(self) -> int:
         self._db.execute("BEGIN IMMEDIATE")
         try:
             row = self._db.execute("SELECT seq FROM sqlite_sequence WHERE name = 'evaluations'").fetchone()
@@ -720,20 +765,8 @@ def open_store(path: str | Path, *, create: bool = True) -> Store:
             raise StoreError(f"{path}: is not an SQLite file (it starts with {header[:8]!r}); expected an archive")
     db = None
     try:
-        db = sqlite3.connect(path, timeout=30, check_same_thread=False)
-        # Look before writing anything: switching to WAL or adding tables would change a foreign file.
-        tables = {r[0] for r in db.execute("SELECT name FROM sqlite_master WHERE type = 'table'")}
-        tables.discard("sqlite_sequence")
-        if tables:
-            _check_tables(path, db, tables)
-        elif not create:
-            raise StoreError(f"{path}: is an empty SQLite file, not an archive written by `tradewise run`")
-        db.execute("PRAGMA journal_mode=WAL")
-        db.execute("PRAGMA synchronous=NORMAL")
-        if not tables:
-            db.executescript(_SCHEMA)
-            db.execute("INSERT OR IGNORE INTO meta (key, value) VALUES ('schema', ?)", (str(SCHEMA_VERSION),))
-            db.commit()
+        db = sqlite3.connect(path, timeout=LOCK_WAIT, check_same_thread=False)
+        _patiently(path, db, lambda: _prepare(path, db, create=create))
     except StoreError:
         if db is not None:
             db.close()
@@ -743,6 +776,22 @@ def open_store(path: str | Path, *, create: bool = True) -> Store:
             db.close()
         raise StoreError(f"{path}: cannot be used as an archive ({exc})") from None
     return Store(path, db)
+
+
+def _prepare(path: Path, db: sqlite3.Connection, *, create: bool) -> None:
+    # Look before writing anything: switching to WAL or adding tables would change a foreign file.
+    tables = {r[0] for r in db.execute("SELECT name FROM sqlite_master WHERE type = 'table'")}
+    tables.discard("sqlite_sequence")
+    if tables:
+        _check_tables(path, db, tables)
+    elif not create:
+        raise StoreError(f"{path}: is an empty SQLite file, not an archive written by `tradewise run`")
+    db.execute("PRAGMA journal_mode=WAL")
+    db.execute("PRAGMA synchronous=NORMAL")
+    if not tables:
+        db.executescript(_SCHEMA)
+        db.execute("INSERT OR IGNORE INTO meta (key, value) VALUES ('schema', ?)", (str(SCHEMA_VERSION),))
+        db.commit()
 
 
 def _check_tables(path: Path, db: sqlite3.Connection, tables: set[str]) -> None:
