@@ -162,6 +162,33 @@ def test_greyed_designs_may_be_given_as_row_positions(zdt1):
         plots.plot_narrowed_front(zdt1, greyed=[21])
 
 
+@pytest.mark.parametrize("n_objectives", [2, 3])
+def test_drawing_onto_a_used_figure_gives_what_a_new_figure_shows(n_objectives):
+    """plot_narrowed_front(figure=...) clears the figure it is given: its SVG equals that of a fresh figure."""
+    f1 = np.linspace(0.0, 1.0, 21)
+    table = pd.DataFrame({"cost": f1 * 100.0, "mass": (1.0 - np.sqrt(f1)) * 10.0, "waste": (1.0 - f1) ** 2})
+    front = Front.from_table(table, [Objective(n) for n in ("cost", "mass", "waste")[:n_objectives]])
+    fresh = plots.plot_narrowed_front(front, greyed=f1 > 0.6, limits=["cost <= 60"], picks={"pick": 3})
+    used = plots.plot_narrowed_front(front, greyed=f1 < 0.2, limits=["cost >= 20"], picks={"pick": 9})
+    again = plots.plot_narrowed_front(front, greyed=f1 > 0.6, limits=["cost <= 60"], picks={"pick": 3},
+                                      figure=used)
+    assert again is used
+    assert plots.to_svg(again) == plots.to_svg(fresh)
+
+
+def test_the_picker_draws_every_state_on_one_figure(zdt1):
+    """A change redraws the picker's own figure (same object, same canvas) with the new state on it."""
+    pytest.importorskip("ipywidgets")
+    from tradewise.notebook import Picker
+
+    picker = Picker(zdt1, clickable=False)
+    figure, canvas = picker.figure, picker.figure.canvas
+    picker.state.set_limit("cost", high=30.0)
+    assert picker.figure is figure and figure.canvas is canvas
+    rings = next(c for c in figure.axes[0].collections if c.get_gid() == "outside-limits")
+    assert len(rings.get_offsets()) == len(zdt1) - len(picker.state.kept_rows)
+
+
 def test_a_click_maps_to_a_row_by_the_event_index(zdt1):
     """clicked_row reads the row from the pick event's index: nearest to the mouse, a preferred row first."""
     from matplotlib.backend_bases import MouseEvent, PickEvent

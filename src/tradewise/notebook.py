@@ -55,14 +55,15 @@ def write_review(state: PickerState, path: str | Path) -> Path:
 
 
 # ------------------------------------------------------------------------------------ figure
-def draw_picker(state: PickerState, *, evaluations: pd.DataFrame | None = None):
+def draw_picker(state: PickerState, *, evaluations: pd.DataFrame | None = None, figure=None):
     """The front figure of a picker: the pick and the shortlist marked, designs outside the limits greyed.
 
     Drawn by :func:`tradewise.plots.plot_narrowed_front` (a scatter for two
     objectives, a 3D view and pairwise panels for three): the excluded
     ranges are shaded and the front's points are pickable
     (``gid="front-points"``), so a click can select a design where the canvas
-    reports clicks.
+    reports clicks. With ``figure`` the drawing replaces what that figure
+    showed (it keeps its canvas).
 
     Returns
     -------
@@ -74,7 +75,7 @@ def draw_picker(state: PickerState, *, evaluations: pd.DataFrame | None = None):
     for k, row in enumerate(state.shortlist, start=1):
         marks[f"shortlist {k}"] = row
     return plots.plot_narrowed_front(state.front, greyed=~state.kept, limits=state.limits, evaluations=evaluations,
-                                     picks=marks or None)
+                                     picks=marks or None, figure=figure)
 
 
 def _png(fig, dpi: float = 96) -> bytes:
@@ -297,15 +298,19 @@ class Picker:
         self._redraw()
 
     def _redraw(self) -> None:
-        self.figure = draw_picker(self.state, evaluations=self._cloud)
+        # one figure for the picker's life, drawn anew on each change: it keeps its canvas (an ipympl
+        # widget the page already shows) and the click callback connected to it
+        first = self.figure is None
+        self.figure = draw_picker(self.state, evaluations=self._cloud, figure=self.figure)
         # the three-objective figure is wider than a notebook column at screen resolution
         display_dpi = min(96.0, _MAX_FIGURE_PX / self.figure.get_figwidth())
+        if first:
+            self.figure.canvas.mpl_connect("pick_event", self._clicked)
         if self.clickable:
-            from ipympl.backend_nbagg import Canvas, FigureManager
+            if first:
+                from ipympl.backend_nbagg import Canvas, FigureManager
 
-            old = self._canvas
-            self.figure.set_dpi(display_dpi)
-            if old is None:
+                self.figure.set_dpi(display_dpi)
                 canvas = Canvas(self.figure)
                 FigureManager(canvas, 0)
                 canvas.header_visible = False
@@ -314,21 +319,10 @@ class Picker:
                 canvas.toolbar_position = "left"
                 self._canvas = canvas
                 self._figure_box.children = [canvas]
-            else:
-                # one canvas widget for the picker's life: swapping widgets left the old view on the page,
-                # so each new figure moves onto the canvas the page already shows
-                canvas = old
-                self.figure.set_canvas(canvas)
-                canvas.figure = self.figure
-                if getattr(canvas, "toolbar", None) is not None:
-                    canvas.toolbar.update()
-                width, height = self.figure.bbox.size
-                if tuple(canvas._size) != (int(width), int(height)):
-                    canvas.manager.resize(width, height)
-            canvas.mpl_connect("pick_event", self._clicked)
-            canvas.draw_idle()
+            elif getattr(self._canvas, "toolbar", None) is not None:
+                self._canvas.toolbar.update()  # the zoom history belongs to the axes just cleared
+            self._canvas.draw_idle()
         else:
-            self.figure.canvas.mpl_connect("pick_event", self._clicked)
             self._image.value = _png(self.figure, dpi=2 * display_dpi)  # sharp on high-density screens
             self._image.layout.width = f"{int(self.figure.get_figwidth() * display_dpi)}px"
             self._figure_box.children = [self._image]

@@ -167,7 +167,13 @@ def _title(fig: Figure, title: str | None) -> None:
         fig.suptitle(_plain(_short(title)), fontsize=11, color=PALETTE["ink"])
 
 
-def _new_figure(size: tuple[float, float]) -> Figure:
+def _new_figure(size: tuple[float, float], figure: Figure | None = None) -> Figure:
+    if figure is not None:  # drawn anew on the caller's figure, which keeps its canvas and its callbacks
+        figure.clear()
+        figure.set_layout_engine("constrained")
+        if tuple(figure.get_size_inches()) != size:
+            figure.set_size_inches(size)
+        return figure
     fig = Figure(figsize=size, layout="constrained")
     FigureCanvasAgg(fig)
     return fig
@@ -548,6 +554,7 @@ def _front_figure(
     title: str | None,
     rasterize_cloud: bool | None,
     narrowing: _Narrowing | None = None,
+    figure: Figure | None = None,
 ) -> Figure:
     if len(front) == 0:
         raise DataError("front: holds no designs, so there is nothing to draw")
@@ -562,7 +569,7 @@ def _front_figure(
             (len(cloud[0]) + len(cloud[1]) > 1500) if rasterize_cloud is None else rasterize_cloud
         )
         if m == 2:
-            fig = _new_figure((7.2, 5.2))
+            fig = _new_figure((7.2, 5.2), figure)
             ax = fig.add_subplot()
             _scatter_panel(
                 ax,
@@ -582,7 +589,7 @@ def _front_figure(
                 _shade_limits(ax, front, 0, 1, narrowing)
             ax.legend(handles=_legend_handles(front, cloud, marks, listed, narrowing), loc="best")
         else:
-            fig = _front_matrix(front, objectives, cloud, marks, rasterize, listed, narrowing)
+            fig = _front_matrix(front, objectives, cloud, marks, rasterize, listed, narrowing, figure)
         _title(fig, title)
     return fig
 
@@ -595,16 +602,17 @@ def _front_matrix(
     rasterize: bool,
     shortlist: Sequence[int] = (),
     narrowing: _Narrowing | None = None,
+    figure: Figure | None = None,
 ) -> Figure:
     m = len(objectives)
     n = m - 1
     if m == 3:
-        fig = _new_figure((12.5, 5.8))
+        fig = _new_figure((12.5, 5.8), figure)
         left, right = fig.subfigures(1, 2, width_ratios=[1.05, 1.0])
         _front_3d(left.add_subplot(projection="3d"), front, objectives, marks, shortlist, narrowing)
         grid_fig = right
     else:
-        fig = _new_figure((2.9 * n + 1.2, 2.7 * n + 0.6))
+        fig = _new_figure((2.9 * n + 1.2, 2.7 * n + 0.6), figure)
         grid_fig = fig
     axes = grid_fig.subplots(n, n, squeeze=False)
     for r in range(n):
@@ -719,6 +727,7 @@ def plot_narrowed_front(
     knee: int | str | None = None,
     picks: Mapping[str, int] | Sequence[int] | None = None,
     title: str | None = None,
+    figure: Figure | None = None,
 ) -> Figure:
     """The front as :func:`plot_front` draws it, narrowed by a designer's limits, ready for clicks.
 
@@ -741,10 +750,15 @@ def plot_narrowed_front(
     evaluations, knee, picks, title :
         As for :func:`plot_front` (``knee`` defaults to None here: the picks
         say which design is current).
+    figure : matplotlib.figure.Figure, optional
+        Draw on this figure instead of a new one: it is cleared and sized for
+        the front, and keeps its canvas and the callbacks connected to it, so
+        an interactive canvas shows each new state of the same figure.
 
     Returns
     -------
     matplotlib.figure.Figure
+        ``figure`` when one was given.
 
     Examples
     --------
@@ -765,6 +779,7 @@ def plot_narrowed_front(
         title=title,
         rasterize_cloud=None,
         narrowing=_Narrowing(mask, parsed),
+        figure=figure,
     )
 
 
