@@ -21,10 +21,17 @@ import pandas as pd
 from tradewise import plots
 from tradewise.choose import METHODS, WEIGHTED_METHODS
 from tradewise.errors import DataError
-from tradewise.picker import PickerState, knee_sentence, load_picker_source, show_value
+from tradewise.picker import (
+    SHORTLIST_COLUMNS,
+    PickerState,
+    knee_sentence,
+    load_picker_source,
+    show_value,
+)
 
-# PickerState and load_picker_source are picker.py's; they stay importable from here as before
-__all__ = ["Picker", "open_picker", "draw_picker", "write_review", "PickerState", "load_picker_source"]
+# PickerState, load_picker_source and SHORTLIST_COLUMNS are picker.py's; they stay importable from here as before
+__all__ = ["Picker", "open_picker", "draw_picker", "write_review", "PickerState", "load_picker_source",
+           "SHORTLIST_COLUMNS"]
 
 _MAX_FIGURE_PX = 880.0
 
