@@ -14,7 +14,8 @@ from __future__ import annotations
 import io
 import math
 import re
-from collections.abc import Mapping, Sequence
+from collections.abc import Iterable, Mapping, Sequence
+from dataclasses import dataclass
 from html import escape
 from pathlib import Path
 from typing import Any
@@ -40,6 +41,8 @@ __all__ = [
     "FIGURE_KINDS",
     "axis_label",
     "plot_front",
+    "plot_narrowed_front",
+    "clicked_row",
     "plot_parallel",
     "plot_history",
     "attainment",
@@ -73,6 +76,10 @@ _PICK_STYLES = (
 
 #: Marker area of the ring around a shortlisted design (points squared): wider than any pick marker.
 _SHORTLIST_RING = 190
+
+#: Designs outside a designer's limits (hollow rings) and the ranges the limits exclude (shading).
+_GREYED = "#c4c4ca"
+_SHADE = "#eeeef2"
 
 #: What ``plot_kind`` and the command line can draw from a run folder.
 FIGURE_KINDS = ("front", "parallel", "history")
@@ -160,7 +167,13 @@ def _title(fig: Figure, title: str | None) -> None:
         fig.suptitle(_plain(_short(title)), fontsize=11, color=PALETTE["ink"])
 
 
-def _new_figure(size: tuple[float, float]) -> Figure:
+def _new_figure(size: tuple[float, float], figure: Figure | None = None) -> Figure:
+    if figure is not None:  # drawn anew on the caller's figure, which keeps its canvas and its callbacks
+        figure.clear()
+        figure.set_layout_engine("constrained")
+        if tuple(figure.get_size_inches()) != size:
+            figure.set_size_inches(size)
+        return figure
     fig = Figure(figsize=size, layout="constrained")
     FigureCanvasAgg(fig)
     return fig
@@ -295,6 +308,7 @@ def _scatter_panel(
     rasterize: bool,
     wrap: bool,
     shortlist: Sequence[int] = (),
+    narrowing: _Narrowing | None = None,
 ) -> None:
     points = front.points()
     feasible, infeasible = cloud
@@ -313,6 +327,8 @@ def _scatter_panel(
         linewidths=0.5,
         zorder=4,
         gid="front-points",
+        # points in row order, so the index a pick event reports is the row position (see clicked_row)
+        **({"picker": True, "pickradius": 6} if narrowing is not None else {}),
     )
     if len(objectives) == 2:
         # the front as a thin path so its shape reads even where points are sparse
@@ -390,6 +406,10 @@ def _scatter_panel(
                 bbox={"boxstyle": "round,pad=0.15", "fc": "white", "ec": PALETTE["ink"], "lw": 0.6},
                 gid=f"shortlist-{numbers[0]}",
             )
+    if narrowing is not None and narrowing.greyed.any():
+        out = narrowing.greyed
+        ax.scatter(points[out, i], points[out, j], s=size, marker="o", facecolors="white",
+                   edgecolors=_GREYED, linewidths=1.1, zorder=5, gid="outside-limits")  # fmt: skip
     ax.set_xlabel(axis_label(objectives[i], wrap=wrap))
     ax.set_ylabel(axis_label(objectives[j], wrap=wrap))
 
@@ -415,7 +435,11 @@ def _key(label: str, **style: Any) -> Line2D:
 
 
 def _legend_handles(
-    front: Front, cloud: tuple[np.ndarray, np.ndarray], marks: list[dict], shortlist: Sequence[int] = ()
+    front: Front,
+    cloud: tuple[np.ndarray, np.ndarray],
+    marks: list[dict],
+    shortlist: Sequence[int] = (),
+    narrowing: _Narrowing | None = None,
 ) -> list[Line2D]:
     handles = [
         _key(f"front ({len(front)} designs)", marker="o", markersize=6,
@@ -440,6 +464,11 @@ def _legend_handles(
         handles.append(
             _key(f"shortlist ({len(shortlist)}), numbered in pick order", marker="o", markersize=10,
                  markerfacecolor="none", markeredgecolor=PALETTE["ink"], markeredgewidth=1.6)
+        )  # fmt: skip
+    if narrowing is not None and narrowing.greyed.any():
+        handles.append(
+            _key(f"outside the limits ({int(narrowing.greyed.sum())})", marker="o", markersize=6,
+                 markerfacecolor="white", markeredgecolor=_GREYED, markeredgewidth=1.1)
         )  # fmt: skip
     return handles
 
@@ -496,6 +525,37 @@ def plot_front(
     >>> fig.axes[0].get_xlabel()
     'cost [EUR] (lower is better)'
     """
+    return _front_figure(
+        front,
+        evaluations=evaluations,
+        knee=knee,
+        picks=picks,
+        shortlist=shortlist,
+        title=title,
+        rasterize_cloud=rasterize_cloud,
+    )
+
+
+@dataclass(frozen=True)
+class _Narrowing:
+    """Designs to grey (a mask over the front's rows) and the limits whose excluded ranges are shaded."""
+
+    greyed: np.ndarray
+    limits: tuple[_choose.Limit, ...]
+
+
+def _front_figure(
+    front: Front,
+    *,
+    evaluations: pd.DataFrame | None,
+    knee: int | str | None,
+    picks: Mapping[str, int] | Sequence[int] | None,
+    shortlist: Sequence[int] | None,
+    title: str | None,
+    rasterize_cloud: bool | None,
+    narrowing: _Narrowing | None = None,
+    figure: Figure | None = None,
+) -> Figure:
     if len(front) == 0:
         raise DataError("front: holds no designs, so there is nothing to draw")
     objectives = _objectives_of(front)
@@ -509,7 +569,7 @@ def plot_front(
             (len(cloud[0]) + len(cloud[1]) > 1500) if rasterize_cloud is None else rasterize_cloud
         )
         if m == 2:
-            fig = _new_figure((7.2, 5.2))
+            fig = _new_figure((7.2, 5.2), figure)
             ax = fig.add_subplot()
             _scatter_panel(
                 ax,
@@ -523,26 +583,36 @@ def plot_front(
                 rasterize=rasterize,
                 wrap=False,
                 shortlist=listed,
+                narrowing=narrowing,
             )
-            ax.legend(handles=_legend_handles(front, cloud, marks, listed), loc="best")
+            if narrowing is not None:
+                _shade_limits(ax, front, 0, 1, narrowing)
+            ax.legend(handles=_legend_handles(front, cloud, marks, listed, narrowing), loc="best")
         else:
-            fig = _front_matrix(front, objectives, cloud, marks, rasterize, listed)
+            fig = _front_matrix(front, objectives, cloud, marks, rasterize, listed, narrowing, figure)
         _title(fig, title)
     return fig
 
 
 def _front_matrix(
-    front: Front, objectives, cloud, marks, rasterize: bool, shortlist: Sequence[int] = ()
+    front: Front,
+    objectives,
+    cloud,
+    marks,
+    rasterize: bool,
+    shortlist: Sequence[int] = (),
+    narrowing: _Narrowing | None = None,
+    figure: Figure | None = None,
 ) -> Figure:
     m = len(objectives)
     n = m - 1
     if m == 3:
-        fig = _new_figure((12.5, 5.8))
+        fig = _new_figure((12.5, 5.8), figure)
         left, right = fig.subfigures(1, 2, width_ratios=[1.05, 1.0])
-        _front_3d(left.add_subplot(projection="3d"), front, objectives, marks, shortlist)
+        _front_3d(left.add_subplot(projection="3d"), front, objectives, marks, shortlist, narrowing)
         grid_fig = right
     else:
-        fig = _new_figure((2.9 * n + 1.2, 2.7 * n + 0.6))
+        fig = _new_figure((2.9 * n + 1.2, 2.7 * n + 0.6), figure)
         grid_fig = fig
     axes = grid_fig.subplots(n, n, squeeze=False)
     for r in range(n):
@@ -563,6 +633,7 @@ def _front_matrix(
                 rasterize=rasterize,
                 wrap=True,
                 shortlist=shortlist,
+                narrowing=narrowing,
             )
             if r != n - 1:
                 ax.set_xlabel("")
@@ -580,7 +651,11 @@ def _front_matrix(
         lows, highs = zip(*(a.get_ylim() for a in row), strict=True)
         for a in row:
             a.set_ylim(min(lows), max(highs))
-    handles = _legend_handles(front, cloud, marks, shortlist)
+    if narrowing is not None:  # shaded once the panels of a row or column share their view
+        for r in range(n):
+            for c in range(r + 1):
+                _shade_limits(axes[r][c], front, c, r + 1, narrowing)
+    handles = _legend_handles(front, cloud, marks, shortlist, narrowing)
     if n >= 2:
         axes[0][n - 1].legend(handles=handles, loc="upper right", borderaxespad=0.0)
     else:  # pragma: no cover - a matrix always has two or more columns here
@@ -588,7 +663,14 @@ def _front_matrix(
     return fig
 
 
-def _front_3d(ax, front: Front, objectives, marks: list[dict], shortlist: Sequence[int] = ()) -> None:
+def _front_3d(
+    ax,
+    front: Front,
+    objectives,
+    marks: list[dict],
+    shortlist: Sequence[int] = (),
+    narrowing: _Narrowing | None = None,
+) -> None:
     points = front.points()
     ax.scatter(
         points[:, 0],
@@ -622,6 +704,10 @@ def _front_3d(ax, front: Front, objectives, marks: list[dict], shortlist: Sequen
                    edgecolors=PALETTE["ink"], linewidths=1.6, depthshade=False, zorder=11)  # fmt: skip
         ax.text(p[0], p[1], p[2], f"  {number}", fontsize=8, fontweight="bold", color=PALETTE["ink"],
                 zorder=12)  # fmt: skip
+    if narrowing is not None and narrowing.greyed.any():
+        out = narrowing.greyed
+        ax.scatter(points[out, 0], points[out, 1], points[out, 2], s=16, marker="o", facecolors=_GREYED,
+                   edgecolors="white", linewidths=0.3, depthshade=False, gid="outside-limits-3d")  # fmt: skip
     for setter, objective in zip(
         (ax.set_xlabel, ax.set_ylabel, ax.set_zlabel), objectives, strict=False
     ):
@@ -629,6 +715,135 @@ def _front_3d(ax, front: Front, objectives, marks: list[dict], shortlist: Sequen
     # look from the worst corner towards the ideal one, so the front faces the reader
     ax.view_init(elev=22, azim=45 if objectives[0].goal == objectives[1].goal else -45)
     ax.set_box_aspect(None, zoom=0.86)
+
+
+# ------------------------------------------------------------------ a front narrowed by limits
+def plot_narrowed_front(
+    front: Front,
+    *,
+    greyed: Sequence[bool] | Sequence[int] | np.ndarray = (),
+    limits: Iterable[_choose.Limit | str] = (),
+    evaluations: pd.DataFrame | None = None,
+    knee: int | str | None = None,
+    picks: Mapping[str, int] | Sequence[int] | None = None,
+    title: str | None = None,
+    figure: Figure | None = None,
+) -> Figure:
+    """The front as :func:`plot_front` draws it, narrowed by a designer's limits, ready for clicks.
+
+    On every 2D panel the ``greyed`` designs are drawn as hollow grey rings
+    over their points, the ranges that ``limits`` on the panel's objectives
+    exclude are shaded, and the front's points are pickable, so that
+    :func:`clicked_row` turns a click into a design where the canvas reports
+    clicks. The 3D view of three objectives draws the greyed designs grey.
+    The legend counts the greyed designs.
+
+    Parameters
+    ----------
+    front : Front
+        The front; objective names, senses and units label the axes.
+    greyed : boolean mask or row positions
+        The designs outside the limits.
+    limits : iterable of Limit or str
+        The limits in force, such as ``"mass <= 12"``; those on objectives are
+        shaded, others only explain ``greyed``.
+    evaluations, knee, picks, title :
+        As for :func:`plot_front` (``knee`` defaults to None here: the picks
+        say which design is current).
+    figure : matplotlib.figure.Figure, optional
+        Draw on this figure instead of a new one: it is cleared and sized for
+        the front, and keeps its canvas and the callbacks connected to it, so
+        an interactive canvas shows each new state of the same figure.
+
+    Returns
+    -------
+    matplotlib.figure.Figure
+        ``figure`` when one was given.
+
+    Examples
+    --------
+    >>> table = pd.DataFrame({"cost": [1.0, 2, 4], "mass": [5.0, 3, 2]})
+    >>> front = Front.from_table(table, [Objective("cost", unit="EUR"), Objective("mass", unit="kg")])
+    >>> fig = plot_narrowed_front(front, greyed=[False, False, True], limits=["cost <= 3"], picks={"pick": 1})
+    >>> [len(c.get_offsets()) for c in fig.axes[0].collections if c.get_gid() == "outside-limits"]
+    [1]
+    """
+    mask = _row_mask(front, greyed)
+    parsed = tuple(_choose.parse_limit(limit) for limit in limits)
+    return _front_figure(
+        front,
+        evaluations=evaluations,
+        knee=knee,
+        picks=picks,
+        shortlist=None,
+        title=title,
+        rasterize_cloud=None,
+        narrowing=_Narrowing(mask, parsed),
+        figure=figure,
+    )
+
+
+def clicked_row(event: Any, *, prefer: Sequence[bool] | np.ndarray | None = None) -> int | None:
+    """The row position of the front design a pick event on a front figure points at.
+
+    Of the points under the mouse (``event.ind`` indexes the front's points,
+    which the figures draw in row order) the nearest on screen wins; with
+    ``prefer`` (a boolean mask over the rows) the nearest preferred one wins
+    where there is one. None for an event on anything but the front's points.
+
+    Parameters
+    ----------
+    event : matplotlib.backend_bases.PickEvent
+        The event a ``pick_event`` callback receives.
+    prefer : boolean mask, optional
+        Rows to choose first when points overlap (the designs within limits).
+    """
+    artist = getattr(event, "artist", None)
+    if artist is None or artist.get_gid() != "front-points" or not len(getattr(event, "ind", [])):
+        return None
+    rows = np.asarray(event.ind, dtype=int)
+    offsets = np.asarray(artist.get_offsets(), dtype=float)[rows]
+    screen = artist.axes.transData.transform(offsets)
+    mouse = np.array([event.mouseevent.x, event.mouseevent.y], dtype=float)
+    order = np.argsort(np.hypot(*(screen - mouse).T), kind="stable")
+    if prefer is not None:
+        preferred = np.asarray(prefer, dtype=bool)
+        for k in order:
+            if preferred[rows[k]]:
+                return int(rows[k])
+    return int(rows[order[0]])
+
+
+def _row_mask(front: Front, rows: Sequence[bool] | Sequence[int] | np.ndarray) -> np.ndarray:
+    """A boolean mask over the front's rows from a mask of the same length or from row positions."""
+    values = np.asarray(rows)
+    if values.dtype == bool:
+        if values.shape != (len(front),):
+            raise DataError(
+                f"greyed: a mask of {values.size} values for a front of {len(front)} designs"
+            )
+        return values.copy()
+    mask = np.zeros(len(front), dtype=bool)
+    for row in values.ravel().tolist():
+        mask[_check_row(front, row, "greyed")] = True
+    return mask
+
+
+def _shade_limits(ax, front: Front, i: int, j: int, narrowing: _Narrowing) -> None:
+    """Shade the ranges of the panel's two objectives that the limits exclude, keeping the view."""
+    names = front.objective_names
+    for which, name in (("x", names[i]), ("y", names[j])):
+        view = ax.get_xlim() if which == "x" else ax.get_ylim()
+        shade = ax.axvspan if which == "x" else ax.axhspan
+        lo_view, hi_view = min(view), max(view)
+        for limit in narrowing.limits:
+            if limit.column != name or not math.isfinite(limit.value):
+                continue
+            if limit.op in (">=", ">") and limit.value > lo_view:
+                shade(lo_view, limit.value, color=_SHADE, zorder=0, linewidth=0, gid="limit-shade")
+            elif limit.op in ("<=", "<") and limit.value < hi_view:
+                shade(limit.value, hi_view, color=_SHADE, zorder=0, linewidth=0, gid="limit-shade")
+        (ax.set_xlim if which == "x" else ax.set_ylim)(view)
 
 
 # ---------------------------------------------------------------------- parallel coordinates

@@ -1,0 +1,685 @@
+"""The picker's state: a front narrowed by limits and preferences, the current pick and a shortlist.
+
+Plain Python over :mod:`tradewise.choose` and :mod:`tradewise.front`, so code
+and tests drive it without a browser, widgets or figures.
+:mod:`tradewise.notebook` puts the ipywidgets face on it.
+"""
+
+from __future__ import annotations
+
+import contextlib
+import math
+import warnings
+from collections.abc import Callable, Iterator, Mapping, Sequence
+from dataclasses import replace
+from pathlib import Path
+from typing import Any
+
+import numpy as np
+import pandas as pd
+
+from tradewise.case import RESERVED_NAMES
+from tradewise.choose import (
+    KNEE_METHODS,
+    METHODS,
+    WEIGHTED_METHODS,
+    Limit,
+    NonConvexWarning,
+    all_picks,
+    choose,
+    knee_agreement,
+    objective_ranks,
+    parse_values,
+)
+from tradewise.errors import DataError
+from tradewise.front import Front, read_front, tradeoff_rates
+
+__all__ = ["PickerState", "load_picker_source", "shortlist_front", "SHORTLIST_COLUMNS"]
+
+#: Columns the shortlist export adds in front of the design's own columns.
+SHORTLIST_COLUMNS = ("pick_order", "front_row")
+
+
+# ----------------------------------------------------------------------------------- sources
+def load_picker_source(source: Any) -> tuple[Front, pd.DataFrame | None, pd.DataFrame | None]:
+    """The front, the generation history and the evaluations behind ``source``.
+
+    Parameters
+    ----------
+    source : StudyResult, Front, str or Path
+        A search result (anything with ``front``, ``history`` and
+        ``evaluations`` attributes, as :func:`tradewise.search.run_study`
+        returns), a :class:`~tradewise.front.Front`, a run folder, or a front
+        CSV with its JSON metadata beside it.
+
+    Returns
+    -------
+    front, history, evaluations
+        ``history`` and ``evaluations`` are None where the source has none
+        (a run folder gives its ``history.csv`` but not its archive).
+
+    Raises
+    ------
+    DataError
+        When ``source`` is none of these, or the files cannot be read.
+    """
+    if isinstance(source, Front):
+        return source, None, None
+    if isinstance(getattr(source, "front", None), Front):
+        return source.front, getattr(source, "history", None), getattr(source, "evaluations", None)
+    if isinstance(source, str | Path):
+        path = Path(source)
+        front = read_front(path)
+        history = None
+        if path.is_dir() and (path / "history.csv").is_file():
+            try:
+                history = pd.read_csv(path / "history.csv")
+            except (OSError, ValueError) as exc:
+                raise DataError(f"{path / 'history.csv'}: cannot be read as CSV ({exc})") from None
+        return front, history, None
+    raise DataError(
+        f"picker source: got a {type(source).__name__}; expected a search result, a Front, "
+        "a run folder or a front CSV with its .json beside it"
+    )
+
+
+# ------------------------------------------------------------------------------------- state
+class PickerState:
+    """Limits, preferences, the current pick and a shortlist over one front, without widgets.
+
+    Every change goes through a method, which checks it, works out again
+    which designs meet the limits and which one the method prefers, and then
+    calls the listeners registered with :meth:`on_change`. Row numbers are
+    positions in ``front.table`` (0-based); texts for people show them 1-based,
+    as in the front's CSV file.
+
+    Parameters
+    ----------
+    front : Front
+        The front to pick from.
+    method : str
+        A key of :data:`tradewise.choose.METHODS`; default ``"knee"``.
+    weights : dict, optional
+        Importance per objective for the weighted methods (default 1 each).
+    target : dict, optional
+        The point ``asf`` aims at, per objective in its units.
+    history, evaluations : pandas.DataFrame, optional
+        The run's generation history and every evaluation, when known; they
+        are handed on to the review page and the figure.
+
+    Examples
+    --------
+    >>> from tradewise.case import Objective
+    >>> table = pd.DataFrame({"cost": [10.0, 12, 15, 20, 30], "mass": [100.0, 60, 40, 30, 25]})
+    >>> state = PickerState(Front.from_table(table, [Objective("cost"), Objective("mass")]))
+    >>> state.pick
+    2
+    >>> state.set_limit("cost", high=15)
+    >>> state.kept_rows, state.pick
+    ([0, 1, 2], 1)
+    """
+
+    def __init__(
+        self,
+        front: Front,
+        *,
+        method: str = "knee",
+        weights: Mapping[str, float] | None = None,
+        target: Mapping[str, float] | None = None,
+        history: pd.DataFrame | None = None,
+        evaluations: pd.DataFrame | None = None,
+    ) -> None:
+        if not isinstance(front, Front):
+            raise DataError(f"picker: expected a Front, got a {type(front).__name__}")
+        if len(front) == 0:
+            raise DataError("picker: the front holds no designs, so there is nothing to pick from")
+        self.front = front
+        self.history = history
+        self.evaluations = evaluations
+        points = front.points()
+        self._span = {
+            o.name: (float(points[:, j].min()), float(points[:, j].max()))
+            for j, o in enumerate(front.objectives)
+        }
+        self._bounds: dict[str, tuple[float | None, float | None]] = {
+            o.name: (None, None) for o in front.objectives
+        }
+        self._method = "knee"
+        self._weights = {o.name: 1.0 for o in front.objectives}
+        self._target: dict[str, float] | None = None
+        self._selected: int | None = None
+        self._shortlist: list[int] = []
+        self._listeners: list[Callable[[PickerState], None]] = []
+        self._kept = np.ones(len(front), dtype=bool)
+        self._ranking: list[int] = []
+        self.notes: list[str] = []
+        self.message = ""
+        self._quiet = True
+        try:
+            self.set_method(method)
+            if weights is not None:
+                self.set_weights(weights)
+            if target is not None:
+                self.set_target(target)
+        finally:
+            self._quiet = False
+        self._update()
+
+    # -------------------------------------------------------------------- listeners
+    def on_change(self, callback: Callable[[PickerState], None]) -> None:
+        """Call ``callback(state)`` after every change."""
+        self._listeners.append(callback)
+
+    @contextlib.contextmanager
+    def batch(self) -> Iterator[PickerState]:
+        """Make several changes and tell the listeners once, at the end (the figure is drawn once).
+
+        Examples
+        --------
+        >>> from tradewise.case import Objective
+        >>> table = pd.DataFrame({"cost": [10.0, 12, 15, 20, 30], "mass": [100.0, 60, 40, 30, 25]})
+        >>> state = PickerState(Front.from_table(table, [Objective("cost"), Objective("mass")]))
+        >>> with state.batch():
+        ...     state.set_method("asf")
+        ...     state.set_weights({"mass": 4})
+        >>> state.pick
+        3
+        """
+        was_quiet = self._quiet
+        self._quiet = True
+        try:
+            yield self
+        finally:
+            self._quiet = was_quiet
+            message = self.message
+            self._update(message=message)
+
+    def _update(self, *, message: str = "") -> None:
+        self._kept = np.ones(len(self.front), dtype=bool)
+        for limit in self.limits:
+            self._kept &= limit.holds(self.front.table[limit.column].to_numpy(dtype=float))
+        self.notes = []
+        self._ranking = []
+        if self._kept.any():
+            with warnings.catch_warnings(record=True) as caught:
+                warnings.simplefilter("always", NonConvexWarning)
+                self._ranking = choose(
+                    self.front,
+                    self._method,
+                    weights=self._method_weights(),
+                    target=self._method_target(),
+                    limits=self.limits,
+                    top=int(self._kept.sum()),
+                )
+            self.notes = [
+                str(w.message) for w in caught if issubclass(w.category, NonConvexWarning)
+            ]
+        if self._selected is not None and not self._kept[self._selected]:
+            self._selected = None
+        self.message = message
+        if not self._quiet:
+            for callback in list(self._listeners):
+                callback(self)
+
+    # ------------------------------------------------------------------------ limits
+    @property
+    def objective_names(self) -> list[str]:
+        return self.front.objective_names
+
+    def span(self, name: str) -> tuple[float, float]:
+        """Smallest and largest value of objective ``name`` on the whole front."""
+        self._check_objective(name, "span")
+        return self._span[name]
+
+    def bounds(self, name: str) -> tuple[float, float]:
+        """The current lower and upper limit of objective ``name`` (the front's span where unset)."""
+        self._check_objective(name, "bounds")
+        low, high = self._bounds[name]
+        span = self._span[name]
+        return (span[0] if low is None else low, span[1] if high is None else high)
+
+    def set_limit(self, name: str, low: float | None = None, high: float | None = None) -> None:
+        """Keep only the designs with ``low <= name <= high``; None leaves that end open.
+
+        A bound at or beyond the front's own extreme value is the same as no
+        bound, so that a slider pushed to its end limits nothing.
+
+        Raises
+        ------
+        DataError
+            When ``name`` is not an objective, a bound is not a finite number,
+            or ``low`` is above ``high``.
+        """
+        self._check_objective(name, "limit")
+        low = _finite_or_none(low, f"limit on {name!r}: the lower bound")
+        high = _finite_or_none(high, f"limit on {name!r}: the upper bound")
+        if low is not None and high is not None and low > high:
+            raise DataError(
+                f"limit on {name!r}: the lower bound {low:g} is above the upper bound {high:g}"
+            )
+        span_low, span_high = self._span[name]
+        self._bounds[name] = (
+            None if low is None or low <= span_low else low,
+            None if high is None or high >= span_high else high,
+        )
+        self._update()
+
+    def clear_limits(self) -> None:
+        """Drop every limit."""
+        self._bounds = {name: (None, None) for name in self._bounds}
+        self._update()
+
+    @property
+    def limits(self) -> list[Limit]:
+        """The limits in force, as :class:`tradewise.choose.Limit` objects (inclusive bounds)."""
+        out = []
+        for name, (low, high) in self._bounds.items():
+            if low is not None:
+                out.append(Limit(name, ">=", low))
+            if high is not None:
+                out.append(Limit(name, "<=", high))
+        return out
+
+    @property
+    def kept(self) -> np.ndarray:
+        """Boolean mask over the front's rows: True where a design meets every limit."""
+        return self._kept.copy()
+
+    @property
+    def kept_rows(self) -> list[int]:
+        """Row positions of the designs that meet every limit, in table order."""
+        return [int(r) for r in np.flatnonzero(self._kept)]
+
+    # ------------------------------------------------------------------- preferences
+    @property
+    def methods(self) -> list[str]:
+        """The choosing methods that apply to this front (Kneedle only for two objectives)."""
+        return [m for m in METHODS if m != "kneedle" or len(self.front.objectives) == 2]
+
+    @property
+    def method(self) -> str:
+        return self._method
+
+    @property
+    def weights(self) -> dict[str, float]:
+        return dict(self._weights)
+
+    @property
+    def target(self) -> dict[str, float] | None:
+        return dict(self._target) if self._target is not None else None
+
+    def set_method(self, method: str) -> None:
+        """Choose with ``method``; a design picked by hand gives way to the method's pick."""
+        if method not in self.methods:
+            raise DataError(
+                f"method {method!r} does not apply here; choose one of {', '.join(self.methods)}"
+            )
+        self._method = method
+        self._selected = None
+        self._update()
+
+    def set_weights(self, weights: Mapping[str, float]) -> None:
+        """Set the importance of some or all objectives (the others keep theirs).
+
+        Raises
+        ------
+        DataError
+            For a name that is not an objective, a negative or non-finite
+            weight, or weights that would all be zero.
+        """
+        values = parse_values(weights, what="weights")
+        for name in values:
+            self._check_objective(name, "weights")
+        merged = {**self._weights, **values}
+        if any(v < 0 for v in merged.values()) or sum(merged.values()) <= 0:
+            shown = ", ".join(f"{n}={v:g}" for n, v in merged.items())
+            raise DataError(f"weights {shown}: expected numbers of at least 0, not all 0")
+        self._weights = merged
+        self._selected = None
+        self._update()
+
+    def set_weight(self, name: str, value: float) -> None:
+        """Set the importance of one objective."""
+        self.set_weights({name: value})
+
+    def set_target(self, target: Mapping[str, float] | None) -> None:
+        """Aim ``asf`` at ``target`` (objective name to value in its unit); None aims at the ideal point."""
+        if target is None:
+            self._target = None
+        else:
+            values = parse_values(target, what="target")
+            for name in values:
+                self._check_objective(name, "target")
+            self._target = values
+        self._selected = None
+        self._update()
+
+    def _method_weights(self) -> dict[str, float] | None:
+        return dict(self._weights) if self._method in WEIGHTED_METHODS else None
+
+    def _method_target(self) -> dict[str, float] | None:
+        return dict(self._target) if self._method == "asf" and self._target else None
+
+    # -------------------------------------------------------------------------- pick
+    @property
+    def method_pick(self) -> int | None:
+        """The design the method prefers among those that meet the limits (None when none does)."""
+        return self._ranking[0] if self._ranking else None
+
+    @property
+    def pick(self) -> int | None:
+        """The current design: the one selected by hand if it meets the limits, else the method's pick."""
+        return self._selected if self._selected is not None else self.method_pick
+
+    @property
+    def ranking(self) -> list[int]:
+        """The designs that meet the limits, the method's favourite first."""
+        return list(self._ranking)
+
+    def select(self, row: int | None) -> None:
+        """Make design ``row`` the current one; None goes back to the method's pick.
+
+        Raises
+        ------
+        DataError
+            When ``row`` is not a row of the front or is outside the limits.
+        """
+        if row is not None:
+            row = self._check_row(row, "select")
+            if not self._kept[row]:
+                raise DataError(
+                    f"select: row {row + 1} is outside the limits {', '.join(map(str, self.limits))}; "
+                    "widen them to pick it"
+                )
+        self._selected = row
+        self._update()
+
+    @property
+    def by_hand(self) -> bool:
+        """True while the current design was selected by hand rather than by the method."""
+        return self._selected is not None
+
+    # ----------------------------------------------------------------------- details
+    def details(self, row: int | None = None) -> dict[str, Any]:
+        """What the picker says about design ``row`` (default the current pick).
+
+        Returns
+        -------
+        dict
+            ``row``; ``kept`` (meets the limits); ``objectives``: one dict per
+            objective with ``name``, ``value``, ``unit``, ``goal``, ``rank`` and
+            ``of`` (rank among the designs that meet the limits); ``variables``:
+            dicts with ``name``, ``value`` and ``unit`` (for a front without
+            declared variables, its other columns); ``rates``: trade-off
+            rates to its neighbours among the kept designs, as text; ``knees``:
+            knee method to the row it finds; ``knee_agree``: the knee methods
+            that find this design; ``also``: the other methods whose first
+            choice it is.
+        """
+        row = self.pick if row is None else self._check_row(row, "details")
+        if row is None:
+            raise DataError("details: no design meets the limits; widen them")
+        front = self.front
+        record = front.table.iloc[row]
+        keep = np.flatnonzero(self._kept)
+        kept = bool(self._kept[row])
+        sub_rows = keep if kept else np.arange(len(front))
+        sub = front.with_table(front.table.iloc[sub_rows])
+        k = int(np.flatnonzero(sub_rows == row)[0])
+        ranks = objective_ranks(sub)
+        objectives = [
+            {
+                "name": o.name,
+                "value": float(record[o.name]),
+                "unit": front.units.get(o.name, o.unit) or "",
+                "goal": o.goal,
+                "rank": int(ranks.iloc[k][o.name]),
+                "of": len(sub),
+            }
+            for o in front.objectives
+        ]
+        # a table from elsewhere declares no variables: its other columns describe the design
+        names = [v for v in front.variables if v in front.table.columns] or [
+            c
+            for c in front.table.columns
+            if c not in front.objective_names
+            and c not in RESERVED_NAMES
+            and c not in SHORTLIST_COLUMNS
+        ]
+        variables = [
+            {
+                "name": str(v),
+                "value": _plain_value(record[v]),
+                "unit": front.units.get(str(v), "") or "",
+            }
+            for v in names
+        ]
+        rates: list[str] = []
+        if len(sub) > 1:
+            for _, rate in tradeoff_rates(sub, k).iterrows():
+                if int(rate["neighbour"]) >= 0:
+                    rates.append(
+                        f"to row {int(sub_rows[int(rate['neighbour'])]) + 1}: {rate['text']}"
+                    )
+                else:
+                    rates.append(f"nearby: {rate['text']}")
+        knees: dict[str, int] = {}
+        also: list[str] = []
+        if len(keep):
+            knees = knee_agreement(front, limits=self.limits)
+            picks = all_picks(front, weights=self._weights, target=self._target, limits=self.limits)
+            also = [m for m, r in picks.items() if r == row and m not in KNEE_METHODS]
+        return {
+            "row": int(row),
+            "kept": kept,
+            "objectives": objectives,
+            "variables": variables,
+            "rates": rates,
+            "knees": knees,
+            "knee_agree": [m for m, r in knees.items() if r == row],
+            "also": also,
+        }
+
+    def describe(self, row: int | None = None) -> list[str]:
+        """Plain lines about design ``row`` (default the current pick), as the details panel shows them."""
+        info = self.details(row)
+        lines = [f"Row {info['row'] + 1}" + ("" if info["kept"] else " (outside the limits)")]
+        for o in info["objectives"]:
+            value = f"{show_value(o['value'])} {o['unit']}".strip()
+            lines.append(f"  {o['name']}: {value}, rank {o['rank']} of {o['of']} ({o['goal']})")
+        if info["variables"]:
+            shown = ", ".join(
+                f"{v['name']} = {show_value(v['value'])}{' ' + v['unit'] if v['unit'] else ''}"
+                for v in info["variables"]
+            )
+            lines.append(f"  variables: {shown}")
+        lines.extend(f"  {text}" for text in info["rates"])
+        lines.append("  " + knee_sentence(info))
+        if info["also"]:
+            lines.append(f"  first choice of: {', '.join(info['also'])}")
+        return lines
+
+    # --------------------------------------------------------------------- shortlist
+    @property
+    def shortlist(self) -> list[int]:
+        """Row positions on the shortlist, in the order they were added."""
+        return list(self._shortlist)
+
+    def add(self, row: int | None = None) -> None:
+        """Put design ``row`` (default the current pick) on the shortlist; a second add changes nothing."""
+        row = self.pick if row is None else self._check_row(row, "shortlist")
+        if row is None:
+            raise DataError("shortlist: no design meets the limits, so there is nothing to add")
+        if row not in self._shortlist:
+            self._shortlist.append(int(row))
+        self._update(message=f"Row {row + 1} is on the shortlist ({len(self._shortlist)} in all).")
+
+    def remove(self, row: int) -> None:
+        """Take design ``row`` off the shortlist.
+
+        Raises
+        ------
+        DataError
+            When the design is not on the shortlist.
+        """
+        row = self._check_row(row, "shortlist")
+        if row not in self._shortlist:
+            shown = ", ".join(str(r + 1) for r in self._shortlist) or "none"
+            raise DataError(f"shortlist: row {row + 1} is not on it; on it: {shown}")
+        self._shortlist.remove(row)
+        self._update(message=f"Row {row + 1} is off the shortlist ({len(self._shortlist)} left).")
+
+    def clear_shortlist(self) -> None:
+        """Empty the shortlist."""
+        self._shortlist = []
+        self._update(message="The shortlist is empty.")
+
+    def shortlist_front(self) -> Front:
+        """The shortlisted designs as a front with the run's metadata (see :func:`shortlist_front`).
+
+        ``meta["shortlist"]`` records the rows, the size of the front, the
+        limits, the method and its weights and target at the time.
+
+        Raises
+        ------
+        DataError
+            When the shortlist is empty, or the front already has a column
+            named ``pick_order`` or ``front_row``.
+        """
+        settings = {
+            "rows": [r + 1 for r in self._shortlist],
+            "n_front": len(self.front),
+            "limits": [str(limit) for limit in self.limits],
+            "method": self._method,
+            "weights": self._method_weights(),
+            "target": self._method_target(),
+        }
+        return shortlist_front(self.front, self._shortlist, settings=settings)
+
+    def export_shortlist(self, path: str | Path) -> tuple[Path, Path]:
+        """Write the shortlist as CSV with its JSON metadata beside it (see :meth:`shortlist_front`).
+
+        ``tradewise pick`` and :func:`tradewise.front.read_front` read the
+        pair back, and ``tradewise report RUN --shortlist FILE.csv`` puts it
+        on the review page of the whole front.
+        """
+        path = Path(path)
+        if path.suffix.lower() != ".csv":
+            raise DataError(f"{path}: the shortlist is written as CSV; give a name ending in .csv")
+        written = self.shortlist_front().to_csv(path)
+        self._update(
+            message=f"Wrote {written[0].name} and {written[1].name} ({len(self._shortlist)} designs)."
+        )
+        return written
+
+    def tell(self, message: str) -> None:
+        """Pass ``message`` to the listeners (a face shows it as its status line); nothing else changes."""
+        self._update(message=str(message))
+
+    # ------------------------------------------------------------------------ checks
+    def _check_objective(self, name: str, what: str) -> None:
+        if name not in self._span:
+            raise DataError(
+                f"{what}: {name!r} is not an objective of this front; objectives: {', '.join(self._span)}"
+            )
+
+    def _check_row(self, row: Any, what: str) -> int:
+        if (
+            isinstance(row, bool)
+            or not isinstance(row, int | np.integer)
+            or not 0 <= int(row) < len(self.front)
+        ):
+            raise DataError(
+                f"{what}: {row!r} is not a row position of the front (0 to {len(self.front) - 1})"
+            )
+        return int(row)
+
+    def __repr__(self) -> str:
+        pick = "none" if self.pick is None else f"row {self.pick + 1}"
+        return (
+            f"PickerState({int(self._kept.sum())} of {len(self.front)} designs within the limits; "
+            f"{self._method} picks {pick}; shortlist {len(self._shortlist)})"
+        )
+
+
+def _finite_or_none(value: Any, what: str) -> float | None:
+    if value is None:
+        return None
+    try:
+        number = float(value)
+    except (TypeError, ValueError):
+        number = math.nan
+    if not math.isfinite(number):
+        raise DataError(f"{what} {value!r} is not a finite number")
+    return number
+
+
+def _plain_value(value: Any) -> Any:
+    return value.item() if isinstance(value, np.generic) else value
+
+
+def show_value(value: Any) -> str:
+    """A value as the picker shows it: floats to five significant digits, anything else as text."""
+    if isinstance(value, float | np.floating):
+        return f"{float(value):.5g}"
+    return str(value)
+
+
+def knee_sentence(info: Mapping[str, Any]) -> str:
+    """What the knee methods say about the design of ``info`` (a :meth:`PickerState.details` result)."""
+    knees, agree = info["knees"], info["knee_agree"]
+    if not knees:
+        return "knee methods: no design meets the limits"
+    others = [f"{m} row {r + 1}" for m, r in knees.items() if m not in agree]
+    if agree and not others:
+        return f"every knee method ({', '.join(agree)}) finds this design"
+    if agree:
+        return (
+            f"knee methods finding this design: {', '.join(agree)}; the others: {', '.join(others)}"
+        )
+    return f"no knee method finds this design ({', '.join(others)})"
+
+
+# ------------------------------------------------------------------------------ shortlist
+def shortlist_front(
+    front: Front, rows: Sequence[int], *, settings: Mapping[str, Any] | None = None
+) -> Front:
+    """Designs ``rows`` of ``front`` as a shortlist: a front file with its pick order and row.
+
+    Two columns come first: ``pick_order`` (1, 2, ... in the order of
+    ``rows``) and ``front_row`` (the design's row in the whole front, counting
+    from 1). The metadata is the front's, with ``settings`` (how the designs
+    were chosen) under ``meta["shortlist"]``. :meth:`Front.to_csv` writes it
+    and :func:`tradewise.front.read_front` reads it back.
+
+    Raises
+    ------
+    DataError
+        When ``rows`` is empty, holds a position outside the front, or the
+        front already has a column named ``pick_order`` or ``front_row``.
+
+    Examples
+    --------
+    >>> from tradewise.case import Objective
+    >>> table = pd.DataFrame({"cost": [10.0, 12, 15], "mass": [100.0, 60, 40]})
+    >>> picked = shortlist_front(Front.from_table(table, [Objective("cost"), Objective("mass")]), [2, 0])
+    >>> picked.table[["pick_order", "front_row", "cost"]].values.tolist()
+    [[1.0, 3.0, 15.0], [2.0, 1.0, 10.0]]
+    """
+    rows = [int(r) for r in rows]
+    if not rows:
+        raise DataError("shortlist: it is empty; add designs before exporting it")
+    outside = [r for r in rows if not 0 <= r < len(front)]
+    if outside:
+        raise DataError(
+            f"shortlist: {outside[0]} is not a row position of the front (0 to {len(front) - 1})"
+        )
+    clash = [c for c in SHORTLIST_COLUMNS if c in front.table.columns]
+    if clash:
+        raise DataError(
+            f"shortlist: the front already has a column {clash[0]!r}, which the export writes"
+        )
+    table = front.table.iloc[rows].copy()
+    table.insert(0, "front_row", [r + 1 for r in rows])
+    table.insert(0, "pick_order", range(1, len(rows) + 1))
+    return replace(front.with_table(table), meta={**front.meta, "shortlist": dict(settings or {})})
