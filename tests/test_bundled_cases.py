@@ -11,6 +11,7 @@ import numpy as np
 import pytest
 from scipy.integrate import solve_bvp
 
+import tradewise
 from tradewise.case import bundled_cases, load_case
 
 NAMES = ("cargo-bike-pack", "footbridge-girder", "heat-sink")
@@ -388,11 +389,11 @@ def test_heat_sink_overlapping_fins_stay_finite():
 @pytest.mark.parametrize("name", NAMES)
 def test_default_search_gives_a_broad_front(name):
     """The case's own [search] settings on 2 workers end within a minute with >= 15 front designs and a real trade-off."""
-    from tradewise.search import run_study
+
 
     case = load_case(name)
     start = time.perf_counter()
-    result = run_study(case, workers=2)
+    result = tradewise.run(case, workers=2)
     elapsed = time.perf_counter() - start
     assert elapsed < 60.0
     assert result.status in {"budget", "stalled", "generations", "exhausted"}

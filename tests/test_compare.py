@@ -10,6 +10,7 @@ import pandas as pd
 import pytest
 from click.testing import CliRunner
 
+import tradewise
 from support import CASES
 from tradewise.case import Objective
 from tradewise.cli import main
@@ -28,7 +29,6 @@ from tradewise.compare import (
 )
 from tradewise.errors import DataError
 from tradewise.front import Front
-from tradewise.search import run_study, save_run
 
 REFERENCE_SET = [[1.0, 3.0], [2.0, 2.0], [3.0, 1.0]]
 APPROXIMATION = [[1.5, 3.0], [3.0, 1.5]]
@@ -221,8 +221,8 @@ def test_compare_refuses_different_objectives():
 
 def _run(tmp_path, name, evaluations, seed=1):
     folder = tmp_path / name
-    result = run_study(CASES / "zdt1", evaluations=evaluations, seed=seed, store=folder / "archive.sqlite")
-    save_run(result, folder)
+    result = tradewise.run(CASES / "zdt1", evaluations=evaluations, seed=seed, store=folder / "archive.sqlite")
+    tradewise.save_run(result, folder)
     return folder
 
 
@@ -304,9 +304,9 @@ def test_convergence_advice_on_made_up_histories():
 def test_convergence_advice_on_real_runs():
     """ZDT1 after 1200 evaluations is still far from its front (HV well under 2/3) and still gaining;
     the five-variable overhead test case has converged after 2000 (gain about 0.1%) and gets no advice."""
-    short = run_study(CASES / "zdt1", evaluations=1200, seed=1)
+    short = tradewise.run(CASES / "zdt1", evaluations=1200, seed=1)
     assert late_gain(short.history) > 0.01 and "still improving" in convergence_advice(short.history)
-    done = run_study(CASES / "trivial", evaluations=2000, seed=1)
+    done = tradewise.run(CASES / "trivial", evaluations=2000, seed=1)
     assert convergence_advice(done.history) == ""
 
 

@@ -11,12 +11,12 @@ import pandas as pd
 import pytest
 from click.testing import CliRunner
 
+import tradewise
 from tradewise.case import load_case
 from tradewise.cli import main
 from tradewise.errors import TradewiseError
 from tradewise.executors import DaskCluster, InProcess, ProcessPool, make_executor
 from tradewise.models import make_model
-from tradewise.search import run_study
 
 MODEL = '''
 import math, os, time
@@ -121,9 +121,9 @@ def test_a_whole_run_is_identical_on_every_backend(case, dask_cluster):
     exactly.
     """
     loaded = case()
-    runs = {"in-process": run_study(loaded), "dask": run_study(loaded, executor=dask_cluster)}
+    runs = {"in-process": tradewise.run(loaded), "dask": tradewise.run(loaded, executor=dask_cluster)}
     with ProcessPool(2) as pool:
-        runs["process pool"] = run_study(loaded, executor=pool)
+        runs["process pool"] = tradewise.run(loaded, executor=pool)
     reference = runs["in-process"]
     assert reference.n_evals == 48 and reference.n_failed > 0 and len(reference.front) > 3
     for name, result in runs.items():
@@ -157,7 +157,7 @@ def test_each_evaluation_is_reported_before_the_generation_ends(case, monkeypatc
     monkeypatch.setenv("TW_TEST_SLEEP", "0.1")
     stamps, rows = [], []
     with ProcessPool(2) as pool:
-        run_study(case(("ok", "heavy")), evaluations=8, population=8, executor=pool,
+        tradewise.run(case(("ok", "heavy")), evaluations=8, population=8, executor=pool,
                   on_evaluation=lambda row: stamps.append(time.monotonic()),
                   progress=lambda row: rows.append(time.monotonic()))
     assert len(stamps) == 8 and len(rows) == 1

@@ -6,10 +6,11 @@ import numpy as np
 import pytest
 from pymoo.core.problem import Problem
 
+import tradewise
 from support import CASES
+from tradewise._pymoo import MixedMutation, Space
 from tradewise.case import load_case
 from tradewise.models import make_model
-from tradewise.search import Space, _MixedMutation, run_study
 
 
 def test_choices_and_flags_are_reset_at_the_per_variable_rate():
@@ -19,7 +20,7 @@ def test_choices_and_flags_are_reset_at_the_per_variable_rate():
     space = Space(case)
     problem = Problem(n_var=4, n_obj=2, xl=space.xl, xu=space.xu)
     X = np.tile(space.encode({"width": 2.0, "count": 2, "finish": "bare", "fast": False}), (20_000, 1))
-    mutated = space.repair(_MixedMutation(space)._do(problem, X, random_state=np.random.default_rng(7)))
+    mutated = space.repair(MixedMutation(space)._do(problem, X, random_state=np.random.default_rng(7)))
     finish_changed = np.mean(mutated[:, 2] != 0)
     fast_changed = np.mean(mutated[:, 3] != 0)
     assert finish_changed == pytest.approx(1 / 6, abs=0.01)
@@ -54,7 +55,7 @@ def test_girder_search_finds_the_light_higher_grade_designs():
     s235, s355 = lightest("S235"), lightest("S355")
     assert s355 < s235
     for seed in (1, 2, 3):
-        front = run_study(case, seed=seed).front.table
+        front = tradewise.run(case, seed=seed).front.table
         assert front["mass"].min() < s235
         assert front["mass"].min() <= 1.06 * s355
         assert front["grade"].nunique() >= 2

@@ -14,6 +14,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
+import tradewise
 from tradewise import plots
 from tradewise.case import Objective
 from tradewise.choose import choose
@@ -28,9 +29,9 @@ NOTEBOOKS = sorted((Path(__file__).parent.parent / "notebooks").glob("*.ipynb"))
 @pytest.fixture(scope="module")
 def run():
     """A short search on the bundled heat-sink case: a real three-objective front with variables."""
-    from tradewise.search import run_study
 
-    return run_study("heat-sink", evaluations=400, population=40, seed=2)
+
+    return tradewise.run("heat-sink", evaluations=400, population=40, seed=2)
 
 
 @pytest.fixture

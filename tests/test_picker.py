@@ -11,6 +11,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
+import tradewise
 from tradewise.case import Objective
 from tradewise.choose import (
     WEIGHTED_METHODS,
@@ -27,9 +28,9 @@ from tradewise.picker import SHORTLIST_COLUMNS, PickerState, load_picker_source,
 @pytest.fixture(scope="module")
 def run():
     """A short search on the bundled heat-sink case: a real three-objective front with variables."""
-    from tradewise.search import run_study
 
-    return run_study("heat-sink", evaluations=400, population=40, seed=2)
+
+    return tradewise.run("heat-sink", evaluations=400, population=40, seed=2)
 
 
 @pytest.fixture
@@ -306,9 +307,9 @@ def test_kneedle_is_offered_for_two_objectives_only(zdt1, run):
 
 def test_sources_a_run_folder_a_csv_and_a_result(run, tmp_path):
     """A search result, a run folder (with its history) and a front CSV give the same front."""
-    from tradewise.search import save_run
 
-    save_run(run, tmp_path / "run")
+
+    tradewise.save_run(run, tmp_path / "run")
     for source in (run, tmp_path / "run", str(tmp_path / "run" / "front.csv")):
         front, history, _ = load_picker_source(source)
         assert len(front) == len(run.front)

@@ -11,20 +11,20 @@ import pandas as pd
 import pytest
 from click.testing import CliRunner
 
+import tradewise
 from support import CASES
 from tradewise.cli import main
 from tradewise.compare import attainment, attainment_surfaces, read_seed_fronts
 from tradewise.errors import CaseError
 from tradewise.front import read_front
-from tradewise.search import run_repeats, run_study, save_repeats
 from tradewise.store import open_store
 
 
 def test_parallel_and_sequential_seeds_agree_and_share_one_archive(tmp_path):
     """Three seeds run one after another and in three processes give the same runs (same seed, same result),
     and each set of runs lands in its own single archive."""
-    one = run_repeats(CASES / "zdt1", 3, evaluations=600, store=tmp_path / "one.sqlite")
-    many = run_repeats(CASES / "zdt1", 3, evaluations=600, store=tmp_path / "many.sqlite", workers=3)
+    one = tradewise.run_seeds(CASES / "zdt1", 3, evaluations=600, store=tmp_path / "one.sqlite")
+    many = tradewise.run_seeds(CASES / "zdt1", 3, evaluations=600, store=tmp_path / "many.sqlite", workers=3)
     assert one.seeds == many.seeds == (1, 2, 3)  # the case's seed 1, then +1, +2
     assert one.hypervolumes == many.hypervolumes
     for a, b in zip(one.runs, many.runs, strict=True):
@@ -36,16 +36,16 @@ def test_parallel_and_sequential_seeds_agree_and_share_one_archive(tmp_path):
 
 
 def test_each_seed_is_an_ordinary_run():
-    """Seed 2 of a repeat is the run that run_study makes with seed 2 alone."""
-    repeat = run_repeats(CASES / "zdt1", 2, seed=1, evaluations=400)
-    alone = run_study(CASES / "zdt1", seed=2, evaluations=400)
+    """Seed 2 of a repeat is the run that tradewise.run makes with seed 2 alone."""
+    repeat = tradewise.run_seeds(CASES / "zdt1", 2, seed=1, evaluations=400)
+    alone = tradewise.run(CASES / "zdt1", seed=2, evaluations=400)
     assert np.array_equal(repeat.runs[1].front.points(), alone.front.points())
 
 
 def test_merged_front_and_spread_against_moocore():
     """The merged front is the non-dominated union of the seeds' fronts (moocore.filter_dominated); each
     seed's hypervolume is moocore's on the common reference point, the worst of the recorded ones."""
-    result = run_repeats(CASES / "zdt1", 3, evaluations=600)
+    result = tradewise.run_seeds(CASES / "zdt1", 3, evaluations=600)
     union = np.vstack([r.front.points() for r in result.runs])
     expected = moocore.filter_dominated(union)
     assert sorted(map(tuple, result.front.points())) == sorted(map(tuple, expected))
@@ -83,7 +83,7 @@ def test_maximised_objective_and_own_reference_points(make_case):
             return {"cost": x + 0.5 * y, "grip": 10 * x ** 0.5 - 2 * y}
         ''',
     )
-    result = run_repeats(folder, 3, evaluations=300)
+    result = tradewise.run_seeds(folder, 3, evaluations=300)
     refs = np.array([r.reference for r in result.runs])
     assert result.reference == (refs[:, 0].max(), refs[:, 1].min())
     surfaces = attainment_surfaces([r.front.points() for r in result.runs], [False, True])
@@ -94,15 +94,15 @@ def test_maximised_objective_and_own_reference_points(make_case):
 def test_bad_number_of_seeds():
     """Zero seeds is refused with a one-sentence CaseError; the CLI refuses it as a usage error."""
     with pytest.raises(CaseError, match="seeds: got 0"):
-        run_repeats(CASES / "zdt1", 0)
+        tradewise.run_seeds(CASES / "zdt1", 0)
     cli = CliRunner().invoke(main, ["run", str(CASES / "zdt1"), "--seeds", "0"])
     assert cli.exit_code == 2
 
 
 def test_run_folder_for_several_seeds(tmp_path):
-    """save_repeats writes the merged front, one folder a seed, seeds.csv and a history with a seed column."""
-    result = run_repeats(CASES / "zdt1", 3, evaluations=400, store=tmp_path / "archive.sqlite")
-    written = save_repeats(result, tmp_path / "run")
+    """tradewise.save_seeds writes the merged front, one folder a seed, seeds.csv and a history with a seed column."""
+    result = tradewise.run_seeds(CASES / "zdt1", 3, evaluations=400, store=tmp_path / "archive.sqlite")
+    written = tradewise.save_seeds(result, tmp_path / "run")
     run = tmp_path / "run"
     assert set(written) >= {"front", "meta", "history", "seeds"}
     seeds = pd.read_csv(run / "seeds.csv")
@@ -151,7 +151,7 @@ def test_zdt1_median_attainment_surface_near_the_true_front():
     against 100,001 points of the true front is at most 0.04 (measured 0.016). With 6000 evaluations the
     distance was still 0.16: ZDT1's 30 variables need the budget.
     """
-    result = run_repeats(CASES / "zdt1", 5, evaluations=10_000, seed=1, workers=5)
+    result = tradewise.run_seeds(CASES / "zdt1", 5, evaluations=10_000, seed=1, workers=5)
     median = attainment([r.front for r in result.runs]).surfaces["median"]
     f1 = np.linspace(0.0, 1.0, 100_001)
     true = np.c_[f1, 1 - np.sqrt(f1)]
@@ -173,7 +173,7 @@ def test_dtlz2_median_attainment_surface_near_the_true_front():
     (measured 0.039; corners near the octant's edges converge last), none lies inside it, and the IGD+
     against a 151 x 151 grid of the sphere is at most 0.04 (measured 0.023).
     """
-    result = run_repeats(CASES / "dtlz2", 5, evaluations=6000, seed=1, workers=5)
+    result = tradewise.run_seeds(CASES / "dtlz2", 5, evaluations=6000, seed=1, workers=5)
     median = attainment([r.front for r in result.runs]).surfaces["median"]
     inside = median[(median <= 1).all(axis=1)]
     norms = np.linalg.norm(inside, axis=1)
@@ -224,7 +224,7 @@ def _merged(result) -> pd.DataFrame:
 def test_an_interrupted_set_of_seeds_resumes_every_seed(make_case, tmp_path):
     """Three seeds interrupted in the second: the result says which seeds did not run, and resuming the
     archive finishes the second, runs the third and merges all three, as one uninterrupted set would."""
-    from tradewise.search import resume_repeats
+
 
     folder = make_case(NO_WORST_TOML, NO_WORST_MODEL)
 
@@ -232,11 +232,11 @@ def test_an_interrupted_set_of_seeds_resumes_every_seed(make_case, tmp_path):
         if row["seed"] == 5 and row["generation"] == 2:
             raise KeyboardInterrupt
 
-    cut = run_repeats(folder, 3, store=tmp_path / "cut.sqlite", progress=stop_in_seed_five)
+    cut = tradewise.run_seeds(folder, 3, store=tmp_path / "cut.sqlite", progress=stop_in_seed_five)
     assert cut.status == "interrupted" and cut.seeds == (4, 5)
     assert "Seed(s) 6 did not run" in cut.message and cut.meta["missing_seeds"] == [6]
-    resumed = resume_repeats(tmp_path / "cut.sqlite")
-    whole = run_repeats(folder, 3, store=tmp_path / "whole.sqlite")
+    resumed = tradewise.resume_seeds(tmp_path / "cut.sqlite")
+    whole = tradewise.run_seeds(folder, 3, store=tmp_path / "whole.sqlite")
     assert resumed.seeds == whole.seeds == (4, 5, 6)
     assert [r.status for r in resumed.runs] == ["budget"] * 3 and resumed.status == "budget"
     assert resumed.n_evals == whole.n_evals == 180
@@ -250,8 +250,8 @@ def test_one_reference_for_everything_about_a_set_of_seeds(make_case, tmp_path):
     """Without `worst` each seed fixes its own reference, yet the history, each seed's folder, seeds.csv and
     the messages all use the common one: the last history row of each seed equals its seeds.csv value."""
     folder = make_case(NO_WORST_TOML, NO_WORST_MODEL)
-    result = run_repeats(folder, 3, evaluations=100)
-    save_repeats(result, tmp_path / "run")
+    result = tradewise.run_seeds(folder, 3, evaluations=100)
+    tradewise.save_seeds(result, tmp_path / "run")
     seeds = pd.read_csv(tmp_path / "run" / "seeds.csv").set_index("seed")
     history = pd.read_csv(tmp_path / "run" / "history.csv")
     for run, hv in zip(result.runs, result.hypervolumes, strict=True):
@@ -262,7 +262,7 @@ def test_one_reference_for_everything_about_a_set_of_seeds(make_case, tmp_path):
         assert meta["hypervolume"] == pytest.approx(hv, rel=1e-12)
         assert f"hypervolume {hv:.6g} on the seeds' common reference point" in run.message
     # The seeds really had different references of their own (else this test would prove nothing).
-    alone = [run_study(folder, seed=s, evaluations=100).reference for s in result.seeds]
+    alone = [tradewise.run(folder, seed=s, evaluations=100).reference for s in result.seeds]
     assert len(set(alone)) > 1
 
 
@@ -296,7 +296,7 @@ def test_cli_set_of_seeds_killed_then_resumed(make_case, tmp_path):
     seeds = pd.read_csv(tmp_path / "run" / "seeds.csv")
     assert seeds["seed"].tolist() == [4, 5, 6] and (seeds["status"] == "budget").all()
     assert (seeds["evaluations"] == 60).all()
-    whole = run_repeats(folder, 3)
+    whole = tradewise.run_seeds(folder, 3)
     front = pd.read_csv(tmp_path / "run" / "front.csv")
     front.columns = [c.split(" [")[0] for c in front.columns]
     names = ["x", "y", "cost", "grip", "seed"]

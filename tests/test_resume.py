@@ -16,9 +16,10 @@ import pandas as pd
 import pytest
 from click.testing import CliRunner
 
+import tradewise
 from tradewise.case import load_case
 from tradewise.cli import main
-from tradewise.search import design_key, resume_study, run_study
+from tradewise.search import design_key
 from tradewise.store import open_store
 
 # Sleeps a little, and appends each finished evaluation to a log that survives the kill.
@@ -144,7 +145,7 @@ def _check_kill_and_resume(case_folder: Path, tmp_path: Path, *, after: int, ext
     assert set(evaluated_again) >= twice and len(twice) <= 60
 
     # The same front as a run that was never interrupted (same seed and budget, its own archive).
-    reference = run_study(case, store=tmp_path / "reference.sqlite")
+    reference = tradewise.run(case, store=tmp_path / "reference.sqlite")
     pd.testing.assert_frame_equal(_front(tmp_path / "run" / "front.csv", case), _front_of(reference, case))
     meta = json.loads((tmp_path / "run" / "front.json").read_text())
     assert meta["hypervolume"] == reference.hypervolume and meta["n_evals"] == 150
@@ -184,10 +185,10 @@ def test_extend_a_finished_run(folder, tmp_path):
     population, so no generation was cut short)."""
     case = load_case(folder())
     store = tmp_path / "a.sqlite"
-    first = run_study(case, evaluations=60, store=store)
+    first = tradewise.run(case, evaluations=60, store=store)
     assert (first.status, first.n_evals) == ("budget", 60)
-    extended = resume_study(store, evaluations=120)
-    reference = run_study(case, evaluations=120)
+    extended = tradewise.resume(store, evaluations=120)
+    reference = tradewise.run(case, evaluations=120)
     assert extended.n_evals == 120 and extended.n_cached == first.n_cached
     pd.testing.assert_frame_equal(_front_of(extended, case), _front_of(reference, case))
     assert _real_rows(store).groupby("design_key").size().max() == 1
@@ -198,11 +199,11 @@ def test_second_run_into_the_same_archive_evaluates_nothing_stored(folder, tmp_p
     them in n_cached and evaluates only designs the archive does not hold."""
     case = load_case(folder())
     store = tmp_path / "a.sqlite"
-    first = run_study(case, evaluations=60, store=store)
+    first = tradewise.run(case, evaluations=60, store=store)
     log = tmp_path / "evaluations.log"
     os.environ["TW_EVAL_LOG"] = str(log)
     try:
-        second = run_study(case, evaluations=60, store=store)
+        second = tradewise.run(case, evaluations=60, store=store)
     finally:
         del os.environ["TW_EVAL_LOG"]
     stored_by_first = set(_real_rows(store).query(f"run_id == {first.run_id}")["design_key"])

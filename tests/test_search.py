@@ -10,10 +10,12 @@ import pytest
 from hypothesis import HealthCheck, given, settings
 from hypothesis import strategies as st
 
+import tradewise
 from support import CASES
+from tradewise._pymoo import Space
 from tradewise.case import load_case
 from tradewise.errors import ModelError
-from tradewise.search import Space, design_key, run_study, save_run
+from tradewise.search import design_key
 
 # --------------------------------------------------------------------------- published fronts
 
@@ -24,7 +26,7 @@ def test_zdt1_front_and_hypervolume():
 
     Budget stated here: 20,000 evaluations, the case's population of 60, seed 1.
     """
-    result = run_study(CASES / "zdt1", evaluations=20_000, seed=1)
+    result = tradewise.run(CASES / "zdt1", evaluations=20_000, seed=1)
     points = result.front.points()
     assert result.hypervolume >= 0.99 * (2 / 3)
     assert result.hypervolume <= 2 / 3 + 1e-12  # nothing can beat the true front
@@ -40,7 +42,7 @@ def test_zdt2_front_and_hypervolume():
 
     Budget stated here: 20,000 evaluations, population 60, seed 1.
     """
-    result = run_study(CASES / "zdt2", evaluations=20_000, seed=1)
+    result = tradewise.run(CASES / "zdt2", evaluations=20_000, seed=1)
     points = result.front.points()
     assert 0.99 / 3 <= result.hypervolume <= 1 / 3 + 1e-12
     assert np.abs(points[:, 1] - (1 - points[:, 0] ** 2)).max() <= 1e-2
@@ -54,7 +56,7 @@ def test_dtlz2_on_the_unit_sphere():
     Budget stated here: 30,000 evaluations, seed 1. Points on the edges of the octant (one objective
     exactly 0) converge last, so a few of them may still lie up to 0.1 off the sphere.
     """
-    result = run_study(CASES / "dtlz2", evaluations=30_000, seed=1)
+    result = tradewise.run(CASES / "dtlz2", evaluations=30_000, seed=1)
     norms = np.linalg.norm(result.front.points(), axis=1)
     assert np.mean(np.abs(norms - 1) <= 2e-2) >= 0.99
     assert np.abs(norms - 1).max() <= 0.1
@@ -70,7 +72,7 @@ def test_two_bar_truss_against_analytic_front():
     the smallest stress 8432.74 kPa (80 sqrt(10) / 0.03). The published epsilon-constraint points
     (0.004445 m3, 89,983 kPa) and (0.004833 m3, 83,268 kPa) have products 399.97 and 402.43.
     """
-    result = run_study(CASES / "truss", evaluations=12_000, seed=1)
+    result = tradewise.run(CASES / "truss", evaluations=12_000, seed=1)
     table = result.front.table
     volume, stress = table["volume"].to_numpy(), table["stress"].to_numpy()
     assert (stress <= 1e5 * (1 + 1e-9)).all()
@@ -89,16 +91,16 @@ def test_two_bar_truss_against_analytic_front():
 
 def test_same_seed_same_front():
     """Two runs with the same seed give the same front, value for value."""
-    a = run_study(CASES / "mixed", seed=4, evaluations=300)
-    b = run_study(CASES / "mixed", seed=4, evaluations=300)
+    a = tradewise.run(CASES / "mixed", seed=4, evaluations=300)
+    b = tradewise.run(CASES / "mixed", seed=4, evaluations=300)
     assert a.front.table.drop(columns=["duration"]).equals(b.front.table.drop(columns=["duration"]))
-    c = run_study(CASES / "mixed", seed=5, evaluations=300)
+    c = tradewise.run(CASES / "mixed", seed=5, evaluations=300)
     assert not c.evaluations[["width"]].equals(a.evaluations[["width"]])
 
 
 def test_budget_is_exact_and_no_design_evaluated_twice():
     """The budget counts model evaluations exactly, and no design is evaluated twice in a run."""
-    result = run_study(CASES / "mixed", seed=2, evaluations=333)
+    result = tradewise.run(CASES / "mixed", seed=2, evaluations=333)
     fresh = result.evaluations[~result.evaluations["cached"]]
     assert result.n_evals == 333 == len(fresh)
     keys = [design_key({v: row[v] for v in result.case.variable_names}) for _, row in fresh.iterrows()]
@@ -108,7 +110,7 @@ def test_budget_is_exact_and_no_design_evaluated_twice():
 
 def test_front_is_nondominated_set_of_all_feasible_evaluations():
     """The front equals moocore's non-dominated filter over every feasible evaluation, not the last population."""
-    result = run_study(CASES / "mixed", seed=3, evaluations=400)
+    result = tradewise.run(CASES / "mixed", seed=3, evaluations=400)
     feasible = result.evaluations[result.evaluations["feasible"]]
     points = feasible[["cost", "life"]].to_numpy(dtype=float)
     expected = moocore.filter_dominated(points, maximise=[False, True])
@@ -120,9 +122,9 @@ def test_front_is_nondominated_set_of_all_feasible_evaluations():
 
 def test_generation_and_time_limits_stop_the_run():
     """A generation limit and a wall-clock limit are stopping statuses, not errors."""
-    by_generations = run_study(CASES / "mixed", generations=3, evaluations=10_000)
+    by_generations = tradewise.run(CASES / "mixed", generations=3, evaluations=10_000)
     assert by_generations.status == "generations" and by_generations.n_gen == 3
-    by_time = run_study(CASES / "zdt1", time_limit=0.3, evaluations=10**7)
+    by_time = tradewise.run(CASES / "zdt1", time_limit=0.3, evaluations=10**7)
     assert by_time.status == "time_limit"
 
 
@@ -146,7 +148,7 @@ def test_stagnation_stops_the_run(make_case):
         """,
         "def evaluate(d):\n    return {'cost': abs(d['x'] - 200) / 200 + 0.0 * d['y'], 'mass': 1 - abs(d['x'] - 200) / 200}\n",
     )
-    result = run_study(folder)
+    result = tradewise.run(folder)
     assert result.status in {"stalled", "exhausted"}
     assert result.n_evals < 100000
 
@@ -167,7 +169,7 @@ def test_failures_are_recorded_and_the_run_goes_on(make_case):
             return {"cost": x, "mass": (1 - x) ** 2 + 0.1}
         """
     )
-    result = run_study(folder, evaluations=200, seed=1)
+    result = tradewise.run(folder, evaluations=200, seed=1)
     failed = result.evaluations[result.evaluations["status"] == "failed"]
     assert result.n_failed == len(failed[~failed["cached"]]) > 0
     assert failed["message"].str.contains("too thin to mesh").any()
@@ -182,13 +184,13 @@ def test_first_generation_all_failed_stops_with_the_first_message(make_case):
     """If every design of the first generation fails, the run stops with an error quoting the first message."""
     folder = make_case(model="def evaluate(design):\n    raise RuntimeError('licence server down')\n")
     with pytest.raises(ModelError, match="licence server down"):
-        run_study(folder, evaluations=100)
+        tradewise.run(folder, evaluations=100)
 
 
 def test_missing_key_is_a_failure(make_case):
     """A model that forgets an objective fails that design with a message naming the key."""
     folder = make_case(model="def evaluate(d):\n    return {'cost': d['x'] if d['x'] > 0.5 else 'n/a', 'mass': 1 - d['x']}\n")
-    result = run_study(folder, evaluations=60)
+    result = tradewise.run(folder, evaluations=60)
     messages = result.evaluations.loc[result.evaluations["status"] == "failed", "message"]
     assert messages.str.contains("'cost' is 'n/a'").all() and len(messages) > 0
 
@@ -209,11 +211,11 @@ def test_no_feasible_design_is_reported_plainly(make_case, tmp_path):
         """,
         "def evaluate(d):\n    return {'cost': d['x'], 'mass': 1 - d['x'], 'gap': 4.0 * d['x']}\n",
     )
-    result = run_study(folder, evaluations=120, seed=1)
+    result = tradewise.run(folder, evaluations=120, seed=1)
     assert len(result.front) == 0
     assert "No feasible design" in result.message and "gap >= 5 mm" in result.message
     assert "missed by 1" in result.message  # 5 - 4 * x at best x near 1: about 1 mm
-    written = save_run(result, tmp_path / "run")
+    written = tradewise.save_run(result, tmp_path / "run")
     assert "least_infeasible" in written and not (tmp_path / "run" / "front.csv").exists()
     nearest = written["least_infeasible"].read_text().splitlines()
     assert len(nearest) > 1
@@ -222,14 +224,14 @@ def test_no_feasible_design_is_reported_plainly(make_case, tmp_path):
 def test_reference_point_from_worst_or_first_feasible(make_case):
     """The hypervolume reference comes from `worst` where given, otherwise once from the first feasible designs."""
     folder = make_case()
-    result = run_study(folder, evaluations=200, seed=1)
+    result = tradewise.run(folder, evaluations=200, seed=1)
     first = result.evaluations[result.evaluations["generation"] == 1]
     cost, mass = first["cost"], first["mass"]
     expected = [cost.max() + 0.1 * (cost.max() - cost.min()), mass.max() + 0.1 * (mass.max() - mass.min())]
     # Only the first generation's non-dominated designs set it, so it can only be at or inside this box.
     assert result.reference[0] <= expected[0] + 1e-12 and result.reference[1] <= expected[1] + 1e-12
     assert list(result.history["hypervolume"]) == sorted(result.history["hypervolume"])  # never falls
-    zdt = run_study(CASES / "zdt1", evaluations=120)
+    zdt = tradewise.run(CASES / "zdt1", evaluations=120)
     assert zdt.reference == (1.0, 1.0)
 
 
@@ -239,8 +241,8 @@ def test_save_run_writes_the_run_folder(tmp_path):
 
     from tradewise.front import read_front
 
-    result = run_study(CASES / "mixed", evaluations=200, seed=1)
-    save_run(result, tmp_path)
+    result = tradewise.run(CASES / "mixed", evaluations=200, seed=1)
+    tradewise.save_run(result, tmp_path)
     header = (tmp_path / "front.csv").read_text().splitlines()[0]
     assert "width [mm]" in header and "cost [EUR]" in header and "load [kN]" in header
     meta = json.loads((tmp_path / "front.json").read_text())
@@ -275,7 +277,7 @@ def test_space_never_emits_illegal_values(rows):
 @given(st.integers(0, 10_000))
 def test_mixed_runs_only_evaluate_legal_designs(seed):
     """Mixed-variable runs never send a fractional integer, unknown option or out-of-range value (the model asserts)."""
-    result = run_study(CASES / "mixed", seed=seed, evaluations=120)
+    result = tradewise.run(CASES / "mixed", seed=seed, evaluations=120)
     assert result.n_failed == 0
     case = result.case
     for row in result.evaluations.to_dict("records"):
@@ -285,7 +287,7 @@ def test_mixed_runs_only_evaluate_legal_designs(seed):
 
 def test_every_option_is_reachable():
     """Each choice option and both flag values appear in a modest run (equal shares of the axis)."""
-    result = run_study(CASES / "mixed", seed=1, evaluations=200)
+    result = tradewise.run(CASES / "mixed", seed=1, evaluations=200)
     assert set(result.evaluations["finish"]) == {"bare", "anodised", "painted"}
     assert set(result.evaluations["fast"]) == {True, False}
     assert {-3, 7} <= set(result.evaluations["count"])
@@ -337,6 +339,6 @@ def test_dtlz1_is_not_stopped_while_its_front_still_moves():
     """DTLZ1 (Deb, Thiele, Laumanns, Zitzler 2002) with the default stall rule: the rule that judged raw
     hypervolume gain in the box of the first random designs stopped it at 6,500-7,300 of 20,000
     evaluations with IGD+ 4 to 8; judged on the front's own scale it runs on while the front moves."""
-    result = run_study(CASES / "dtlz1", evaluations=10_000, seed=3)
+    result = tradewise.run(CASES / "dtlz1", evaluations=10_000, seed=3)
     assert result.status == "budget" and result.n_evals == 10_000, result.message
     assert result.history["front_gain"].iloc[-1] > result.case.search.stall_tolerance

@@ -14,10 +14,10 @@ import pandas as pd
 import pytest
 from click.testing import CliRunner
 
+import tradewise
 import tradewise._pymoo as adapter
 from tradewise.case import load_case
 from tradewise.cli import main
-from tradewise.search import resume_study, run_study
 
 MIXED_MODEL = """
 def evaluate(design):
@@ -104,7 +104,7 @@ def spy(monkeypatch):
         calls.append(kwargs.get("where"))
         return original(*args, **kwargs)
 
-    monkeypatch.setattr("tradewise.search.restore_state", counting)
+    monkeypatch.setattr("tradewise._pymoo.restore_state", counting)
     return calls
 
 
@@ -112,7 +112,7 @@ def test_saved_state_is_json_and_holds_no_code(make_case, tmp_path):
     """The state in the archive is JSON text with the population, the counters and the random state."""
     case = load_case(make_case(MIXED_TOML, MIXED_MODEL))
     store = tmp_path / "a.sqlite"
-    run_study(case, store=store)
+    tradewise.run(case, store=store)
     with sqlite3.connect(store) as db:
         ((generation, blob),) = db.execute("SELECT generation, blob FROM states").fetchall()
     state = json.loads(bytes(blob).decode("utf-8"))
@@ -139,11 +139,11 @@ def test_resume_from_the_state_proposes_what_the_uninterrupted_run_would(
         if row["generation"] == 3:
             raise KeyboardInterrupt
 
-    first = run_study(case, store=tmp_path / "cut.sqlite", progress=stop_after_three)
+    first = tradewise.run(case, store=tmp_path / "cut.sqlite", progress=stop_after_three)
     assert first.status == "interrupted" and first.n_gen == 3
-    resumed = resume_study(tmp_path / "cut.sqlite")
+    resumed = tradewise.resume(tmp_path / "cut.sqlite")
     assert spy, "the resume did not use the saved state"
-    whole = run_study(case, store=tmp_path / "whole.sqlite")
+    whole = tradewise.run(case, store=tmp_path / "whole.sqlite")
     assert resumed.status == whole.status == "budget" and resumed.n_evals == whole.n_evals
     pd.testing.assert_frame_equal(
         _real_designs(tmp_path / "cut.sqlite", names),
@@ -189,7 +189,7 @@ def test_a_crafted_archive_runs_no_code(make_case, tmp_path):
         result = runner.invoke(main, args)
         assert result.exit_code == 0, (args, result.output)
         assert not marker.exists(), f"{args[0]} ran code from the archive"
-    whole = run_study(load_case(folder), evaluations=140)
+    whole = tradewise.run(load_case(folder), evaluations=140)
     front = pd.read_csv(tmp_path / "run" / "front.csv")
     assert len(front) == len(whole.front)
 

@@ -13,10 +13,10 @@ import time
 import pytest
 from click.testing import CliRunner
 
+import tradewise
 from support import GOOD_MODEL, GOOD_TOML
 from tradewise.cli import main
 from tradewise.errors import StoreError
-from tradewise.search import run_study
 from tradewise.store import SCHEMA_VERSION, open_store
 
 
@@ -222,8 +222,8 @@ def test_two_cases_share_one_archive(make_case, tmp_path):
     one = make_case(name="one")
     two = make_case(GOOD_TOML.replace('"tiny"', '"tiny two"'), name="two")
     store = tmp_path / "shared.sqlite"
-    first = run_study(one, evaluations=20, population=10, store=store)
-    second = run_study(two, evaluations=20, population=10, store=store)
+    first = tradewise.run(one, evaluations=20, population=10, store=store)
+    second = tradewise.run(two, evaluations=20, population=10, store=store)
     assert first.n_cached == 0 and second.n_cached == 0  # different case hashes: nothing shared
     with open_store(store, create=False) as archive:
         runs = archive.runs()
@@ -351,7 +351,7 @@ def test_lock_released_in_time_lets_the_run_go_on(make_case, tmp_path, monkeypat
 
     from tradewise import store as store_module
     from tradewise.case import load_case
-    from tradewise.search import run_study
+
 
     monkeypatch.setattr(store_module, "LOCK_WAIT", 10.0)
     monkeypatch.setattr(store_module, "LOCK_NOTICE", 0.1)
@@ -362,7 +362,7 @@ def test_lock_released_in_time_lets_the_run_go_on(make_case, tmp_path, monkeypat
     release = threading.Timer(0.5, holder.rollback)
     release.start()
     try:
-        result = run_study(load_case(make_case()), evaluations=20, population=10, store=path)
+        result = tradewise.run(load_case(make_case()), evaluations=20, population=10, store=path)
     finally:
         release.join()
         holder.close()

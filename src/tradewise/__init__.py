@@ -6,8 +6,8 @@ from tradewise.front import Front, hypervolume, nondominated, read_front
 
 __version__ = "0.1.0"
 
-_LAZY = {"run_study": "search", "resume_study": "search", "save_run": "search", "run_repeats": "search",
-         "resume_repeats": "search", "StudyResult": "search"}
+_LAZY = {"run": "search", "resume": "search", "RunResult": "search", "run_seeds": "repeats",
+         "resume_seeds": "repeats", "SeedsResult": "repeats", "save_run": "runfolder", "save_seeds": "runfolder"}
 
 
 def __getattr__(name: str):
@@ -26,12 +26,14 @@ __all__ = [
     "SearchSettings",
     "Variable",
     "load_case",
-    "run_study",
-    "resume_study",
+    "run",
+    "resume",
+    "run_seeds",
+    "resume_seeds",
     "save_run",
-    "run_repeats",
-    "resume_repeats",
-    "StudyResult",
+    "save_seeds",
+    "RunResult",
+    "SeedsResult",
     "Front",
     "read_front",
     "hypervolume",

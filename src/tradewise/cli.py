@@ -170,8 +170,9 @@ def run_command(case, out, seed, n_seeds, evaluations, generations, population, 
     """
     from pathlib import Path
 
+    from tradewise import search
     from tradewise.case import load_case
-    from tradewise.search import run_study, save_run
+    from tradewise.runfolder import save_run
 
     loaded = load_case(case)
     folder = Path(_run_folder(loaded, out))
@@ -183,7 +184,7 @@ def run_command(case, out, seed, n_seeds, evaluations, generations, population, 
                           time_limit=time_limit, dask=dask, scheduler=scheduler)
     bar = _Progress(budget, quiet=quiet)
     try:
-        result = run_study(
+        result = search.run(
             loaded, seed=seed, evaluations=evaluations, generations=generations, population=population,
             time_limit=time_limit, store=store_path, workers=workers, dask=dask, scheduler=scheduler,
             progress=bar.generation, on_evaluation=bar.evaluation,
@@ -218,7 +219,8 @@ def resume_command(store, run_id, evaluations, out, case, workers, dask, schedul
     """
     from pathlib import Path
 
-    from tradewise.search import resume_study, save_run
+    from tradewise import search
+    from tradewise.runfolder import save_run
     from tradewise.store import open_store
 
     with open_store(store, create=False) as archive:
@@ -232,7 +234,7 @@ def resume_command(store, run_id, evaluations, out, case, workers, dask, schedul
     budget = evaluations or record["settings"]["evaluations"]
     bar = _Progress(max(budget, done), quiet=quiet, initial=done)
     try:
-        result = resume_study(
+        result = search.resume(
             store, run_id=run_id, evaluations=evaluations, case=case, workers=workers, dask=dask,
             scheduler=scheduler, progress=bar.generation, on_evaluation=bar.evaluation,
         )
@@ -249,10 +251,10 @@ def _resume_seeds(store, run_id, folder, *, quiet: bool, **options) -> None:
     """``resume`` of a run made with --seeds: every seed of the set is finished, and the folder written anew."""
     from pathlib import Path
 
-    from tradewise.search import resume_repeats
+    from tradewise.repeats import resume_seeds
 
     click.echo(f"Run {run_id} is one of a set of seeds: resuming every unfinished seed of the set.", err=True)
-    result = resume_repeats(store, run_id=run_id, on_run=_seed_finished(quiet), **options)
+    result = resume_seeds(store, run_id=run_id, on_run=_seed_finished(quiet), **options)
     _write_seeds(result, folder, Path(store))
 
 
@@ -577,14 +579,14 @@ def report_command(run, out, shortlist_path) -> None:
 
 def _run_seeds(case, n_seeds: int, folder, store_path, *, quiet: bool, workers, **settings) -> None:
     """``run --seeds K``: K runs, their merged front, each seed's own, the attainment surfaces and the spread."""
-    from tradewise.search import run_repeats
+    from tradewise.repeats import run_seeds
 
     parallel = bool(workers and workers > 1 and not (settings.get("dask") or settings.get("scheduler")))
     budget = (settings.get("evaluations") or case.search.evaluations) * n_seeds
     bar = _Progress(budget, quiet=quiet or parallel)
 
     try:
-        result = run_repeats(case, n_seeds, store=store_path, workers=workers, progress=bar.generation,
+        result = run_seeds(case, n_seeds, store=store_path, workers=workers, progress=bar.generation,
                              on_evaluation=bar.evaluation, on_run=_seed_finished(quiet), **settings)
     finally:
         bar.close()
@@ -605,19 +607,15 @@ def _seed_finished(quiet: bool):
 
 def _write_seeds(result, folder, store_path) -> None:
     """Write the folder of a set of seeds (merged front, each seed's folder, attainment) and summarise it."""
-    from tradewise.compare import attainment, write_attainment
-    from tradewise.search import save_repeats
+    from tradewise.runfolder import save_seeds, seed_attainment
 
-    written = save_repeats(result, folder)
+    written = save_seeds(result, folder)
     _summary(result)
     for run, hv in zip(result.runs, result.hypervolumes, strict=True):
         click.echo(f"  seed {run.seed}: hypervolume {hv:.6g} on the common reference point")
-    fronts = [run.front for run in result.runs]
-    if len(result.runs) > 1 and any(len(f) for f in fronts) and len(result.front.objectives) <= 3:
-        spread = attainment(fronts, reference=result.reference)
-        written.update(write_attainment(spread, folder))
-        for line in spread.lines():
-            click.echo(line)
+    spread = seed_attainment(result)
+    for line in spread.lines() if spread is not None else ():
+        click.echo(line)
     click.echo(f"Wrote {', '.join(p.name for p in written.values())}, seeds/ and {store_path.name} to {folder}")
     if result.status == "interrupted":
         click.echo(f"Continue every seed with: tradewise resume {store_path}", err=True)

@@ -43,6 +43,8 @@ class Outcome:
     message: str = ""
     duration: float = 0.0
     worker: str = ""
+    #: The archive row holding this evaluation, once it has one.
+    eval_id: int | None = None
 
     @property
     def ok(self) -> bool:

@@ -97,7 +97,7 @@ class Picker:
 
     Parameters
     ----------
-    source : StudyResult, Front, str or Path
+    source : RunResult, Front, str or Path
         What to pick from (see :func:`load_picker_source`), or a ready
         :class:`PickerState`.
     clickable : bool, optional
@@ -463,7 +463,7 @@ def open_picker(source: Any, **options: Any) -> Picker:
 
     Parameters
     ----------
-    source : StudyResult, Front, PickerState, str or Path
+    source : RunResult, Front, PickerState, str or Path
         What to pick from: a search result, a front, a run folder or a front
         CSV with its JSON beside it.
     **options

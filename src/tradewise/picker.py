@@ -46,9 +46,9 @@ def load_picker_source(source: Any) -> tuple[Front, pd.DataFrame | None, pd.Data
 
     Parameters
     ----------
-    source : StudyResult, Front, str or Path
+    source : RunResult, Front, str or Path
         A search result (anything with ``front``, ``history`` and
-        ``evaluations`` attributes, as :func:`tradewise.search.run_study`
+        ``evaluations`` attributes, as :func:`tradewise.run`
         returns), a :class:`~tradewise.front.Front`, a run folder, or a front
         CSV with its JSON metadata beside it.
 

@@ -1,9 +1,12 @@
-"""The search: a non-dominated sorting genetic search on pymoo, driven generation by generation.
+"""The search: one run of a case, generation by generation, in named steps.
 
-pymoo proposes designs (ask) and is told their values (tell); everything
-around that is ours: the encoding of mixed variables, the evaluation cache,
-failure handling, the archive, the front built from every feasible design
-evaluated so far, hypervolume tracking and the stopping rules.
+The genetic algorithm (pymoo, behind ``tradewise._pymoo``) proposes designs
+and is told their values; everything around that is ours. Each generation:
+propose (and sort the designs into ones known to the run or the archive and
+new ones), evaluate (record the known, take over an interrupted run's,
+evaluate the rest), tell the algorithm, update the front, the settling
+measure and the history, save the state, and decide whether to stop
+(``_stop_status``, a status, never an exception).
 """
 
 from __future__ import annotations
@@ -12,7 +15,6 @@ import json
 import math
 import platform
 import time
-import uuid
 from collections import deque
 from collections.abc import Callable
 from dataclasses import dataclass, field, replace
@@ -22,18 +24,8 @@ from typing import Any
 
 import numpy as np
 import pandas as pd
-from pymoo.algorithms.moo.nsga2 import NSGA2
-from pymoo.algorithms.moo.nsga3 import NSGA3
-from pymoo.core.problem import Problem
-from pymoo.core.repair import Repair
-from pymoo.core.termination import NoTermination
-from pymoo.operators.crossover.sbx import SBX
-from pymoo.operators.mutation.pm import PM
-from pymoo.operators.sampling.rnd import FloatRandomSampling
-from pymoo.problems.static import StaticProblem
-from pymoo.util.ref_dirs import get_reference_directions
 
-from tradewise._pymoo import decode_state, encode_state, restore_state, search_state
+from tradewise._pymoo import Searcher, Space, decode_state, default_population
 from tradewise.case import Case, load_case
 from tradewise.errors import ModelError, StoreError
 from tradewise.executors import InProcess, make_executor
@@ -41,8 +33,7 @@ from tradewise.front import Front, hypervolume, nondominated, reference_point
 from tradewise.models import Outcome, make_model
 from tradewise.store import Store, open_store
 
-__all__ = ["StudyResult", "run_study", "middle_design", "resume_study", "save_run", "design_key", "Space", "STATUS_TEXT",
-           "run_repeats", "resume_repeats", "save_repeats", "RepeatsResult"]
+__all__ = ["RunResult", "run", "middle_design", "resume", "design_key", "STATUS_TEXT"]
 
 #: Why a run stopped, in words for the summary.
 STATUS_TEXT = {
@@ -69,122 +60,10 @@ _STATE_EVERY = 1.0
 
 
 # --------------------------------------------------------------------------------------- encoding
-class Space:
-    """Encoding of a case's variables as a real vector for the genetic operators.
-
-    Reals are themselves. Integers, choices (option index) and flags (0/1) are
-    searched on a real axis widened by half a step at each end and rounded, so
-    every legal value has the same share of the axis and no fractional or
-    out-of-range value ever reaches the model.
-    """
-
-    def __init__(self, case: Case) -> None:
-        self.variables = case.variables
-        low, high, discrete = [], [], []
-        for v in case.variables:
-            if v.kind == "real":
-                low.append(float(v.low))
-                high.append(float(v.high))
-                discrete.append(False)
-            else:
-                lo, hi = {"integer": (v.low, v.high), "choice": (0, len(v.options) - 1), "flag": (0, 1)}[v.kind]
-                low.append(lo - 0.4999)
-                high.append(hi + 0.4999)
-                discrete.append(True)
-        self.xl = np.asarray(low, dtype=float)
-        self.xu = np.asarray(high, dtype=float)
-        self.discrete = np.asarray(discrete, dtype=bool)
-        self._names = [v.name for v in case.variables]
-        self._kinds = [v.kind for v in case.variables]
-        self._options = [v.options for v in case.variables]
-        self._all_real = all(kind == "real" for kind in self._kinds)
-        #: (column, number of options) of every choice and flag
-        self.categorical = [
-            (i, len(v.options) if v.kind == "choice" else 2)
-            for i, v in enumerate(case.variables)
-            if v.kind in ("choice", "flag")
-        ]
-        self._round_low = np.where(self.discrete, np.ceil(self.xl), self.xl)
-        self._round_high = np.where(self.discrete, np.floor(self.xu), self.xu)
-
-    @property
-    def size(self) -> float:
-        """Number of distinct designs (``inf`` when any variable is real)."""
-        if not self.discrete.all():
-            return math.inf
-        return float(np.prod(self._round_high - self._round_low + 1))
-
-    def repair(self, X: np.ndarray) -> np.ndarray:
-        X = np.array(X, dtype=float, copy=True)
-        X[:, self.discrete] = np.round(X[:, self.discrete])
-        return np.clip(X, self._round_low, self._round_high)
-
-    def decode(self, x: Any) -> dict[str, Any]:
-        """The design of one (repaired) row: floats, ints, options and booleans under their names."""
-        if self._all_real:
-            return dict(zip(self._names, map(float, x), strict=True))
-        design: dict[str, Any] = {}
-        for name, kind, options, value in zip(self._names, self._kinds, self._options, x, strict=True):
-            if kind == "real":
-                design[name] = float(value)
-            elif kind == "integer":
-                design[name] = int(round(value))
-            elif kind == "choice":
-                design[name] = options[int(round(value))]
-            else:
-                design[name] = bool(round(value))
-        return design
-
-    def encode(self, design: dict[str, Any]) -> np.ndarray:
-        x = []
-        for v in self.variables:
-            value = design[v.name]
-            if v.kind == "choice":
-                x.append(float(v.options.index(value)))
-            else:
-                x.append(float(value))
-        return np.asarray(x, dtype=float)
-
-
-class _Rounding(Repair):
-    """pymoo repair that rounds the discrete columns (module level so that it pickles)."""
-
-    def __init__(self, space: Space) -> None:
-        super().__init__()
-        self.space = space
-
-    def _do(self, problem, X, **kwargs):
-        return self.space.repair(X)
-
-
 def middle_design(case: Case) -> dict[str, Any]:
     """The design in the middle of every range (first option, flags off): a quick model check."""
     space = Space(case)
     return space.decode(space.repair(((space.xl + space.xu) / 2)[None, :])[0])
-
-
-class _MixedMutation(PM):
-    """Polynomial mutation, plus a random reset of choices and flags.
-
-    On the widened real axis of a choice or a flag, polynomial mutation moves
-    a value by a few per cent of the axis, which almost never reaches another
-    option; left to it, a choice would keep whatever the first generation
-    drew. Each choice and flag is therefore also reset to a uniformly drawn
-    option with the usual per-variable probability min(0.5, 1/n). Cases
-    without choices or flags draw nothing extra, so their runs are unchanged.
-    """
-
-    def __init__(self, space: Space, eta: float = 20.0) -> None:
-        super().__init__(eta=eta)
-        self.space = space
-
-    def _do(self, problem, X, *args, random_state=None, **kwargs):
-        Xp = super()._do(problem, X, *args, random_state=random_state, **kwargs)
-        for column, levels in self.space.categorical:
-            reset = random_state.random(len(Xp)) < min(0.5, 1.0 / problem.n_var)
-            if reset.any():
-                Xp[reset, column] = random_state.integers(0, levels, size=int(reset.sum()))
-        return Xp
 
 
 def _key_text(value: Any) -> str:
@@ -211,7 +90,7 @@ def design_key(design: dict[str, Any]) -> str:
 
 # ----------------------------------------------------------------------------------------- result
 @dataclass(frozen=True)
-class StudyResult:
+class RunResult:
     """What a search gives back; ``status`` and ``message`` say why it stopped.
 
     ``front`` is the non-dominated set of every feasible design evaluated
@@ -240,12 +119,33 @@ class StudyResult:
 
     def __repr__(self) -> str:
         return (
-            f"StudyResult({self.message!r}, front={len(self.front)} designs, n_evals={self.n_evals}, "
+            f"RunResult({self.message!r}, front={len(self.front)} designs, n_evals={self.n_evals}, "
             f"n_gen={self.n_gen}, hypervolume={self.hypervolume:.6g})"
         )
 
 
 # ------------------------------------------------------------------------------------------ state
+@dataclass(frozen=True)
+class _Taken:
+    """An evaluation a run made after its last saved state, waiting to be proposed again on resume."""
+
+    outcome: Outcome
+    design: dict[str, Any]
+    generation: int
+
+
+@dataclass
+class _Proposal:
+    """One generation's designs: what was proposed, and which of them are new to the run."""
+
+    number: int
+    designs: list[dict[str, Any]]
+    keys: list[str]
+    served: dict[str, Outcome]  # from this run's memo or the archive: recorded, not evaluated
+    fresh: list[str]  # to evaluate (or to take over from before an interruption), in order
+    first_row: int
+
+
 class _Run:
     """The bookkeeping of one run: cache, evaluation records, front and history."""
 
@@ -255,7 +155,7 @@ class _Run:
         self.run_id = run_id
         self.objectives = case.objectives
         self.maximise = case.maximise
-        self.memo: dict[str, dict[str, Any]] = {}
+        self.memo: dict[str, Outcome] = {}
         self.records: list[dict[str, Any]] = []
         self.n_evals = 0
         self.n_failed = 0
@@ -269,23 +169,20 @@ class _Run:
         self.history: list[dict[str, Any]] = []
         # The front after each of the last generations, for judging how much it still moves.
         self.snapshots: deque[np.ndarray] = deque(maxlen=max(case.search.stall_generations, _SETTLE_WINDOW) + 1)
-        self.settled = 0  # generations so far after which the front had settled (see _tune_operators)
+        self.settled = 0  # generations so far after which the front had settled (see _refinement)
         self.next_id = 1
         # Designs this run evaluated after its last saved state, by key; a resumed search takes
         # each over when it proposes it again instead of evaluating it twice.
-        self.adopt: dict[str, dict[str, Any]] = {}
+        self.adopt: dict[str, _Taken] = {}
         self.state_saved_at = -math.inf
         self.model = None  # made on first use, so that a run that evaluates nothing imports nothing
 
     # -- one evaluation --------------------------------------------------------------------
-    def record(self, design: dict[str, Any], key: str, outcome: Outcome | dict[str, Any], generation: int,
+    def record(self, design: dict[str, Any], key: str, outcome: Outcome, generation: int,
                *, cached: bool, source_id: int | None = None, eval_id: int | None = None) -> dict[str, Any]:
-        if isinstance(outcome, Outcome):
-            status, results, message = outcome.status, outcome.results, outcome.message
-            duration, worker = outcome.duration, outcome.worker
-        else:
-            status, results, message = outcome["status"], outcome["results"], outcome["message"]
-            duration, worker = outcome["duration"], outcome["worker"]
+        """Add one evaluation's row (archived unless ``eval_id`` says it already is) and return it."""
+        status, results, message = outcome.status, outcome.results, outcome.message
+        duration, worker = outcome.duration, outcome.worker
         violation = 0.0
         if status == "ok":
             for c in self.case.constraints:
@@ -327,8 +224,7 @@ class _Run:
         self.records.append(row)
         if not cached:
             self.n_evals += 1
-            self.memo[key] = {"status": status, "results": results, "message": message,
-                              "duration": duration, "worker": worker, "eval_id": eval_id}
+            self.memo[key] = replace(outcome, eval_id=eval_id)
             if status != "ok":
                 self.n_failed += 1
                 self.first_failure = self.first_failure or message
@@ -414,79 +310,6 @@ def _thin(points: np.ndarray, most: int = 2000) -> np.ndarray:
 
 
 # ---------------------------------------------------------------------------------------- algorithm
-def default_population(n_obj: int) -> int:
-    """Designs a generation when the case does not say: 60 for two objectives, 100 for three, 120 beyond."""
-    return {2: 60, 3: 100}.get(n_obj, 120)
-
-
-def _tune_operators(algorithm, settled: int, n_obj: int) -> None:
-    """Set the distribution indices of SBX and polynomial mutation for the next generation.
-
-    Two objectives: SBX 30 and mutation 20 throughout. Three or more: SBX 30,
-    and mutation from coarse (5: offspring land far from their parents, which
-    is what escapes the local fronts of a multimodal problem) to fine (100)
-    as the front settles: the index rises with the number of generations after
-    which the front had gained less than 0.1 % over the last ten (see
-    ``_Run.front_gain``), reaching 100 after 150 such generations. A front
-    that still moves keeps searching coarsely however much of the budget is
-    spent; a settled one is refined. Measured side by side with pymoo's
-    NSGA-II in tests/benchmarks/bench_multimodal.py (DTLZ1, ZDT4) and
-    bench_search.py (ZDT1-3, DTLZ2): a schedule on the share of the budget
-    used instead refined DTLZ1's front before it had converged (median IGD+
-    0.35 against pymoo's 0.09), and fixed fine indices leave DTLZ2's front
-    short of 99 % of its hypervolume; on ZDT3 late fine mutation loses parts
-    of the disconnected front, so two-objective runs keep fixed indices.
-    """
-    mating = getattr(algorithm, "mating", None)
-    if mating is None:
-        return
-    if n_obj <= 2:
-        mating.mutation.eta, mating.crossover.eta = 20.0, 30.0
-        return
-    mating.crossover.eta = 30.0
-    mating.mutation.eta = 5.0 + 95.0 * min(1.0, settled / _SETTLE_SPAN)
-
-
-def _make_algorithm(case: Case, space: Space, population: int | None, seed: int):
-    repair = _Rounding(space)
-    n_obj = len(case.objectives)
-    population = population or default_population(n_obj)
-    common = dict(
-        sampling=FloatRandomSampling(),
-        crossover=SBX(prob=0.9, eta=15),
-        mutation=_MixedMutation(space, eta=20),
-        repair=repair,
-        eliminate_duplicates=True,
-    )
-    if n_obj <= 3:
-        return NSGA2(pop_size=population, **common), _algorithm_name(n_obj)
-    directions = get_reference_directions("energy", n_obj, population, seed=seed)
-    return NSGA3(directions, pop_size=population, **common), _algorithm_name(n_obj)
-
-
-def _algorithm_name(n_obj: int) -> str:
-    return "NSGA-II" if n_obj <= 3 else "NSGA-III"
-
-
-def _problem(case: Case, space: Space) -> Problem:
-    return Problem(
-        n_var=len(case.variables),
-        n_obj=len(case.objectives),
-        n_ieq_constr=_n_constraint_columns(case),
-        xl=space.xl,
-        xu=space.xu,
-    )
-
-
-def _n_constraint_columns(case: Case) -> int:
-    """Constraint columns given to pymoo: the case's, plus one for failed evaluations.
-
-    A case without constraints gets none, so that pymoo skips its feasibility
-    bookkeeping; a failed design then gets the worst possible objective values.
-    """
-    return len(case.constraints) + 1 if case.constraints else 0
-
-
 def _versions() -> dict[str, str]:
     versions = {"python": platform.python_version()}
     for package in ("tradewise", "pymoo", "moocore", "numpy", "pandas"):
@@ -498,7 +321,7 @@ def _versions() -> dict[str, str]:
 
 
 # ------------------------------------------------------------------------------------------ study
-def run_study(
+def run(
     case: Case | str | Path,
     *,
     seed: int | None = None,
@@ -514,7 +337,7 @@ def run_study(
     progress: Callable[[dict[str, Any]], None] | None = None,
     on_evaluation: Callable[[dict[str, Any]], None] | None = None,
     seed_set: dict[str, Any] | None = None,
-) -> StudyResult:
+) -> RunResult:
     """Search a case for its Pareto front.
 
     Parameters
@@ -536,13 +359,13 @@ def run_study(
     on_evaluation : callable, optional
         Called with each evaluation's record as it completes.
     seed_set : dict, optional
-        Set by :func:`run_repeats`: the set of seeds this run is one of
+        Set by :func:`run_seeds`: the set of seeds this run is one of
         (``{"id": ..., "seeds": [...]}``), recorded with the run so that
         resuming any of them resumes them all.
 
     Returns
     -------
-    StudyResult
+    RunResult
         Running out of budget is a status, not an error.
 
     Raises
@@ -552,7 +375,7 @@ def run_study(
 
     Examples
     --------
-    >>> result = run_study("heat-sink", evaluations=300, seed=2)   # doctest: +SKIP
+    >>> result = run("heat-sink", evaluations=300, seed=2)   # doctest: +SKIP
     >>> result.status                                              # doctest: +SKIP
     'budget'
     """
@@ -583,10 +406,8 @@ def run_study(
                 versions=_versions(),
             )
         run = _Run(case, archive, run_id)
-        space = Space(case)
-        algorithm, name = _make_algorithm(case, space, case.search.population, case.search.seed)
-        algorithm.setup(_problem(case, space), termination=NoTermination(), seed=case.search.seed, verbose=False)
-        return _loop(run, algorithm, name, space, executor, progress, on_evaluation, started=time.time())
+        searcher = Searcher(case, Space(case), population=case.search.population, seed=case.search.seed)
+        return _loop(run, searcher, executor, progress, on_evaluation, started=time.time())
     finally:
         if own_executor:
             executor.close()
@@ -594,7 +415,7 @@ def run_study(
             archive.close()
 
 
-def resume_study(
+def resume(
     store: str | Path,
     *,
     run_id: int | None = None,
@@ -606,7 +427,7 @@ def resume_study(
     executor: InProcess | None = None,
     progress: Callable[[dict[str, Any]], None] | None = None,
     on_evaluation: Callable[[dict[str, Any]], None] | None = None,
-) -> StudyResult:
+) -> RunResult:
     """Continue an interrupted run (or extend a finished one) from its archive.
 
     The newest saved search state is restored, with its random state (or,
@@ -640,9 +461,7 @@ def resume_study(
         if evaluations is not None:
             settings["evaluations"] = evaluations
         case = case.with_search(**{k: v for k, v in settings.items() if v is not None})
-        space = Space(case)
-        algorithm, _ = _make_algorithm(case, space, case.search.population, case.search.seed)
-        algorithm.setup(_problem(case, space), termination=NoTermination(), seed=case.search.seed, verbose=False)
+        searcher = Searcher(case, Space(case), population=case.search.population, seed=case.search.seed)
         saved = archive.state(run_id)
         state = decode_state(saved[1]) if saved is not None else None
         if state is None:
@@ -652,7 +471,7 @@ def resume_study(
             state_generation = 0
         else:
             state_generation = saved[0]
-            restore_state(algorithm, state, where=f"{path}: run {run_id}")
+            searcher.restore(state, where=f"{path}: run {run_id}")
         archive.discard_after(run_id, state_generation)
         run = _Run(case, archive, run_id)
         _restore(run, archive, run_id, record, upto=state_generation)
@@ -661,8 +480,7 @@ def resume_study(
         own_executor = executor is None
         executor = executor or make_executor(workers, dask=dask, scheduler=scheduler)
         try:
-            return _loop(run, algorithm, _algorithm_name(len(case.objectives)), space, executor,
-                         progress, on_evaluation, started=record["started"] or time.time())
+            return _loop(run, searcher, executor, progress, on_evaluation, started=record["started"] or time.time())
         finally:
             if own_executor:
                 executor.close()
@@ -705,12 +523,11 @@ def _restore(run: _Run, archive: Store, run_id: int, record: dict[str, Any], *, 
         design = {n: _native(row[n]) for n in names}
         key = design_key(design)
         results = {k: _native(row[k]) for k in row if k not in design and k not in _EVAL_COLUMNS and not _missing(row[k])}
-        outcome = {"status": row["status"], "results": results, "message": row["message"],
-                   "duration": row["duration"] or 0.0, "worker": row["worker"]}
+        outcome = Outcome(row["status"], results, row["message"], row["duration"] or 0.0, row["worker"],
+                          eval_id=row["eval_id"])
         if row["generation"] > upto:
             if not row["cached"]:
-                run.adopt[key] = {**outcome, "eval_id": row["eval_id"], "design": design,
-                                  "generation": row["generation"]}
+                run.adopt[key] = _Taken(outcome, design, row["generation"])
             continue
         if row["generation"] != current:
             if current is not None:
@@ -740,12 +557,30 @@ def _native(value: Any) -> Any:
     return value
 
 
-def _loop(run: _Run, algorithm, algorithm_name: str, space: Space, executor: InProcess,
-          progress, on_evaluation, *, started: float) -> StudyResult:
-    case, settings = run.case, run.case.search
-    problem = algorithm.problem
-    n_obj = len(case.objectives)
-    n_con = _n_constraint_columns(case)
+def _stop_status(settings, *, n_evals: int, generation: int, elapsed: float, gain: float, idle: int,
+                 size: float) -> str:
+    """Why the run must stop before another generation (``""`` to go on): the stopping rules in order."""
+    if n_evals >= settings.evaluations:
+        return "budget"
+    if settings.generations is not None and generation >= settings.generations:
+        return "generations"
+    if settings.time_limit is not None and elapsed >= settings.time_limit:
+        return "time_limit"
+    if gain <= settings.stall_tolerance:
+        return "stalled"
+    if idle >= _EXHAUSTED_AFTER or n_evals >= size:
+        return "exhausted"
+    return ""
+
+
+def _refinement(run: _Run) -> float:
+    """How far the operators are refined, 0 to 1: the share of _SETTLE_SPAN generations the front has settled."""
+    return min(1.0, run.settled / _SETTLE_SPAN)
+
+
+def _loop(run: _Run, searcher: Searcher, executor: InProcess, progress, on_evaluation, *,
+          started: float) -> RunResult:
+    settings = run.case.search
     generation = len(run.history)
     fronted = len(run.records)
     idle = 0
@@ -754,156 +589,164 @@ def _loop(run: _Run, algorithm, algorithm_name: str, space: Space, executor: InP
     clock = time.monotonic() - (run.history[-1]["elapsed_s"] if run.history else time.time() - started)
     saved_generation = generation
     try:
-        while True:
-            elapsed = time.monotonic() - clock
-            if run.n_evals >= settings.evaluations:
-                status = "budget"
-            elif settings.generations is not None and generation >= settings.generations:
-                status = "generations"
-            elif settings.time_limit is not None and elapsed >= settings.time_limit:
-                status = "time_limit"
-            elif run.front_gain(settings.stall_generations) <= settings.stall_tolerance:
-                status = "stalled"
-            elif idle >= _EXHAUSTED_AFTER or run.n_evals >= space.size:
-                status = "exhausted"
-            if status:
-                break
-            _tune_operators(algorithm, run.settled, n_obj)
-            pop = algorithm.ask()
-            if pop is None or len(pop) == 0:
+        while not (status := _stop_status(
+            settings, n_evals=run.n_evals, generation=generation, elapsed=time.monotonic() - clock,
+            gain=run.front_gain(settings.stall_generations), idle=idle, size=searcher.space.size,
+        )):
+            searcher.tune(_refinement(run))
+            proposal = _propose(run, searcher, generation + 1)
+            if proposal is None:
                 status = "exhausted"
                 break
-            generation += 1
-            proposed = pop.get("X")
-            X = space.repair(proposed)
-            if not np.array_equal(X, proposed):
-                pop.set("X", X)
-            designs = [space.decode(x) for x in X.tolist()]
-            keys = [design_key(d) for d in designs]
-
-            # Which designs are new: not in this run's memo, not in the archive for this case.
-            # Those this run evaluated before it was interrupted count as new: they are taken over.
-            known = {k for k in keys if k in run.memo}
-            unknown = [k for k in dict.fromkeys(keys) if k not in known]
-            look_up = [k for k in unknown if k not in run.adopt]
-            archived = (run.store.lookup(case.hash, look_up, exclude_run=run.run_id)
-                        if run.store is not None and look_up else {})
-            fresh = [k for k in unknown if k not in archived]
-            room = settings.evaluations - run.n_evals
-            if len(fresh) > room:
-                allowed = set(fresh[:room])
-                keep = [i for i, k in enumerate(keys) if k in known or k in archived or k in allowed]
-                pop = pop[keep]
-                designs = [designs[i] for i in keep]
-                keys = [keys[i] for i in keep]
-                fresh = fresh[:room]
-            first_new = fronted = len(run.records)
-
-            outcomes: dict[str, Any] = {}
-            for key in dict.fromkeys(keys):
-                if key in run.memo:
-                    outcomes[key] = run.memo[key]
-                elif key in archived:
-                    outcomes[key] = archived[key]
-            # Served from the memo or the archive: recorded as cached rows, not evaluated again.
-            for key, outcome in list(outcomes.items()):
-                design = designs[keys.index(key)]
-                row = run.record(design, key, outcome, generation, cached=True, source_id=outcome["eval_id"])
-                if key in archived and key not in run.memo:
-                    run.memo[key] = {**outcome}
-                if on_evaluation:
-                    on_evaluation(row)
-            positions = {k: keys.index(k) for k in fresh}
-            for key in sorted((k for k in fresh if k in run.adopt), key=lambda k: run.adopt[k]["eval_id"]):
-                taken = run.adopt.pop(key)
-                run.record(designs[positions[key]], key, taken, generation, cached=False, eval_id=taken["eval_id"])
-                outcomes[key] = run.memo[key]
-            to_run = [k for k in fresh if k not in outcomes]
-            batch = [designs[positions[k]] for k in to_run]
-            for i, outcome in executor.run(_model_for(run), batch) if batch else ():
-                key = to_run[i]
-                row = run.record(batch[i], key, outcome, generation, cached=False)
-                outcomes[key] = run.memo[key]
-                if on_evaluation:
-                    on_evaluation(row)
-            if run.store is not None:
-                run.store.flush(wait=False)  # committed by the archive writer; the search goes on
-
-            F = np.zeros((len(keys), n_obj))
-            G = np.zeros((len(keys), n_con)) if n_con else None
-            for r, key in enumerate(keys):
-                outcome = outcomes[key]
-                if outcome["status"] != "ok":
-                    if n_con:
-                        G[r, -1] = _FAILED_PENALTY
-                    else:
-                        F[r, :] = _FAILED_OBJECTIVE
-                    continue
-                results = outcome["results"]
-                for j, o in enumerate(case.objectives):
-                    F[r, j] = -results[o.name] if o.maximise else results[o.name]
-                for j, c in enumerate(case.constraints):
-                    G[r, j] = c.violation(results[c.name])
-            values = {"F": F} if G is None else {"F": F, "G": G}
-            algorithm.evaluator.eval(StaticProblem(problem, **values), pop)
-            algorithm.tell(infills=pop)
-
-            new_rows = list(range(first_new, len(run.records)))
-            if generation == 1 and new_rows and all(run.records[i]["status"] != "ok" for i in new_rows):
-                message = (
-                    f"every design of the first generation failed ({len(new_rows)} of {len(new_rows)}); "
-                    f"first error: {run.first_failure}"
-                )
-                if run.store is not None:
-                    run.store.update_run(run.run_id, status="failed", message=message, finished=time.time())
-                raise ModelError(message)
-            had_reference = run.reference is not None
-            run.update_front(new_rows)
-            run.snapshot()
-            if run.front_gain(_SETTLE_WINDOW) < _SETTLE_GAIN:
-                run.settled += 1
-            if run.store is not None and run.reference is not None and not had_reference:
-                run.store.update_run(
-                    run.run_id, reference={"point": run.reference.tolist(), "source": run.reference_source}
-                )
-            idle = idle + 1 if not fresh else 0
-            n_feasible = sum(1 for i in new_rows if run.records[i]["feasible"])
-            row = {
-                "generation": generation,
-                "evaluations": run.n_evals,
-                "new": len(fresh),
-                "cached": len(new_rows) - len(fresh),
-                "failed": run.n_failed,
-                "feasible_share": n_feasible / len(new_rows) if new_rows else 0.0,
-                "front_size": len(run.front_rows),
-                "hypervolume": run.hypervolume(),
-                "elapsed_s": round(time.monotonic() - clock, 3),
-                "front_gain": _finite(run.front_gain(settings.stall_generations or _SETTLE_WINDOW)),
-                "settled": run.settled,
-            }
-            run.history.append(row)
+            generation = proposal.number
+            fronted = proposal.first_row
+            outcomes = _evaluate(run, proposal, executor, on_evaluation)
+            searcher.tell(*_values(run.case, proposal.keys, outcomes, searcher.n_con))
+            row = _update(run, proposal, clock)
+            idle = idle + 1 if not proposal.fresh else 0
             if run.store is not None:
                 state = None
                 if time.monotonic() - run.state_saved_at >= _STATE_EVERY:
-                    state, saved_generation = _saved_state(run, algorithm, space, generation), generation
+                    state, saved_generation = _saved_state(run, searcher, generation), generation
                     run.state_saved_at = time.monotonic()
                 run.store.add_generation(run.run_id, row, state=state)
             if progress:
                 progress(row)
         if run.store is not None and saved_generation != generation:
-            run.store.save_state(run.run_id, generation, _saved_state(run, algorithm, space, generation))
+            run.store.save_state(run.run_id, generation, _saved_state(run, searcher, generation))
     except KeyboardInterrupt:
         status = "interrupted"
         # Designs evaluated in the interrupted generation count too: they are in the archive.
         run.update_front(list(range(fronted, len(run.records))))
     _take_over_leftovers(run)
-    return _finish(run, status, algorithm_name, started)
+    return _finish(run, status, searcher.name, started)
 
 
-def _saved_state(run: _Run, algorithm, space: Space, generation: int) -> bytes:
+def _propose(run: _Run, searcher: Searcher, number: int) -> _Proposal | None:
+    """Ask for the next generation and sort its designs into known (memo, archive) and new ones.
+
+    Designs this run evaluated before it was interrupted count as new: they
+    are taken over, not evaluated again. When the new designs exceed what is
+    left of the budget, the generation is cut to fit.
+    """
+    X = searcher.propose()
+    if X is None:
+        return None
+    case = run.case
+    designs = [searcher.space.decode(x) for x in X.tolist()]
+    keys = [design_key(d) for d in designs]
+    known = {k for k in keys if k in run.memo}
+    unknown = [k for k in dict.fromkeys(keys) if k not in known]
+    look_up = [k for k in unknown if k not in run.adopt]
+    archived = {
+        key: Outcome(**found)
+        for key, found in (run.store.lookup(case.hash, look_up, exclude_run=run.run_id)
+                           if run.store is not None and look_up else {}).items()
+    }
+    fresh = [k for k in unknown if k not in archived]
+    room = case.search.evaluations - run.n_evals
+    if len(fresh) > room:
+        allowed = set(fresh[:room])
+        keep = [i for i, k in enumerate(keys) if k in known or k in archived or k in allowed]
+        searcher.keep(keep)
+        designs = [designs[i] for i in keep]
+        keys = [keys[i] for i in keep]
+        fresh = fresh[:room]
+    served = {k: run.memo[k] if k in run.memo else archived[k] for k in dict.fromkeys(keys) if k not in fresh}
+    return _Proposal(number, designs, keys, served, fresh, first_row=len(run.records))
+
+
+def _evaluate(run: _Run, proposal: _Proposal, executor: InProcess, on_evaluation) -> dict[str, Outcome]:
+    """Record the served designs, take over the interrupted run's, evaluate the rest; every outcome by key."""
+    designs, keys, generation = proposal.designs, proposal.keys, proposal.number
+    outcomes: dict[str, Outcome] = {}
+    for key, outcome in proposal.served.items():
+        row = run.record(designs[keys.index(key)], key, outcome, generation, cached=True,
+                         source_id=outcome.eval_id)
+        run.memo.setdefault(key, outcome)
+        outcomes[key] = outcome
+        if on_evaluation:
+            on_evaluation(row)
+    positions = {k: keys.index(k) for k in proposal.fresh}
+    for key in sorted((k for k in proposal.fresh if k in run.adopt), key=lambda k: run.adopt[k].outcome.eval_id):
+        taken = run.adopt.pop(key)
+        run.record(designs[positions[key]], key, taken.outcome, generation, cached=False,
+                   eval_id=taken.outcome.eval_id)
+        outcomes[key] = run.memo[key]
+    to_run = [k for k in proposal.fresh if k not in outcomes]
+    batch = [designs[positions[k]] for k in to_run]
+    for i, outcome in executor.run(_model_for(run), batch) if batch else ():
+        key = to_run[i]
+        row = run.record(batch[i], key, outcome, generation, cached=False)
+        outcomes[key] = run.memo[key]
+        if on_evaluation:
+            on_evaluation(row)
+    if run.store is not None:
+        run.store.flush(wait=False)  # committed by the archive writer; the search goes on
+    return outcomes
+
+
+def _values(case: Case, keys: list[str], outcomes: dict[str, Outcome], n_con: int):
+    """Objective values (minimised) and constraint values (``<= 0`` met) of the designs, in order."""
+    F = np.zeros((len(keys), len(case.objectives)))
+    G = np.zeros((len(keys), n_con)) if n_con else None
+    for r, key in enumerate(keys):
+        outcome = outcomes[key]
+        if outcome.status != "ok":
+            if n_con:
+                G[r, -1] = _FAILED_PENALTY
+            else:
+                F[r, :] = _FAILED_OBJECTIVE
+            continue
+        results = outcome.results
+        for j, o in enumerate(case.objectives):
+            F[r, j] = -results[o.name] if o.maximise else results[o.name]
+        for j, c in enumerate(case.constraints):
+            G[r, j] = c.violation(results[c.name])
+    return F, G
+
+
+def _update(run: _Run, proposal: _Proposal, clock: float) -> dict[str, Any]:
+    """After a generation: the front, how settled it is, the reference point, and the history row."""
+    new_rows = list(range(proposal.first_row, len(run.records)))
+    if proposal.number == 1 and new_rows and all(run.records[i]["status"] != "ok" for i in new_rows):
+        message = (
+            f"every design of the first generation failed ({len(new_rows)} of {len(new_rows)}); "
+            f"first error: {run.first_failure}"
+        )
+        if run.store is not None:
+            run.store.update_run(run.run_id, status="failed", message=message, finished=time.time())
+        raise ModelError(message)
+    had_reference = run.reference is not None
+    run.update_front(new_rows)
+    run.snapshot()
+    if run.front_gain(_SETTLE_WINDOW) < _SETTLE_GAIN:
+        run.settled += 1
+    if run.store is not None and run.reference is not None and not had_reference:
+        run.store.update_run(run.run_id, reference={"point": run.reference.tolist(), "source": run.reference_source})
+    n_feasible = sum(1 for i in new_rows if run.records[i]["feasible"])
+    row = {
+        "generation": proposal.number,
+        "evaluations": run.n_evals,
+        "new": len(proposal.fresh),
+        "cached": len(new_rows) - len(proposal.fresh),
+        "failed": run.n_failed,
+        "feasible_share": n_feasible / len(new_rows) if new_rows else 0.0,
+        "front_size": len(run.front_rows),
+        "hypervolume": run.hypervolume(),
+        "elapsed_s": round(time.monotonic() - clock, 3),
+        "front_gain": _finite(run.front_gain(run.case.search.stall_generations or _SETTLE_WINDOW)),
+        "settled": run.settled,
+    }
+    run.history.append(row)
+    return row
+
+
+def _saved_state(run: _Run, searcher: Searcher, generation: int) -> bytes:
     """The search state after ``generation`` as plain data (JSON), with the survivors' evaluation ids."""
-    ids = [run.memo.get(design_key(space.decode(x)), {}).get("eval_id") for x in algorithm.pop.get("X").tolist()]
-    return encode_state(search_state(algorithm, generation=generation, eval_ids=ids))
+    ids = [getattr(run.memo.get(design_key(searcher.space.decode(x))), "eval_id", None)
+           for x in searcher.survivors().tolist()]
+    return searcher.state(generation=generation, eval_ids=ids)
 
 
 def _take_over_leftovers(run: _Run) -> None:
@@ -911,8 +754,8 @@ def _take_over_leftovers(run: _Run) -> None:
     if not run.adopt:
         return
     first = len(run.records)
-    for key, taken in sorted(run.adopt.items(), key=lambda item: item[1]["eval_id"]):
-        run.record(taken["design"], key, taken, taken["generation"], cached=False, eval_id=taken["eval_id"])
+    for key, taken in sorted(run.adopt.items(), key=lambda item: item[1].outcome.eval_id):
+        run.record(taken.design, key, taken.outcome, taken.generation, cached=False, eval_id=taken.outcome.eval_id)
     run.adopt.clear()
     run.update_front(list(range(first, len(run.records))))
 
@@ -929,7 +772,7 @@ def _finite(value: float) -> float | None:
     return value if math.isfinite(value) else None
 
 
-def _finish(run: _Run, status: str, algorithm_name: str, started: float) -> StudyResult:
+def _finish(run: _Run, status: str, algorithm_name: str, started: float) -> RunResult:
     case = run.case
     records = pd.DataFrame.from_records(run.records)
     columns = _ordered_columns(case, records)
@@ -999,7 +842,7 @@ def _finish(run: _Run, status: str, algorithm_name: str, started: float) -> Stud
     message = " ".join(parts)
     if run.store is not None:
         run.store.update_run(run.run_id, status=status, message=message, finished=time.time())
-    return StudyResult(
+    return RunResult(
         status=status,
         message=message,
         front=front,
@@ -1045,436 +888,3 @@ def _ordered_columns(case: Case, records: pd.DataFrame) -> list[str]:
     tail = ["feasible", "violation", "status", "cached", "duration", "worker", "message"]
     outputs = [c for c in records.columns if c not in set(first) | set(named) | set(tail)]
     return [c for c in first + named + outputs + tail if c in records.columns]
-
-
-# ------------------------------------------------------------------------------------------ files
-def save_run(result: StudyResult, folder: str | Path) -> dict[str, Path]:
-    """Write a run folder: ``front.csv``, ``front.json`` and ``history.csv``.
-
-    When no feasible design was found, ``least_infeasible.csv`` is written
-    instead of an empty front, and ``front.json`` says so.
-    """
-    folder = Path(folder)
-    folder.mkdir(parents=True, exist_ok=True)
-    written: dict[str, Path] = {}
-    meta = dict(result.front.meta)
-    meta.update({"message": result.message, "hypervolume": result.hypervolume,
-                 "store": result.store_path.name if result.store_path else None, "run_id": result.run_id})
-    front = replace(result.front, meta=meta)
-    if len(front):
-        written["front"], written["meta"] = front.to_csv(folder / "front.csv")
-    else:
-        stale = folder / "front.csv"
-        if stale.exists():
-            stale.unlink()
-        meta_path = folder / "front.json"
-        meta_path.write_text(json.dumps(front.metadata() | {"feasible": False}, indent=2, default=str) + "\n",
-                             encoding="utf-8")
-        written["meta"] = meta_path
-        if result.least_infeasible is not None:
-            path = folder / "least_infeasible.csv"
-            result.least_infeasible.to_csv(path, index=False)
-            written["least_infeasible"] = path
-    path = folder / "history.csv"
-    result.history.to_csv(path, index=False)
-    written["history"] = path
-    return written
-
-
-# ---------------------------------------------------------------------------------------- repeats
-@dataclass(frozen=True)
-class RepeatsResult:
-    """Several independent runs of one case, one a seed, and their merged front.
-
-    ``front`` is the non-dominated union of the runs' fronts; its column
-    ``seed`` (``run_seed`` when the case already uses that name) says which
-    run found each design. ``runs`` holds each run's :class:`StudyResult` in
-    seed order; ``hypervolumes`` each run's hypervolume and ``hypervolume``
-    the merged front's, all on the one ``reference`` point (the worst, per
-    objective, of the runs' own reference points). ``history`` holds every
-    run's generations, with the seed in the first column.
-    """
-
-    status: str
-    message: str
-    front: Front
-    runs: tuple[StudyResult, ...]
-    seeds: tuple[int, ...]
-    hypervolumes: tuple[float, ...]
-    hypervolume: float
-    reference: tuple[float, ...] | None
-    history: pd.DataFrame
-    n_evals: int
-    n_gen: int
-    n_failed: int
-    n_cached: int
-    seed: int
-    case: Case
-    store_path: Path | None = None
-    run_id: int | None = None
-    least_infeasible: pd.DataFrame | None = None
-    meta: dict[str, Any] = field(default_factory=dict)
-
-    @property
-    def spread(self) -> dict[str, float]:
-        """Median, smallest and largest hypervolume of the single runs."""
-        return _spread(self.hypervolumes)
-
-    def __repr__(self) -> str:
-        s = self.spread
-        return (
-            f"RepeatsResult({len(self.runs)} seeds, front={len(self.front)} designs, hypervolume={self.hypervolume:.6g}, "
-            f"single runs median {s['median']:.6g} [{s['min']:.6g}, {s['max']:.6g}])"
-        )
-
-
-def _spread(values: Any) -> dict[str, float]:
-    values = np.asarray(values, dtype=float)
-    if len(values) == 0:
-        return {"median": math.nan, "min": math.nan, "max": math.nan}
-    return {"median": float(np.median(values)), "min": float(values.min()), "max": float(values.max())}
-
-
-def _one_seed_of_set(case: Case, seed: int, store: str | Path | None, workers: int | None,
-                     seed_set: dict[str, Any], run_id: int | None, evaluations: int | None) -> StudyResult:
-    """One run of a set of seeds, started or resumed, in a worker process (module level so that it pickles)."""
-    if run_id is not None:
-        return resume_study(store, run_id=run_id, evaluations=evaluations, case=case, workers=workers)
-    return run_study(case, seed=seed, store=store, workers=workers, seed_set=seed_set)
-
-
-def run_repeats(
-    case: Case | str | Path,
-    n_seeds: int = 5,
-    *,
-    seed: int | None = None,
-    evaluations: int | None = None,
-    generations: int | None = None,
-    population: int | None = None,
-    time_limit: float | None = None,
-    store: str | Path | None = None,
-    workers: int | None = None,
-    dask: bool = False,
-    scheduler: str | None = None,
-    progress: Callable[[dict[str, Any]], None] | None = None,
-    on_evaluation: Callable[[dict[str, Any]], None] | None = None,
-    on_run: Callable[[StudyResult], None] | None = None,
-) -> RepeatsResult:
-    """Run a case ``n_seeds`` times with seeds ``seed``, ``seed + 1``, ... and merge the fronts.
-
-    Each run is an ordinary :func:`run_study` with the same settings and its
-    own seed; all of them write to the one archive ``store``. With
-    ``workers > 1`` (and no Dask) whole runs go to separate processes, up to
-    one a seed, each evaluating in its own process (workers left over are
-    shared out as a process pool inside each run); otherwise the runs follow
-    one another, each spreading its evaluations over the chosen executor.
-
-    Runs share the archive, so a design one run has already evaluated is
-    served to another from it; with real variables this practically never
-    happens, but on small discrete spaces it lets later runs go further on
-    the same budget, and with runs in parallel which run gets there first
-    depends on timing.
-
-    Parameters
-    ----------
-    case : Case, str or Path
-        A loaded case, a case folder or ``case.toml``, or a bundled case name.
-    n_seeds : int
-        How many runs (1 or more).
-    seed : int, optional
-        The first seed (default: the case's).
-    evaluations, generations, population, time_limit :
-        Settings for every run; ``None`` keeps the case's.
-    store, workers, dask, scheduler :
-        As for :func:`run_study`.
-    progress, on_evaluation : callable, optional
-        As for :func:`run_study` (the row also carries ``seed``); only called
-        when the runs follow one another.
-    on_run : callable, optional
-        Called with each run's result as it finishes.
-
-    Returns
-    -------
-    RepeatsResult
-
-    Examples
-    --------
-    >>> result = run_repeats("heat-sink", 5, evaluations=600, workers=5)   # doctest: +SKIP
-    >>> result.spread                                                     # doctest: +SKIP
-    {'median': ..., 'min': ..., 'max': ...}
-    """
-    from tradewise.errors import CaseError
-
-    if isinstance(n_seeds, bool) or not isinstance(n_seeds, int | np.integer) or n_seeds < 1:
-        raise CaseError(f"seeds: got {n_seeds!r}, allowed: a whole number of runs, 1 or more")
-    if not isinstance(case, Case):
-        case = load_case(case)
-    case = case.with_search(
-        seed=seed, evaluations=evaluations, generations=generations, population=population, time_limit=time_limit
-    )
-    seeds = [case.search.seed + i for i in range(int(n_seeds))]
-    if store is not None:
-        # Create the file and switch it to WAL once, before several writers open it.
-        open_store(store).close()
-    seed_set = {"id": uuid.uuid4().hex, "seeds": seeds}
-    return _run_seed_set(case, seeds, {}, seed_set=seed_set, store=store, workers=workers, dask=dask,
-                         scheduler=scheduler, progress=progress, on_evaluation=on_evaluation, on_run=on_run)
-
-
-def _run_seed_set(case: Case, seeds: list[int], existing: dict[int, int], *, seed_set: dict[str, Any],
-                  store: str | Path | None, workers: int | None, dask: bool, scheduler: str | None,
-                  progress, on_evaluation, on_run, evaluations: int | None = None) -> RepeatsResult:
-    """Run (or, for seeds in ``existing``, resume by run id) every seed of a set, and merge their fronts."""
-    import concurrent.futures as cf
-    import contextlib
-
-    def start(s: int, inner: int | None = None, executor=None, tagged=None):
-        if s in existing:
-            return resume_study(store, run_id=existing[s], evaluations=evaluations, case=case, workers=inner,
-                                executor=executor, progress=tagged, on_evaluation=on_evaluation)
-        return run_study(case, seed=s, store=store, workers=inner, executor=executor, progress=tagged,
-                         on_evaluation=on_evaluation, seed_set=seed_set)
-
-    results: dict[int, StudyResult] = {}
-    interrupted = False
-    parallel = bool(workers and workers > 1 and not (dask or scheduler) and len(seeds) > 1)
-    if parallel:
-        n_proc = min(int(workers), len(seeds))
-        inner = int(workers) // n_proc
-        pool = cf.ProcessPoolExecutor(max_workers=n_proc)
-        futures = {pool.submit(_one_seed_of_set, case, s, store, inner if inner > 1 else None, seed_set,
-                               existing.get(s), evaluations): s for s in seeds}
-        try:
-            for future in cf.as_completed(futures):
-                results[futures[future]] = future.result()
-                if on_run:
-                    on_run(results[futures[future]])
-        except KeyboardInterrupt:
-            # The runs got the interrupt too and stop at their next generation; keep what they return.
-            interrupted = True
-            for future, s in futures.items():
-                if future.cancel() or s in results:
-                    continue
-                with contextlib.suppress(BaseException):  # a run that died on the interrupt has nothing to give
-                    results[s] = future.result()
-        finally:
-            pool.shutdown(wait=True, cancel_futures=True)
-    else:
-        executor = make_executor(workers, dask=dask, scheduler=scheduler)
-        try:
-            for s in seeds:
-                tagged = (lambda row, s=s: progress({**row, "seed": s})) if progress else None
-                result = start(s, executor=executor, tagged=tagged)
-                results[s] = result
-                if on_run:
-                    on_run(result)
-                if result.status == "interrupted":
-                    interrupted = True
-                    break
-        finally:
-            executor.close()
-    if not results:
-        raise KeyboardInterrupt
-    missing = [s for s in seeds if s not in results]
-    return _merge_repeats(case, [results[s] for s in seeds if s in results], interrupted=interrupted,
-                          missing=missing)
-
-
-def resume_repeats(
-    store: str | Path,
-    *,
-    run_id: int | None = None,
-    evaluations: int | None = None,
-    case: Case | str | Path | None = None,
-    workers: int | None = None,
-    dask: bool = False,
-    scheduler: str | None = None,
-    progress: Callable[[dict[str, Any]], None] | None = None,
-    on_evaluation: Callable[[dict[str, Any]], None] | None = None,
-    on_run: Callable[[StudyResult], None] | None = None,
-) -> RepeatsResult:
-    """Continue a set of seeds made by :func:`run_repeats`: every unfinished seed resumed, every seed that
-    never started run, and the fronts merged again.
-
-    ``run_id`` is any run of the set (default: the newest in the file); the
-    other parameters are as for :func:`resume_study`. Finished seeds are
-    read back from the archive without evaluating anything.
-    """
-    path = Path(store)
-    with open_store(path, create=False) as archive:
-        run_id = run_id if run_id is not None else archive.latest_run()
-        record = archive.run(run_id)
-        seed_set = (record["settings"] or {}).get("seed_set")
-        if not isinstance(seed_set, dict) or not isinstance(seed_set.get("seeds"), list):
-            raise StoreError(f"{path}: run {run_id} is a single run, not one of a set of seeds; use resume")
-        existing: dict[int, int] = {}
-        for other in archive.runs()["run_id"].tolist():
-            settings = archive.run(int(other))["settings"] or {}
-            if (settings.get("seed_set") or {}).get("id") == seed_set["id"]:
-                existing[int(archive.run(int(other))["seed"])] = int(other)
-    loaded = _case_of_run(path, record, case)
-    settings = {k: v for k, v in record["settings"].items() if k not in ("seed_set", "seed") and v is not None}
-    if evaluations is not None:
-        settings["evaluations"] = evaluations
-    loaded = loaded.with_search(**settings)
-    seeds = [int(s) for s in seed_set["seeds"]]
-    return _run_seed_set(loaded, seeds, existing, seed_set=seed_set, store=path, workers=workers, dask=dask,
-                         scheduler=scheduler, progress=progress, on_evaluation=on_evaluation, on_run=on_run,
-                         evaluations=evaluations)
-
-
-def _history_on(run: StudyResult, reference: np.ndarray) -> pd.DataFrame:
-    """The run's history with each generation's hypervolume recomputed on another reference point."""
-    history = run.history.copy()
-    if not len(history) or "hypervolume" not in history.columns:
-        return history
-    table = run.evaluations
-    names = run.case.objective_names
-    if not len(table) or "feasible" not in table.columns:
-        history["hypervolume"] = 0.0
-        return history
-    ok = table[table["feasible"].astype(bool)]
-    generations = ok["generation"].to_numpy()
-    points = ok[names].to_numpy(dtype=float)
-    front = np.empty((0, len(names)))
-    values, done = [], -math.inf
-    for generation in history["generation"].tolist():
-        new = points[(generations > done) & (generations <= generation)]
-        done = generation
-        if len(new):
-            candidates = np.vstack([front, new])
-            front = candidates[nondominated(candidates, run.case.maximise)]
-        values.append(hypervolume(front, reference, run.case.maximise) if len(front) else 0.0)
-    history["hypervolume"] = values
-    return history
-
-
-def _on_common_reference(run: StudyResult, reference: np.ndarray, hv: float) -> StudyResult:
-    """The run restated on the seeds' common reference point: its hypervolume, history and message."""
-    own = f"Front of {len(run.front)} designs, hypervolume {run.hypervolume:.6g}."
-    common = f"Front of {len(run.front)} designs, hypervolume {hv:.6g} on the seeds' common reference point."
-    meta = dict(run.meta) | {"reference_source": "the worst, per objective, of the seeds' own reference points"}
-    front = replace(run.front, reference=tuple(float(v) for v in reference), meta=meta)
-    return replace(run, front=front, hypervolume=hv, reference=tuple(float(v) for v in reference),
-                   history=_history_on(run, reference), message=run.message.replace(own, common), meta=meta)
-
-
-def _merge_repeats(case: Case, runs: list[StudyResult], *, interrupted: bool,
-                   missing: list[int] | None = None) -> RepeatsResult:
-    flags = np.asarray(case.maximise, dtype=bool)
-    recorded = [np.asarray(r.reference, dtype=float) for r in runs if r.reference is not None]
-    reference = np.where(flags, np.min(recorded, axis=0), np.max(recorded, axis=0)) if recorded else None
-    hvs = tuple(
-        hypervolume(r.front.points(), reference, case.maximise) if reference is not None and len(r.front) else 0.0
-        for r in runs
-    )
-    if reference is not None:
-        # One reference for everything about a set of seeds: each run's history, message and folder too.
-        runs = [_on_common_reference(r, reference, hv) for r, hv in zip(runs, hvs, strict=True)]
-    names = set(case.variable_names) | set(case.objective_names) | set(case.constraint_names) | set(case.outputs)
-    for r in runs:
-        names |= set(map(str, r.front.table.columns))
-    column = "seed" if "seed" not in names else "run_seed"
-    tables = []
-    for r in runs:
-        if len(r.front):
-            table = r.front.table.copy()
-            table.insert(1 if "eval_id" in table.columns else 0, column, r.seed)
-            tables.append(table)
-    seeds = tuple(r.seed for r in runs)
-    statuses = [r.status for r in runs]
-    status = "interrupted" if interrupted or "interrupted" in statuses else (
-        statuses[0] if len(set(statuses)) == 1 else "mixed")
-    n_evals = sum(r.n_evals for r in runs)
-    n_failed = sum(r.n_failed for r in runs)
-    spread = _spread(hvs)
-    meta = dict(runs[0].meta)
-    meta.update({
-        "seed": seeds[0], "seeds": list(seeds), "n_seeds": len(seeds), "seed_column": column,
-        "seed_hypervolumes": list(hvs), "hypervolume_median": spread["median"],
-        "hypervolume_min": spread["min"], "hypervolume_max": spread["max"],
-        "status": status, "stop_reason": "; ".join(f"seed {r.seed}: {STATUS_TEXT.get(r.status, r.status)}" for r in runs),
-        "n_evals": n_evals, "n_gen": sum(r.n_gen for r in runs), "n_failed": n_failed,
-        "n_cached": sum(r.n_cached for r in runs),
-        "reference_source": "the worst, per objective, of the seeds' own reference points",
-        "started": min(r.meta.get("started", math.inf) for r in runs),
-        "finished": max(r.meta.get("finished", -math.inf) for r in runs),
-    })
-    if tables:
-        front = Front.from_table(
-            pd.concat(tables, ignore_index=True), case.objectives, units=case.units, variables=case.variable_names,
-            constraints=case.constraint_names, reference=reference, meta=meta,
-        )
-    else:
-        empty = runs[0].front.table.iloc[0:0].copy()
-        empty.insert(0, column, pd.Series(dtype="int64"))
-        front = Front(table=empty, objectives=case.objectives, units=case.units,
-                      variables=tuple(case.variable_names), constraints=tuple(case.constraint_names),
-                      reference=tuple(reference) if reference is not None else None, meta=meta)
-    merged_hv = hypervolume(front.points(), reference, case.maximise) if reference is not None and len(front) else 0.0
-    histories = []
-    for r in runs:
-        if len(r.history):
-            h = r.history.copy()
-            h.insert(0, "seed", r.seed)
-            histories.append(h)
-    history = pd.concat(histories, ignore_index=True) if histories else pd.DataFrame()
-    least = None
-    if not len(front):
-        parts = [r.least_infeasible for r in runs if r.least_infeasible is not None]
-        if parts:
-            least = pd.concat(parts, ignore_index=True).sort_values("violation").head(20)
-
-    stops: dict[str, int] = {}
-    for r in runs:
-        stops[STATUS_TEXT.get(r.status, r.status)] = stops.get(STATUS_TEXT.get(r.status, r.status), 0) + 1
-    span = f"seed {seeds[0]}" if len(seeds) == 1 else f"seeds {seeds[0]} to {seeds[-1]}"
-    parts = [f"{len(runs)} run(s) with {span}, {n_evals} evaluations in all; stopped because "
-             + ", ".join(f"{text} ({count})" for text, count in stops.items()) + "."]
-    if n_failed:
-        parts.append(f"{n_failed} evaluation(s) failed.")
-    if len(front):
-        s = spread
-        parts.append(
-            f"Merged front of {len(front)} designs, hypervolume {merged_hv:.6g}; single runs: median "
-            f"{s['median']:.6g}, min {s['min']:.6g}, max {s['max']:.6g} (spread {s['max'] - s['min']:.3g}) "
-            f"on the common reference point ({', '.join(f'{v:g}' for v in reference)})."
-        )
-    else:
-        parts.append("No run found a feasible design.")
-    if missing:
-        listed = ", ".join(str(m) for m in missing)
-        parts.append(f"Seed(s) {listed} did not run: the merged front stands for {len(runs)} of "
-                     f"{len(runs) + len(missing)} seeds; resume the archive to run the rest.")
-        status = meta["status"] = "interrupted"
-    meta["missing_seeds"] = list(missing or [])
-    return RepeatsResult(
-        status=status, message=" ".join(parts), front=front, runs=tuple(runs), seeds=seeds, hypervolumes=hvs,
-        hypervolume=merged_hv, reference=tuple(float(v) for v in reference) if reference is not None else None,
-        history=history, n_evals=n_evals, n_gen=sum(r.n_gen for r in runs), n_failed=n_failed,
-        n_cached=sum(r.n_cached for r in runs), seed=seeds[0], case=case, store_path=runs[0].store_path,
-        least_infeasible=least, meta=meta,
-    )
-
-
-def save_repeats(result: RepeatsResult, folder: str | Path) -> dict[str, Path]:
-    """Write a run folder for several seeds.
-
-    The merged front goes where a single run's would (``front.csv``,
-    ``front.json``, ``history.csv`` with a ``seed`` column), each seed's own
-    run folder to ``seeds/seed-N/``, and ``seeds.csv`` holds one row a seed:
-    its status, evaluations, generations, failures, front size and
-    hypervolume on the common reference point.
-    """
-    folder = Path(folder)
-    written = save_run(result, folder)
-    rows = []
-    for run, hv in zip(result.runs, result.hypervolumes, strict=True):
-        save_run(run, folder / "seeds" / f"seed-{run.seed}")
-        rows.append({"seed": run.seed, "run_id": run.run_id, "status": run.status, "evaluations": run.n_evals,
-                     "generations": run.n_gen, "failed": run.n_failed, "front_size": len(run.front),
-                     "hypervolume": hv})
-    path = folder / "seeds.csv"
-    pd.DataFrame(rows).to_csv(path, index=False)
-    written["seeds"] = path
-    return written

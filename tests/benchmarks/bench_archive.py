@@ -30,8 +30,8 @@ import tempfile
 import time
 from pathlib import Path
 
+import tradewise
 from tradewise.case import load_case
-from tradewise.search import run_study
 from tradewise.store import Store
 
 CASE = Path(__file__).resolve().parent.parent / "cases" / "trivial"
@@ -61,7 +61,7 @@ def children_cpu() -> float:
 
 def run(case, store: Path | None) -> float:
     start = time.perf_counter()
-    result = run_study(case, seed=1, evaluations=10_000, population=100, store=store)
+    result = tradewise.run(case, seed=1, evaluations=10_000, population=100, store=store)
     elapsed = time.perf_counter() - start
     assert result.n_evals == 10_000, result.message
     return elapsed

@@ -27,7 +27,7 @@ from pymoo.core.problem import Problem
 from pymoo.optimize import minimize
 from pymoo.util.ref_dirs import get_reference_directions
 
-from tradewise.search import run_study
+import tradewise
 
 CASES = Path(__file__).resolve().parent.parent / "cases"
 BUDGET = 20_000
@@ -82,7 +82,7 @@ def run_ours(name: str, seed: int, stall: bool) -> tuple[np.ndarray, int, str]:
     case = load_case(CASES / name)
     if extra:
         case = case.with_search(**extra)
-    result = run_study(case, seed=seed, evaluations=BUDGET)
+    result = tradewise.run(case, seed=seed, evaluations=BUDGET)
     return result.front.points(), result.n_evals, result.status
 
 

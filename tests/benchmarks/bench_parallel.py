@@ -22,9 +22,9 @@ import textwrap
 import time
 from pathlib import Path
 
+import tradewise
 from tradewise.case import load_case
 from tradewise.executors import DaskCluster, InProcess, ProcessPool
-from tradewise.search import run_study
 
 MODEL = '''
 import time
@@ -56,7 +56,7 @@ stall_generations = 0
 
 def timed_run(case, executor, evaluations: int):
     start = time.perf_counter()
-    result = run_study(case, evaluations=evaluations, executor=executor)
+    result = tradewise.run(case, evaluations=evaluations, executor=executor)
     elapsed = time.perf_counter() - start
     assert result.n_evals == evaluations and result.n_failed == 0, result.message
     return elapsed, result

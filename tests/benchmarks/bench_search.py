@@ -26,7 +26,7 @@ from pymoo.core.problem import ElementwiseProblem
 from pymoo.optimize import minimize
 from pymoo.problems import get_problem
 
-from tradewise.search import run_study
+import tradewise
 
 CASES = Path(__file__).resolve().parent.parent / "cases"
 EXACT = {
@@ -89,7 +89,7 @@ def tradewise_defaults(name: str, seed: int) -> int | None:
             hit.append(row["evaluations"])
 
     # Only the budget comes from here; population, operators and stopping are the tool's defaults.
-    run_study(CASES / name, seed=seed, evaluations=BUDGET[name], progress=on_gen, on_evaluation=on_eval)
+    tradewise.run(CASES / name, seed=seed, evaluations=BUDGET[name], progress=on_gen, on_evaluation=on_eval)
     return hit[0] if hit else None
 
 
@@ -116,7 +116,7 @@ def overhead(repeats: int = 3) -> tuple[float, float]:
         minimize(_Trivial(), NSGA2(pop_size=100), ("n_evals", 10_000), seed=seed, verbose=False)
         plain.append(time.perf_counter() - start)
         start = time.perf_counter()
-        run_study(CASES / "trivial", seed=seed, evaluations=10_000, population=100)
+        tradewise.run(CASES / "trivial", seed=seed, evaluations=10_000, population=100)
         ours.append(time.perf_counter() - start)
     return statistics.median(plain), statistics.median(ours)
 
