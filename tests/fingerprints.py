@@ -129,16 +129,16 @@ def fingerprints() -> dict[str, str]:
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
 
-    from tradewise import cli
     from tradewise.front import read_front
     from tradewise.plots import plot_attainment, plot_kind
     from tradewise.report import build_report
+    from tradewise.runfolder import read_run, read_seeds
 
     prints: dict[str, str] = {}
     for folder in sorted(p for p in RUNS.iterdir() if p.is_dir()):
         name = folder.name
-        front, history, evaluations = cli._read_run(str(folder))
-        seeds, surfaces = cli._read_seeds(str(folder), front)
+        front, history, evaluations = read_run(folder)
+        seeds, surfaces = read_seeds(folder, front)
         for kind in ("front", "parallel", "history"):
             with matplotlib.rc_context({"svg.hashsalt": "tradewise-fingerprint"}):
                 prints[f"{name}/{kind}.svg"] = _sha(

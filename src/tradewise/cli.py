@@ -395,7 +395,6 @@ def pick_command(front_path, method, weights, target, limits, top, minimise, max
     means more important); a target is the point asf aims at.
     """
     import warnings
-    from dataclasses import replace
 
     from tradewise.choose import NonConvexWarning, choose, describe_choice, parse_values
     from tradewise.front import front_from_csv, read_front
@@ -416,12 +415,10 @@ def pick_command(front_path, method, weights, target, limits, top, minimise, max
         if issubclass(warning.category, NonConvexWarning):
             click.echo(f"Note: {warning.message}", err=True)
     if out:
-        shortlist = front.table.iloc[rows].copy()
-        shortlist.insert(0, "pick_order", range(1, len(rows) + 1))
-        shortlist.insert(1, "front_row", [int(r) + 1 for r in rows])
+        from tradewise.runfolder import shortlist_front
+
         settings = {"method": method, "weights": weights, "target": target, "limits": [str(x) for x in limits]}
-        picked = replace(front.with_table(shortlist), meta={**front.meta, "shortlist": settings})
-        written = picked.to_csv(out)
+        written = shortlist_front(front, rows, settings=settings).to_csv(out)
         click.echo(f"Wrote {written[0]} and {written[1].name}")
 
 
@@ -434,78 +431,6 @@ def _run_inputs(run) -> list:
         return _front_inputs(path)
     folders = [path, *sorted(p for p in (path / "seeds").glob("seed-*") if p.is_dir())]
     return [folder / name for folder in folders for name in sorted(_RUN_DATA)]
-
-
-def _read_run(run: str, *, evaluations: bool = True):
-    """The front, the history and (from the archive, when it is there) every evaluation of a run folder."""
-    import json
-    from pathlib import Path
-
-    import pandas as pd
-
-    from tradewise.errors import DataError
-    from tradewise.front import read_front
-    from tradewise.store import open_store
-
-    folder = Path(run)
-    if not folder.is_dir():
-        raise DataError(f"{folder}: not a run folder; give the folder that `tradewise run` wrote")
-    meta_path = folder / "front.json"
-    if meta_path.is_file() and not (folder / "front.csv").is_file():
-        try:
-            feasible = json.loads(meta_path.read_text(encoding="utf-8")).get("feasible", True)
-        except (OSError, ValueError):
-            feasible = True
-        if feasible is False:
-            raise DataError(f"{folder}: the run found no feasible design, so it has no front to show; "
-                            "see least_infeasible.csv there")
-    front = read_front(folder)
-    history = None
-    if (folder / "history.csv").is_file():
-        try:
-            history = pd.read_csv(folder / "history.csv")
-        except (OSError, ValueError) as exc:
-            raise DataError(f"{folder / 'history.csv'}: cannot be read as CSV ({exc})") from None
-    table = None
-    store_name, run_id = front.meta.get("store"), front.meta.get("run_id")
-    if evaluations and store_name and run_id is not None and (folder / store_name).is_file():
-        with open_store(folder / store_name, create=False) as archive:
-            record = archive.run(int(run_id))
-            ours = front.meta.get("case_hash")
-            if ours and record["case_hash"] != ours:
-                raise DataError(
-                    f"{folder / store_name}: run {run_id} of this archive is of the case "
-                    f"{record['case_title']!r} ({record['case_hash']}), but {meta_path} is of the case "
-                    f"{front.meta.get('title')!r} ({ours}); put the run's own archive beside its front.json"
-                )
-            table = archive.evaluations(int(run_id))
-    return front, history, table
-
-
-def _read_seeds(run: str, front):
-    """seeds.csv and the attainment surfaces of a run folder written by ``run --seeds K`` (None where absent)."""
-    from pathlib import Path
-
-    import pandas as pd
-
-    from tradewise.compare import attainment, read_seed_fronts
-    from tradewise.errors import DataError
-    from tradewise.front import read_table
-
-    folder = Path(run)
-    seeds = surfaces = None
-    if (folder / "seeds.csv").is_file():
-        try:
-            seeds = pd.read_csv(folder / "seeds.csv")
-        except (OSError, ValueError) as exc:
-            raise DataError(f"{folder / 'seeds.csv'}: cannot be read as CSV ({exc})") from None
-    if (folder / "attainment.csv").is_file():
-        surfaces, _ = read_table(folder / "attainment.csv")
-    elif len(front.objectives) <= 3:
-        fronts = read_seed_fronts(folder)
-        if len(fronts) > 1:
-            surfaces = attainment(fronts, reference=front.reference).table()
-    return seeds, surfaces
 
 
 @main.command("plot")
@@ -528,13 +453,14 @@ def plot_command(run, kind, out, row, variables) -> None:
 
     from tradewise.errors import DataError
     from tradewise.plots import plot_attainment, plot_kind, save_figure
+    from tradewise.runfolder import read_run, read_seeds
 
     _check_out(out, _run_inputs(run))
-    front, history, evaluations = _read_run(run, evaluations=kind == "front")
+    front, history, evaluations = read_run(run, evaluations=kind == "front")
     if row is not None and row > len(front):
         raise DataError(f"--row: {row} is past the last design of the front ({len(front)} rows)")
     if kind == "attainment":
-        _, surfaces = _read_seeds(run, front)
+        _, surfaces = read_seeds(run, front)
         if surfaces is None:
             raise DataError(f"{run}: has no attainment.csv and no seeds/ folder; attainment surfaces come "
                             "from several seeds, made with `tradewise run CASE --seeds K`")
@@ -564,10 +490,11 @@ def report_command(run, out, shortlist_path) -> None:
 
     from tradewise.front import read_front, read_table
     from tradewise.report import write_report
+    from tradewise.runfolder import read_run, read_seeds
 
     _check_out(out, _run_inputs(run) + ([*_front_inputs(shortlist_path)] if shortlist_path else []))
-    front, history, evaluations = _read_run(run)
-    seeds, surfaces = _read_seeds(run, front)
+    front, history, evaluations = read_run(run)
+    seeds, surfaces = read_seeds(run, front)
     shortlist = None
     if shortlist_path:
         described = Path(shortlist_path).with_suffix(".json").is_file()

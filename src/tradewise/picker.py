@@ -10,8 +10,7 @@ from __future__ import annotations
 import contextlib
 import math
 import warnings
-from collections.abc import Callable, Iterator, Mapping, Sequence
-from dataclasses import replace
+from collections.abc import Callable, Iterator, Mapping
 from pathlib import Path
 from typing import Any
 
@@ -33,11 +32,11 @@ from tradewise.choose import (
 )
 from tradewise.errors import DataError
 from tradewise.front import Front, read_front, tradeoff_rates
+from tradewise.runfolder import SHORTLIST_COLUMNS, shortlist_front
 
 __all__ = ["PickerState", "load_picker_source", "shortlist_front", "SHORTLIST_COLUMNS"]
 
 #: Columns the shortlist export adds in front of the design's own columns.
-SHORTLIST_COLUMNS = ("pick_order", "front_row")
 
 
 # ----------------------------------------------------------------------------------- sources
@@ -641,45 +640,3 @@ def knee_sentence(info: Mapping[str, Any]) -> str:
 
 
 # ------------------------------------------------------------------------------ shortlist
-def shortlist_front(
-    front: Front, rows: Sequence[int], *, settings: Mapping[str, Any] | None = None
-) -> Front:
-    """Designs ``rows`` of ``front`` as a shortlist: a front file with its pick order and row.
-
-    Two columns come first: ``pick_order`` (1, 2, ... in the order of
-    ``rows``) and ``front_row`` (the design's row in the whole front, counting
-    from 1). The metadata is the front's, with ``settings`` (how the designs
-    were chosen) under ``meta["shortlist"]``. :meth:`Front.to_csv` writes it
-    and :func:`tradewise.front.read_front` reads it back.
-
-    Raises
-    ------
-    DataError
-        When ``rows`` is empty, holds a position outside the front, or the
-        front already has a column named ``pick_order`` or ``front_row``.
-
-    Examples
-    --------
-    >>> from tradewise.case import Objective
-    >>> table = pd.DataFrame({"cost": [10.0, 12, 15], "mass": [100.0, 60, 40]})
-    >>> picked = shortlist_front(Front.from_table(table, [Objective("cost"), Objective("mass")]), [2, 0])
-    >>> picked.table[["pick_order", "front_row", "cost"]].values.tolist()
-    [[1.0, 3.0, 15.0], [2.0, 1.0, 10.0]]
-    """
-    rows = [int(r) for r in rows]
-    if not rows:
-        raise DataError("shortlist: it is empty; add designs before exporting it")
-    outside = [r for r in rows if not 0 <= r < len(front)]
-    if outside:
-        raise DataError(
-            f"shortlist: {outside[0]} is not a row position of the front (0 to {len(front) - 1})"
-        )
-    clash = [c for c in SHORTLIST_COLUMNS if c in front.table.columns]
-    if clash:
-        raise DataError(
-            f"shortlist: the front already has a column {clash[0]!r}, which the export writes"
-        )
-    table = front.table.iloc[rows].copy()
-    table.insert(0, "front_row", [r + 1 for r in rows])
-    table.insert(0, "pick_order", range(1, len(rows) + 1))
-    return replace(front.with_table(table), meta={**front.meta, "shortlist": dict(settings or {})})

@@ -10,15 +10,23 @@ archive (``archive.sqlite``) is the store's.
 from __future__ import annotations
 
 import json
+from collections.abc import Mapping, Sequence
 from dataclasses import replace
 from pathlib import Path
 from typing import Any
 
 import pandas as pd
 
-from tradewise.compare import attainment, write_attainment
+from tradewise.compare import attainment, read_seed_fronts, write_attainment
+from tradewise.errors import DataError
+from tradewise.front import Front, read_front, read_table
+from tradewise.store import open_store
 
-__all__ = ["save_run", "save_seeds", "seed_attainment"]
+__all__ = ["save_run", "save_seeds", "seed_attainment", "read_run", "read_seeds", "shortlist_front",
+           "SHORTLIST_COLUMNS"]
+
+#: The columns a shortlist file adds before the design's own.
+SHORTLIST_COLUMNS = ("pick_order", "front_row")
 
 
 def save_run(result: Any, folder: str | Path) -> dict[str, Path]:
@@ -87,3 +95,102 @@ def seed_attainment(result: Any):
     if len(result.runs) < 2 or not any(len(f) for f in fronts) or len(result.front.objectives) > 3:
         return None
     return attainment(fronts, reference=result.reference)
+
+
+def read_run(run: str | Path, *, evaluations: bool = True):
+    """The front, the history and (from the archive, when it is there) every evaluation of a run folder."""
+    folder = Path(run)
+    if not folder.is_dir():
+        raise DataError(f"{folder}: not a run folder; give the folder that `tradewise run` wrote")
+    meta_path = folder / "front.json"
+    if meta_path.is_file() and not (folder / "front.csv").is_file():
+        try:
+            feasible = json.loads(meta_path.read_text(encoding="utf-8")).get("feasible", True)
+        except (OSError, ValueError):
+            feasible = True
+        if feasible is False:
+            raise DataError(f"{folder}: the run found no feasible design, so it has no front to show; "
+                            "see least_infeasible.csv there")
+    front = read_front(folder)
+    history = None
+    if (folder / "history.csv").is_file():
+        try:
+            history = pd.read_csv(folder / "history.csv")
+        except (OSError, ValueError) as exc:
+            raise DataError(f"{folder / 'history.csv'}: cannot be read as CSV ({exc})") from None
+    table = None
+    store_name, run_id = front.meta.get("store"), front.meta.get("run_id")
+    if evaluations and store_name and run_id is not None and (folder / store_name).is_file():
+        with open_store(folder / store_name, create=False) as archive:
+            record = archive.run(int(run_id))
+            ours = front.meta.get("case_hash")
+            if ours and record["case_hash"] != ours:
+                raise DataError(
+                    f"{folder / store_name}: run {run_id} of this archive is of the case "
+                    f"{record['case_title']!r} ({record['case_hash']}), but {meta_path} is of the case "
+                    f"{front.meta.get('title')!r} ({ours}); put the run's own archive beside its front.json"
+                )
+            table = archive.evaluations(int(run_id))
+    return front, history, table
+
+
+def read_seeds(run: str | Path, front: Front):
+    """seeds.csv and the attainment surfaces of a run folder written by ``run --seeds K`` (None where absent)."""
+    folder = Path(run)
+    seeds = surfaces = None
+    if (folder / "seeds.csv").is_file():
+        try:
+            seeds = pd.read_csv(folder / "seeds.csv")
+        except (OSError, ValueError) as exc:
+            raise DataError(f"{folder / 'seeds.csv'}: cannot be read as CSV ({exc})") from None
+    if (folder / "attainment.csv").is_file():
+        surfaces, _ = read_table(folder / "attainment.csv")
+    elif len(front.objectives) <= 3:
+        fronts = read_seed_fronts(folder)
+        if len(fronts) > 1:
+            surfaces = attainment(fronts, reference=front.reference).table()
+    return seeds, surfaces
+
+
+def shortlist_front(
+    front: Front, rows: Sequence[int], *, settings: Mapping[str, Any] | None = None
+) -> Front:
+    """Designs ``rows`` of ``front`` as a shortlist: a front file with its pick order and row.
+
+    Two columns come first: ``pick_order`` (1, 2, ... in the order of
+    ``rows``) and ``front_row`` (the design's row in the whole front, counting
+    from 1). The metadata is the front's, with ``settings`` (how the designs
+    were chosen) under ``meta["shortlist"]``. :meth:`Front.to_csv` writes it
+    and :func:`tradewise.front.read_front` reads it back.
+
+    Raises
+    ------
+    DataError
+        When ``rows`` is empty, holds a position outside the front, or the
+        front already has a column named ``pick_order`` or ``front_row``.
+
+    Examples
+    --------
+    >>> from tradewise.case import Objective
+    >>> table = pd.DataFrame({"cost": [10.0, 12, 15], "mass": [100.0, 60, 40]})
+    >>> picked = shortlist_front(Front.from_table(table, [Objective("cost"), Objective("mass")]), [2, 0])
+    >>> picked.table[["pick_order", "front_row", "cost"]].values.tolist()
+    [[1.0, 3.0, 15.0], [2.0, 1.0, 10.0]]
+    """
+    rows = [int(r) for r in rows]
+    if not rows:
+        raise DataError("shortlist: it is empty; add designs before exporting it")
+    outside = [r for r in rows if not 0 <= r < len(front)]
+    if outside:
+        raise DataError(
+            f"shortlist: {outside[0]} is not a row position of the front (0 to {len(front) - 1})"
+        )
+    clash = [c for c in SHORTLIST_COLUMNS if c in front.table.columns]
+    if clash:
+        raise DataError(
+            f"shortlist: the front already has a column {clash[0]!r}, which the export writes"
+        )
+    table = front.table.iloc[rows].copy()
+    table.insert(0, "front_row", [r + 1 for r in rows])
+    table.insert(0, "pick_order", range(1, len(rows) + 1))
+    return replace(front.with_table(table), meta={**front.meta, "shortlist": dict(settings or {})})
