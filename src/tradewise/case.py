@@ -260,10 +260,12 @@ class Case:
 
 def bundled_cases() -> dict[str, Path]:
     """Map the name of every case shipped with tradewise to its ``case.toml``."""
-    root = Path(__file__).parent / "cases"
-    if not root.is_dir():
-        return {}
-    return {p.parent.name: p for p in sorted(root.glob("*/case.toml"))}
+    # Installed from a wheel they sit inside the package; in a source checkout (and an editable
+    # install) they are the repository's top-level cases/ folder.
+    for root in (Path(__file__).parent / "cases", Path(__file__).resolve().parents[2] / "cases"):
+        if root.is_dir():
+            return {p.parent.name: p for p in sorted(root.glob("*/case.toml"))}
+    return {}
 
 
 def load_case(path: str | Path) -> Case:
