@@ -36,6 +36,7 @@ from pymoo.operators.sampling.rnd import FloatRandomSampling
 from pymoo.problems.static import StaticProblem
 from pymoo.util.ref_dirs import get_reference_directions
 
+from tradewise._plain import plain
 from tradewise.case import Case
 from tradewise.errors import StoreError
 
@@ -312,7 +313,7 @@ def search_state(
         "generation": int(generation),
         "n_iter": int(algorithm.n_iter),
         "n_eval": int(algorithm.evaluator.n_eval),
-        "random": _plain(algorithm.random_state.bit_generator.state),
+        "random": plain(algorithm.random_state.bit_generator.state),
         "X": _matrix(pop.get("X")),
         "F": _matrix(pop.get("F")),
         "G": _matrix(pop.get("G")) if algorithm.problem.n_ieq_constr else None,
@@ -410,16 +411,6 @@ def decode_state(blob: bytes | str) -> dict[str, Any] | None:
     if not isinstance(state, dict) or state.get("format") != STATE_FORMAT:
         return None
     return state
-
-
-def _plain(value: Any) -> Any:
-    if isinstance(value, dict):
-        return {str(k): _plain(v) for k, v in value.items()}
-    if isinstance(value, list | tuple):
-        return [_plain(v) for v in value]
-    if isinstance(value, np.generic):
-        return value.item()
-    return value
 
 
 def _number(value: Any, kind: str) -> int | float:

@@ -21,6 +21,7 @@ import moocore
 import numpy as np
 import pandas as pd
 
+from tradewise._plain import write_json
 from tradewise.case import Objective
 from tradewise.errors import DataError, quote, undecodable
 
@@ -371,7 +372,7 @@ class Front:
         path.parent.mkdir(parents=True, exist_ok=True)
         out = self.table.rename(columns=lambda c: column_header(str(c), self.units.get(str(c), "")))
         out.to_csv(path, index=False)
-        meta_path.write_text(json.dumps(_jsonable(self.metadata()), indent=2) + "\n", encoding="utf-8")
+        write_json(meta_path, self.metadata())
         return path, meta_path
 
 
@@ -551,20 +552,6 @@ def check_front_meta(meta: dict[str, Any], where: str | Path) -> None:
 def _strip_unit(header: str) -> str:
     match = _HEADER.match(str(header))
     return match.group("name") if match else str(header)
-
-
-def _jsonable(value: Any) -> Any:
-    if isinstance(value, dict):
-        return {str(k): _jsonable(v) for k, v in value.items()}
-    if isinstance(value, list | tuple):
-        return [_jsonable(v) for v in value]
-    if isinstance(value, np.generic):
-        value = value.item()
-    if isinstance(value, float) and not math.isfinite(value):
-        return None
-    if isinstance(value, Path):
-        return str(value)
-    return value
 
 
 # ---------------------------------------------------------------- tables from elsewhere

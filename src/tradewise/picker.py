@@ -17,6 +17,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from tradewise._plain import plain
 from tradewise.case import RESERVED_NAMES
 from tradewise.choose import (
     KNEE_METHODS,
@@ -448,7 +449,7 @@ class PickerState:
         variables = [
             {
                 "name": str(v),
-                "value": _plain_value(record[v]),
+                "value": plain(record[v]),
                 "unit": front.units.get(str(v), "") or "",
             }
             for v in names
@@ -611,10 +612,6 @@ def _finite_or_none(value: Any, what: str) -> float | None:
     if not math.isfinite(number):
         raise DataError(f"{what} {value!r} is not a finite number")
     return number
-
-
-def _plain_value(value: Any) -> Any:
-    return value.item() if isinstance(value, np.generic) else value
 
 
 def show_value(value: Any) -> str:

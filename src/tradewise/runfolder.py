@@ -17,6 +17,7 @@ from typing import Any
 
 import pandas as pd
 
+from tradewise._plain import write_json
 from tradewise.compare import attainment, read_seed_fronts, write_attainment
 from tradewise.errors import DataError
 from tradewise.front import Front, read_front, read_table
@@ -49,8 +50,7 @@ def save_run(result: Any, folder: str | Path) -> dict[str, Path]:
         if stale.exists():
             stale.unlink()
         meta_path = folder / "front.json"
-        meta_path.write_text(json.dumps(front.metadata() | {"feasible": False}, indent=2, default=str) + "\n",
-                             encoding="utf-8")
+        write_json(meta_path, front.metadata() | {"feasible": False})
         written["meta"] = meta_path
         if result.least_infeasible is not None:
             path = folder / "least_infeasible.csv"

@@ -25,6 +25,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from tradewise._plain import plain
 from tradewise._pymoo import Searcher, Space, decode_state, default_population
 from tradewise.case import Case, load_case
 from tradewise.errors import ModelError, StoreError
@@ -520,9 +521,9 @@ def _restore(run: _Run, archive: Store, run_id: int, record: dict[str, Any], *, 
         run.reference_source = record["reference"]["source"]
     start, current = 0, None
     for row in table.to_dict("records"):
-        design = {n: _native(row[n]) for n in names}
+        design = {n: plain(row[n]) for n in names}
         key = design_key(design)
-        results = {k: _native(row[k]) for k in row if k not in design and k not in _EVAL_COLUMNS and not _missing(row[k])}
+        results = {k: plain(row[k]) for k in row if k not in design and k not in _EVAL_COLUMNS and not _missing(row[k])}
         outcome = Outcome(row["status"], results, row["message"], row["duration"] or 0.0, row["worker"],
                           eval_id=row["eval_id"])
         if row["generation"] > upto:
@@ -549,12 +550,6 @@ _EVAL_COLUMNS = {"eval_id", "run_id", "generation", "status", "message", "durati
 
 def _missing(value: Any) -> bool:
     return value is None or (isinstance(value, float) and math.isnan(value))
-
-
-def _native(value: Any) -> Any:
-    if isinstance(value, np.generic):
-        value = value.item()
-    return value
 
 
 def _stop_status(settings, *, n_evals: int, generation: int, elapsed: float, gain: float, idle: int,
