@@ -43,67 +43,20 @@ __all__ = ["build_report", "write_report", "safety_domains"]
 #: (matched as whole words in the title, description, cautions, names and units).
 _DOMAIN_WORDS: dict[str, tuple[str, ...]] = {
     "structures": (
-        "beam",
-        "beams",
-        "girder",
-        "girders",
-        "bridge",
-        "footbridge",
-        "truss",
-        "trusses",
-        "column",
-        "columns",
-        "frame",
-        "structural",
-        "structure",
-        "stress",
-        "stresses",
-        "deflection",
-        "buckling",
-        "weld",
-        "welded",
-        "load",
-        "loads",
-        "kN",
-        "MPa",
-        "GPa",
-        "kPa",
+        "beam", "beams", "girder", "girders", "bridge", "footbridge", "truss", "trusses", "column",
+        "columns", "frame", "structural", "structure", "stress", "stresses", "deflection", "buckling",
+        "weld", "welded", "load", "loads", "kN", "MPa", "GPa", "kPa",
     ),
     "electrical packs": (
-        "battery",
-        "batteries",
-        "cell",
-        "cells",
-        "lithium",
-        "li-ion",
-        "pack",
-        "packs",
-        "charging",
-        "Wh",
-        "kWh",
-        "mAh",
-        "voltage",
+        "battery", "batteries", "cell", "cells", "lithium", "li-ion", "pack", "packs", "charging", "Wh",
+        "kWh", "mAh", "voltage",
     ),
     "heat": (
-        "heat",
-        "thermal",
-        "temperature",
-        "temperatures",
-        "fin",
-        "fins",
-        "cooling",
-        "coolant",
-        "fan",
-        "K/W",
-        "degC",
-        "°C",
-        "W/(m^2 K)",
+        "heat", "thermal", "temperature", "temperatures", "fin", "fins", "cooling", "coolant", "fan",
+        "K/W", "degC", "\u00b0C", "W/(m^2 K)",
     ),
-}
+}  # fmt: skip
 
-
-#: Columns a shortlist export adds in front of the designs' own columns.
-_SHORTLIST_COLUMNS = ("pick_order", "front_row")
 
 #: Columns of the archive that say how an evaluation ran, not what the design is.
 _BOOKKEEPING = frozenset(
@@ -270,7 +223,7 @@ def build_report(
         "case": _case(front),
         "shortlist": _shortlist(front, listed, marks),
         "picks": _picks(front, marks),
-        "run": _run(front, history, figures, spread),
+        "run": _run(front, history, spread),
         "front_table": _front_table(front, marks, listed),
         "assumptions": _assumptions(front),
         "cautions": _cautions(front),
@@ -333,10 +286,6 @@ def _unit(front: Front, name: str) -> str:
 def _heading(front: Front, name: str) -> dict[str, str]:
     """A column heading: the name, and the unit the template shows beside it in brackets."""
     return {"name": str(name), "unit": str(_unit(front, name))}
-
-
-def _plain_heading(text: str) -> dict[str, str]:
-    return {"name": text, "unit": ""}
 
 
 def _row(row: int) -> str:
@@ -647,31 +596,15 @@ def _case(front: Front) -> dict[str, Any]:
         "description": str(meta.get("description") or "").strip(),
         "case_file": str(meta["case_file"]) if meta.get("case_file") else None,
         "case_hash": str(meta.get("case_hash", "")),
-        "objective_heads": [
-            _plain_heading(h)
-            for h in (
-                "objective",
-                "goal",
-                "unit",
-                "worst acceptable (case)",
-                "hypervolume reference",
-            )
-        ],
         "objectives": objectives,
-        "variable_heads": [
-            _plain_heading(h) for h in ("variable", "kind", "allowed values", "unit")
-        ],
         "variables": variables,
         "variable_names": ", ".join(map(str, front.variables)) if front.variables else None,
-        "constraint_heads": [_plain_heading(h) for h in ("constraint", "must be", "unit")],
         "constraints": constraints,
         "constraint_names": ", ".join(map(str, front.constraints)) if front.constraints else None,
     }
 
 
-def _card(
-    front: Front, row: int, *, kind: str, heading: str, rates_label: str, also: str = ""
-) -> dict:
+def _card(front: Front, row: int, heading: str, *, also: str = "", knee: bool = False) -> dict:
     """One design as a card: its objective and variable values, the methods that ``also`` pick it, its rates."""
     record = front.table.iloc[int(row)]
 
@@ -679,12 +612,11 @@ def _card(
         return {"name": str(name), "value": _fmt(record[name]), "unit": str(_unit(front, name))}
 
     return {
-        "kind": kind,
         "heading": heading,
+        "knee": knee,
         "objectives": [value(o.name) for o in front.objectives],
         "variables": [value(name) for name in front.variables if name in front.table.columns],
         "also": also,
-        "rates_label": rates_label,
         "rates": _rates(front, row),
     }
 
@@ -720,10 +652,9 @@ def _shortlist(
         for number, row in designs
     ]
     cards = [
-        _card(front, row, kind="pick listed", heading=f"{number}. {_row(row)}",
-              rates_label="Trade-off rates on the whole front", also=", ".join(others.get(row, [])))
+        _card(front, row, f"{number}. {_row(row)}", also=", ".join(others.get(row, [])))
         for number, row in designs
-    ]  # fmt: skip
+    ]
     return {
         "n": len(designs),
         "were": "were" if len(designs) != 1 else "was",
@@ -735,8 +666,7 @@ def _shortlist(
             else None
         ),
         "knee": marks["knee"] is not None,
-        "heads": [_plain_heading(h) for h in ("#", "design", "also")]
-        + [_heading(front, o.name) for o in front.objectives],
+        "heads": [_heading(front, o.name) for o in front.objectives],
         "rows": rows,
         "numeric": [0, *range(3, 3 + len(front.objectives))],
         "cards": cards,
@@ -786,20 +716,16 @@ def _picks(front: Front, marks: dict[str, Any]) -> dict[str, Any]:
     )
     cards = []
     for k, (row, _methods) in enumerate(entries):
-        is_knee = k == 0 and marks["knee"] is not None
-        heading = "Knee design" if is_knee else "Compromise design"
-        cards.append(
-            _card(front, row, kind="pick knee" if is_knee else "pick", heading=f"{heading}: {_row(row)}",
-                  rates_label="Trade-off rates")
-        )  # fmt: skip
+        knee = k == 0 and marks["knee"] is not None
+        heading = f"{'Knee design' if knee else 'Compromise design'}: {_row(row)}"
+        cards.append(_card(front, row, heading, knee=knee))
     return {
         "error": marks.get("error"),
         "few": len(front) < 3,
         "agree": agree,
         "disagree": disagree,
         "shape": shape,
-        "heads": [_plain_heading(h) for h in ("design", "picked by")]
-        + [_heading(front, o.name) for o in front.objectives],
+        "heads": [_heading(front, o.name) for o in front.objectives],
         "rows": [
             [_row(row), ", ".join(methods)]
             + [_fmt(front.table.iloc[int(row)][o.name]) for o in front.objectives]
@@ -813,91 +739,71 @@ def _picks(front: Front, marks: dict[str, Any]) -> dict[str, Any]:
     }
 
 
-def _run(
-    front: Front, history, figures: Mapping[str, str], spread: dict[str, Any] | None
-) -> dict[str, Any]:
+def _run(front: Front, history, spread: dict[str, Any] | None) -> dict[str, Any]:
     """How the search ran: its message, its settings and counts as (label, value), and the seeds."""
-    meta = front.meta
-    settings = meta.get("settings") or {}
+    meta, settings = front.meta, front.meta.get("settings") or {}
     several = bool(spread) or (meta.get("n_seeds") or 0) > 1
     each = " (each seed)" if several else ""
     together = " (all seeds together)" if several else ""
-    items: list[tuple[str, str]] = []
-
-    def add(label: str, value: Any) -> None:
-        if value is not None and value != "":
-            items.append((label, str(value)))
-
-    add("method", meta.get("algorithm"))
-    add(
-        "evaluation budget" + each,
-        _fmt(settings.get("evaluations")) if settings.get("evaluations") else None,
-    )
-    add(
-        "designs per generation",
-        _fmt(settings.get("population")) if settings.get("population") else None,
-    )
-    add(
-        "generation limit",
-        _fmt(settings.get("generations")) if settings.get("generations") else None,
-    )
-    add(
-        "time limit",
-        f"{_fmt(settings.get('time_limit'))} s" if settings.get("time_limit") else None,
-    )
+    entries = []
+    if meta.get("algorithm") not in (None, ""):
+        entries.append(("method", str(meta["algorithm"])))
+    for label, key, unit in (
+        ("evaluation budget" + each, "evaluations", ""),
+        ("designs per generation", "population", ""),
+        ("generation limit", "generations", ""),
+        ("time limit", "time_limit", " s"),
+    ):
+        if settings.get(key):
+            entries.append((label, _fmt(settings[key]) + unit))
     if settings.get("stall_generations"):
-        add(
+        entries.append((
             "stall rule",
             f"stop when the hypervolume gains less than {_fmt(settings.get('stall_tolerance'))} "
-            f"(relative) over {_fmt(settings.get('stall_generations'))} generations",
-        )
+            f"(relative) over {_fmt(settings['stall_generations'])} generations",
+        ))  # fmt: skip
     if several and meta.get("seeds"):
-        add("seeds", ", ".join(_fmt(v) for v in meta["seeds"]))
-    else:
-        add("seed", _fmt(meta.get("seed")) if meta.get("seed") is not None else None)
-    add(
-        "evaluations used" + together,
-        _fmt(meta.get("n_evals")) if meta.get("n_evals") is not None else None,
-    )
-    add(
-        "generations" + together, _fmt(meta.get("n_gen")) if meta.get("n_gen") is not None else None
-    )
-    add("why it stopped", meta.get("stop_reason"))
+        entries.append(("seeds", ", ".join(_fmt(v) for v in meta["seeds"])))
+    elif meta.get("seed") is not None:
+        entries.append(("seed", _fmt(meta["seed"])))
+    for label, key in (
+        ("evaluations used" + together, "n_evals"),
+        ("generations" + together, "n_gen"),
+    ):
+        if meta.get(key) is not None:
+            entries.append((label, _fmt(meta[key])))
+    if meta.get("stop_reason") not in (None, ""):
+        entries.append(("why it stopped", str(meta["stop_reason"])))
     if meta.get("n_failed") is not None:
-        add(
+        entries.append((
             "failed evaluations",
-            f"{_fmt(meta.get('n_failed'))} (stored with their message and treated as infeasible)",
-        )
+            f"{_fmt(meta['n_failed'])} (stored with their message and treated as infeasible)",
+        ))  # fmt: skip
     if meta.get("n_cached"):
-        n_cached = int(meta.get("n_cached"))
-        add(
-            "served from the archive",
-            f"{n_cached} design{'s' if n_cached != 1 else ''} seen before {'were' if n_cached != 1 else 'was'} "
-            "not evaluated again",
-        )
+        n = int(meta["n_cached"])
+        said = f"{n} design{'s' if n != 1 else ''} seen before {'were' if n != 1 else 'was'}"
+        entries.append(("served from the archive", said + " not evaluated again"))
     if front.reference is not None:
         ref = ", ".join(
             f"{o.name} {_fmt(r)}" for o, r in zip(front.objectives, front.reference, strict=True)
         )
-        add(
-            "hypervolume reference point",
-            ref + (f" ({meta['reference_source']})" if meta.get("reference_source") else ""),
-        )
+        source = f" ({meta['reference_source']})" if meta.get("reference_source") else ""
+        entries.append(("hypervolume reference point", ref + source))
     started, finished = meta.get("started"), meta.get("finished")
     if (
         isinstance(started, int | float)
         and isinstance(finished, int | float)
         and finished >= started
     ):
-        add("run time", f"{finished - started:.3g} s")
-    versions = meta.get("versions") or {}
-    if versions:
-        add("software", ", ".join(f"{k} {v}" for k, v in versions.items()))
-    per_seed = history is not None and "seed" in history.columns and history["seed"].nunique() > 1
+        entries.append(("run time", f"{finished - started:.3g} s"))
+    if meta.get("versions"):
+        entries.append(("software", ", ".join(f"{k} {v}" for k, v in meta["versions"].items())))
     return {
         "message": str(meta["message"]) if meta.get("message") else None,
-        "entries": items,
-        "per_seed": per_seed,
+        "entries": entries,
+        "per_seed": history is not None
+        and "seed" in history.columns
+        and history["seed"].nunique() > 1,
         "no_history": history is None,
         "seeds": _seeds(front, spread) if spread else None,
     }
@@ -941,7 +847,7 @@ def _seeds(front: Front, spread: dict[str, Any]) -> dict[str, Any]:
     return {
         "n": n,
         "text": text,
-        "heads": [_plain_heading(_SEED_COLUMNS[c]) for c in shown],
+        "heads": [_SEED_COLUMNS[c] for c in shown],
         "rows": [
             [_fmt(_plain(v)) for v in record] for record in table[shown].itertuples(index=False)
         ],
