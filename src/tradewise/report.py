@@ -218,7 +218,6 @@ def build_report(
         "script_hash": _script_hash(),
         "figures": figures,
         "masthead": _masthead(front),
-        "caution_box": _caution_box(front),
         "facts": _facts(front, listed, spread),
         "case": _case(front),
         "shortlist": _shortlist(front, listed, marks),
@@ -430,55 +429,43 @@ def _method_labels(marks: dict[str, Any]) -> dict[int, list[str]]:
 
 def _figures(front: Front, history, evaluations, marks, listed, attainment) -> dict[str, str]:
     """The page's figures as SVG text from :func:`tradewise.plots.to_svg`, by name."""
-    figures: dict[str, str] = {}
-
-    def add(name: str, draw, label: str) -> None:
-        # a figure that cannot be drawn (values near the float limit) is left out; the tables remain
-        with contextlib.suppress(DataError):
-            figures[name] = plots.to_svg(draw(), prefix=name, label=label)
-
-    picks = {
-        ", ".join(methods): row for row, methods in _grouped(marks["picks"]) if row != marks["knee"]
-    }
-    add(
-        "front",
-        lambda: plots.plot_front(
-            front, evaluations=evaluations, knee=marks["knee"], picks=picks or None
-        ),
-        "The front with the knee and the compromise picks marked",
-    )
-    add(
-        "parallel",
-        lambda: plots.plot_parallel(
-            front, highlight=marks["knee"], variables=_few_variables(front)
-        ),
-        "Parallel coordinates of the front",
-    )
-    if history is not None and len(history):
-        budget = (front.meta.get("settings") or {}).get("evaluations")
-        add(
-            "history",
-            lambda: plots.plot_history(
-                history, stop_reason=front.meta.get("stop_reason"), budget=budget
+    knee, meta = marks["knee"], front.meta
+    picks = {", ".join(methods): row for row, methods in _grouped(marks["picks"]) if row != knee}
+    drawings = {
+        "front": (
+            lambda: plots.plot_front(
+                front, evaluations=evaluations, knee=knee, picks=picks or None
             ),
+            "The front with the knee and the compromise picks marked",
+        ),
+        "parallel": (
+            lambda: plots.plot_parallel(front, highlight=knee, variables=_few_variables(front)),
+            "Parallel coordinates of the front",
+        ),
+    }
+    if history is not None and len(history):
+        budget = (meta.get("settings") or {}).get("evaluations")
+        drawings["history"] = (
+            lambda: plots.plot_history(history, stop_reason=meta.get("stop_reason"), budget=budget),
             "Hypervolume and front size against evaluations",
         )
     if listed:
-        shortlisted = [row for _, row in listed["designs"]]
-        add(
-            "shortlist",
-            lambda: plots.plot_front(
-                front, evaluations=evaluations, knee=marks["knee"], shortlist=shortlisted
-            ),
+        rows = [row for _, row in listed["designs"]]
+        drawings["shortlist"] = (
+            lambda: plots.plot_front(front, evaluations=evaluations, knee=knee, shortlist=rows),
             "The whole front with the shortlisted designs numbered",
         )
     if attainment is not None and len(front.objectives) == 2:
         objectives = [replace(o, unit=_unit(front, o.name) or o.unit) for o in front.objectives]
-        add(
-            "attainment",
+        drawings["attainment"] = (
             lambda: plots.plot_attainment(attainment, objectives),
             "Attainment surfaces of the seeds",
         )
+    figures: dict[str, str] = {}
+    for name, (draw, label) in drawings.items():
+        # a figure that cannot be drawn (values near the float limit) is left out; the tables remain
+        with contextlib.suppress(DataError):
+            figures[name] = plots.to_svg(draw(), prefix=name, label=label)
     return figures
 
 
@@ -498,21 +485,17 @@ def _masthead(front: Front) -> dict[str, str]:
     finished = front.meta.get("finished")
     when = ""
     if isinstance(finished, int | float):
-        when = (
-            " Run finished "
-            + _dt.datetime.fromtimestamp(finished, _dt.UTC).strftime("%Y-%m-%d %H:%M UTC")
-            + "."
-        )
+        when = f" Run finished {_dt.datetime.fromtimestamp(finished, _dt.UTC):%Y-%m-%d %H:%M UTC}."
     return {"names": names, "when": when}
 
 
-def _caution_box(front: Front) -> dict[str, Any] | None:
-    """The box near the top: the safety sentence, or a pointer to the case file's cautions."""
+def _cautions(front: Front) -> dict[str, Any]:
+    """The safety sentence (for a case that touches structures, packs or heat) and the case file's cautions."""
     domains = safety_domains(front)
-    cautions = str(front.meta.get("cautions") or "").strip()
-    if not domains and not cautions:
-        return None
-    return {"safety": _safety_sentence(domains) if domains else None}
+    return {
+        "safety": _safety_sentence(domains) if domains else None,
+        "text": str(front.meta.get("cautions") or "").strip(),
+    }
 
 
 def _safety_sentence(domains: Sequence[str]) -> str:
@@ -534,10 +517,9 @@ def _facts(
         items.append((_fmt(len(listed["designs"])), "designs on the shortlist"))
     if spread:
         items.append((_fmt(spread["n"]), "independent runs (seeds), merged"))
-    if meta.get("n_evals") is not None:
-        items.append((_fmt(meta.get("n_evals")), "evaluations of the model"))
-    if meta.get("n_gen") is not None:
-        items.append((_fmt(meta.get("n_gen")), "generations"))
+    for key, label in (("n_evals", "evaluations of the model"), ("n_gen", "generations")):
+        if meta.get(key) is not None:
+            items.append((_fmt(meta[key]), label))
     hv = meta.get("hypervolume")
     if hv is None and front.reference is not None:
         hv = front.hypervolume()
@@ -688,6 +670,13 @@ def _shortlist_how(settings: Mapping[str, Any]) -> str:
     return "; ".join(bits)
 
 
+#: What the figure of the front shows, by the number of objectives (four standing for four or more).
+_SHAPES = {
+    3: "Left: the front in three dimensions; right: each pair of objectives.",
+    4: "Each panel shows two objectives against each other.",
+}
+
+
 def _picks(front: Front, marks: dict[str, Any]) -> dict[str, Any]:
     """The knee and the compromise designs: what the knee methods say, a table, cards and the methods."""
     entries: list[tuple[int, list[str]]] = []
@@ -706,14 +695,6 @@ def _picks(front: Front, marks: dict[str, Any]) -> dict[str, Any]:
             agree = {"methods": ", ".join(groups[0][1]), "row": _row(groups[0][0])}
         else:
             disagree = "; ".join(f"{', '.join(ms)} at {_row(r)}" for r, ms in groups)
-    n_obj = len(front.objectives)
-    shape = (
-        "Each panel shows two objectives against each other."
-        if n_obj > 3
-        else "Left: the front in three dimensions; right: each pair of objectives."
-        if n_obj == 3
-        else ""
-    )
     cards = []
     for k, (row, _methods) in enumerate(entries):
         knee = k == 0 and marks["knee"] is not None
@@ -724,14 +705,14 @@ def _picks(front: Front, marks: dict[str, Any]) -> dict[str, Any]:
         "few": len(front) < 3,
         "agree": agree,
         "disagree": disagree,
-        "shape": shape,
+        "shape": _SHAPES.get(min(len(front.objectives), 4), ""),
         "heads": [_heading(front, o.name) for o in front.objectives],
         "rows": [
             [_row(row), ", ".join(methods)]
             + [_fmt(front.table.iloc[int(row)][o.name]) for o in front.objectives]
             for row, methods in entries
         ],
-        "numeric": list(range(2, 2 + n_obj)),
+        "numeric": list(range(2, 2 + len(front.objectives))),
         "cards": cards,
         "methods": [
             (m, str(marks["methods"].get(m, ""))) for _, methods in entries for m in methods
@@ -798,12 +779,11 @@ def _run(front: Front, history, spread: dict[str, Any] | None) -> dict[str, Any]
         entries.append(("run time", f"{finished - started:.3g} s"))
     if meta.get("versions"):
         entries.append(("software", ", ".join(f"{k} {v}" for k, v in meta["versions"].items())))
+    per_seed = history is not None and "seed" in history.columns and history["seed"].nunique() > 1
     return {
         "message": str(meta["message"]) if meta.get("message") else None,
         "entries": entries,
-        "per_seed": history is not None
-        and "seed" in history.columns
-        and history["seed"].nunique() > 1,
+        "per_seed": per_seed,
         "no_history": history is None,
         "seeds": _seeds(front, spread) if spread else None,
     }
@@ -931,15 +911,6 @@ def _assumptions(front: Front) -> list[str]:
             "its nearest neighbours, with the other objectives held; they are local estimates."
         )
     return items
-
-
-def _cautions(front: Front) -> dict[str, Any]:
-    """The closing cautions: the safety sentence and the case file's own cautions, in full."""
-    domains = safety_domains(front)
-    return {
-        "safety": _safety_sentence(domains) if domains else None,
-        "text": str(front.meta.get("cautions") or "").strip(),
-    }
 
 
 def _footer(front: Front, generated: _dt.datetime) -> dict[str, str]:
