@@ -9,6 +9,10 @@ Content-Security-Policy that forbids loading anything from elsewhere, so it
 opens the same with or without a network. The template engine escapes every
 value it writes (autoescape on); only the SVG figures drawn by
 :func:`tradewise.plots.to_svg` are written as they are.
+
+About 900 lines, over the usual 800: besides the page's parts it still holds
+reading a shortlist back onto the front and the safety-word check, which no
+other module owns yet.
 """
 
 from __future__ import annotations
@@ -74,8 +78,9 @@ class _LayoutOnlyLineBreaks(Extension):
 
     They are taken out before the template is read, so the markup can be
     indented for people while the page keeps no whitespace between its tags.
-    A space the page needs is written inside a line; a line break the page
-    needs is written as ``{{ newline }}``. Files included verbatim (the styles,
+    A space the page needs is written inside a line (or as ``{{ " " }}`` where
+    a sentence goes on on the next line); a line break the page needs is
+    written as ``{{ newline }}``. Files included verbatim (the styles,
     the script) are left as they are.
     """
 
