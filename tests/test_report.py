@@ -615,3 +615,78 @@ def test_page_prints_to_a_tidy_pdf(browser, tmp_path):
     # A4 is 210 x 297 mm = 595.3 x 841.9 pt (ISO 216)
     assert all(abs(float(w) - 595.3) < 2 and abs(float(h) - 841.9) < 2 for w, h in boxes)
     assert len(boxes) >= 3
+
+
+# ------------------------------------------------------------------------------- templates and escaping
+MARK = "<i>\"'&amp;"
+MARK_ESCAPED = html.escape(MARK, quote=True)  # &lt;i&gt;&quot;&#x27;&amp;amp;
+
+
+def test_every_text_from_the_case_and_the_tables_is_escaped_on_the_page():
+    """User text in every field the page shows (title, description, cautions, names, units, options,
+    run facts, table cells, shortlist settings, seed status) comes out escaped as html.escape does it,
+    and no markup of it survives, also inside the figures."""
+    meta = {
+        "title": f"Bracket {MARK}",
+        "description": f"About {MARK}",
+        "cautions": f"Mind {MARK}",
+        "message": f"Stopped {MARK}",
+        "algorithm": f"NSGA-II {MARK}",
+        "stop_reason": f"budget {MARK}",
+        "reference_source": f"from {MARK}",
+        "case_file": f"case {MARK}.toml",
+        "case_hash": MARK,
+        "versions": {"tradewise": MARK},
+        "design_space": [
+            {"name": f"t{MARK}", "type": "choice", "options": [MARK, "b"], "unit": MARK}
+        ],
+        "constraint_limits": [{"name": f"gap{MARK}", "min": 1.0, "unit": MARK}],
+    }
+    front = small_front(meta)
+    table = front.table.assign(note=[f"n{k}{MARK}" for k in range(len(front))])
+    front = Front(table=table, objectives=front.objectives, units={**front.units, "t": MARK},
+                  variables=front.variables, reference=front.reference, meta=front.meta)  # fmt: skip
+    shortlist = Front(table=table.iloc[[3]], objectives=front.objectives, units=front.units,
+                      meta={"shortlist": {"method": MARK, "limits": [MARK]}})  # fmt: skip
+    seeds = pd.DataFrame({"seed": [1, 2], "status": [MARK, "done"], "hypervolume": [1.0, 2.0]})
+    text = build_report(front, shortlist=shortlist, seeds=seeds)
+    assert "<i>" not in text and "&lt;i&gt;&#34;" not in text
+    for needed in ("Bracket", "About", "Mind", "Stopped", "NSGA-II", "budget", "from", "n0", "n20"):
+        assert f"{needed} {MARK_ESCAPED}" in text or f"{needed}{MARK_ESCAPED}" in text, needed
+    assert text.count(MARK_ESCAPED) >= 40
+
+
+def test_style_and_script_are_the_package_files_and_the_policy_hashes_the_script():
+    """The page inlines templates/review.css and templates/sort.js unchanged, and its policy allows
+    exactly that script by its SHA-256 (the browser test shows the script then runs)."""
+    import hashlib
+    from importlib.resources import files
+
+    folder = files("tradewise") / "templates"
+    css = (folder / "review.css").read_text(encoding="utf-8").rstrip("\n")
+    script = (folder / "sort.js").read_text(encoding="utf-8").rstrip("\n")
+    text = build_report(small_front())
+    assert f"<style>\n{css}\n</style>" in text
+    assert re.findall(r"<script>(.*?)</script>", text, flags=re.S) == [script]
+    digest = base64.b64encode(hashlib.sha256(script.encode("utf-8")).digest()).decode("ascii")
+    assert f"script-src 'sha256-{digest}'" in text
+
+
+def test_only_the_figures_are_marked_safe_in_the_templates():
+    """No template writes a value unescaped except the SVG figure macro; report.py builds no Markup of its own
+    beyond the escaping hook."""
+    from importlib.resources import files
+
+    import tradewise.report
+
+    folder = Path(str(files("tradewise") / "templates"))
+    sources = {p.name: p.read_text(encoding="utf-8") for p in folder.rglob("*.j2")}
+    assert "review.html.j2" in sources and len(sources) >= 3
+    unsafe = {
+        name: re.findall(r"\{\{[^}]*\|\s*safe[^}]*\}\}", source)
+        for name, source in sources.items()
+        if re.search(r"\|\s*safe|autoescape\s+false", source)
+    }
+    assert unsafe == {"macros.html.j2": ["{{ svg|safe }}"]}
+    code = Path(tradewise.report.__file__).read_text(encoding="utf-8")
+    assert code.count("Markup(") == 1 and "Markup(escape(str(value), quote=True))" in code
