@@ -745,8 +745,8 @@ def _run(front: Front, history, spread: dict[str, Any] | None) -> dict[str, Any]
     if settings.get("stall_generations"):
         entries.append((
             "stall rule",
-            f"stop when the hypervolume gains less than {_fmt(settings.get('stall_tolerance'))} "
-            f"(relative) over {_fmt(settings['stall_generations'])} generations",
+            f"stop when the front gains less than {_fmt(settings.get('stall_tolerance'))} of its hypervolume, "
+            f"judged on its own scale, over {_fmt(settings['stall_generations'])} generations",
         ))  # fmt: skip
     if several and meta.get("seeds"):
         entries.append(("seeds", ", ".join(_fmt(v) for v in meta["seeds"])))
