@@ -118,6 +118,41 @@ def test_other_programs_are_left_alone(tmp_path):
     assert CommandModel(load_case(folder)).arguments("i", "o")[0] == "/usr/bin/python3.99"
 
 
+def test_placeholders_are_filled_in_one_pass(command_model):
+    """A path that itself contains a placeholder is given as it is, never substituted a second time."""
+    model = command_model()
+    work = Path("/tmp/odd {output} and {case} name")
+    args = model.arguments(work / "design.json", work / "results.json")
+    assert args[2:] == [str(work / "design.json"), str(work / "results.json")]
+
+
+def test_tmpdir_with_a_placeholder_in_its_name(command_model, tmp_path, monkeypatch):
+    """With TMPDIR named like a placeholder the program still reads the design and writes its results."""
+    odd = tmp_path / "tmp-{output}-{input}"
+    odd.mkdir()
+    monkeypatch.setenv("TMPDIR", str(odd))
+    monkeypatch.setattr(tempfile, "tempdir", None)
+    model = command_model()
+    model.keep_root = None
+    outcome = model({"x": 0.25, "mode": "ok"})
+    assert outcome.status == "ok", outcome.message
+    assert Path(outcome.results["where"]).parent == odd
+
+
+@pytest.mark.parametrize("how", ["relative", "dot", "absolute"])
+def test_run_finds_the_program_whatever_the_working_directory(tmp_path, monkeypatch, how):
+    """`run case/` from its parent, `run .` inside the case folder and an absolute path all evaluate."""
+    folder = _case_folder(tmp_path, modes=("ok", "fine"), population=4, evaluations=4)
+    monkeypatch.chdir(folder if how == "dot" else tmp_path)
+    argument = {"relative": "case", "dot": ".", "absolute": str(folder)}[how]
+    out = tmp_path / f"run-{how}"
+    result = CliRunner().invoke(main, ["run", argument, "--out", str(out), "--quiet"])
+    assert result.exit_code == 0, result.output
+    with sqlite3.connect(out / "archive.sqlite") as db:
+        rows = db.execute("SELECT status, message FROM evaluations WHERE source_id IS NULL").fetchall()
+    assert len(rows) == 4 and all(status == "ok" for status, _ in rows), rows
+
+
 # ------------------------------------------------------------------------------- one design
 def test_success_reads_results_and_removes_the_folder(command_model):
     """A good evaluation gives every result (extra outputs kept) and leaves no folder behind."""

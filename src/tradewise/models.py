@@ -7,6 +7,7 @@ import importlib.util
 import json
 import math
 import os
+import re
 import shutil
 import signal
 import subprocess
@@ -112,7 +113,7 @@ class PythonModel:
 
     def __init__(self, case: Case) -> None:
         module, function = case.model.split(":")
-        self.file = str(case.folder / module)
+        self.file = os.path.abspath(case.folder / module)
         self.function = function
         self.required = case.objective_names + case.constraint_names
         self._callable = None
@@ -207,20 +208,21 @@ class CommandModel:
     def __init__(self, case: Case, *, keep_root: str | Path | None = None) -> None:
         if not case.command:
             raise CaseError(f"{case.path}: command: got {case.command!r}, expected a list of arguments")
-        self.folder = str(case.folder)
-        self.command = [
-            str(case.folder / a) if "{" not in a and (case.folder / a).is_file() else a for a in case.command
-        ]
+        # The program runs in a folder of its own, so a case given by a relative path (`run my-case/`,
+        # `run .`) must still name its files by where they are, not by where the run started.
+        folder = Path(os.path.abspath(case.folder))
+        self.folder = str(folder)
+        self.command = [str(folder / a) if "{" not in a and (folder / a).is_file() else a for a in case.command]
         self.timeout = case.timeout
         self.required = case.objective_names + case.constraint_names
         self.keep_root = str(keep_root) if keep_root else None
 
     def arguments(self, input_file: str | Path, output_file: str | Path) -> list[str]:
         """The argument list for one evaluation, placeholders filled in."""
-        args = [
-            a.replace("{input}", str(input_file)).replace("{output}", str(output_file)).replace("{case}", self.folder)
-            for a in self.command
-        ]
+        values = {"input": str(input_file), "output": str(output_file), "case": self.folder}
+        # One pass per argument: a filled-in path that itself contains "{output}" (a TMPDIR of that
+        # name) is never substituted again.
+        args = [_PLACEHOLDER.sub(lambda m: values[m.group(1)], a) for a in self.command]
         if args[0] in _PYTHON_NAMES and sys.executable:
             args[0] = sys.executable
         return args
@@ -292,6 +294,7 @@ class CommandModel:
 
 
 _PYTHON_NAMES = frozenset({"python", "python3"})
+_PLACEHOLDER = re.compile(r"\{(input|output|case)\}")
 _RUNNING: set[subprocess.Popen] = set()  # programs of this process now running, for stop_programs()
 _NEW_GROUP: dict[str, Any] = (
     {"start_new_session": True} if os.name == "posix"
