@@ -25,6 +25,15 @@ import json, math, os, subprocess, sys, time
 design = json.load(open(sys.argv[1]))
 mode, x = design["mode"], design["x"]
 out = {"cost": x, "mass": (1 - x) ** 2 + 0.1, "where": os.getcwd()}
+if mode.startswith("helper-"):
+    # A helper that ignores SIGTERM and outlives this program unless its process group is ended.
+    helper = subprocess.Popen([sys.executable, "-c", "import signal, sys, time; "
+                               "signal.signal(signal.SIGTERM, signal.SIG_IGN); print('ready', flush=True); "
+                               "time.sleep(60)"], stdout=subprocess.PIPE)
+    helper.stdout.readline()
+    with open(os.path.join(os.path.dirname(sys.argv[2]), "..", "helpers.txt"), "a") as pids:
+        pids.write(f"{helper.pid}\n")
+    mode = mode[len("helper-"):]
 if mode == "exit":
     print("first line", file=sys.stderr)
     print("solver: matrix is singular at step 7", file=sys.stderr)
@@ -214,6 +223,28 @@ def test_timeout_kills_the_whole_process_group(command_model, tmp_path):
     assert not _alive(child)
 
 
+def _helpers_left(folder: Path) -> list[int]:
+    """The helper processes recorded in folder/helpers.txt that are still alive (after a short wait)."""
+    pids = [int(line) for line in (folder / "helpers.txt").read_text().split()]
+    assert pids
+    deadline = time.monotonic() + 5
+    while any(_alive(p) for p in pids) and time.monotonic() < deadline:
+        time.sleep(0.05)
+    return [p for p in pids if _alive(p)]
+
+
+@pytest.mark.skipif(os.name != "posix", reason="process groups are POSIX")
+@pytest.mark.parametrize("mode", ["helper-ok", "helper-exit"])
+def test_helpers_of_the_program_end_with_the_evaluation(command_model, tmp_path, mode):
+    """A helper the program started (one that ignores SIGTERM) is ended with the evaluation, success or not."""
+    model = command_model()
+    start = time.monotonic()
+    outcome = model({"x": 0.5, "mode": mode})
+    assert outcome.status == ("ok" if mode == "helper-ok" else "failed"), outcome.message
+    assert time.monotonic() - start < 10
+    assert _helpers_left(tmp_path / "kept") == []
+
+
 # ------------------------------------------------------------------------------- whole runs
 def test_run_with_failing_command_model_completes_and_counts_failures(tmp_path, monkeypatch):
     """A run whose program exits non-zero, hangs, or writes bad JSON completes; each failure is stored
@@ -238,6 +269,21 @@ def test_run_with_failing_command_model_completes_and_counts_failures(tmp_path, 
     assert "not valid JSON" in by_mode["badjson"][1]
     assert all(s != "ok" for mode, s, _ in failed if mode != "ok")
     assert f"{len(failed)} evaluation(s) failed" in result.output
+
+
+@pytest.mark.skipif(os.name != "posix", reason="process groups are POSIX")
+def test_no_helper_outlives_a_run(tmp_path, monkeypatch):
+    """A run of a program that leaves a SIGTERM-proof helper behind on every design ends with none alive."""
+    folder = _case_folder(tmp_path, modes=("helper-ok", "helper-exit"), population=6, evaluations=12)
+    kept = tmp_path / "kept"
+    kept.mkdir()
+    monkeypatch.setenv("TMPDIR", str(kept))
+    monkeypatch.setattr(tempfile, "tempdir", str(kept))
+    out = tmp_path / "run"
+    result = CliRunner().invoke(main, ["run", str(folder), "--out", str(out), "--workers", "2", "--quiet"])
+    assert result.exit_code == 0, result.output
+    assert len((kept / "helpers.txt").read_text().split()) == 12
+    assert _helpers_left(kept) == []
 
 
 # ------------------------------------------------------------------------ the bundled case

@@ -193,8 +193,10 @@ class CommandModel:
     ``stdout.txt`` and ``stderr.txt``. The folder is removed when the
     evaluation succeeds and kept when it fails; its path is in the message.
 
-    A ``timeout`` (seconds) kills the program's whole process group, so
-    helper processes it started stop too; the outcome is ``"timeout"``. A
+    The program leads a process group of its own, and the whole group ends
+    with every evaluation, success or failure: helpers it started and left
+    running get SIGTERM, then SIGKILL after half a second. A ``timeout``
+    (seconds) ends the group the same way; the outcome is ``"timeout"``. A
     non-zero exit status is recorded with the tail of the program's stderr.
 
     Arguments that name a file in the case folder are made absolute, since
@@ -252,8 +254,7 @@ class CommandModel:
             try:
                 proc.wait(timeout=self.timeout)
             except subprocess.TimeoutExpired:
-                _kill_group(proc)
-                proc.wait()
+                _end_group(proc)
                 return failed(
                     f"no answer within the timeout of {self.timeout:g} s; the program and its process group "
                     "were stopped", time.perf_counter() - start, "timeout",
@@ -267,6 +268,9 @@ class CommandModel:
             finally:
                 _RUNNING.discard(proc)
         duration = time.perf_counter() - start
+        # Helpers the program started may outlive it (a licence daemon, a forked solver); they end
+        # with the evaluation, whatever its result.
+        _end_group(proc)
         if proc.returncode != 0:
             tail = _tail(work / "stderr.txt")
             how = (f"was killed by signal {_signal_name(-proc.returncode)}" if proc.returncode < 0
@@ -310,6 +314,58 @@ def stop_programs() -> None:
     """
     for proc in list(_RUNNING):
         _kill_group(proc)
+
+
+_GRACE = 0.5  # seconds a program's process group gets between SIGTERM and SIGKILL
+
+
+def _end_group(proc: subprocess.Popen, grace: float = _GRACE) -> None:
+    """End the program and every process of its group: SIGTERM, ``grace`` seconds, then SIGKILL.
+
+    Returns at once when the program has exited and left nothing behind (the
+    usual case); otherwise waits only as long as something is still running.
+    """
+    if os.name != "posix":
+        with contextlib.suppress(OSError):
+            proc.kill()
+        proc.wait()
+        return
+    group = proc.pid  # the program leads a session, hence a group, of its own
+    if proc.poll() is not None and not _group_running(group):
+        return
+    with contextlib.suppress(ProcessLookupError, PermissionError):
+        os.killpg(group, signal.SIGTERM)
+    deadline = time.monotonic() + grace
+    while time.monotonic() < deadline:
+        if proc.poll() is not None and not _group_running(group):
+            return
+        time.sleep(0.01)
+    with contextlib.suppress(ProcessLookupError, PermissionError):
+        os.killpg(group, signal.SIGKILL)
+    proc.wait()
+
+
+def _group_running(group: int) -> bool:
+    """Whether a process of ``group`` still runs (zombies left to an init that never reaps do not count)."""
+    try:
+        os.killpg(group, 0)
+    except ProcessLookupError:
+        return False
+    except PermissionError:
+        return False  # the id now belongs to another user's processes, not to our program
+    if not os.path.isdir("/proc/self"):
+        return True
+    for entry in os.scandir("/proc"):
+        if not entry.name.isdigit():
+            continue
+        try:
+            with open(f"/proc/{entry.name}/stat", "rb") as handle:
+                fields = handle.read().rsplit(b")", 1)[1].split()
+        except (OSError, IndexError):
+            continue
+        if int(fields[2]) == group and fields[0] not in (b"Z", b"X"):
+            return True
+    return False
 
 
 def _kill_group(proc: subprocess.Popen) -> None:
