@@ -4,7 +4,11 @@ from __future__ import annotations
 
 import json
 import os
+import signal
 import sqlite3
+import subprocess
+import sys
+import tempfile
 import time
 
 import pandas as pd
@@ -219,6 +223,38 @@ def test_run_with_raising_nan_and_crashing_python_model(case, tmp_path):
     assert "worker process died" in failed["crash"]
     n_failed = sum(status != "ok" for _, status, _ in rows)
     assert f"{n_failed} evaluation(s) failed" in result.output
+
+
+@pytest.mark.skipif(os.name != "posix", reason="SIGKILL and process ids as used here are POSIX")
+def test_a_killed_pool_run_leaves_no_folder_for_long(case, tmp_path, monkeypatch):
+    """kill -9 of a --workers run strands its pool folder; the next pool removes it, and only folders
+    whose owner process is gone."""
+    scratch = tmp_path / "scratch"
+    scratch.mkdir()
+    folder = case(("ok", "heavy")).folder
+    env = dict(os.environ, TMPDIR=str(scratch), TW_TEST_SLEEP="0.2")
+    run = subprocess.Popen([sys.executable, "-m", "tradewise.cli", "run", str(folder), "--out",
+                            str(tmp_path / "run"), "--workers", "2", "--evaluations", "400", "--quiet"],
+                           env=env, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+    deadline = time.monotonic() + 60
+    while not list(scratch.glob("tradewise-pool-*")) and time.monotonic() < deadline:
+        time.sleep(0.05)
+    stranded = list(scratch.glob("tradewise-pool-*"))
+    run.send_signal(signal.SIGKILL)
+    run.wait()
+    assert len(stranded) == 1 and stranded[0].is_dir()
+    alive = subprocess.Popen([sys.executable, "-c", "import time; time.sleep(60)"])
+    try:
+        others = scratch / f"tradewise-pool-{alive.pid}-busy"  # a pool of a live run, not ours to remove
+        others.mkdir()
+        monkeypatch.setattr(tempfile, "tempdir", str(scratch))
+        with ProcessPool(2) as pool:
+            assert [o.status for _, o in pool.run(make_model(case(("ok", "heavy"))), BATCH[:2])] == ["ok", "ok"]
+        assert not stranded[0].exists()
+        assert sorted(scratch.glob("tradewise-pool-*")) == [others]
+    finally:
+        alive.kill()
+        alive.wait()
 
 
 # ---------------------------------------------------------------------------------- choice
