@@ -25,6 +25,15 @@ import json, math, os, subprocess, sys, time
 design = json.load(open(sys.argv[1]))
 mode, x = design["mode"], design["x"]
 out = {"cost": x, "mass": (1 - x) ** 2 + 0.1, "where": os.getcwd()}
+if mode.startswith("helper-"):
+    # A helper that ignores SIGTERM and outlives this program unless its process group is ended.
+    helper = subprocess.Popen([sys.executable, "-c", "import signal, sys, time; "
+                               "signal.signal(signal.SIGTERM, signal.SIG_IGN); print('ready', flush=True); "
+                               "time.sleep(60)"], stdout=subprocess.PIPE)
+    helper.stdout.readline()
+    with open(os.path.join(os.path.dirname(sys.argv[2]), "..", "helpers.txt"), "a") as pids:
+        pids.write(f"{helper.pid}\n")
+    mode = mode[len("helper-"):]
 if mode == "exit":
     print("first line", file=sys.stderr)
     print("solver: matrix is singular at step 7", file=sys.stderr)
@@ -118,6 +127,41 @@ def test_other_programs_are_left_alone(tmp_path):
     assert CommandModel(load_case(folder)).arguments("i", "o")[0] == "/usr/bin/python3.99"
 
 
+def test_placeholders_are_filled_in_one_pass(command_model):
+    """A path that itself contains a placeholder is given as it is, never substituted a second time."""
+    model = command_model()
+    work = Path("/tmp/odd {output} and {case} name")
+    args = model.arguments(work / "design.json", work / "results.json")
+    assert args[2:] == [str(work / "design.json"), str(work / "results.json")]
+
+
+def test_tmpdir_with_a_placeholder_in_its_name(command_model, tmp_path, monkeypatch):
+    """With TMPDIR named like a placeholder the program still reads the design and writes its results."""
+    odd = tmp_path / "tmp-{output}-{input}"
+    odd.mkdir()
+    monkeypatch.setenv("TMPDIR", str(odd))
+    monkeypatch.setattr(tempfile, "tempdir", None)
+    model = command_model()
+    model.keep_root = None
+    outcome = model({"x": 0.25, "mode": "ok"})
+    assert outcome.status == "ok", outcome.message
+    assert Path(outcome.results["where"]).parent == odd
+
+
+@pytest.mark.parametrize("how", ["relative", "dot", "absolute"])
+def test_run_finds_the_program_whatever_the_working_directory(tmp_path, monkeypatch, how):
+    """`run case/` from its parent, `run .` inside the case folder and an absolute path all evaluate."""
+    folder = _case_folder(tmp_path, modes=("ok", "fine"), population=4, evaluations=4)
+    monkeypatch.chdir(folder if how == "dot" else tmp_path)
+    argument = {"relative": "case", "dot": ".", "absolute": str(folder)}[how]
+    out = tmp_path / f"run-{how}"
+    result = CliRunner().invoke(main, ["run", argument, "--out", str(out), "--quiet"])
+    assert result.exit_code == 0, result.output
+    with sqlite3.connect(out / "archive.sqlite") as db:
+        rows = db.execute("SELECT status, message FROM evaluations WHERE source_id IS NULL").fetchall()
+    assert len(rows) == 4 and all(status == "ok" for status, _ in rows), rows
+
+
 # ------------------------------------------------------------------------------- one design
 def test_success_reads_results_and_removes_the_folder(command_model):
     """A good evaluation gives every result (extra outputs kept) and leaves no folder behind."""
@@ -179,6 +223,28 @@ def test_timeout_kills_the_whole_process_group(command_model, tmp_path):
     assert not _alive(child)
 
 
+def _helpers_left(folder: Path) -> list[int]:
+    """The helper processes recorded in folder/helpers.txt that are still alive (after a short wait)."""
+    pids = [int(line) for line in (folder / "helpers.txt").read_text().split()]
+    assert pids
+    deadline = time.monotonic() + 5
+    while any(_alive(p) for p in pids) and time.monotonic() < deadline:
+        time.sleep(0.05)
+    return [p for p in pids if _alive(p)]
+
+
+@pytest.mark.skipif(os.name != "posix", reason="process groups are POSIX")
+@pytest.mark.parametrize("mode", ["helper-ok", "helper-exit"])
+def test_helpers_of_the_program_end_with_the_evaluation(command_model, tmp_path, mode):
+    """A helper the program started (one that ignores SIGTERM) is ended with the evaluation, success or not."""
+    model = command_model()
+    start = time.monotonic()
+    outcome = model({"x": 0.5, "mode": mode})
+    assert outcome.status == ("ok" if mode == "helper-ok" else "failed"), outcome.message
+    assert time.monotonic() - start < 10
+    assert _helpers_left(tmp_path / "kept") == []
+
+
 # ------------------------------------------------------------------------------- whole runs
 def test_run_with_failing_command_model_completes_and_counts_failures(tmp_path, monkeypatch):
     """A run whose program exits non-zero, hangs, or writes bad JSON completes; each failure is stored
@@ -203,6 +269,21 @@ def test_run_with_failing_command_model_completes_and_counts_failures(tmp_path, 
     assert "not valid JSON" in by_mode["badjson"][1]
     assert all(s != "ok" for mode, s, _ in failed if mode != "ok")
     assert f"{len(failed)} evaluation(s) failed" in result.output
+
+
+@pytest.mark.skipif(os.name != "posix", reason="process groups are POSIX")
+def test_no_helper_outlives_a_run(tmp_path, monkeypatch):
+    """A run of a program that leaves a SIGTERM-proof helper behind on every design ends with none alive."""
+    folder = _case_folder(tmp_path, modes=("helper-ok", "helper-exit"), population=6, evaluations=12)
+    kept = tmp_path / "kept"
+    kept.mkdir()
+    monkeypatch.setenv("TMPDIR", str(kept))
+    monkeypatch.setattr(tempfile, "tempdir", str(kept))
+    out = tmp_path / "run"
+    result = CliRunner().invoke(main, ["run", str(folder), "--out", str(out), "--workers", "2", "--quiet"])
+    assert result.exit_code == 0, result.output
+    assert len((kept / "helpers.txt").read_text().split()) == 12
+    assert _helpers_left(kept) == []
 
 
 # ------------------------------------------------------------------------ the bundled case

@@ -4,8 +4,13 @@ from __future__ import annotations
 
 import json
 import os
+import signal
 import sqlite3
+import subprocess
+import sys
+import tempfile
 import time
+from pathlib import Path
 
 import pandas as pd
 import pytest
@@ -30,12 +35,19 @@ def evaluate(design):
         return {"cost": x, "mass": math.nan}
     if mode == "crash" and os.environ.get("TW_MAIN_PID") != str(os.getpid()):
         os._exit(3)  # kills the worker process; never the test process itself
+    if mode == "hang" or (mode.startswith("every-fifth") and int(x * 1e6) % 5 == 0):  # a helper, no answer
+        import subprocess, sys
+        helper = subprocess.Popen([sys.executable, "-c", "import time; time.sleep(60)"])
+        if os.environ.get("TW_HELPER_PIDS"):
+            open(os.path.join(os.environ["TW_HELPER_PIDS"], str(helper.pid)), "w").close()
+        time.sleep(60)
     return {"cost": x + (0.5 if mode == "heavy" else 0.0), "mass": (1 - x) ** 2 + 0.1, "label": f"x{x:.2f}"}
 '''
 
 TOML = '''
 title = "backend contract"
 model = "model.py:evaluate"
+TIMEOUT
 
 [variables]
 x = { type = "real", low = 0.0, high = 1.0 }
@@ -66,8 +78,10 @@ def main_pid():
 
 @pytest.fixture
 def case(make_case):
-    def build(modes=("ok", "heavy", "raise", "nan")):
-        return load_case(make_case(TOML.replace("MODES", json.dumps(list(modes))), MODEL))
+    def build(modes=("ok", "heavy", "raise", "nan"), timeout=None):
+        toml = TOML.replace("MODES", json.dumps(list(modes)))
+        toml = toml.replace("TIMEOUT", "" if timeout is None else f"timeout = {timeout}")
+        return load_case(make_case(toml, MODEL))
 
     return build
 
@@ -130,6 +144,84 @@ def test_a_whole_run_is_identical_on_every_backend(case, dask_cluster):
         pd.testing.assert_frame_equal(_front_table(result), _front_table(reference), obj=name)
         assert result.hypervolume == reference.hypervolume
         assert (result.n_evals, result.n_failed) == (reference.n_evals, reference.n_failed)
+
+
+def _pid(outcome) -> int:
+    return int(outcome.worker.rsplit(":", 1)[1])
+
+
+def _alive(pid: int) -> bool:
+    """True while the process exists and is not a zombie."""
+    try:
+        state = Path(f"/proc/{pid}/stat").read_text().rsplit(")", 1)[1].split()[0]
+    except FileNotFoundError:
+        return False
+    return state not in {"Z", "X"}
+
+
+def test_a_timeout_keeps_the_results_and_moves_python_models_out_of_the_process(case):
+    """Contract: with a timeout the batch gives the same outcomes in-process and in a pool of 2 as
+    without one; the model then runs in another process, and without a timeout in this one."""
+    expected = _outcomes(InProcess(), make_model(case()), BATCH)
+    guarded = make_model(case(timeout=5))
+    assert _outcomes(InProcess(), guarded, BATCH) == expected
+    with ProcessPool(2) as pool:
+        assert _outcomes(pool, guarded, BATCH) == expected
+    assert _pid(make_model(case())(BATCH[0])) == os.getpid()
+    assert _pid(guarded(BATCH[0])) != os.getpid()
+
+
+@pytest.mark.skipif(not os.path.isdir("/proc/self"), reason="reads process states from /proc")
+@pytest.mark.parametrize("backend", ["in-process", "pool"])
+def test_a_hanging_python_model_is_stopped_at_its_timeout(case, tmp_path, monkeypatch, backend):
+    """A design that hangs is recorded as timed out after about the timeout; the process that ran it and
+    the helper it started are killed, and the next designs run in a new process."""
+    monkeypatch.setenv("TW_HELPER_PIDS", str(tmp_path))
+    model = make_model(case(("ok", "hang"), timeout=1))
+    designs = [{"x": 0.1, "mode": "ok"}, {"x": 0.2, "mode": "hang"}, {"x": 0.3, "mode": "ok"},
+               {"x": 0.4, "mode": "ok"}]
+    start = time.monotonic()
+    if backend == "pool":
+        with ProcessPool(2) as pool:
+            got = dict(pool.run(model, designs))
+    else:
+        got = dict(InProcess().run(model, designs))
+    assert time.monotonic() - start < 20
+    assert [got[i].status for i in range(4)] == ["ok", "timeout", "ok", "ok"]
+    assert "no answer within the timeout of 1 s" in got[1].message and 1.0 <= got[1].duration < 5
+    assert got[3].results == _outcomes(InProcess(), make_model(case(("ok", "hang"))), designs[3:])[0][1]
+    helpers = [int(p.name) for p in tmp_path.iterdir() if p.name.isdigit()]
+    assert len(helpers) == 1
+    deadline = time.monotonic() + 5
+    while (_alive(_pid(got[1])) or _alive(helpers[0])) and time.monotonic() < deadline:
+        time.sleep(0.05)
+    assert not _alive(_pid(got[1])) and not _alive(helpers[0])
+    if backend == "in-process":
+        assert _pid(got[0]) == _pid(got[1]) != _pid(got[2]) == _pid(got[3])
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("workers", ["1", "2"])
+def test_a_run_whose_model_hangs_on_a_fifth_of_its_designs_finishes(case, tmp_path, monkeypatch, workers):
+    """40 evaluations, a fifth of the designs hang, timeout 1 s: the run finishes well under a minute
+    and records the hanging designs as timed out."""
+    monkeypatch.setenv("TW_HELPER_PIDS", str(tmp_path))
+    folder = case(("every-fifth", "every-fifth-too"), timeout=1).folder
+    out = tmp_path / "run"
+    start = time.monotonic()
+    result = CliRunner().invoke(main, ["run", str(folder), "--out", str(out), "--workers", workers,
+                                       "--evaluations", "40", "--population", "10", "--quiet"])
+    took = time.monotonic() - start
+    assert result.exit_code == 0, result.output
+    assert took < 45
+    with sqlite3.connect(out / "archive.sqlite") as db:
+        rows = db.execute("SELECT design, status FROM evaluations WHERE source_id IS NULL").fetchall()
+    assert len(rows) == 40
+    hangs = {True: [], False: []}
+    for design, status in rows:
+        hangs[int(json.loads(design)["x"] * 1e6) % 5 == 0].append(status)
+    assert len(hangs[True]) >= 4 and set(hangs[True]) == {"timeout"}
+    assert set(hangs[False]) == {"ok"}
 
 
 # ------------------------------------------------------------------------- as they complete
@@ -219,6 +311,38 @@ def test_run_with_raising_nan_and_crashing_python_model(case, tmp_path):
     assert "worker process died" in failed["crash"]
     n_failed = sum(status != "ok" for _, status, _ in rows)
     assert f"{n_failed} evaluation(s) failed" in result.output
+
+
+@pytest.mark.skipif(os.name != "posix", reason="SIGKILL and process ids as used here are POSIX")
+def test_a_killed_pool_run_leaves_no_folder_for_long(case, tmp_path, monkeypatch):
+    """kill -9 of a --workers run strands its pool folder; the next pool removes it, and only folders
+    whose owner process is gone."""
+    scratch = tmp_path / "scratch"
+    scratch.mkdir()
+    folder = case(("ok", "heavy")).folder
+    env = dict(os.environ, TMPDIR=str(scratch), TW_TEST_SLEEP="0.2")
+    run = subprocess.Popen([sys.executable, "-m", "tradewise.cli", "run", str(folder), "--out",
+                            str(tmp_path / "run"), "--workers", "2", "--evaluations", "400", "--quiet"],
+                           env=env, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+    deadline = time.monotonic() + 60
+    while not list(scratch.glob("tradewise-pool-*")) and time.monotonic() < deadline:
+        time.sleep(0.05)
+    stranded = list(scratch.glob("tradewise-pool-*"))
+    run.send_signal(signal.SIGKILL)
+    run.wait()
+    assert len(stranded) == 1 and stranded[0].is_dir()
+    alive = subprocess.Popen([sys.executable, "-c", "import time; time.sleep(60)"])
+    try:
+        others = scratch / f"tradewise-pool-{alive.pid}-busy"  # a pool of a live run, not ours to remove
+        others.mkdir()
+        monkeypatch.setattr(tempfile, "tempdir", str(scratch))
+        with ProcessPool(2) as pool:
+            assert [o.status for _, o in pool.run(make_model(case(("ok", "heavy"))), BATCH[:2])] == ["ok", "ok"]
+        assert not stranded[0].exists()
+        assert sorted(scratch.glob("tradewise-pool-*")) == [others]
+    finally:
+        alive.kill()
+        alive.wait()
 
 
 # ---------------------------------------------------------------------------------- choice

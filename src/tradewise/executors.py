@@ -82,6 +82,35 @@ def _marked_call(model: Model, design: dict[str, Any], mark: str) -> Outcome:
     return model(design)
 
 
+_MARKS_PREFIX = "tradewise-pool-"
+
+
+def _marks_folder() -> Path:
+    """A new folder for the start marks of one batch, named after this process.
+
+    A run killed with SIGKILL cannot remove its folder; the next pool to start
+    removes the folders whose owner process is gone.
+    """
+    root = Path(tempfile.gettempdir())
+    _remove_stranded_marks(root)
+    return Path(tempfile.mkdtemp(prefix=f"{_MARKS_PREFIX}{os.getpid()}-", dir=root))
+
+
+def _remove_stranded_marks(root: Path) -> None:
+    if os.name != "posix":
+        return  # no cheap, harmless test of whether a process id is alive
+    for folder in root.glob(f"{_MARKS_PREFIX}*-*"):
+        owner = folder.name[len(_MARKS_PREFIX):].split("-", 1)[0]
+        if not owner.isdigit() or not folder.is_dir() or folder.is_symlink():
+            continue
+        try:
+            os.kill(int(owner), 0)
+        except ProcessLookupError:
+            shutil.rmtree(folder, ignore_errors=True)
+        except (PermissionError, OverflowError):
+            continue  # another user's live process, or not a process id at all
+
+
 class ProcessPool(InProcess):
     """Evaluate designs in ``workers`` local processes; results arrive as they complete.
 
@@ -120,7 +149,7 @@ class ProcessPool(InProcess):
 
     def run(self, model: Model, designs: Sequence[dict[str, Any]]) -> Iterator[tuple[int, Outcome]]:
         """Yield ``(position, outcome)`` for each design as it completes."""
-        marks = Path(tempfile.mkdtemp(prefix="tradewise-pool-"))
+        marks = _marks_folder()
         try:
             yield from self._run(model, designs, marks)
         finally:

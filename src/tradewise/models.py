@@ -2,11 +2,12 @@
 
 from __future__ import annotations
 
+import atexit
 import contextlib
-import importlib.util
 import json
-import math
 import os
+import queue
+import re
 import shutil
 import signal
 import subprocess
@@ -14,13 +15,14 @@ import sys
 import tempfile
 import threading
 import time
-import traceback
 from dataclasses import dataclass, field
 from pathlib import Path
 from typing import Any
 
 import numpy as np
 
+from tradewise import _model_host as _host
+from tradewise._model_host import check_results
 from tradewise.case import Case
 from tradewise.errors import CaseError, ModelError
 
@@ -51,72 +53,26 @@ class Outcome:
         return self.status == "ok"
 
 
-_WORKER: str | None = None
-
-
-def _forget_worker() -> None:
-    global _WORKER
-    _WORKER = None
-
-
-if hasattr(os, "register_at_fork"):
-    os.register_at_fork(after_in_child=_forget_worker)
-
-
-def _worker_name() -> str:
-    """Host and process id of this worker (worked out once per process)."""
-    global _WORKER
-    if _WORKER is None:
-        host = os.uname().nodename if hasattr(os, "uname") else "local"
-        _WORKER = f"{host}:{os.getpid()}"
-    return _WORKER
-
-
-def check_results(raw: Any, required: list[str]) -> tuple[dict[str, Any], str]:
-    """Check a model's answer; return the cleaned results and '' or an error message.
-
-    Every required name must be present with a finite number; other keys are
-    kept as outputs when they are numbers, text or booleans (non-finite
-    numbers in outputs become ``None``).
-    """
-    if not isinstance(raw, dict):
-        return {}, f"model returned {type(raw).__name__}, expected a dict of results"
-    results: dict[str, Any] = {}
-    for name in required:
-        if name not in raw:
-            return {}, f"model result has no {name!r} (got keys: {', '.join(map(str, raw)) or 'none'})"
-        value = raw[name]
-        if isinstance(value, np.generic):
-            value = value.item()
-        if isinstance(value, bool) or not isinstance(value, int | float):
-            return {}, f"model result {name!r} is {value!r}, expected a number"
-        if not math.isfinite(value):
-            return {}, f"model result {name!r} is {value!r}, expected a finite number"
-        results[name] = float(value)
-    for key, value in raw.items():
-        if key in results:
-            continue
-        if isinstance(value, np.generic):
-            value = value.item()
-        if isinstance(value, float) and not math.isfinite(value):
-            value = None
-        if value is None or isinstance(value, bool | int | float | str):
-            results[str(key)] = value
-    return results, ""
-
-
 class PythonModel:
     """A model given as ``evaluate(design: dict) -> dict`` in a Python file beside the case.
 
     The function is imported lazily, once per process, so the object pickles
     cheaply to worker processes.
+
+    Without a ``timeout`` the function runs in the calling process. With one,
+    it runs in a separate Python process of this process's own (started once
+    and reused, since a hanging function cannot be stopped inside a process):
+    a design that takes longer than the timeout is recorded as ``"timeout"``,
+    that process and everything it started are killed, and the next design
+    gets a new one. Its output to stdout goes to stderr there.
     """
 
     def __init__(self, case: Case) -> None:
         module, function = case.model.split(":")
-        self.file = str(case.folder / module)
+        self.file = os.path.abspath(case.folder / module)
         self.function = function
         self.required = case.objective_names + case.constraint_names
+        self.timeout = case.timeout
         self._callable = None
 
     def __getstate__(self) -> dict[str, Any]:
@@ -124,64 +80,165 @@ class PythonModel:
         state["_callable"] = None
         return state
 
+    def __setstate__(self, state: dict[str, Any]) -> None:
+        state.setdefault("timeout", None)
+        self.__dict__.update(state)
+
     def load(self):
         """Import the model file and return its function (ModelError when that fails)."""
         if self._callable is None:
-            self._callable = _import_function(self.file, self.function)
+            try:
+                self._callable = _host.import_function(self.file, self.function)
+            except _host.ImportProblem as exc:
+                raise ModelError(str(exc)) from None
         return self._callable
 
     def __call__(self, design: dict[str, Any]) -> Outcome:
-        function = self.load()
-        start = time.perf_counter()
+        if self.timeout is not None:
+            return _evaluate_guarded(self.file, self.function, self.required, self.timeout, design)
+        return Outcome(**_host.evaluate(self.load(), design, self.required))
+
+
+# ------------------------------------------------------------------ Python models under a timeout
+# The separate process ("host") runs tradewise/_model_host.py and speaks JSON lines over its stdin
+# and stdout: never pickle, so nothing it sends back can make this process run code.
+_HOST_START = 60.0  # seconds a host may take to import the model, on top of the timeout
+_IDLE_HOSTS: dict[tuple[str, str], list[_Host]] = {}
+_ALL_HOSTS: set[_Host] = set()
+_HOSTS_LOCK = threading.Lock()
+
+
+class _HostGone(Exception):
+    """The host process ended or did not answer in time."""
+
+
+class _Host:
+    """One Python process that imports a model function and evaluates designs sent to it."""
+
+    def __init__(self, file: str, function: str, required: list[str], start_within: float) -> None:
+        self.proc = subprocess.Popen(
+            [sys.executable, _host.__file__, file, function, json.dumps(required)],
+            stdin=subprocess.PIPE, stdout=subprocess.PIPE, **_NEW_GROUP,
+        )
+        self.name = ""
+        self._lines: queue.Queue[bytes | None] = queue.Queue()
+        threading.Thread(target=self._read, name="tradewise-model-host", daemon=True).start()
+        with _HOSTS_LOCK:
+            _ALL_HOSTS.add(self)
+        answer = self.receive(start_within)
+        if "error" in answer:
+            self.stop()
+            raise ModelError(answer["error"])
+        self.name = str(answer.get("worker", ""))
+
+    def _read(self) -> None:
+        for line in self.proc.stdout:
+            self._lines.put(line)
+        self._lines.put(None)
+
+    def receive(self, within: float) -> dict[str, Any]:
         try:
-            raw = function(dict(design))
-        except (Exception, SystemExit) as exc:  # the designer's model may raise or exit; record it
-            where = _innermost_frame(exc)
-            message = f"{type(exc).__name__}: {exc}{where}"
-            return Outcome("failed", {}, message, time.perf_counter() - start, _worker_name())
-        duration = time.perf_counter() - start
-        results, problem = check_results(raw, self.required)
-        if problem:
-            return Outcome("failed", results, problem, duration, _worker_name())
-        return Outcome("ok", results, "", duration, _worker_name())
+            line = self._lines.get(timeout=within)
+        except queue.Empty:
+            raise _HostGone("timeout") from None
+        if line is None:
+            raise _HostGone("ended")
+        try:
+            answer = json.loads(line)
+        except ValueError:
+            answer = None
+        if not isinstance(answer, dict):
+            raise _HostGone("garbled")
+        return answer
+
+    def send(self, line: bytes) -> None:
+        try:
+            self.proc.stdin.write(line)
+            self.proc.stdin.flush()
+        except (BrokenPipeError, OSError):
+            raise _HostGone("ended") from None
+
+    def how_it_ended(self) -> str:
+        try:
+            code = self.proc.wait(timeout=1.0)
+        except subprocess.TimeoutExpired:
+            return "stopped answering"
+        if code < 0:
+            return f"was killed by signal {_signal_name(-code)}"
+        return f"exited with status {code}"
+
+    def stop(self) -> None:
+        """Kill the host and everything it started, and reap it."""
+        _kill_group(self.proc)
+        with contextlib.suppress(OSError):
+            self.proc.stdin.close()
+        self.proc.wait()
+        with _HOSTS_LOCK:
+            _ALL_HOSTS.discard(self)
 
 
-_IMPORTED: dict[tuple[str, str], Any] = {}
-_IMPORT_LOCK = threading.Lock()
-
-
-def _import_function(file: str, function: str):
+def _evaluate_guarded(file: str, function: str, required: list[str], timeout: float,
+                      design: dict[str, Any]) -> Outcome:
+    """Evaluate one design in a host process; past ``timeout`` seconds the host is killed."""
+    try:
+        request = json.dumps({"design": design}, default=_plain, allow_nan=False).encode() + b"\n"
+    except (TypeError, ValueError) as exc:
+        return Outcome("failed", {}, f"the design cannot be sent to the model's process: {exc}", 0.0, _host.worker_name())
     key = (file, function)
-    with _IMPORT_LOCK:
-        if key in _IMPORTED:
-            return _IMPORTED[key]
-        folder = str(Path(file).parent)
-        name = f"tradewise_model_{abs(hash(file)):x}"
-        spec = importlib.util.spec_from_file_location(name, file)
-        if spec is None or spec.loader is None:
-            raise ModelError(f"{file}: cannot be imported as a Python module")
-        module = importlib.util.module_from_spec(spec)
-        sys.path.insert(0, folder)
+    with _HOSTS_LOCK:
+        idle = _IDLE_HOSTS.setdefault(key, [])
+        host = idle.pop() if idle else None
+    start = time.perf_counter()
+    if host is None:
         try:
-            spec.loader.exec_module(module)
-        except Exception as exc:
-            raise ModelError(f"{file}: importing the model failed: {type(exc).__name__}: {exc}") from None
-        finally:
-            if sys.path and sys.path[0] == folder:
-                sys.path.pop(0)
-        target = getattr(module, function, None)
-        if not callable(target):
-            raise ModelError(f"{file}: {function!r} is not a function")
-        _IMPORTED[key] = target
-        return target
+            host = _Host(file, function, required, _HOST_START + timeout)
+        except _HostGone:
+            return Outcome("failed", {}, f"the process for the model did not start within {_HOST_START + timeout:g} s "
+                                         "(is importing the model file that slow?)", time.perf_counter() - start,
+                           _host.worker_name())
+    start = time.perf_counter()
+    try:
+        host.send(request)
+        answer = host.receive(timeout)
+    except _HostGone as gone:
+        duration = time.perf_counter() - start
+        if str(gone) == "timeout":
+            host.stop()
+            return Outcome("timeout", {}, f"no answer within the timeout of {timeout:g} s; the model's process "
+                                          "was stopped and a new one takes the next design", duration, host.name)
+        how = host.how_it_ended()
+        host.stop()
+        return Outcome("failed", {}, f"the model's process {how} while evaluating this design "
+                                     "(a crash, os._exit or the out-of-memory killer)", duration, host.name)
+    except BaseException:
+        host.stop()  # interrupted: the host may be busy with this design; do not leave it running
+        raise
+    with _HOSTS_LOCK:
+        _IDLE_HOSTS.setdefault(key, []).append(host)
+    return Outcome(str(answer.get("status", "failed")), dict(answer.get("results") or {}),
+                   str(answer.get("message", "")), float(answer.get("duration", 0.0)), str(answer.get("worker", "")))
 
 
-def _innermost_frame(exc: BaseException) -> str:
-    frames = traceback.extract_tb(exc.__traceback__)
-    if not frames:
-        return ""
-    last = frames[-1]
-    return f" (at {Path(last.filename).name} line {last.lineno})"
+def stop_model_processes() -> None:
+    """Kill every host process this process started (at exit, or when its own parent has gone)."""
+    with _HOSTS_LOCK:
+        hosts = list(_ALL_HOSTS)
+        _IDLE_HOSTS.clear()
+    for host in hosts:
+        host.stop()
+
+
+def _forget_hosts() -> None:
+    """After a fork: the hosts belong to the parent; this process starts its own when it needs them."""
+    global _HOSTS_LOCK
+    _HOSTS_LOCK = threading.Lock()
+    _IDLE_HOSTS.clear()
+    _ALL_HOSTS.clear()
+
+
+if hasattr(os, "register_at_fork"):
+    os.register_at_fork(after_in_child=_forget_hosts)
+atexit.register(stop_model_processes)
 
 
 class CommandModel:
@@ -194,8 +251,10 @@ class CommandModel:
     ``stdout.txt`` and ``stderr.txt``. The folder is removed when the
     evaluation succeeds and kept when it fails; its path is in the message.
 
-    A ``timeout`` (seconds) kills the program's whole process group, so
-    helper processes it started stop too; the outcome is ``"timeout"``. A
+    The program leads a process group of its own, and the whole group ends
+    with every evaluation, success or failure: helpers it started and left
+    running get SIGTERM, then SIGKILL after half a second. A ``timeout``
+    (seconds) ends the group the same way; the outcome is ``"timeout"``. A
     non-zero exit status is recorded with the tail of the program's stderr.
 
     Arguments that name a file in the case folder are made absolute, since
@@ -209,20 +268,21 @@ class CommandModel:
     def __init__(self, case: Case, *, keep_root: str | Path | None = None) -> None:
         if not case.command:
             raise CaseError(f"{case.path}: command: got {case.command!r}, expected a list of arguments")
-        self.folder = str(case.folder)
-        self.command = [
-            str(case.folder / a) if "{" not in a and (case.folder / a).is_file() else a for a in case.command
-        ]
+        # The program runs in a folder of its own, so a case given by a relative path (`run my-case/`,
+        # `run .`) must still name its files by where they are, not by where the run started.
+        folder = Path(os.path.abspath(case.folder))
+        self.folder = str(folder)
+        self.command = [str(folder / a) if "{" not in a and (folder / a).is_file() else a for a in case.command]
         self.timeout = case.timeout
         self.required = case.objective_names + case.constraint_names
         self.keep_root = str(keep_root) if keep_root else None
 
     def arguments(self, input_file: str | Path, output_file: str | Path) -> list[str]:
         """The argument list for one evaluation, placeholders filled in."""
-        args = [
-            a.replace("{input}", str(input_file)).replace("{output}", str(output_file)).replace("{case}", self.folder)
-            for a in self.command
-        ]
+        values = {"input": str(input_file), "output": str(output_file), "case": self.folder}
+        # One pass per argument: a filled-in path that itself contains "{output}" (a TMPDIR of that
+        # name) is never substituted again.
+        args = [_PLACEHOLDER.sub(lambda m: values[m.group(1)], a) for a in self.command]
         if args[0] in _PYTHON_NAMES and sys.executable:
             args[0] = sys.executable
         return args
@@ -230,7 +290,7 @@ class CommandModel:
     def __call__(self, design: dict[str, Any]) -> Outcome:
         work = Path(tempfile.mkdtemp(prefix="tradewise-eval-", dir=self.keep_root))
         input_file, output_file = work / "design.json", work / "results.json"
-        worker = _worker_name()
+        worker = _host.worker_name()
 
         def failed(text: str, duration: float = 0.0, status: str = "failed") -> Outcome:
             return Outcome(status, {}, f"{text} (kept {work})", duration, worker)
@@ -252,8 +312,7 @@ class CommandModel:
             try:
                 proc.wait(timeout=self.timeout)
             except subprocess.TimeoutExpired:
-                _kill_group(proc)
-                proc.wait()
+                _end_group(proc)
                 return failed(
                     f"no answer within the timeout of {self.timeout:g} s; the program and its process group "
                     "were stopped", time.perf_counter() - start, "timeout",
@@ -267,6 +326,9 @@ class CommandModel:
             finally:
                 _RUNNING.discard(proc)
         duration = time.perf_counter() - start
+        # Helpers the program started may outlive it (a licence daemon, a forked solver); they end
+        # with the evaluation, whatever its result.
+        _end_group(proc)
         if proc.returncode != 0:
             tail = _tail(work / "stderr.txt")
             how = (f"was killed by signal {_signal_name(-proc.returncode)}" if proc.returncode < 0
@@ -294,6 +356,7 @@ class CommandModel:
 
 
 _PYTHON_NAMES = frozenset({"python", "python3"})
+_PLACEHOLDER = re.compile(r"\{(input|output|case)\}")
 _RUNNING: set[subprocess.Popen] = set()  # programs of this process now running, for stop_programs()
 _NEW_GROUP: dict[str, Any] = (
     {"start_new_session": True} if os.name == "posix"
@@ -309,6 +372,59 @@ def stop_programs() -> None:
     """
     for proc in list(_RUNNING):
         _kill_group(proc)
+    stop_model_processes()
+
+
+_GRACE = 0.5  # seconds a program's process group gets between SIGTERM and SIGKILL
+
+
+def _end_group(proc: subprocess.Popen, grace: float = _GRACE) -> None:
+    """End the program and every process of its group: SIGTERM, ``grace`` seconds, then SIGKILL.
+
+    Returns at once when the program has exited and left nothing behind (the
+    usual case); otherwise waits only as long as something is still running.
+    """
+    if os.name != "posix":
+        with contextlib.suppress(OSError):
+            proc.kill()
+        proc.wait()
+        return
+    group = proc.pid  # the program leads a session, hence a group, of its own
+    if proc.poll() is not None and not _group_running(group):
+        return
+    with contextlib.suppress(ProcessLookupError, PermissionError):
+        os.killpg(group, signal.SIGTERM)
+    deadline = time.monotonic() + grace
+    while time.monotonic() < deadline:
+        if proc.poll() is not None and not _group_running(group):
+            return
+        time.sleep(0.01)
+    with contextlib.suppress(ProcessLookupError, PermissionError):
+        os.killpg(group, signal.SIGKILL)
+    proc.wait()
+
+
+def _group_running(group: int) -> bool:
+    """Whether a process of ``group`` still runs (zombies left to an init that never reaps do not count)."""
+    try:
+        os.killpg(group, 0)
+    except ProcessLookupError:
+        return False
+    except PermissionError:
+        return False  # the id now belongs to another user's processes, not to our program
+    if not os.path.isdir("/proc/self"):
+        return True
+    for entry in os.scandir("/proc"):
+        if not entry.name.isdigit():
+            continue
+        try:
+            with open(f"/proc/{entry.name}/stat", "rb") as handle:
+                fields = handle.read().rsplit(b")", 1)[1].split()
+        except (OSError, IndexError):
+            continue
+        if int(fields[2]) == group and fields[0] not in (b"Z", b"X"):
+            return True
+    return False
 
 
 def _kill_group(proc: subprocess.Popen) -> None:
