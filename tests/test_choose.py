@@ -5,6 +5,7 @@ from __future__ import annotations
 
 import warnings
 
+import moocore
 import numpy as np
 import pandas as pd
 import pytest
@@ -658,3 +659,21 @@ def test_sampled_tradeoff_bounds_the_exact_one():
         sampled = tradeoff_measure(points, exact_up_to=100)
         assert np.all(sampled >= exact - 1e-12)
         assert exact[np.nanargmax(sampled)] == pytest.approx(np.nanmax(exact))
+
+
+@pytest.mark.parametrize("n", [200, 20_000])
+@pytest.mark.parametrize("noise", [0.0, 1e-3])
+def test_knee_count_does_not_grow_with_density_or_noise(n, noise):
+    """DEB2DK with K = 2 (Branke et al. 2004) has its two knees whether sampled at 200 or 20,000 points,
+    with or without Gaussian noise of 0.1 % of the range on each objective: knees closer than
+    KNEE_SEPARATION are one region, and a knee must bulge most within that radius."""
+    points = deb2dk(2, n)
+    if noise:
+        rng = np.random.default_rng(5)
+        points = points + rng.normal(0.0, noise * np.ptp(points, axis=0), size=points.shape)
+        points = points[moocore.is_nondominated(points)]
+    front = make_front(points)
+    knees = find_knees(front).knees
+    assert len(knees) == 2
+    found = sorted(tuple(row_values(front, r)) for r in knees)
+    assert np.allclose(found, [(2.08, 4.59), (4.59, 2.08)], atol=0.1)

@@ -22,6 +22,7 @@ __all__ = [
     "WEIGHTED_METHODS",
     "NonConvexWarning",
     "KNEE_MARGIN",
+    "KNEE_SEPARATION",
     "KneeVerdict",
     "find_knees",
     "Limit",
@@ -73,6 +74,8 @@ _ASF_RHO = 1e-6
 #: How far (normalised objectives) a design must lie on the ideal side of the plane through
 #: the extreme designs to count as a knee. Our own choice: a bulge of 2 % of every range.
 KNEE_MARGIN = 0.02
+#: Knees closer than this (Euclidean, normalised objectives) are one knee region; the strongest stands.
+KNEE_SEPARATION = 0.2
 
 
 class NonConvexWarning(UserWarning):
@@ -840,7 +843,10 @@ def find_knees(front: Front, *, limits: Iterable[Limit | str] = ()) -> KneeVerdi
     :func:`knee_distance`), (2) bulges more than its neighbours (its distance is
     the largest among its ``2 M`` nearest designs) and (3) is best in no
     objective: an extreme or a design on the edge of the front is a corner, not
-    a knee. A front that is flat or bulges away from the ideal point has no
+    a knee. A knee must also bulge most of all designs within
+    :data:`KNEE_SEPARATION` of it, and of knees closer than that only the
+    strongest is kept: one knee a region, however densely or noisily the
+    front is sampled. A front that is flat or bulges away from the ideal point has no
     knee; the design closest to the ideal point (Euclidean distance in
     normalised objectives, compromise programming) is offered instead.
 
@@ -892,7 +898,18 @@ def _knee_positions(scaled: np.ndarray) -> np.ndarray:
     bulges = distance >= distance[nearest[:, 1:]].max(axis=1)
     inside = (scaled > 1e-12).all(axis=1)  # best in no objective
     knees = np.flatnonzero(bulges & inside & (distance >= KNEE_MARGIN))
-    return knees[np.argsort(-distance[knees], kind="stable")]
+    knees = knees[np.argsort(-distance[knees], kind="stable")]
+    # One knee a region: a weaker local bulge within KNEE_SEPARATION of a stronger knee is the same
+    # knee seen through noise or dense sampling, so the count does not grow with the number of designs.
+    tree = cKDTree(scaled)
+    kept: list[int] = []
+    for k in knees:
+        around = tree.query_ball_point(scaled[k], KNEE_SEPARATION)
+        if distance[around].max() <= distance[k] and all(
+            np.linalg.norm(scaled[k] - scaled[j]) >= KNEE_SEPARATION for j in kept
+        ):
+            kept.append(int(k))
+    return np.asarray(kept, dtype=int)
 
 
 def choose(

@@ -189,10 +189,12 @@ def _objectives_of(front: Front) -> tuple[Objective, ...]:
 def _default_knee(front: Front) -> int | None:
     if len(front) < 3:
         return None
+    # Only a real knee is marked as one: on a front without a knee nothing is called a knee.
     try:
-        return int(_choose.choose(front, "knee")[0])
+        knees = _choose.find_knees(front).knees
     except (DataError, ValueError, IndexError):
         return None
+    return int(knees[0]) if knees else None
 
 
 def _check_row(front: Front, row: Any, what: str) -> int:
