@@ -6,15 +6,18 @@ import functools
 import importlib.util
 import math
 import time
+from pathlib import Path
 
 import numpy as np
 import pytest
 from scipy.integrate import solve_bvp
 
 import tradewise
+import tradewise.case
 from tradewise.case import bundled_cases, load_case
 
 NAMES = ("cargo-bike-pack", "footbridge-girder", "heat-sink")
+ROOT = Path(__file__).resolve().parent.parent
 
 # An interior design of each case, used for the load, output and perturbation checks.
 BASE_DESIGNS = {
@@ -50,6 +53,59 @@ def model_of(name: str):
 def test_all_three_cases_are_bundled():
     """The three cases are found by name among the bundled cases."""
     assert set(NAMES) <= set(bundled_cases())
+
+
+# ------------------------------------------------------------------------- where they are found
+def _tree(root: Path, files: list[str]) -> Path:
+    """Make the files (empty, or folders where the name ends in /) under root; give the case.py path."""
+    for name in files:
+        target = root / name
+        if name.endswith("/"):
+            target.mkdir(parents=True, exist_ok=True)
+        else:
+            target.parent.mkdir(parents=True, exist_ok=True)
+            target.write_text("", encoding="utf-8")
+    return root / "src" / "tradewise" / "case.py"
+
+
+def test_a_checkout_lists_the_top_level_cases_folder():
+    """In this checkout the bundled cases are exactly the case folders of the top-level cases/."""
+    on_disk = {p.parent.name: p.resolve() for p in (ROOT / "cases").glob("*/case.toml")}
+    assert set(NAMES) | {"pipe-insulation"} <= set(on_disk)
+    assert {name: path.resolve() for name, path in bundled_cases().items()} == on_disk
+
+
+def test_a_leftover_package_cases_folder_does_not_hide_the_checkout_cases(tmp_path, monkeypatch):
+    """A src/tradewise/cases/ left behind by an older checkout, holding only __pycache__ folders,
+    does not hide the repository's cases/."""
+    fake = _tree(
+        tmp_path,
+        [
+            "pyproject.toml",
+            "cases/heat-sink/case.toml",
+            "src/tradewise/cases/heat-sink/__pycache__/",
+        ],
+    )
+    monkeypatch.setattr(tradewise.case, "__file__", str(fake))
+    assert bundled_cases() == {"heat-sink": tmp_path / "cases" / "heat-sink" / "case.toml"}
+
+
+def test_an_installed_package_reads_its_own_cases_only(tmp_path, monkeypatch):
+    """Installed, the cases inside the package are used, and a cases/ folder two levels up that is
+    not a tradewise checkout (no pyproject.toml) is never read."""
+    site = tmp_path / "lib" / "site-packages"
+    _tree(
+        tmp_path,
+        ["lib/cases/stray/case.toml", "lib/site-packages/tradewise/cases/heat-sink/case.toml"],
+    )
+    installed = site / "tradewise" / "case.py"
+    monkeypatch.setattr(tradewise.case, "__file__", str(installed))
+    assert bundled_cases() == {
+        "heat-sink": site / "tradewise" / "cases" / "heat-sink" / "case.toml"
+    }
+    for leftover in (site / "tradewise" / "cases" / "heat-sink").iterdir():
+        leftover.unlink()
+    assert bundled_cases() == {}
 
 
 @pytest.mark.parametrize("name", NAMES)
@@ -389,7 +445,6 @@ def test_heat_sink_overlapping_fins_stay_finite():
 @pytest.mark.parametrize("name", NAMES)
 def test_default_search_gives_a_broad_front(name):
     """The case's own [search] settings on 2 workers end within a minute with >= 15 front designs and a real trade-off."""
-
 
     case = load_case(name)
     start = time.perf_counter()

@@ -260,11 +260,18 @@ class Case:
 
 def bundled_cases() -> dict[str, Path]:
     """Map the name of every case shipped with tradewise to its ``case.toml``."""
-    # Installed from a wheel they sit inside the package; in a source checkout (and an editable
-    # install) they are the repository's top-level cases/ folder.
-    for root in (Path(__file__).parent / "cases", Path(__file__).resolve().parents[2] / "cases"):
-        if root.is_dir():
-            return {p.parent.name: p for p in sorted(root.glob("*/case.toml"))}
+    # Installed from a wheel they sit inside the package (pyproject's force-include); in a source
+    # checkout and an editable install they are the repository's top-level cases/ folder. A folder
+    # without a case.toml does not count: a checkout from before the move keeps an untracked
+    # src/tradewise/cases/ of __pycache__ folders, which must not hide the repository's cases.
+    repository = Path(__file__).resolve().parents[2]
+    roots = [Path(__file__).parent / "cases"]
+    if (repository / "pyproject.toml").is_file():
+        roots.append(repository / "cases")
+    for root in roots:
+        found = sorted(root.glob("*/case.toml"))
+        if found:
+            return {p.parent.name: p for p in found}
     return {}
 
 
