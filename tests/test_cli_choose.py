@@ -224,3 +224,27 @@ def test_pick_plain_csv_without_objectives_says_how(table):
     result = run("pick", table)
     assert result.exit_code == 2
     assert "--min/--max" in result.output and result.output.strip().count("\n") == 0
+
+
+def test_pick_says_plainly_when_a_front_has_no_knee(tmp_path):
+    """DEB3DK with K = 2 (Branke, Deb, Dierolf, Osswald 2004; cosine coefficient 1) bulges away from the
+    plane through its extremes: `front` then `pick` through the command line say it has no knee and offer
+    the design closest to the ideal point, never presenting the corner (0, 0, 6.5) as the knee."""
+    import numpy as np
+
+    from test_choose import deb3dk
+
+    points = deb3dk(2, n=41)
+    table = tmp_path / "deb3dk.csv"
+    pd.DataFrame(points, columns=["f1", "f2", "f3"]).to_csv(table, index=False)
+    runner = CliRunner()
+    made = runner.invoke(main, ["front", str(table), "--min", "f1", "--min", "f2", "--min", "f3",
+                                "--out", str(tmp_path / "front.csv")])
+    assert made.exit_code == 0, made.output
+    picked = runner.invoke(main, ["pick", str(tmp_path / "front.csv"), "--method", "knee"])
+    assert picked.exit_code == 0, picked.output
+    assert "front has no knee" in picked.output
+    front = pd.read_csv(tmp_path / "front.csv")
+    first = picked.output.split("Choice 1: row ")[1].split()[0]
+    chosen = front.iloc[int(first) - 1][["f1", "f2", "f3"]].to_numpy(dtype=float)
+    assert not np.allclose(np.sort(chosen), [0.0, 0.0, 6.5], atol=0.2)
