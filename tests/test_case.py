@@ -39,22 +39,57 @@ def test_hash_follows_the_model(make_case):
 BAD = [
     ("title = 'x'\n[variables\n", "TOML syntax error", "line 2"),
     (GOOD_TOML + "\n[serch]\npopulation = 3\n", "unknown key 'serch'", "did you mean 'search'"),
-    (GOOD_TOML.replace("low = 0.0, high = 1.0", "low = 2.0, high = 1.0"), "[variables] x", "must be below"),
-    (GOOD_TOML.replace('type = "real", low = 0.0, high = 1.0', 'type = "choice", options = []'),
-     "[variables] x", "non-empty list"),
-    (GOOD_TOML.replace('type = "real", low = 0.0, high = 1.0', 'type = "choice", options = ["a", "a"]'),
-     "[variables] x", "'a' is repeated"),
+    (
+        GOOD_TOML.replace("low = 0.0, high = 1.0", "low = 2.0, high = 1.0"),
+        "[variables] x",
+        "must be below",
+    ),
+    (
+        GOOD_TOML.replace('type = "real", low = 0.0, high = 1.0', 'type = "choice", options = []'),
+        "[variables] x",
+        "non-empty list",
+    ),
+    (
+        GOOD_TOML.replace(
+            'type = "real", low = 0.0, high = 1.0', 'type = "choice", options = ["a", "a"]'
+        ),
+        "[variables] x",
+        "'a' is repeated",
+    ),
     (GOOD_TOML.replace('type = "real"', 'type = "reel"'), "[variables] x", "did you mean 'real'"),
-    (GOOD_TOML.replace('unit = "EUR"', 'unit = "EUR", lo = 1'), "[objectives] cost", "unknown key 'lo'"),
-    (GOOD_TOML + "\n[constraints]\ncost = { max = 3 }\n", "[constraints] cost", "already used in [objectives]"),
-    (GOOD_TOML.replace('goal = "min", unit = "EUR"', 'goal = "minimise", unit = "EUR"'),
-     "[objectives] cost", "allowed: min, max"),
+    (
+        GOOD_TOML.replace('unit = "EUR"', 'unit = "EUR", lo = 1'),
+        "[objectives] cost",
+        "unknown key 'lo'",
+    ),
+    (
+        GOOD_TOML + "\n[constraints]\ncost = { max = 3 }\n",
+        "[constraints] cost",
+        "already used in [objectives]",
+    ),
+    (
+        GOOD_TOML.replace('goal = "min", unit = "EUR"', 'goal = "minimise", unit = "EUR"'),
+        "[objectives] cost",
+        "allowed: min, max",
+    ),
     (GOOD_TOML.replace('mass = { goal = "min", unit = "kg" }', ""), "[objectives]", "at least two"),
-    (GOOD_TOML.replace("model.py:evaluate", "nomodel.py:evaluate"), "case.toml", "'nomodel.py' not found"),
-    (GOOD_TOML.replace("model.py:evaluate", "model.py:evaluat"), "case.toml", "did you mean 'evaluate'"),
+    (
+        GOOD_TOML.replace("model.py:evaluate", "nomodel.py:evaluate"),
+        "case.toml",
+        "'nomodel.py' not found",
+    ),
+    (
+        GOOD_TOML.replace("model.py:evaluate", "model.py:evaluat"),
+        "case.toml",
+        "did you mean 'evaluate'",
+    ),
     (GOOD_TOML + "\n[search]\npopulation = 2\n", "[search] population", "at least 4"),
     (GOOD_TOML.replace("x = {", "status = {"), "[variables] status", "reserved"),
-    (GOOD_TOML + "\n[constraints]\ngap = { unit = 'mm' }\n", "[constraints] gap", "needs 'min', 'max'"),
+    (
+        GOOD_TOML + "\n[constraints]\ngap = { unit = 'mm' }\n",
+        "[constraints] gap",
+        "needs 'min', 'max'",
+    ),
 ]
 
 
@@ -98,8 +133,10 @@ def test_with_search_overrides_and_checks():
 @pytest.mark.parametrize("low, high", [("-1.7e308", "1.7e308"), ("-1e308", "1e308")])
 def test_range_too_wide_for_a_float_is_refused(make_case, low, high):
     """Bounds whose span overflows a float (high - low is inf) are refused at load, naming the variable."""
-    toml = GOOD_TOML.replace("x = { type = \"real\", low = 0.0, high = 1.0 }",
-                             f"x = {{ type = \"real\", low = {low}, high = {high} }}")
+    toml = GOOD_TOML.replace(
+        'x = { type = "real", low = 0.0, high = 1.0 }',
+        f'x = {{ type = "real", low = {low}, high = {high} }}',
+    )
     with pytest.raises(CaseError, match=r"\[variables\] x: the range .* too wide") as caught:
         load_case(make_case(toml=toml))
     assert "\n" not in str(caught.value)
@@ -111,7 +148,9 @@ def test_wide_but_finite_range_is_accepted(make_case):
     assert load_case(make_case(toml=toml)).variables[0].high == 1e308
 
 
-@pytest.mark.parametrize("model", ["../x.py:evaluate", "../../x.py:evaluate", "sub/../../x.py:evaluate"])
+@pytest.mark.parametrize(
+    "model", ["../x.py:evaluate", "../../x.py:evaluate", "sub/../../x.py:evaluate"]
+)
 def test_model_outside_the_case_folder_is_refused(make_case, tmp_path, model):
     """A model path with '..' is refused even when the file exists there: the model lives in the case folder."""
     (tmp_path / "x.py").write_text("def evaluate(d):\n    return {}\n", encoding="utf-8")
@@ -124,7 +163,11 @@ def test_absolute_model_path_is_refused(make_case, tmp_path):
     """An absolute model path is refused even though the file exists."""
     other = tmp_path / "elsewhere.py"
     other.write_text("def evaluate(d):\n    return {}\n", encoding="utf-8")
-    folder = make_case(toml=GOOD_TOML.replace('model = "model.py:evaluate"', f'model = "{other.as_posix()}:evaluate"'))
+    folder = make_case(
+        toml=GOOD_TOML.replace(
+            'model = "model.py:evaluate"', f'model = "{other.as_posix()}:evaluate"'
+        )
+    )
     with pytest.raises(CaseError, match="must be a path inside the case folder"):
         load_case(folder)
 
@@ -134,7 +177,9 @@ def test_model_through_a_link_out_of_the_folder_is_refused(make_case, tmp_path):
     outside = tmp_path / "outside"
     outside.mkdir()
     (outside / "model.py").write_text("def evaluate(d):\n    return {}\n", encoding="utf-8")
-    folder = make_case(toml=GOOD_TOML.replace('model = "model.py:evaluate"', 'model = "lib/model.py:evaluate"'))
+    folder = make_case(
+        toml=GOOD_TOML.replace('model = "model.py:evaluate"', 'model = "lib/model.py:evaluate"')
+    )
     (folder / "lib").symlink_to(outside, target_is_directory=True)
     with pytest.raises(CaseError, match="leads outside the case folder"):
         load_case(folder)
@@ -144,7 +189,9 @@ def test_model_in_a_subfolder_is_used(make_case):
     """A model in a subfolder of the case folder loads and answers (the rule allows subfolders)."""
     from tradewise.models import make_model
 
-    folder = make_case(toml=GOOD_TOML.replace('model = "model.py:evaluate"', 'model = "lib/model.py:evaluate"'))
+    folder = make_case(
+        toml=GOOD_TOML.replace('model = "model.py:evaluate"', 'model = "lib/model.py:evaluate"')
+    )
     (folder / "lib").mkdir()
     (folder / "model.py").rename(folder / "lib" / "model.py")
     case = load_case(folder)
@@ -154,7 +201,9 @@ def test_model_in_a_subfolder_is_used(make_case):
 
 def test_missing_model_message_names_the_case_folder(make_case):
     """A missing model file is reported as not found in the case folder."""
-    folder = make_case(toml=GOOD_TOML.replace('model = "model.py:evaluate"', 'model = "nothere.py:evaluate"'))
+    folder = make_case(
+        toml=GOOD_TOML.replace('model = "model.py:evaluate"', 'model = "nothere.py:evaluate"')
+    )
     with pytest.raises(CaseError, match=r"model file 'nothere.py' not found in the case folder"):
         load_case(folder)
 

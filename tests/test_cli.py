@@ -14,8 +14,20 @@ from tradewise.cli import main
 def test_run_writes_folder_and_summary(tmp_path):
     """`tradewise run` writes the run folder and ends with front size, hypervolume and each objective's range."""
     out = tmp_path / "run"
-    result = CliRunner().invoke(main, ["run", str(CASES / "mixed"), "--out", str(out), "--evaluations", "200",
-                                       "--seed", "3", "--quiet"])
+    result = CliRunner().invoke(
+        main,
+        [
+            "run",
+            str(CASES / "mixed"),
+            "--out",
+            str(out),
+            "--evaluations",
+            "200",
+            "--seed",
+            "3",
+            "--quiet",
+        ],
+    )
     assert result.exit_code == 0, result.output
     for name in ("front.csv", "front.json", "history.csv", "archive.sqlite"):
         assert (out / name).exists()
@@ -29,15 +41,24 @@ def test_run_writes_folder_and_summary(tmp_path):
 
 def test_run_without_terminal_prints_plain_lines(tmp_path):
     """Without a terminal the progress is plain lines (no bar control characters)."""
-    result = CliRunner().invoke(main, ["run", str(CASES / "mixed"), "--out", str(tmp_path / "r"),
-                                       "--evaluations", "100"])
+    result = CliRunner().invoke(
+        main, ["run", str(CASES / "mixed"), "--out", str(tmp_path / "r"), "--evaluations", "100"]
+    )
     assert result.exit_code == 0
     assert "gen 1  evals" in result.output and "\r" not in result.output
 
 
 def test_run_twice_into_same_store_uses_cache(tmp_path):
     """A second run of the same case and seed into the same archive evaluates nothing again."""
-    args = ["run", str(CASES / "mixed"), "--out", str(tmp_path / "r"), "--evaluations", "150", "--quiet"]
+    args = [
+        "run",
+        str(CASES / "mixed"),
+        "--out",
+        str(tmp_path / "r"),
+        "--evaluations",
+        "150",
+        "--quiet",
+    ]
     assert CliRunner().invoke(main, args).exit_code == 0
     second = CliRunner().invoke(main, args)
     assert second.exit_code == 0
@@ -64,7 +85,9 @@ def test_model_that_cannot_import_is_one_line(make_case, tmp_path):
     """A model file that raises on import gives exit 2 and names the file."""
     folder = make_case(model="import not_a_module_anywhere\ndef evaluate(d):\n    return {}\n")
     result = CliRunner().invoke(main, ["run", str(folder), "--out", str(tmp_path / "r"), "--quiet"])
-    assert result.exit_code == 2 and "model.py" in result.output and "Traceback" not in result.output
+    assert (
+        result.exit_code == 2 and "model.py" in result.output and "Traceback" not in result.output
+    )
 
 
 def test_help_for_every_command():

@@ -238,8 +238,21 @@ def test_pick_says_plainly_when_a_front_has_no_knee(tmp_path):
     table = tmp_path / "deb3dk.csv"
     pd.DataFrame(points, columns=["f1", "f2", "f3"]).to_csv(table, index=False)
     runner = CliRunner()
-    made = runner.invoke(main, ["front", str(table), "--min", "f1", "--min", "f2", "--min", "f3",
-                                "--out", str(tmp_path / "front.csv")])
+    made = runner.invoke(
+        main,
+        [
+            "front",
+            str(table),
+            "--min",
+            "f1",
+            "--min",
+            "f2",
+            "--min",
+            "f3",
+            "--out",
+            str(tmp_path / "front.csv"),
+        ],
+    )
     assert made.exit_code == 0, made.output
     picked = runner.invoke(main, ["pick", str(tmp_path / "front.csv"), "--method", "knee"])
     assert picked.exit_code == 0, picked.output

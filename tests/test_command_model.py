@@ -20,7 +20,7 @@ from tradewise.cli import main
 from tradewise.models import CommandModel, make_model
 
 # One program that misbehaves on request: the design's "mode" says how.
-PROGRAM = r'''
+PROGRAM = r"""
 import json, math, os, subprocess, sys, time
 design = json.load(open(sys.argv[1]))
 mode, x = design["mode"], design["x"]
@@ -56,9 +56,9 @@ if mode == "nan":
 if mode == "nokey":
     del out["mass"]
 json.dump(out, open(sys.argv[2], "w"))
-'''
+"""
 
-CASE = '''
+CASE = """
 title = "misbehaving program"
 command = ["python3", "prog.py", "{input}", "{output}"]
 timeout = TIMEOUT
@@ -75,14 +75,20 @@ mass = { goal = "min" }
 population = POPULATION
 evaluations = EVALUATIONS
 seed = 4
-'''
+"""
 
 
-def _case_folder(root: Path, *, modes=("ok", "exit"), timeout=10.0, population=10, evaluations=20) -> Path:
+def _case_folder(
+    root: Path, *, modes=("ok", "exit"), timeout=10.0, population=10, evaluations=20
+) -> Path:
     folder = root / "case"
     folder.mkdir(parents=True, exist_ok=True)
-    text = (CASE.replace("TIMEOUT", repr(timeout)).replace("MODES", json.dumps(list(modes)))
-            .replace("POPULATION", str(population)).replace("EVALUATIONS", str(evaluations)))
+    text = (
+        CASE.replace("TIMEOUT", repr(timeout))
+        .replace("MODES", json.dumps(list(modes)))
+        .replace("POPULATION", str(population))
+        .replace("EVALUATIONS", str(evaluations))
+    )
     (folder / "case.toml").write_text(text, encoding="utf-8")
     (folder / "prog.py").write_text(PROGRAM, encoding="utf-8")
     return folder
@@ -122,7 +128,11 @@ def test_python_means_the_running_interpreter_and_case_files_are_absolute(comman
 def test_other_programs_are_left_alone(tmp_path):
     """Only exactly 'python' or 'python3' is replaced; a full path or another program is kept."""
     folder = _case_folder(tmp_path)
-    text = (folder / "case.toml").read_text().replace('["python3", "prog.py"', '["/usr/bin/python3.99", "prog.py"')
+    text = (
+        (folder / "case.toml")
+        .read_text()
+        .replace('["python3", "prog.py"', '["/usr/bin/python3.99", "prog.py"')
+    )
     (folder / "case.toml").write_text(text)
     assert CommandModel(load_case(folder)).arguments("i", "o")[0] == "/usr/bin/python3.99"
 
@@ -158,7 +168,9 @@ def test_run_finds_the_program_whatever_the_working_directory(tmp_path, monkeypa
     result = CliRunner().invoke(main, ["run", argument, "--out", str(out), "--quiet"])
     assert result.exit_code == 0, result.output
     with sqlite3.connect(out / "archive.sqlite") as db:
-        rows = db.execute("SELECT status, message FROM evaluations WHERE source_id IS NULL").fetchall()
+        rows = db.execute(
+            "SELECT status, message FROM evaluations WHERE source_id IS NULL"
+        ).fetchall()
     assert len(rows) == 4 and all(status == "ok" for status, _ in rows), rows
 
 
@@ -176,7 +188,10 @@ def test_success_reads_results_and_removes_the_folder(command_model):
 
 FAILURES = {
     # mode: (status, words that must be in the message)
-    "exit": ("failed", ["exited with status 3", "solver: matrix is singular at step 7", "first line"]),
+    "exit": (
+        "failed",
+        ["exited with status 3", "solver: matrix is singular at step 7", "first line"],
+    ),
     "signal": ("failed", ["killed by signal SIGKILL"]),
     "badjson": ("failed", ["results.json is not valid JSON"]),
     "nojson": ("failed", ["wrote no results.json"]),
@@ -202,7 +217,9 @@ def test_each_failure_is_reported_and_its_folder_kept(command_model, mode):
 def test_program_that_cannot_start(tmp_path):
     """A missing program is a failed evaluation naming it, not a crash of the run."""
     folder = _case_folder(tmp_path)
-    text = (folder / "case.toml").read_text().replace('"python3", "prog.py"', '"no-such-solver-here"')
+    text = (
+        (folder / "case.toml").read_text().replace('"python3", "prog.py"', '"no-such-solver-here"')
+    )
     (folder / "case.toml").write_text(text)
     outcome = CommandModel(load_case(folder), keep_root=tmp_path)({"x": 0.5, "mode": "ok"})
     assert outcome.status == "failed" and "cannot start 'no-such-solver-here'" in outcome.message
@@ -249,17 +266,26 @@ def test_helpers_of_the_program_end_with_the_evaluation(command_model, tmp_path,
 def test_run_with_failing_command_model_completes_and_counts_failures(tmp_path, monkeypatch):
     """A run whose program exits non-zero, hangs, or writes bad JSON completes; each failure is stored
     with its message and the summary counts them."""
-    folder = _case_folder(tmp_path, modes=("ok", "exit", "hang", "badjson", "nan"), timeout=0.5,
-                          population=12, evaluations=24)
+    folder = _case_folder(
+        tmp_path,
+        modes=("ok", "exit", "hang", "badjson", "nan"),
+        timeout=0.5,
+        population=12,
+        evaluations=24,
+    )
     kept = tmp_path / "kept"
     kept.mkdir()
     monkeypatch.setenv("TMPDIR", str(kept))
     monkeypatch.setattr(tempfile, "tempdir", str(kept))
     out = tmp_path / "run"
-    result = CliRunner().invoke(main, ["run", str(folder), "--out", str(out), "--workers", "2", "--quiet"])
+    result = CliRunner().invoke(
+        main, ["run", str(folder), "--out", str(out), "--workers", "2", "--quiet"]
+    )
     assert result.exit_code == 0, result.output
     with sqlite3.connect(out / "archive.sqlite") as db:
-        rows = db.execute("SELECT design, status, message FROM evaluations WHERE source_id IS NULL").fetchall()
+        rows = db.execute(
+            "SELECT design, status, message FROM evaluations WHERE source_id IS NULL"
+        ).fetchall()
     assert len(rows) == 24
     failed = [(json.loads(d)["mode"], s, m) for d, s, m in rows if s != "ok"]
     by_mode = {mode: (s, m) for mode, s, m in failed}
@@ -274,13 +300,17 @@ def test_run_with_failing_command_model_completes_and_counts_failures(tmp_path, 
 @pytest.mark.skipif(os.name != "posix", reason="process groups are POSIX")
 def test_no_helper_outlives_a_run(tmp_path, monkeypatch):
     """A run of a program that leaves a SIGTERM-proof helper behind on every design ends with none alive."""
-    folder = _case_folder(tmp_path, modes=("helper-ok", "helper-exit"), population=6, evaluations=12)
+    folder = _case_folder(
+        tmp_path, modes=("helper-ok", "helper-exit"), population=6, evaluations=12
+    )
     kept = tmp_path / "kept"
     kept.mkdir()
     monkeypatch.setenv("TMPDIR", str(kept))
     monkeypatch.setattr(tempfile, "tempdir", str(kept))
     out = tmp_path / "run"
-    result = CliRunner().invoke(main, ["run", str(folder), "--out", str(out), "--workers", "2", "--quiet"])
+    result = CliRunner().invoke(
+        main, ["run", str(folder), "--out", str(out), "--workers", "2", "--quiet"]
+    )
     assert result.exit_code == 0, result.output
     assert len((kept / "helpers.txt").read_text().split()) == 12
     assert _helpers_left(kept) == []
@@ -315,8 +345,12 @@ def test_pipeloss_series_resistances_and_energy_balance():
     r2 = r1 + 0.040
     shell = math.log(r2 / r1) / (2 * math.pi * 0.025)
     film = 1 / (out["film_coefficient"] * math.pi * 2 * r2)
-    assert out["heat_per_metre"] == pytest.approx((pipe.WATER - pipe.AIR) / (shell + film), rel=1e-9)
-    surface_flow = out["film_coefficient"] * math.pi * 2 * r2 * (out["surface_temperature"] - pipe.AIR)
+    assert out["heat_per_metre"] == pytest.approx(
+        (pipe.WATER - pipe.AIR) / (shell + film), rel=1e-9
+    )
+    surface_flow = (
+        out["film_coefficient"] * math.pi * 2 * r2 * (out["surface_temperature"] - pipe.AIR)
+    )
     assert surface_flow == pytest.approx(out["heat_per_metre"], rel=1e-6)
     assert out["heat_loss"] == pytest.approx(out["heat_per_metre"] * 60 * 8760 / 1e6)
     assert out["outer_diameter"] == pytest.approx(60.3 + 80.0)
@@ -335,9 +369,12 @@ def test_pipeloss_program_end_to_end_and_bad_input(tmp_path):
     outcome = model({"thickness": 50.0, "material": "mineral-wool", "cladding": False})
     assert outcome.status == "ok", outcome.message
     assert outcome.results == pytest.approx(
-        _pipeloss().evaluate({"thickness": 50.0, "material": "mineral-wool", "cladding": False}))
+        _pipeloss().evaluate({"thickness": 50.0, "material": "mineral-wool", "cladding": False})
+    )
     bad = model({"thickness": 50.0, "material": "cork", "cladding": False})
-    assert bad.status == "failed" and "exited with status 2" in bad.message and "'cork'" in bad.message
+    assert (
+        bad.status == "failed" and "exited with status 2" in bad.message and "'cork'" in bad.message
+    )
 
 
 def test_pipeloss_thicker_loses_less_and_costs_more():
@@ -345,7 +382,10 @@ def test_pipeloss_thicker_loses_less_and_costs_more():
     pipe = _pipeloss()
     for material in pipe.MATERIALS:
         for clad in (False, True):
-            rows = [pipe.evaluate({"thickness": t, "material": material, "cladding": clad}) for t in (10, 40, 120)]
+            rows = [
+                pipe.evaluate({"thickness": t, "material": material, "cladding": clad})
+                for t in (10, 40, 120)
+            ]
             assert rows[0]["heat_loss"] > rows[1]["heat_loss"] > rows[2]["heat_loss"]
             assert rows[0]["cost"] < rows[1]["cost"] < rows[2]["cost"]
 
@@ -354,8 +394,22 @@ def test_pipeloss_thicker_loses_less_and_costs_more():
 def test_pipe_insulation_short_run(tmp_path):
     """A short search of the bundled case through the command line finds a front of feasible designs."""
     out = tmp_path / "run"
-    result = CliRunner().invoke(main, ["run", "pipe-insulation", "--out", str(out), "--evaluations", "40",
-                                       "--population", "20", "--workers", "2", "--quiet"])
+    result = CliRunner().invoke(
+        main,
+        [
+            "run",
+            "pipe-insulation",
+            "--out",
+            str(out),
+            "--evaluations",
+            "40",
+            "--population",
+            "20",
+            "--workers",
+            "2",
+            "--quiet",
+        ],
+    )
     assert result.exit_code == 0, result.output
     front = (out / "front.csv").read_text().splitlines()
     assert len(front) > 2 and "Caution:" in result.output

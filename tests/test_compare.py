@@ -72,13 +72,19 @@ def test_indicators_agree_with_moocore_called_directly():
         points = rng.random((40, n_obj))
         reference = moocore.generate_ndset(25, n_obj, "sphere", seed=3)
         assert igd_plus(points, reference) == moocore.igd_plus(points, ref=reference)
-        assert epsilon_additive(points, reference) == moocore.epsilon_additive(points, ref=reference)
+        assert epsilon_additive(points, reference) == moocore.epsilon_additive(
+            points, ref=reference
+        )
         flags = [True] + [False] * (n_obj - 1)
-        assert igd_plus(points, reference, flags) == moocore.igd_plus(points, ref=reference, maximise=flags)
+        assert igd_plus(points, reference, flags) == moocore.igd_plus(
+            points, ref=reference, maximise=flags
+        )
         # Maximising a column is the same as minimising its negative (moocore's own convention).
         flipped, flipped_ref = points.copy(), reference.copy()
         flipped[:, 0], flipped_ref[:, 0] = -flipped[:, 0], -flipped_ref[:, 0]
-        assert epsilon_additive(points, reference, flags) == pytest.approx(epsilon_additive(flipped, flipped_ref))
+        assert epsilon_additive(points, reference, flags) == pytest.approx(
+            epsilon_additive(flipped, flipped_ref)
+        )
 
 
 def test_dominated_share_by_hand():
@@ -138,7 +144,9 @@ def test_disagreement_region_by_hand():
     fronts = [_front([[1, 3], [3, 1]], reference=[4, 4]), _front([[2, 2]], reference=[4, 4])]
     result = attainment(fronts)
     regions = result.regions
-    area = ((regions["f1_high"] - regions["f1_low"]) * (regions["f2_high"] - regions["f2_low"])).sum()
+    area = (
+        (regions["f1_high"] - regions["f1_low"]) * (regions["f2_high"] - regions["f2_low"])
+    ).sum()
     assert area == pytest.approx(3.0)
     assert result.spread_volume == pytest.approx(3.0)
     best_hv = moocore.hypervolume(result.surfaces["best"], ref=[4, 4])
@@ -148,7 +156,9 @@ def test_disagreement_region_by_hand():
     # The worst surface misses each best corner by 1 in the normalised box of side 3 (ideal (1,1) to (4,4)).
     assert result.gap == pytest.approx(1 / 3)
     assert result.gap == pytest.approx(
-        moocore.epsilon_additive((result.surfaces["worst"] - 1) / 3, ref=(result.surfaces["best"] - 1) / 3)
+        moocore.epsilon_additive(
+            (result.surfaces["worst"] - 1) / 3, ref=(result.surfaces["best"] - 1) / 3
+        )
     )
 
 
@@ -162,8 +172,9 @@ def test_disagreement_area_equals_hypervolume_difference_with_a_maximised_object
     result = attainment(fronts)
     r = result.regions
     area = ((r["f1_high"] - r["f1_low"]) * (r["f2_high"] - r["f2_low"])).sum()
-    expected = (moocore.hypervolume(result.surfaces["best"], ref=[1, -1], maximise=[False, True])
-                - moocore.hypervolume(result.surfaces["worst"], ref=[1, -1], maximise=[False, True]))
+    expected = moocore.hypervolume(
+        result.surfaces["best"], ref=[1, -1], maximise=[False, True]
+    ) - moocore.hypervolume(result.surfaces["worst"], ref=[1, -1], maximise=[False, True])
     assert (r["f2_high"] >= r["f2_low"]).all()
     assert area == pytest.approx(expected, rel=1e-12)
 
@@ -198,7 +209,10 @@ def test_compare_fronts_uses_one_scale_and_matches_moocore():
     a = _front([[1, 9], [4, 4], [9, 1]], reference=[10, 10])
     b = _front([[2, 8], [5, 5], [8, 2]], reference=[11, 10])
     result = compare_fronts({"a": a, "b": b})
-    ideal, ref = np.array([1.0, 1.0]), np.array([11.0, 10.0])  # best reached; worst recorded reference
+    ideal, ref = (
+        np.array([1.0, 1.0]),
+        np.array([11.0, 10.0]),
+    )  # best reached; worst recorded reference
     assert result.reference == (11.0, 10.0) and result.ideal == (1.0, 1.0)
     union = moocore.filter_dominated(np.vstack([a.points(), b.points()]))
     target = (union - ideal) / (ref - ideal)
@@ -210,7 +224,10 @@ def test_compare_fronts_uses_one_scale_and_matches_moocore():
         assert row["epsilon"] == pytest.approx(moocore.epsilon_additive(z, ref=target), rel=1e-12)
     assert result.best == "a"
     # (4, 4) dominates (5, 5); (2, 8) and (8, 2) escape (1, 9) and (9, 1) in one objective each.
-    assert result.dominance.loc["a", "b"] == pytest.approx(1 / 3) and result.dominance.loc["b", "a"] == 0.0
+    assert (
+        result.dominance.loc["a", "b"] == pytest.approx(1 / 3)
+        and result.dominance.loc["b", "a"] == 0.0
+    )
 
 
 def test_compare_refuses_different_objectives():
@@ -221,7 +238,9 @@ def test_compare_refuses_different_objectives():
 
 def _run(tmp_path, name, evaluations, seed=1):
     folder = tmp_path / name
-    result = tradewise.run(CASES / "zdt1", evaluations=evaluations, seed=seed, store=folder / "archive.sqlite")
+    result = tradewise.run(
+        CASES / "zdt1", evaluations=evaluations, seed=seed, store=folder / "archive.sqlite"
+    )
     tradewise.save_run(result, folder)
     return folder
 
@@ -231,7 +250,14 @@ def test_two_runs_of_the_same_seed_report_identical_indicators(tmp_path):
     first, second = _run(tmp_path, "first", 600), _run(tmp_path, "second", 600)
     result = compare_runs([first, second])
     a, b = (result.table.set_index("run").loc[k] for k in ("first", "second"))
-    for column in ("hypervolume", "igd_plus", "epsilon", "front_size", "evaluations", "failed_share"):
+    for column in (
+        "hypervolume",
+        "igd_plus",
+        "epsilon",
+        "front_size",
+        "evaluations",
+        "failed_share",
+    ):
         assert a[column] == b[column]
     assert result.dominance.loc["first", "second"] == 0.0 == result.dominance.loc["second", "first"]
     assert "same hypervolume" in " ".join(result.lines)
@@ -270,9 +296,16 @@ def test_compare_against_a_given_reference_front(tmp_path):
     assert result.reference_set == "the given reference front"
     ideal, ref = np.array(result.ideal), np.array(result.reference)
     assert ideal.tolist() == [0.0, 0.0]  # the true front reaches both ends
-    z = (Front.from_table(pd.read_csv(run / "front.csv"), [Objective("f1"), Objective("f2")]).points() - ideal) / (ref - ideal)
+    z = (
+        Front.from_table(
+            pd.read_csv(run / "front.csv"), [Objective("f1"), Objective("f2")]
+        ).points()
+        - ideal
+    ) / (ref - ideal)
     target = (np.c_[f1, 1 - np.sqrt(f1)] - ideal) / (ref - ideal)
-    assert result.table.loc[0, "igd_plus"] == pytest.approx(moocore.igd_plus(z, ref=target), rel=1e-12)
+    assert result.table.loc[0, "igd_plus"] == pytest.approx(
+        moocore.igd_plus(z, ref=target), rel=1e-12
+    )
     assert result.table.loc[0, "igd_plus"] > 0.01
 
 
@@ -290,7 +323,9 @@ def test_convergence_advice_on_made_up_histories():
     rising = pd.DataFrame({"generation": range(1, 21), "hypervolume": np.arange(1, 21) / 20})
     assert late_gain(rising) == pytest.approx((1.0 - 0.9) / 1.0)
     assert "consider a larger budget" in convergence_advice(rising)
-    flat = pd.DataFrame({"generation": range(1, 21), "hypervolume": np.minimum(np.arange(1, 21), 15) / 15})
+    flat = pd.DataFrame(
+        {"generation": range(1, 21), "hypervolume": np.minimum(np.arange(1, 21), 15) / 15}
+    )
     assert late_gain(flat) == 0.0 and convergence_advice(flat) == ""
     # Just under and just over the threshold: 0.9% and 1.1% over the last two generations.
     for gain, advised in ((0.009, False), (0.011, True)):
@@ -305,7 +340,9 @@ def test_convergence_advice_on_real_runs():
     """ZDT1 after 1200 evaluations is still far from its front (HV well under 2/3) and still gaining;
     the five-variable overhead test case has converged after 2000 (gain about 0.1%) and gets no advice."""
     short = tradewise.run(CASES / "zdt1", evaluations=1200, seed=1)
-    assert late_gain(short.history) > 0.01 and "still improving" in convergence_advice(short.history)
+    assert late_gain(short.history) > 0.01 and "still improving" in convergence_advice(
+        short.history
+    )
     done = tradewise.run(CASES / "trivial", evaluations=2000, seed=1)
     assert convergence_advice(done.history) == ""
 
@@ -313,6 +350,11 @@ def test_convergence_advice_on_real_runs():
 def test_convergence_advice_seed_by_seed():
     """A history with a seed column is judged per seed and says how many seeds still improved."""
     rising = np.arange(1, 21) / 20
-    history = pd.DataFrame({"seed": [1] * 20 + [2] * 20, "generation": list(range(1, 21)) * 2,
-                            "hypervolume": np.concatenate([rising, np.ones(20)])})
+    history = pd.DataFrame(
+        {
+            "seed": [1] * 20 + [2] * 20,
+            "generation": list(range(1, 21)) * 2,
+            "hypervolume": np.concatenate([rising, np.ones(20)]),
+        }
+    )
     assert "in 1 of 2 seeds" in convergence_advice(history)

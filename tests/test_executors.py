@@ -23,7 +23,7 @@ from tradewise.errors import TradewiseError
 from tradewise.executors import DaskCluster, InProcess, ProcessPool, make_executor
 from tradewise.models import make_model
 
-MODEL = '''
+MODEL = """
 import math, os, time
 
 def evaluate(design):
@@ -42,9 +42,9 @@ def evaluate(design):
             open(os.path.join(os.environ["TW_HELPER_PIDS"], str(helper.pid)), "w").close()
         time.sleep(60)
     return {"cost": x + (0.5 if mode == "heavy" else 0.0), "mass": (1 - x) ** 2 + 0.1, "label": f"x{x:.2f}"}
-'''
+"""
 
-TOML = '''
+TOML = """
 title = "backend contract"
 model = "model.py:evaluate"
 TIMEOUT
@@ -61,11 +61,22 @@ mass = { goal = "min" }
 population = 12
 evaluations = 48
 seed = 5
-'''
+"""
 
 # A fixed batch: good designs, one that raises and one that returns NaN.
-BATCH = [{"x": x / 10, "mode": mode} for x, mode in
-         [(1, "ok"), (2, "heavy"), (3, "raise"), (4, "ok"), (5, "nan"), (6, "heavy"), (7, "ok"), (8, "ok")]]
+BATCH = [
+    {"x": x / 10, "mode": mode}
+    for x, mode in [
+        (1, "ok"),
+        (2, "heavy"),
+        (3, "raise"),
+        (4, "ok"),
+        (5, "nan"),
+        (6, "heavy"),
+        (7, "ok"),
+        (8, "ok"),
+    ]
+]
 
 
 @pytest.fixture(scope="module", autouse=True)
@@ -135,7 +146,10 @@ def test_a_whole_run_is_identical_on_every_backend(case, dask_cluster):
     exactly.
     """
     loaded = case()
-    runs = {"in-process": tradewise.run(loaded), "dask": tradewise.run(loaded, executor=dask_cluster)}
+    runs = {
+        "in-process": tradewise.run(loaded),
+        "dask": tradewise.run(loaded, executor=dask_cluster),
+    }
     with ProcessPool(2) as pool:
         runs["process pool"] = tradewise.run(loaded, executor=pool)
     reference = runs["in-process"]
@@ -178,8 +192,12 @@ def test_a_hanging_python_model_is_stopped_at_its_timeout(case, tmp_path, monkey
     the helper it started are killed, and the next designs run in a new process."""
     monkeypatch.setenv("TW_HELPER_PIDS", str(tmp_path))
     model = make_model(case(("ok", "hang"), timeout=1))
-    designs = [{"x": 0.1, "mode": "ok"}, {"x": 0.2, "mode": "hang"}, {"x": 0.3, "mode": "ok"},
-               {"x": 0.4, "mode": "ok"}]
+    designs = [
+        {"x": 0.1, "mode": "ok"},
+        {"x": 0.2, "mode": "hang"},
+        {"x": 0.3, "mode": "ok"},
+        {"x": 0.4, "mode": "ok"},
+    ]
     start = time.monotonic()
     if backend == "pool":
         with ProcessPool(2) as pool:
@@ -189,7 +207,10 @@ def test_a_hanging_python_model_is_stopped_at_its_timeout(case, tmp_path, monkey
     assert time.monotonic() - start < 20
     assert [got[i].status for i in range(4)] == ["ok", "timeout", "ok", "ok"]
     assert "no answer within the timeout of 1 s" in got[1].message and 1.0 <= got[1].duration < 5
-    assert got[3].results == _outcomes(InProcess(), make_model(case(("ok", "hang"))), designs[3:])[0][1]
+    assert (
+        got[3].results
+        == _outcomes(InProcess(), make_model(case(("ok", "hang"))), designs[3:])[0][1]
+    )
     helpers = [int(p.name) for p in tmp_path.iterdir() if p.name.isdigit()]
     assert len(helpers) == 1
     deadline = time.monotonic() + 5
@@ -202,20 +223,38 @@ def test_a_hanging_python_model_is_stopped_at_its_timeout(case, tmp_path, monkey
 
 @pytest.mark.slow
 @pytest.mark.parametrize("workers", ["1", "2"])
-def test_a_run_whose_model_hangs_on_a_fifth_of_its_designs_finishes(case, tmp_path, monkeypatch, workers):
+def test_a_run_whose_model_hangs_on_a_fifth_of_its_designs_finishes(
+    case, tmp_path, monkeypatch, workers
+):
     """40 evaluations, a fifth of the designs hang, timeout 1 s: the run finishes well under a minute
     and records the hanging designs as timed out."""
     monkeypatch.setenv("TW_HELPER_PIDS", str(tmp_path))
     folder = case(("every-fifth", "every-fifth-too"), timeout=1).folder
     out = tmp_path / "run"
     start = time.monotonic()
-    result = CliRunner().invoke(main, ["run", str(folder), "--out", str(out), "--workers", workers,
-                                       "--evaluations", "40", "--population", "10", "--quiet"])
+    result = CliRunner().invoke(
+        main,
+        [
+            "run",
+            str(folder),
+            "--out",
+            str(out),
+            "--workers",
+            workers,
+            "--evaluations",
+            "40",
+            "--population",
+            "10",
+            "--quiet",
+        ],
+    )
     took = time.monotonic() - start
     assert result.exit_code == 0, result.output
     assert took < 45
     with sqlite3.connect(out / "archive.sqlite") as db:
-        rows = db.execute("SELECT design, status FROM evaluations WHERE source_id IS NULL").fetchall()
+        rows = db.execute(
+            "SELECT design, status FROM evaluations WHERE source_id IS NULL"
+        ).fetchall()
     assert len(rows) == 40
     hangs = {True: [], False: []}
     for design, status in rows:
@@ -226,8 +265,9 @@ def test_a_run_whose_model_hangs_on_a_fifth_of_its_designs_finishes(case, tmp_pa
 
 # ------------------------------------------------------------------------- as they complete
 def _completion_order(executor, model):
-    designs = [{"x": 0.1, "mode": "ok", "sleep": 1.5}] + [{"x": x / 10, "mode": "ok", "sleep": 0.05}
-                                                         for x in range(2, 8)]
+    designs = [{"x": 0.1, "mode": "ok", "sleep": 1.5}] + [
+        {"x": x / 10, "mode": "ok", "sleep": 0.05} for x in range(2, 8)
+    ]
     return [i for i, _ in executor.run(model, designs)]
 
 
@@ -249,16 +289,23 @@ def test_each_evaluation_is_reported_before_the_generation_ends(case, monkeypatc
     monkeypatch.setenv("TW_TEST_SLEEP", "0.1")
     stamps, rows = [], []
     with ProcessPool(2) as pool:
-        tradewise.run(case(("ok", "heavy")), evaluations=8, population=8, executor=pool,
-                  on_evaluation=lambda row: stamps.append(time.monotonic()),
-                  progress=lambda row: rows.append(time.monotonic()))
+        tradewise.run(
+            case(("ok", "heavy")),
+            evaluations=8,
+            population=8,
+            executor=pool,
+            on_evaluation=lambda row: stamps.append(time.monotonic()),
+            progress=lambda row: rows.append(time.monotonic()),
+        )
     assert len(stamps) == 8 and len(rows) == 1
     # 8 designs of 0.1 s on 2 workers take about 0.4 s; the first result arrives after about 0.1 s.
     assert rows[0] - stamps[0] >= 0.2
 
 
 # -------------------------------------------------------------------------- dying workers
-CRASH_BATCH = [{"x": x / 10, "mode": "crash" if x == 5 else "ok", "sleep": 0.2} for x in range(1, 9)]
+CRASH_BATCH = [
+    {"x": x / 10, "mode": "crash" if x == 5 else "ok", "sleep": 0.2} for x in range(1, 9)
+]
 
 
 def test_pool_survives_a_worker_that_dies(case):
@@ -270,7 +317,10 @@ def test_pool_survives_a_worker_that_dies(case):
     expected = _outcomes(InProcess(), model, [d | {"mode": "ok"} for d in CRASH_BATCH])
     for i, (status, results, message) in enumerate(got):
         if i == 4:
-            assert status == "failed" and "worker process died while evaluating this design, twice" in message
+            assert (
+                status == "failed"
+                and "worker process died while evaluating this design, twice" in message
+            )
         else:
             assert (status, results, message) == expected[i]
     assert restarts == 2
@@ -295,18 +345,23 @@ def test_run_with_raising_nan_and_crashing_python_model(case, tmp_path):
     folder = case(("ok", "raise", "nan", "crash")).folder
     out = tmp_path / "run"
     # Seed 2 draws every mode in the first generation.
-    result = CliRunner().invoke(main, ["run", str(folder), "--out", str(out), "--workers", "2", "--seed", "2",
-                                       "--quiet"])
+    result = CliRunner().invoke(
+        main, ["run", str(folder), "--out", str(out), "--workers", "2", "--seed", "2", "--quiet"]
+    )
     assert result.exit_code == 0, result.output
     with sqlite3.connect(out / "archive.sqlite") as db:
-        rows = db.execute("SELECT design, status, message FROM evaluations WHERE source_id IS NULL").fetchall()
+        rows = db.execute(
+            "SELECT design, status, message FROM evaluations WHERE source_id IS NULL"
+        ).fetchall()
     assert len(rows) == 48
     failed = {}
     for design, status, message in rows:
         mode = json.loads(design)["mode"]
         assert (status == "ok") == (mode == "ok"), (mode, status, message)
         failed.setdefault(mode, message)
-    assert "ValueError: cannot size" in failed["raise"] and "(at model.py line 8)" in failed["raise"]
+    assert (
+        "ValueError: cannot size" in failed["raise"] and "(at model.py line 8)" in failed["raise"]
+    )
     assert "'mass'" in failed["nan"] and "finite number" in failed["nan"]
     assert "worker process died" in failed["crash"]
     n_failed = sum(status != "ok" for _, status, _ in rows)
@@ -321,9 +376,25 @@ def test_a_killed_pool_run_leaves_no_folder_for_long(case, tmp_path, monkeypatch
     scratch.mkdir()
     folder = case(("ok", "heavy")).folder
     env = dict(os.environ, TMPDIR=str(scratch), TW_TEST_SLEEP="0.2")
-    run = subprocess.Popen([sys.executable, "-m", "tradewise.cli", "run", str(folder), "--out",
-                            str(tmp_path / "run"), "--workers", "2", "--evaluations", "400", "--quiet"],
-                           env=env, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL)
+    run = subprocess.Popen(
+        [
+            sys.executable,
+            "-m",
+            "tradewise.cli",
+            "run",
+            str(folder),
+            "--out",
+            str(tmp_path / "run"),
+            "--workers",
+            "2",
+            "--evaluations",
+            "400",
+            "--quiet",
+        ],
+        env=env,
+        stdout=subprocess.DEVNULL,
+        stderr=subprocess.DEVNULL,
+    )
     deadline = time.monotonic() + 60
     while not list(scratch.glob("tradewise-pool-*")) and time.monotonic() < deadline:
         time.sleep(0.05)
@@ -333,11 +404,15 @@ def test_a_killed_pool_run_leaves_no_folder_for_long(case, tmp_path, monkeypatch
     assert len(stranded) == 1 and stranded[0].is_dir()
     alive = subprocess.Popen([sys.executable, "-c", "import time; time.sleep(60)"])
     try:
-        others = scratch / f"tradewise-pool-{alive.pid}-busy"  # a pool of a live run, not ours to remove
+        others = (
+            scratch / f"tradewise-pool-{alive.pid}-busy"
+        )  # a pool of a live run, not ours to remove
         others.mkdir()
         monkeypatch.setattr(tempfile, "tempdir", str(scratch))
         with ProcessPool(2) as pool:
-            assert [o.status for _, o in pool.run(make_model(case(("ok", "heavy"))), BATCH[:2])] == ["ok", "ok"]
+            assert [
+                o.status for _, o in pool.run(make_model(case(("ok", "heavy"))), BATCH[:2])
+            ] == ["ok", "ok"]
         assert not stranded[0].exists()
         assert sorted(scratch.glob("tradewise-pool-*")) == [others]
     finally:

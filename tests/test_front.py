@@ -251,7 +251,9 @@ def test_rates_on_the_two_bar_truss_scale_read_without_exponents():
     each rate is the secant 400 / (S_a S_b) and is worded per a power of ten with plain numbers."""
     stress = np.array([100, 80, 50, 40, 25, 20, 16, 12.5, 10]) * 1000
     volume = 400 / stress
-    front = make_front(np.column_stack([volume, stress]), ["min", "min"], ["volume", "stress"], ["m3", "kPa"])
+    front = make_front(
+        np.column_stack([volume, stress]), ["min", "min"], ["volume", "stress"], ["m3", "kPa"]
+    )
     rates = tradeoff_rates(front)
     # Along the front: V_b - V_a = 400 (S_a - S_b) / (S_a S_b), so volume given per kPa saved is 400 / (S_a S_b).
     assert rates["rate"].to_numpy() == pytest.approx(400 / (stress[:-1] * stress[1:]), rel=1e-9)
@@ -343,7 +345,9 @@ def test_repeated_header_is_refused_not_renamed(tmp_path):
     """A header row naming `cost` twice is refused naming the file and the header (pandas would make `cost.1`)."""
     path = tmp_path / "twice.csv"
     path.write_text("cost,mass,cost\n1,2,3\n2,1,4\n", encoding="utf-8")
-    with pytest.raises(DataError, match=r"twice\.csv: the header row names the column 'cost' twice"):
+    with pytest.raises(
+        DataError, match=r"twice\.csv: the header row names the column 'cost' twice"
+    ):
         read_table(path)
 
 
@@ -354,7 +358,9 @@ def test_repeated_header_is_refused_not_renamed(tmp_path):
 def test_missing_values_are_told_apart(tmp_path, cell, said):
     """A cell reading NaN is called not a number, an empty one empty; the row is named by its line too."""
     path = tmp_path / "t.csv"
-    path.write_text(f"cost,mass\n1,2\n\n2,{cell}\n", encoding="utf-8")  # a blank line, which pandas skips
+    path.write_text(
+        f"cost,mass\n1,2\n\n2,{cell}\n", encoding="utf-8"
+    )  # a blank line, which pandas skips
     with pytest.raises(DataError) as caught:
         front_from_csv(path, minimise=["cost", "mass"])
     assert str(caught.value) == (
@@ -368,7 +374,9 @@ def test_bad_cell_in_a_run_front_names_its_line(tmp_path):
     front = Front.from_table(table, [Objective("cost"), Objective("mass")])
     csv_path, _ = front.to_csv(tmp_path / "front.csv")
     csv_path.write_text(csv_path.read_text().replace("2.0,1.0", "2.0,NaN"), encoding="utf-8")
-    with pytest.raises(DataError, match=r"line 3 \(data row 2\) column 'mass'.*'NaN' \(not a number\)"):
+    with pytest.raises(
+        DataError, match=r"line 3 \(data row 2\) column 'mass'.*'NaN' \(not a number\)"
+    ):
         read_front(tmp_path)
 
 
@@ -376,7 +384,9 @@ def test_non_utf8_byte_is_reported_at_its_line(tmp_path):
     """A byte that is not UTF-8 on the second line is reported as line 2 with the byte, not 'position 0'."""
     path = tmp_path / "latin.csv"
     path.write_bytes(b"cost,mass\n1,\xe9\n")
-    with pytest.raises(DataError, match=r"latin\.csv: line 2 holds the byte 0xe9, which is not UTF-8 text"):
+    with pytest.raises(
+        DataError, match=r"latin\.csv: line 2 holds the byte 0xe9, which is not UTF-8 text"
+    ):
         read_table(path)
 
 

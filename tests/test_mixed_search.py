@@ -19,8 +19,12 @@ def test_choices_and_flags_are_reset_at_the_per_variable_rate():
     case = load_case(CASES / "mixed")
     space = Space(case)
     problem = Problem(n_var=4, n_obj=2, xl=space.xl, xu=space.xu)
-    X = np.tile(space.encode({"width": 2.0, "count": 2, "finish": "bare", "fast": False}), (20_000, 1))
-    mutated = space.repair(MixedMutation(space)._do(problem, X, random_state=np.random.default_rng(7)))
+    X = np.tile(
+        space.encode({"width": 2.0, "count": 2, "finish": "bare", "fast": False}), (20_000, 1)
+    )
+    mutated = space.repair(
+        MixedMutation(space)._do(problem, X, random_state=np.random.default_rng(7))
+    )
     finish_changed = np.mean(mutated[:, 2] != 0)
     fast_changed = np.mean(mutated[:, 3] != 0)
     assert finish_changed == pytest.approx(1 / 6, abs=0.01)
@@ -42,14 +46,23 @@ def test_girder_search_finds_the_light_higher_grade_designs():
 
     def lightest(grade: str) -> float:
         def results(x):
-            design = {v.name: float(value) for v, value in zip(reals, x, strict=True)} | {"grade": grade}
+            design = {v.name: float(value) for v, value in zip(reals, x, strict=True)} | {
+                "grade": grade
+            }
             return model(design).results
 
         broken = NonlinearConstraint(
             lambda x: sum(c.violation(results(x)[c.name]) for c in case.constraints), -np.inf, 0.0
         )
-        found = differential_evolution(lambda x: results(x)["mass"], [(v.low, v.high) for v in reals],
-                                       constraints=broken, seed=1, tol=1e-8, maxiter=300, polish=False)
+        found = differential_evolution(
+            lambda x: results(x)["mass"],
+            [(v.low, v.high) for v in reals],
+            constraints=broken,
+            seed=1,
+            tol=1e-8,
+            maxiter=300,
+            polish=False,
+        )
         return float(found.fun)
 
     s235, s355 = lightest("S235"), lightest("S355")

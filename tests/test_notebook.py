@@ -30,7 +30,6 @@ NOTEBOOKS = sorted((Path(__file__).parent.parent / "notebooks").glob("*.ipynb"))
 def run():
     """A short search on the bundled heat-sink case: a real three-objective front with variables."""
 
-
     return tradewise.run("heat-sink", evaluations=400, population=40, seed=2)
 
 
@@ -39,7 +38,9 @@ def zdt1():
     """Points of the ZDT1 Pareto front f2 = 1 - sqrt(f1) (Zitzler, Deb and Thiele 2000), with units."""
     f1 = np.linspace(0.0, 1.0, 21)
     table = pd.DataFrame({"x": f1, "cost": f1 * 100.0, "mass": (1.0 - np.sqrt(f1)) * 10.0})
-    return Front.from_table(table, [Objective("cost", unit="EUR"), Objective("mass", unit="kg")], variables=["x"])
+    return Front.from_table(
+        table, [Objective("cost", unit="EUR"), Objective("mass", unit="kg")], variables=["x"]
+    )
 
 
 # ------------------------------------------------------------------------------ review page
@@ -59,16 +60,24 @@ def test_the_review_page_shows_the_whole_front_with_the_shortlist(run, tmp_path)
     page = write_review(state, tmp_path / "review.html")
     text = page.read_text(encoding="utf-8")
     facts = dict(
-        (label, value) for value, label in re.findall(r'<div class="fact"><b>([^<]*)</b><span>([^<]*)</span>', text)
+        (label, value)
+        for value, label in re.findall(
+            r'<div class="fact"><b>([^<]*)</b><span>([^<]*)</span>', text
+        )
     )
-    assert facts["designs on the front"] == str(len(front)) and facts["designs on the shortlist"] == "2"
+    assert (
+        facts["designs on the front"] == str(len(front))
+        and facts["designs on the shortlist"] == "2"
+    )
     expected = moocore.hypervolume(front.points(), ref=np.asarray(front.reference_point()))
     assert float(facts["hypervolume of the front"]) == pytest.approx(expected, rel=1e-4)
     assert "shortlist of" not in text
     listed = text.split('<section id="shortlist">')[1].split("</section>")[0]
     assert re.findall(r"<h3>\d+\. row (\d+)</h3>", listed) == [str(first + 1), str(second + 1)]
     shown = re.findall(r"mass = <b>([^<]+)</b>", listed)
-    assert [float(v) for v in shown] == pytest.approx(front.table["mass"].iloc[[first, second]].tolist(), rel=1e-4)
+    assert [float(v) for v in shown] == pytest.approx(
+        front.table["mass"].iloc[[first, second]].tolist(), rel=1e-4
+    )
     body = text.split('<table id="front-table">')[1].split("</tbody>")[0]
     assert len(re.findall(r"<tr", body)) == len(front) + 1  # the heading row and one row a design
 
@@ -92,8 +101,16 @@ def test_the_figure_greys_exactly_the_designs_outside_the_limits(run):
         offsets = np.asarray(rings[0].get_offsets())
         assert len(offsets) == outside.sum()
         drawn = {tuple(np.round(p, 9)) for p in offsets}
-        columns = [j for j in range(3) if np.allclose(np.asarray(base[0].get_offsets())[:, 0], points[:, j])]
-        columns += [j for j in range(3) if np.allclose(np.asarray(base[0].get_offsets())[:, 1], points[:, j])]
+        columns = [
+            j
+            for j in range(3)
+            if np.allclose(np.asarray(base[0].get_offsets())[:, 0], points[:, j])
+        ]
+        columns += [
+            j
+            for j in range(3)
+            if np.allclose(np.asarray(base[0].get_offsets())[:, 1], points[:, j])
+        ]
         assert drawn == {tuple(np.round(p, 9)) for p in points[outside][:, columns]}
     assert panels == 3  # the three pairwise panels of three objectives
     greyed_3d = [c for ax in fig.axes for c in ax.collections if c.get_gid() == "outside-limits-3d"]
@@ -118,11 +135,15 @@ def test_the_shading_covers_exactly_what_the_limits_exclude(zdt1):
     fig = draw_picker(state)
     ax = fig.axes[0]
     (x_view, _), (_, y_view) = ax.get_xlim(), ax.get_ylim()
-    assert _panel_shades(ax) == [("x", pytest.approx(x_view), pytest.approx(20.0)),
-                                 ("y", pytest.approx(6.0), pytest.approx(y_view))]
+    assert _panel_shades(ax) == [
+        ("x", pytest.approx(x_view), pytest.approx(20.0)),
+        ("y", pytest.approx(6.0), pytest.approx(y_view)),
+    ]
     rings = next(c for c in ax.collections if c.get_gid() == "outside-limits")
     assert len(rings.get_offsets()) == len(zdt1) - len(state.kept_rows)
-    assert [t.get_text() for t in ax.get_legend().get_texts()][-1] == f"outside the limits ({len(rings.get_offsets())})"
+    assert [t.get_text() for t in ax.get_legend().get_texts()][
+        -1
+    ] == f"outside the limits ({len(rings.get_offsets())})"
 
 
 def test_a_limit_is_shaded_on_its_own_axis_when_two_objectives_hold_the_same_values():
@@ -153,8 +174,10 @@ def test_greyed_designs_may_be_given_as_row_positions(zdt1):
     mask[[0, 3, 20]] = True
     by_mask = plots.plot_narrowed_front(zdt1, greyed=mask)
     by_rows = plots.plot_narrowed_front(zdt1, greyed=[0, 3, 20])
-    rings = [next(c for c in f.axes[0].collections if c.get_gid() == "outside-limits").get_offsets()
-             for f in (by_mask, by_rows)]
+    rings = [
+        next(c for c in f.axes[0].collections if c.get_gid() == "outside-limits").get_offsets()
+        for f in (by_mask, by_rows)
+    ]
     np.testing.assert_array_equal(rings[0], rings[1])
     np.testing.assert_array_equal(rings[0], zdt1.points()[[0, 3, 20]])
     with pytest.raises(DataError, match="a mask of 3 values for a front of 21"):
@@ -167,12 +190,21 @@ def test_greyed_designs_may_be_given_as_row_positions(zdt1):
 def test_drawing_onto_a_used_figure_gives_what_a_new_figure_shows(n_objectives):
     """plot_narrowed_front(figure=...) clears the figure it is given: its SVG equals that of a fresh figure."""
     f1 = np.linspace(0.0, 1.0, 21)
-    table = pd.DataFrame({"cost": f1 * 100.0, "mass": (1.0 - np.sqrt(f1)) * 10.0, "waste": (1.0 - f1) ** 2})
-    front = Front.from_table(table, [Objective(n) for n in ("cost", "mass", "waste")[:n_objectives]])
-    fresh = plots.plot_narrowed_front(front, greyed=f1 > 0.6, limits=["cost <= 60"], picks={"pick": 3})
-    used = plots.plot_narrowed_front(front, greyed=f1 < 0.2, limits=["cost >= 20"], picks={"pick": 9})
-    again = plots.plot_narrowed_front(front, greyed=f1 > 0.6, limits=["cost <= 60"], picks={"pick": 3},
-                                      figure=used)
+    table = pd.DataFrame(
+        {"cost": f1 * 100.0, "mass": (1.0 - np.sqrt(f1)) * 10.0, "waste": (1.0 - f1) ** 2}
+    )
+    front = Front.from_table(
+        table, [Objective(n) for n in ("cost", "mass", "waste")[:n_objectives]]
+    )
+    fresh = plots.plot_narrowed_front(
+        front, greyed=f1 > 0.6, limits=["cost <= 60"], picks={"pick": 3}
+    )
+    used = plots.plot_narrowed_front(
+        front, greyed=f1 < 0.2, limits=["cost >= 20"], picks={"pick": 9}
+    )
+    again = plots.plot_narrowed_front(
+        front, greyed=f1 > 0.6, limits=["cost <= 60"], picks={"pick": 3}, figure=used
+    )
     assert again is used
     assert plots.to_svg(again) == plots.to_svg(fresh)
 
@@ -206,7 +238,10 @@ def test_a_click_maps_to_a_row_by_the_event_index(zdt1):
     prefer[4] = False
     assert plots.clicked_row(event, prefer=prefer) in (3, 5)
     line = ax.lines[0]  # the thin path through the front is not a design
-    assert plots.clicked_row(PickEvent("pick_event", fig.canvas, mouse, line, ind=np.array([4]))) is None
+    assert (
+        plots.clicked_row(PickEvent("pick_event", fig.canvas, mouse, line, ind=np.array([4])))
+        is None
+    )
 
 
 def test_the_notebook_face_draws_only_through_plots():
@@ -225,8 +260,11 @@ def test_the_notebook_face_draws_only_through_plots():
 
     assert not {m for m in imported("notebook.py") if m.split(".")[0] == "matplotlib"}
     faces = ("tradewise.notebook", "tradewise.plots", "tradewise.report", "tradewise.cli")
-    below = {m for m in imported("picker.py") if m.split(".")[0] in ("matplotlib", "ipywidgets", "ipympl")
-             or m.startswith(faces)}
+    below = {
+        m
+        for m in imported("picker.py")
+        if m.split(".")[0] in ("matplotlib", "ipywidgets", "ipympl") or m.startswith(faces)
+    }
     assert below == set()
 
 
@@ -239,7 +277,9 @@ def test_clicking_a_point_selects_that_design(zdt1):
 
     picker = Picker(zdt1, clickable=False)
     target = picker.state.ranking[4]
-    ax = next(a for a in picker.figure.axes if any(c.get_gid() == "front-points" for c in a.collections))
+    ax = next(
+        a for a in picker.figure.axes if any(c.get_gid() == "front-points" for c in a.collections)
+    )
     picker.figure.canvas.draw()
     x, y = ax.transData.transform(zdt1.points()[target])
     MouseEvent("button_press_event", picker.figure.canvas, x, y, button=1)._process()
@@ -269,7 +309,9 @@ def test_the_widgets_edit_the_state(zdt1, tmp_path, monkeypatch):
     picker.buttons["add"].click()
     assert state.shortlist == [state.ranking[2]]
     picker.buttons["export"].click()
-    assert read_front(tmp_path / "shortlist.csv").table["front_row"].tolist() == [state.shortlist[0] + 1]
+    assert read_front(tmp_path / "shortlist.csv").table["front_row"].tolist() == [
+        state.shortlist[0] + 1
+    ]
     picker._shortlist.value = state.shortlist[0]
     picker.buttons["remove"].click()
     assert state.shortlist == []
@@ -280,7 +322,9 @@ def test_the_widgets_edit_the_state(zdt1, tmp_path, monkeypatch):
     assert picker._image.value[:4] == b"\x89PNG"
 
 
-@pytest.mark.filterwarnings("ignore::DeprecationWarning:traitlets")  # raised inside ipympl's toolbar
+@pytest.mark.filterwarnings(
+    "ignore::DeprecationWarning:traitlets"
+)  # raised inside ipympl's toolbar
 def test_an_ipympl_canvas_takes_clicks(zdt1):
     """With ipympl the figure is an interactive canvas widget and a pick event on it selects the design."""
     pytest.importorskip("ipympl")
@@ -292,7 +336,9 @@ def test_an_ipympl_canvas_takes_clicks(zdt1):
     canvas = picker._figure_box.children[0]
     assert type(canvas).__name__ == "Canvas" and canvas.figure is picker.figure
     target = picker.state.ranking[3]
-    ax = next(a for a in picker.figure.axes if any(c.get_gid() == "front-points" for c in a.collections))
+    ax = next(
+        a for a in picker.figure.axes if any(c.get_gid() == "front-points" for c in a.collections)
+    )
     canvas.draw()
     x, y = ax.transData.transform(zdt1.points()[target])
     MouseEvent("button_press_event", canvas, x, y, button=1)._process()
@@ -301,7 +347,9 @@ def test_an_ipympl_canvas_takes_clicks(zdt1):
     assert picker._figure_box.children == (canvas,) and canvas.figure is picker.figure
     other = picker.state.ranking[6]
     canvas.draw()
-    ax = next(a for a in picker.figure.axes if any(c.get_gid() == "front-points" for c in a.collections))
+    ax = next(
+        a for a in picker.figure.axes if any(c.get_gid() == "front-points" for c in a.collections)
+    )
     x, y = ax.transData.transform(zdt1.points()[other])
     MouseEvent("button_press_event", canvas, x, y, button=1)._process()
     assert picker.state.pick == other
@@ -316,7 +364,9 @@ def test_notebooks_are_stored_without_outputs():
         nb = nbformat.read(path, as_version=4)
         for cell in nb.cells:
             if cell.cell_type == "code":
-                assert cell.outputs == [] and cell.execution_count is None, f"{path.name} holds outputs"
+                assert cell.outputs == [] and cell.execution_count is None, (
+                    f"{path.name} holds outputs"
+                )
 
 
 @pytest.fixture
@@ -324,8 +374,11 @@ def kernel_name(tmp_path, monkeypatch):
     """A kernelspec that runs this interpreter, so the notebooks see the tradewise under test."""
     folder = tmp_path / "jupyter" / "kernels" / "tradewise-test"
     folder.mkdir(parents=True)
-    spec = {"argv": [sys.executable, "-m", "ipykernel_launcher", "-f", "{connection_file}"],
-            "display_name": "tradewise test", "language": "python"}
+    spec = {
+        "argv": [sys.executable, "-m", "ipykernel_launcher", "-f", "{connection_file}"],
+        "display_name": "tradewise test",
+        "language": "python",
+    }
     (folder / "kernel.json").write_text(json.dumps(spec), encoding="utf-8")
     monkeypatch.setenv("JUPYTER_PATH", str(tmp_path / "jupyter"))
     return "tradewise-test"
@@ -340,10 +393,13 @@ def test_notebook_runs_top_to_bottom(path, kernel_name, tmp_path):
     nb = nbformat.read(path, as_version=4)
     work = tmp_path / "work"
     work.mkdir()
-    client = nbclient.NotebookClient(nb, timeout=300, kernel_name=kernel_name,
-                                     resources={"metadata": {"path": str(work)}})
+    client = nbclient.NotebookClient(
+        nb, timeout=300, kernel_name=kernel_name, resources={"metadata": {"path": str(work)}}
+    )
     client.execute()  # raises CellExecutionError on the first failing cell
-    errors = [o for c in nb.cells if c.cell_type == "code" for o in c.outputs if o.output_type == "error"]
+    errors = [
+        o for c in nb.cells if c.cell_type == "code" for o in c.outputs if o.output_type == "error"
+    ]
     assert errors == []
     shortlists = list(work.rglob("shortlist.csv"))
     assert shortlists, "the notebook wrote no shortlist"

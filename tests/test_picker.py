@@ -29,7 +29,6 @@ from tradewise.picker import SHORTLIST_COLUMNS, PickerState, load_picker_source,
 def run():
     """A short search on the bundled heat-sink case: a real three-objective front with variables."""
 
-
     return tradewise.run("heat-sink", evaluations=400, population=40, seed=2)
 
 
@@ -307,7 +306,6 @@ def test_kneedle_is_offered_for_two_objectives_only(zdt1, run):
 
 def test_sources_a_run_folder_a_csv_and_a_result(run, tmp_path):
     """A search result, a run folder (with its history) and a front CSV give the same front."""
-
 
     tradewise.save_run(run, tmp_path / "run")
     for source in (run, tmp_path / "run", str(tmp_path / "run" / "front.csv")):

@@ -298,14 +298,18 @@ def test_history_with_seeds_draws_one_line_per_seed_and_a_star_at_each_end():
         parts.append(part)
     history = pd.concat(parts, ignore_index=True)
     fig = plots.plot_history(
-        history, stop_reason="seed 1: budget used; seed 2: budget used; seed 3: budget used", budget=1200
+        history,
+        stop_reason="seed 1: budget used; seed 2: budget used; seed 3: budget used",
+        budget=1200,
     )
     top, bottom = fig.axes
     for seed, part in history.groupby("seed"):
         hv = next(a for a in top.lines if a.get_gid() == f"hypervolume-seed-{seed}")
         size = next(a for a in bottom.lines if a.get_gid() == f"front-size-seed-{seed}")
         np.testing.assert_allclose(hv.get_xydata(), part[["evaluations", "hypervolume"]].to_numpy())
-        np.testing.assert_allclose(size.get_xydata(), part[["evaluations", "front_size"]].to_numpy())
+        np.testing.assert_allclose(
+            size.get_xydata(), part[["evaluations", "front_size"]].to_numpy()
+        )
     drawn = [a for a in top.lines if (a.get_gid() or "").startswith("hypervolume")]
     assert len(drawn) == 3
     assert all(np.all(np.diff(a.get_xdata()) > 0) for a in drawn), "a line runs back in evaluations"
@@ -369,7 +373,9 @@ def test_attainment_table_from_compare_draws_a_true_median_for_three_runs():
         for k, s in enumerate(rng.integers(0, 1000, 3))
     ]
     fronts = [
-        Front.from_table(pd.DataFrame(r, columns=["cost", "life"]), objectives, reference=(3.0, -3.0))
+        Front.from_table(
+            pd.DataFrame(r, columns=["cost", "life"]), objectives, reference=(3.0, -3.0)
+        )
         for r in runs
     ]
     table = compare_attainment(fronts).table()
@@ -392,7 +398,9 @@ def test_attainment_table_from_compare_draws_a_true_median_for_three_runs():
     ]
     # the same surfaces given as a mapping of corner arrays draw the same staircases
     corners = {name: part[["cost", "life"]].to_numpy() for name, part in table.groupby("surface")}
-    again = plots.plot_attainment(corners, objectives, levels={"best": 1, "median": 2, "worst": 3}, n_runs=3)
+    again = plots.plot_attainment(
+        corners, objectives, levels={"best": 1, "median": 2, "worst": 3}, n_runs=3
+    )
     for line in again.axes[0].lines:
         np.testing.assert_allclose(line.get_xydata(), lines[line.get_gid()])
 
@@ -401,7 +409,10 @@ def test_attainment_median_of_five_runs_is_named_by_the_runs_that_reach_it():
     """Five runs through moocore's 50 % level: the median staircase bounds the points at least 3 of 5 runs
     attain (at least half, Grunert da Fonseca et al. 2001), and the legend says 3 of 5, not 2."""
     objectives = [Objective("cost", "min", "EUR"), Objective("mass", "min", "kg")]
-    runs = [moocore.generate_ndset(7, 2, "sphere", seed=s) * (1 + 0.1 * k) for k, s in enumerate(range(5))]
+    runs = [
+        moocore.generate_ndset(7, 2, "sphere", seed=s) * (1 + 0.1 * k)
+        for k, s in enumerate(range(5))
+    ]
     fig = plots.plot_attainment(plots.attainment(runs, objectives), objectives)
     ax = fig.axes[0]
     median = next(line.get_xydata() for line in ax.lines if line.get_gid() == "attainment-median")
@@ -410,7 +421,9 @@ def test_attainment_median_of_five_runs_is_named_by_the_runs_that_reach_it():
     for probe in probes:
         count = sum(_attained(probe, run, signs) for run in runs)
         assert _attained(probe, median, signs) == (count >= 3), f"median at {probe}: {count} runs"
-    assert "median: reached by at least 3 of 5 runs" in [t.get_text() for t in ax.get_legend().get_texts()]
+    assert "median: reached by at least 3 of 5 runs" in [
+        t.get_text() for t in ax.get_legend().get_texts()
+    ]
 
 
 def test_attainment_refuses_three_objectives_and_single_runs():
@@ -431,7 +444,11 @@ def test_shortlist_rings_sit_on_the_chosen_designs_and_carry_their_pick_numbers(
     ax = fig.axes[0]
     rings = next(c for c in ax.collections if c.get_gid() == "shortlist-rings")
     np.testing.assert_allclose(np.asarray(rings.get_offsets()), front.points()[rows])
-    labels = {t.get_gid(): (t.get_text(), t.xy) for t in ax.texts if (t.get_gid() or "").startswith("shortlist")}
+    labels = {
+        t.get_gid(): (t.get_text(), t.xy)
+        for t in ax.texts
+        if (t.get_gid() or "").startswith("shortlist")
+    }
     assert labels["shortlist-1"][0] == "1" and labels["shortlist-2"][0] == "2"
     np.testing.assert_allclose(labels["shortlist-1"][1], front.points()[20])
     assert labels["shortlist-3"][0] == "3, 4" and "shortlist-4" not in labels

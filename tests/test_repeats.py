@@ -24,7 +24,9 @@ def test_parallel_and_sequential_seeds_agree_and_share_one_archive(tmp_path):
     """Three seeds run one after another and in three processes give the same runs (same seed, same result),
     and each set of runs lands in its own single archive."""
     one = tradewise.run_seeds(CASES / "zdt1", 3, evaluations=600, store=tmp_path / "one.sqlite")
-    many = tradewise.run_seeds(CASES / "zdt1", 3, evaluations=600, store=tmp_path / "many.sqlite", workers=3)
+    many = tradewise.run_seeds(
+        CASES / "zdt1", 3, evaluations=600, store=tmp_path / "many.sqlite", workers=3
+    )
     assert one.seeds == many.seeds == (1, 2, 3)  # the case's seed 1, then +1, +2
     assert one.hypervolumes == many.hypervolumes
     for a, b in zip(one.runs, many.runs, strict=True):
@@ -52,7 +54,9 @@ def test_merged_front_and_spread_against_moocore():
     reference = np.max([r.reference for r in result.runs], axis=0)
     assert result.reference == tuple(reference) == (1.0, 1.0)  # the case's worst values
     for run, hv in zip(result.runs, result.hypervolumes, strict=True):
-        assert hv == pytest.approx(moocore.hypervolume(run.front.points(), ref=reference), rel=1e-12)
+        assert hv == pytest.approx(
+            moocore.hypervolume(run.front.points(), ref=reference), rel=1e-12
+        )
     assert result.hypervolume == pytest.approx(moocore.hypervolume(union, ref=reference), rel=1e-12)
     assert result.hypervolume >= max(result.hypervolumes)
     spread = result.spread
@@ -67,7 +71,7 @@ def test_maximised_objective_and_own_reference_points(make_case):
     """Without `worst`, each seed fixes its own reference; the common one is the worst of them per goal
     (largest for a minimised objective, smallest for a maximised one)."""
     folder = make_case(
-        toml='''
+        toml="""
         title = "tiny, one goal maximised"
         model = "model.py:evaluate"
         [variables]
@@ -76,12 +80,12 @@ def test_maximised_objective_and_own_reference_points(make_case):
         [objectives]
         cost = { goal = "min", unit = "EUR" }
         grip = { goal = "max", unit = "N" }
-        ''',
-        model='''
+        """,
+        model="""
         def evaluate(design):
             x, y = design["x"], design["y"]
             return {"cost": x + 0.5 * y, "grip": 10 * x ** 0.5 - 2 * y}
-        ''',
+        """,
     )
     result = tradewise.run_seeds(folder, 3, evaluations=300)
     refs = np.array([r.reference for r in result.runs])
@@ -101,7 +105,9 @@ def test_bad_number_of_seeds():
 
 def test_run_folder_for_several_seeds(tmp_path):
     """tradewise.save_seeds writes the merged front, one folder a seed, seeds.csv and a history with a seed column."""
-    result = tradewise.run_seeds(CASES / "zdt1", 3, evaluations=400, store=tmp_path / "archive.sqlite")
+    result = tradewise.run_seeds(
+        CASES / "zdt1", 3, evaluations=400, store=tmp_path / "archive.sqlite"
+    )
     written = tradewise.save_seeds(result, tmp_path / "run")
     run = tmp_path / "run"
     assert set(written) >= {"front", "meta", "history", "seeds"}
@@ -121,17 +127,35 @@ def test_cli_run_with_seeds_in_parallel(tmp_path):
     """`run --seeds 3 --workers 3` states the spread, writes attainment.csv with the three surfaces and
     disagreement.csv, whose area equals HV(best) - HV(worst) (moocore)."""
     out = tmp_path / "run"
-    cli = CliRunner().invoke(main, ["run", str(CASES / "zdt1"), "--seeds", "3", "--workers", "3",
-                                    "--evaluations", "600", "--out", str(out), "--quiet"])
+    cli = CliRunner().invoke(
+        main,
+        [
+            "run",
+            str(CASES / "zdt1"),
+            "--seeds",
+            "3",
+            "--workers",
+            "3",
+            "--evaluations",
+            "600",
+            "--out",
+            str(out),
+            "--quiet",
+        ],
+    )
     assert cli.exit_code == 0, cli.output
     assert "single runs: median" in cli.output and "runs disagree on" in cli.output
     table = pd.read_csv(out / "attainment.csv")
     assert set(table["surface"]) == {"best", "median", "worst"}
     regions = pd.read_csv(out / "disagreement.csv")
-    area = ((regions["f1_high"] - regions["f1_low"]) * (regions["f2_high"] - regions["f2_low"])).sum()
+    area = (
+        (regions["f1_high"] - regions["f1_low"]) * (regions["f2_high"] - regions["f2_low"])
+    ).sum()
     best = table.loc[table["surface"] == "best", ["f1", "f2"]].to_numpy()
     worst = table.loc[table["surface"] == "worst", ["f1", "f2"]].to_numpy()
-    assert area == pytest.approx(moocore.hypervolume(best, ref=[1, 1]) - moocore.hypervolume(worst, ref=[1, 1]))
+    assert area == pytest.approx(
+        moocore.hypervolume(best, ref=[1, 1]) - moocore.hypervolume(worst, ref=[1, 1])
+    )
     meta = json.loads((out / "front.json").read_text())
     assert meta["n_seeds"] == 3 and meta["n_evals"] == 1800
     # The folder compares like any other, and brings its seed-to-seed spread along.
@@ -181,12 +205,14 @@ def test_dtlz2_median_attainment_surface_near_the_true_front():
     assert np.quantile(norms - 1, 0.9) <= 0.07
     assert norms.min() >= 1 - 1e-9
     a, b = np.meshgrid(np.linspace(0, math.pi / 2, 151), np.linspace(0, math.pi / 2, 151))
-    sphere = np.c_[(np.cos(a) * np.cos(b)).ravel(), (np.cos(a) * np.sin(b)).ravel(), np.sin(a).ravel()]
+    sphere = np.c_[
+        (np.cos(a) * np.cos(b)).ravel(), (np.cos(a) * np.sin(b)).ravel(), np.sin(a).ravel()
+    ]
     assert moocore.igd_plus(median, ref=sphere) <= 0.04
 
 
 # ------------------------------------------------------------------------ interrupted sets of seeds
-NO_WORST_MODEL = '''
+NO_WORST_MODEL = """
 import json, os, time
 
 def evaluate(design):
@@ -197,9 +223,9 @@ def evaluate(design):
         with open(log, "a", encoding="utf-8") as handle:
             handle.write("1\\n")
     return {"cost": x + 0.3 * y, "grip": 10 * x ** 0.5 - 2 * y}
-'''
+"""
 
-NO_WORST_TOML = '''
+NO_WORST_TOML = """
 title = "tiny, no worst values"
 model = "model.py:evaluate"
 [variables]
@@ -213,7 +239,7 @@ population = 10
 evaluations = 60
 seed = 4
 stall_generations = 0
-'''
+"""
 
 
 def _merged(result) -> pd.DataFrame:
@@ -224,7 +250,6 @@ def _merged(result) -> pd.DataFrame:
 def test_an_interrupted_set_of_seeds_resumes_every_seed(make_case, tmp_path):
     """Three seeds interrupted in the second: the result says which seeds did not run, and resuming the
     archive finishes the second, runs the third and merges all three, as one uninterrupted set would."""
-
 
     folder = make_case(NO_WORST_TOML, NO_WORST_MODEL)
 
@@ -256,8 +281,14 @@ def test_one_reference_for_everything_about_a_set_of_seeds(make_case, tmp_path):
     history = pd.read_csv(tmp_path / "run" / "history.csv")
     for run, hv in zip(result.runs, result.hypervolumes, strict=True):
         last = history[history["seed"] == run.seed]["hypervolume"].iloc[-1]
-        assert last == pytest.approx(hv, rel=1e-12) == pytest.approx(seeds.loc[run.seed, "hypervolume"])
-        meta = json.loads((tmp_path / "run" / "seeds" / f"seed-{run.seed}" / "front.json").read_text())
+        assert (
+            last
+            == pytest.approx(hv, rel=1e-12)
+            == pytest.approx(seeds.loc[run.seed, "hypervolume"])
+        )
+        meta = json.loads(
+            (tmp_path / "run" / "seeds" / f"seed-{run.seed}" / "front.json").read_text()
+        )
         assert tuple(meta["reference_point"]) == pytest.approx(result.reference, rel=1e-12)
         assert meta["hypervolume"] == pytest.approx(hv, rel=1e-12)
         assert f"hypervolume {hv:.6g} on the seeds' common reference point" in run.message
@@ -279,10 +310,21 @@ def test_cli_set_of_seeds_killed_then_resumed(make_case, tmp_path):
     folder = make_case(NO_WORST_TOML, NO_WORST_MODEL)
     log = tmp_path / "log.txt"
     env = dict(os.environ, TW_EVAL_LOG=str(log), TW_TEST_SLEEP="0.02")
-    args = [sys.executable, "-m", "tradewise.cli", "run", str(folder), "--seeds", "3", "--out",
-            str(tmp_path / "run"), "--quiet"]
-    proc = subprocess.Popen(args, env=env, start_new_session=True, stdout=subprocess.DEVNULL,
-                            stderr=subprocess.DEVNULL)
+    args = [
+        sys.executable,
+        "-m",
+        "tradewise.cli",
+        "run",
+        str(folder),
+        "--seeds",
+        "3",
+        "--out",
+        str(tmp_path / "run"),
+        "--quiet",
+    ]
+    proc = subprocess.Popen(
+        args, env=env, start_new_session=True, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL
+    )
     deadline = time.monotonic() + 60
     while not log.exists() or len(log.read_text().splitlines()) < 80:
         assert proc.poll() is None and time.monotonic() < deadline
@@ -290,8 +332,13 @@ def test_cli_set_of_seeds_killed_then_resumed(make_case, tmp_path):
     os.killpg(proc.pid, signal.SIGKILL)
     proc.wait()
     store = tmp_path / "run" / "archive.sqlite"
-    done = subprocess.run([sys.executable, "-m", "tradewise.cli", "resume", str(store), "--quiet"],
-                          env=dict(env, TW_TEST_SLEEP="0"), capture_output=True, text=True, timeout=300)
+    done = subprocess.run(
+        [sys.executable, "-m", "tradewise.cli", "resume", str(store), "--quiet"],
+        env=dict(env, TW_TEST_SLEEP="0"),
+        capture_output=True,
+        text=True,
+        timeout=300,
+    )
     assert done.returncode == 0, done.stderr
     seeds = pd.read_csv(tmp_path / "run" / "seeds.csv")
     assert seeds["seed"].tolist() == [4, 5, 6] and (seeds["status"] == "budget").all()
@@ -300,5 +347,6 @@ def test_cli_set_of_seeds_killed_then_resumed(make_case, tmp_path):
     front = pd.read_csv(tmp_path / "run" / "front.csv")
     front.columns = [c.split(" [")[0] for c in front.columns]
     names = ["x", "y", "cost", "grip", "seed"]
-    pd.testing.assert_frame_equal(front[names].sort_values(names).reset_index(drop=True), _merged(whole),
-                                  check_dtype=False)
+    pd.testing.assert_frame_equal(
+        front[names].sort_values(names).reset_index(drop=True), _merged(whole), check_dtype=False
+    )

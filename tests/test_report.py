@@ -212,7 +212,9 @@ def test_report_and_plot_commands_on_a_run_folder(run_folder, tmp_path):
 def _facts(text: str) -> dict[str, str]:
     return dict(
         (label, value)
-        for value, label in re.findall(r'<div class="fact"><b>([^<]*)</b><span>([^<]*)</span>', text)
+        for value, label in re.findall(
+            r'<div class="fact"><b>([^<]*)</b><span>([^<]*)</span>', text
+        )
     )
 
 
@@ -220,7 +222,9 @@ def _section(text: str, name: str) -> str:
     return text.split(f'<section id="{name}">')[1].split("</section>")[0]
 
 
-def test_shortlist_page_keeps_the_whole_front_and_lists_the_designs_in_pick_order(run_folder, tmp_path):
+def test_shortlist_page_keeps_the_whole_front_and_lists_the_designs_in_pick_order(
+    run_folder, tmp_path
+):
     """`report RUN --shortlist FILE.csv` with a 2-design shortlist: the page still counts every design of the
     front and gives its hypervolume (checked against moocore), lists the two designs in pick order with their
     values and rates, rings them on the figure, tags them in the table and escapes the shortlist's texts."""
@@ -232,7 +236,12 @@ def test_shortlist_page_keeps_the_whole_front_and_lists_the_designs_in_pick_orde
     table = front.table.iloc[chosen[::-1]].copy()  # the file lists them out of pick order
     table.insert(0, "front_row", [r + 1 for r in chosen[::-1]])
     table.insert(0, "pick_order", [2, 1])
-    settings = {"method": "topsis", "limits": ["mass <= <b>9</b>"], "rows": [6, 2], "n_front": len(front)}
+    settings = {
+        "method": "topsis",
+        "limits": ["mass <= <b>9</b>"],
+        "rows": [6, 2],
+        "n_front": len(front),
+    }
     shortlist = Front(table=table.reset_index(drop=True), objectives=front.objectives, units=front.units,
                       variables=front.variables, reference=front.reference,
                       meta={**front.meta, "shortlist": settings})  # fmt: skip
@@ -256,7 +265,10 @@ def test_shortlist_page_keeps_the_whole_front_and_lists_the_designs_in_pick_orde
         shown = re.search(r"resistance = <b>([^<]+)</b>", card).group(1)
         assert float(shown) == pytest.approx(front.table["resistance"].iloc[row], rel=1e-4)
     assert part.count("Trade-off rates on the whole front") == 2
-    assert "the topsis method; limits mass &lt;= &lt;b&gt;9&lt;/b&gt;" in part and "<b>9</b>" not in part
+    assert (
+        "the topsis method; limits mass &lt;= &lt;b&gt;9&lt;/b&gt;" in part
+        and "<b>9</b>" not in part
+    )
     assert part.count('id="shortlist-shortlist-rings"') == 1
     # the ring markers are <use> elements up to the next named group of the figure
     rings = part.split('<g id="shortlist-shortlist-rings">')[1].split('<g id="')[0]
@@ -264,7 +276,10 @@ def test_shortlist_page_keeps_the_whole_front_and_lists_the_designs_in_pick_orde
     body = text.split('<table id="front-table">')[1].split("</table>")[0]
     rows = re.findall(r"<tr[^>]*>(.*?)</tr>", body.split("<tbody>")[1])
     assert len(rows) == len(front)
-    assert '<span class="tag">shortlist 1</span>' in rows[5] and '<span class="tag">shortlist 2</span>' in rows[1]
+    assert (
+        '<span class="tag">shortlist 1</span>' in rows[5]
+        and '<span class="tag">shortlist 2</span>' in rows[1]
+    )
 
 
 def test_shortlist_rows_are_found_by_values_and_a_design_off_the_front_is_refused():
@@ -278,7 +293,9 @@ def test_shortlist_rows_are_found_by_values_and_a_design_off_the_front_is_refuse
     part = _section(build_report(front, shortlist=wrong), "shortlist")
     assert re.findall(r"<h3>\d+\. (row \d+)</h3>", part) == ["row 8", "row 4"]
     stranger = pd.DataFrame({"cost": [150.0], "mass": [9.5]})
-    with pytest.raises(DataError, match=r"shortlist: design 1 \(cost 150, mass 9.5\) is not on this front"):
+    with pytest.raises(
+        DataError, match=r"shortlist: design 1 \(cost 150, mass 9.5\) is not on this front"
+    ):
         build_report(front, shortlist=stranger)
     with pytest.raises(DataError, match="holds no designs"):
         build_report(front, shortlist=plain.iloc[0:0])
@@ -290,7 +307,8 @@ def seeds_folder(make_case, tmp_path) -> Path:
     folder = make_case(CASE_TOML.format(title=HOSTILE_TITLE), CASE_MODEL, name="hostile-seeds")
     out = tmp_path / "seeds-run"
     result = CliRunner().invoke(
-        main, ["run", str(folder), "--seeds", "3", "--evaluations", "300", "--out", str(out), "--quiet"]
+        main,
+        ["run", str(folder), "--seeds", "3", "--evaluations", "300", "--out", str(out), "--quiet"],
     )
     assert result.exit_code == 0, result.output
     return out
@@ -301,7 +319,9 @@ def test_seeds_folder_page_shows_the_spread_and_the_attainment_figure(seeds_fold
     lists every seed, draws one convergence line per seed and the three attainment surfaces; `plot --kind
     attainment` draws them too, and refuses a single run's folder in one line."""
     runner = CliRunner()
-    result = runner.invoke(main, ["report", str(seeds_folder), "--out", str(tmp_path / "page.html")])
+    result = runner.invoke(
+        main, ["report", str(seeds_folder), "--out", str(tmp_path / "page.html")]
+    )
     assert result.exit_code == 0, result.output
     text = (tmp_path / "page.html").read_text(encoding="utf-8")
     seeds = pd.read_csv(seeds_folder / "seeds.csv")
@@ -309,7 +329,9 @@ def test_seeds_folder_page_shows_the_spread_and_the_attainment_figure(seeds_fold
     part = _section(text, "run").split('<h3 id="seeds">')[1]
     said = re.search(r"hypervolume of ([\d.e-]+) \(median\), from ([\d.e-]+) to ([\d.e-]+)", part)
     assert said is not None, part[:500]
-    np.testing.assert_allclose([float(v) for v in said.groups()], [np.median(hv), hv.min(), hv.max()], rtol=1e-4)
+    np.testing.assert_allclose(
+        [float(v) for v in said.groups()], [np.median(hv), hv.min(), hv.max()], rtol=1e-4
+    )
     seed_table = part.split('<table class="seeds">')[1].split("</table>")[0]
     assert len(re.findall(r"<tr>", seed_table)) == len(seeds) + 1
     assert _facts(text)["independent runs (seeds), merged"] == "3"
@@ -323,7 +345,11 @@ def test_seeds_folder_page_shows_the_spread_and_the_attainment_figure(seeds_fold
         assert image.size[0] > 600
     single = seeds_folder / "seeds" / f"seed-{seeds['seed'].iloc[0]}"
     result = runner.invoke(main, ["plot", str(single), "--kind", "attainment"])
-    assert result.exit_code == 2 and result.output.startswith("Error: ") and "--seeds K" in result.output
+    assert (
+        result.exit_code == 2
+        and result.output.startswith("Error: ")
+        and "--seeds K" in result.output
+    )
 
 
 # ------------------------------------------------------------------------------- headless Chromium

@@ -23,7 +23,7 @@ from tradewise.search import design_key
 from tradewise.store import open_store
 
 # Sleeps a little, and appends each finished evaluation to a log that survives the kill.
-MODEL = '''
+MODEL = """
 import json, os, time
 
 def evaluate(design):
@@ -35,9 +35,9 @@ def evaluate(design):
         with open(log, "a", encoding="utf-8") as handle:
             handle.write(json.dumps({"t": time.time(), "design": design}) + "\\n")
     return result
-'''
+"""
 
-TOML = '''
+TOML = """
 title = "kill and resume"
 model = "model.py:evaluate"
 
@@ -54,7 +54,7 @@ population = POPULATION
 evaluations = 150
 seed = 7
 stall_generations = 0
-'''
+"""
 
 
 @pytest.fixture
@@ -80,7 +80,9 @@ def _real_rows(store: Path) -> pd.DataFrame:
     with sqlite3.connect(store) as db:
         return pd.read_sql_query(
             "SELECT eval_id, run_id, case_hash, design_key, design, results, status FROM evaluations"
-            " WHERE source_id IS NULL ORDER BY eval_id", db)
+            " WHERE source_id IS NULL ORDER BY eval_id",
+            db,
+        )
 
 
 def _front(path: Path, case) -> pd.DataFrame:
@@ -92,9 +94,17 @@ def _kill_part_way(case_folder: Path, tmp_path: Path, *, after: int, extra=()):
     """Start `tradewise run` in its own process group; SIGKILL the group after `after` evaluations finished."""
     log = tmp_path / "evaluations.log"
     env = {"TW_EVAL_LOG": str(log), "TW_TEST_SLEEP": "0.02"}
-    args, env, cwd = _cli(["run", case_folder.name, "--out", "run", "--quiet", *extra], env=env, cwd=tmp_path)
-    proc = subprocess.Popen(args, env=env, cwd=cwd, start_new_session=True,
-                            stdout=subprocess.DEVNULL, stderr=subprocess.PIPE)
+    args, env, cwd = _cli(
+        ["run", case_folder.name, "--out", "run", "--quiet", *extra], env=env, cwd=tmp_path
+    )
+    proc = subprocess.Popen(
+        args,
+        env=env,
+        cwd=cwd,
+        start_new_session=True,
+        stdout=subprocess.DEVNULL,
+        stderr=subprocess.PIPE,
+    )
     deadline = time.monotonic() + 60
     # Wait for `after` evaluations, and for the first to be 1.5 s old so that durability can be checked.
     while len(entries := _log(log)) < after or time.time() - entries[0]["t"] < 1.5:
@@ -126,8 +136,11 @@ def _check_kill_and_resume(case_folder: Path, tmp_path: Path, *, after: int, ext
     # Resume from another folder: the case path recorded with the run is absolute.
     elsewhere = tmp_path / "elsewhere"
     elsewhere.mkdir()
-    args, env, cwd = _cli(["resume", str(store), "--quiet", *extra],
-                          env={"TW_EVAL_LOG": str(log), "TW_TEST_SLEEP": "0.02"}, cwd=elsewhere)
+    args, env, cwd = _cli(
+        ["resume", str(store), "--quiet", *extra],
+        env={"TW_EVAL_LOG": str(log), "TW_TEST_SLEEP": "0.02"},
+        cwd=elsewhere,
+    )
     done = subprocess.run(args, env=env, cwd=cwd, capture_output=True, text=True, timeout=300)
     assert done.returncode == 0, done.stderr
     after_resume = _real_rows(store)
@@ -138,7 +151,7 @@ def _check_kill_and_resume(case_folder: Path, tmp_path: Path, *, after: int, ext
     # Nothing repeated: one real evaluation per design and case, and the model never re-ran a stored design.
     assert after_resume.groupby(["case_hash", "design_key"]).size().max() == 1
     assert len(after_resume) == 150
-    evaluated_again = [design_key(e["design"]) for e in _log(log)[len(finished_before):]]
+    evaluated_again = [design_key(e["design"]) for e in _log(log)[len(finished_before) :]]
     assert not set(evaluated_again) & stored_keys
     # The only designs the model ran twice are the few that had finished but were not yet durable.
     twice = {design_key(e["design"]) for e in finished_before} - stored_keys
@@ -146,11 +159,15 @@ def _check_kill_and_resume(case_folder: Path, tmp_path: Path, *, after: int, ext
 
     # The same front as a run that was never interrupted (same seed and budget, its own archive).
     reference = tradewise.run(case, store=tmp_path / "reference.sqlite")
-    pd.testing.assert_frame_equal(_front(tmp_path / "run" / "front.csv", case), _front_of(reference, case))
+    pd.testing.assert_frame_equal(
+        _front(tmp_path / "run" / "front.csv", case), _front_of(reference, case)
+    )
     meta = json.loads((tmp_path / "run" / "front.json").read_text())
     assert meta["hypervolume"] == reference.hypervolume and meta["n_evals"] == 150
-    print(f"killed after {len(finished_before)} finished evaluations, {len(at_kill)} stored, state at "
-          f"generation {saved}, {len(twice)} evaluated twice")
+    print(
+        f"killed after {len(finished_before)} finished evaluations, {len(at_kill)} stored, state at "
+        f"generation {saved}, {len(twice)} evaluated twice"
+    )
     return at_kill, saved
 
 
@@ -226,14 +243,20 @@ def test_cli_second_run_reports_the_archive(folder, tmp_path):
 
 # ---------------------------------------------------------------------------- wrong stores
 def _digests(folder: Path) -> dict[str, str]:
-    return {p.name: hashlib.sha256(p.read_bytes()).hexdigest() for p in sorted(folder.iterdir()) if p.is_file()}
+    return {
+        p.name: hashlib.sha256(p.read_bytes()).hexdigest()
+        for p in sorted(folder.iterdir())
+        if p.is_file()
+    }
 
 
 @pytest.fixture
 def finished(folder, tmp_path):
     """A finished run folder written by the command line."""
     out = tmp_path / "run"
-    result = CliRunner().invoke(main, ["run", str(folder()), "--out", str(out), "--evaluations", "30", "--quiet"])
+    result = CliRunner().invoke(
+        main, ["run", str(folder()), "--out", str(out), "--evaluations", "30", "--quiet"]
+    )
     assert result.exit_code == 0, result.output
     return out
 
@@ -242,7 +265,9 @@ def test_resume_with_another_case_is_refused(finished, make_case):
     """A store resumed with the case of another study: one Error line, exit 2, no file in the folder touched."""
     other = make_case(TOML.replace("POPULATION", "12"), MODEL, name="other")
     before = _digests(finished)
-    result = CliRunner().invoke(main, ["resume", str(finished / "archive.sqlite"), "--case", str(other)])
+    result = CliRunner().invoke(
+        main, ["resume", str(finished / "archive.sqlite"), "--case", str(other)]
+    )
     assert result.exit_code == 2
     assert result.output.count("\n") == 1 and result.output.startswith("Error: ")
     assert "belongs to case 'kill and resume'" in result.output
@@ -262,7 +287,9 @@ def test_resume_after_the_case_changed_is_refused(finished, tmp_path):
 def test_resume_of_a_run_that_is_not_there(finished):
     """--run with an unknown id names the runs the archive holds."""
     result = CliRunner().invoke(main, ["resume", str(finished / "archive.sqlite"), "--run", "7"])
-    assert result.exit_code == 2 and "run 7 is not in this archive; runs it holds: 1" in result.output
+    assert (
+        result.exit_code == 2 and "run 7 is not in this archive; runs it holds: 1" in result.output
+    )
 
 
 def test_resume_writes_the_run_folder_again(finished):

@@ -33,7 +33,9 @@ def test_zdt1_front_and_hypervolume():
     distance = np.abs(points[:, 1] - (1 - np.sqrt(points[:, 0])))
     assert distance.max() <= 1e-2
     # Cross-check our hypervolume against moocore called directly on the exported points.
-    assert result.hypervolume == pytest.approx(moocore.hypervolume(points, ref=[1.0, 1.0]), rel=1e-12)
+    assert result.hypervolume == pytest.approx(
+        moocore.hypervolume(points, ref=[1.0, 1.0]), rel=1e-12
+    )
 
 
 @pytest.mark.slow
@@ -103,7 +105,9 @@ def test_budget_is_exact_and_no_design_evaluated_twice():
     result = tradewise.run(CASES / "mixed", seed=2, evaluations=333)
     fresh = result.evaluations[~result.evaluations["cached"]]
     assert result.n_evals == 333 == len(fresh)
-    keys = [design_key({v: row[v] for v in result.case.variable_names}) for _, row in fresh.iterrows()]
+    keys = [
+        design_key({v: row[v] for v in result.case.variable_names}) for _, row in fresh.iterrows()
+    ]
     assert len(set(keys)) == len(keys)
     assert result.status == "budget"
 
@@ -182,14 +186,18 @@ def test_failures_are_recorded_and_the_run_goes_on(make_case):
 
 def test_first_generation_all_failed_stops_with_the_first_message(make_case):
     """If every design of the first generation fails, the run stops with an error quoting the first message."""
-    folder = make_case(model="def evaluate(design):\n    raise RuntimeError('licence server down')\n")
+    folder = make_case(
+        model="def evaluate(design):\n    raise RuntimeError('licence server down')\n"
+    )
     with pytest.raises(ModelError, match="licence server down"):
         tradewise.run(folder, evaluations=100)
 
 
 def test_missing_key_is_a_failure(make_case):
     """A model that forgets an objective fails that design with a message naming the key."""
-    folder = make_case(model="def evaluate(d):\n    return {'cost': d['x'] if d['x'] > 0.5 else 'n/a', 'mass': 1 - d['x']}\n")
+    folder = make_case(
+        model="def evaluate(d):\n    return {'cost': d['x'] if d['x'] > 0.5 else 'n/a', 'mass': 1 - d['x']}\n"
+    )
     result = tradewise.run(folder, evaluations=60)
     messages = result.evaluations.loc[result.evaluations["status"] == "failed", "message"]
     assert messages.str.contains("'cost' is 'n/a'").all() and len(messages) > 0
@@ -227,10 +235,15 @@ def test_reference_point_from_worst_or_first_feasible(make_case):
     result = tradewise.run(folder, evaluations=200, seed=1)
     first = result.evaluations[result.evaluations["generation"] == 1]
     cost, mass = first["cost"], first["mass"]
-    expected = [cost.max() + 0.1 * (cost.max() - cost.min()), mass.max() + 0.1 * (mass.max() - mass.min())]
+    expected = [
+        cost.max() + 0.1 * (cost.max() - cost.min()),
+        mass.max() + 0.1 * (mass.max() - mass.min()),
+    ]
     # Only the first generation's non-dominated designs set it, so it can only be at or inside this box.
     assert result.reference[0] <= expected[0] + 1e-12 and result.reference[1] <= expected[1] + 1e-12
-    assert list(result.history["hypervolume"]) == sorted(result.history["hypervolume"])  # never falls
+    assert list(result.history["hypervolume"]) == sorted(
+        result.history["hypervolume"]
+    )  # never falls
     zdt = tradewise.run(CASES / "zdt1", evaluations=120)
     assert zdt.reference == (1.0, 1.0)
 
@@ -246,7 +259,15 @@ def test_save_run_writes_the_run_folder(tmp_path):
     header = (tmp_path / "front.csv").read_text().splitlines()[0]
     assert "width [mm]" in header and "cost [EUR]" in header and "load [kN]" in header
     meta = json.loads((tmp_path / "front.json").read_text())
-    for key in ("seed", "settings", "versions", "case_hash", "reference_point", "hypervolume", "objectives"):
+    for key in (
+        "seed",
+        "settings",
+        "versions",
+        "case_hash",
+        "reference_point",
+        "hypervolume",
+        "objectives",
+    ):
         assert key in meta
     assert meta["objectives"][1] == {"name": "life", "goal": "max", "unit": "h", "worst": None}
     back = read_front(tmp_path)
@@ -260,7 +281,13 @@ def test_save_run_writes_the_run_folder(tmp_path):
 
 
 @settings(max_examples=25, deadline=None, suppress_health_check=[HealthCheck.too_slow])
-@given(st.lists(st.lists(st.floats(-10, 10, allow_nan=False), min_size=4, max_size=4), min_size=1, max_size=20))
+@given(
+    st.lists(
+        st.lists(st.floats(-10, 10, allow_nan=False), min_size=4, max_size=4),
+        min_size=1,
+        max_size=20,
+    )
+)
 def test_space_never_emits_illegal_values(rows):
     """Whatever the operators propose, decoding gives integers, known options, booleans, in range."""
     case = load_case(CASES / "mixed")

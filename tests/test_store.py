@@ -21,14 +21,30 @@ from tradewise.store import SCHEMA_VERSION, open_store
 
 
 def _start(store, case_hash="h1"):
-    return store.start_run(case_hash=case_hash, case_title="t", case_path="p", case_text="x",
-                           settings={"evaluations": 10}, seed=1, versions={})
+    return store.start_run(
+        case_hash=case_hash,
+        case_title="t",
+        case_path="p",
+        case_text="x",
+        settings={"evaluations": 10},
+        seed=1,
+        versions={},
+    )
 
 
 def _add(store, run_id, key, *, case_hash="h1", generation=1, source_id=None, value=1.0):
-    return store.add_evaluation(run_id, case_hash=case_hash, design_key=key, design={"x": value},
-                                results={"cost": value}, status="ok", message="", duration=0.1,
-                                generation=generation, source_id=source_id)
+    return store.add_evaluation(
+        run_id,
+        case_hash=case_hash,
+        design_key=key,
+        design={"x": value},
+        results={"cost": value},
+        status="ok",
+        message="",
+        duration=0.1,
+        generation=generation,
+        source_id=source_id,
+    )
 
 
 def _count(path, where="1=1"):
@@ -49,7 +65,9 @@ def test_new_archive_is_wal_with_schema(tmp_path):
         pass
     with sqlite3.connect(path) as db:
         assert db.execute("PRAGMA journal_mode").fetchone()[0] == "wal"
-        assert db.execute("SELECT value FROM meta WHERE key = 'schema'").fetchone()[0] == str(SCHEMA_VERSION)
+        assert db.execute("SELECT value FROM meta WHERE key = 'schema'").fetchone()[0] == str(
+            SCHEMA_VERSION
+        )
 
 
 def test_evaluation_is_durable_within_one_second_while_the_next_one_runs(tmp_path):
@@ -99,7 +117,9 @@ def test_generation_end_is_committed_at_once(tmp_path):
     with open_store(path) as store:
         run_id = _start(store)
         _add(store, run_id, "k1")
-        time.sleep(0.15)  # the writer has inserted the row, and will not commit it for a while by itself
+        time.sleep(
+            0.15
+        )  # the writer has inserted the row, and will not commit it for a while by itself
         assert _count(path) == 0
         store.add_generation(run_id, {"generation": 1, "hypervolume": 0.5}, state=b"state")
         deadline = time.monotonic() + 0.25
@@ -213,7 +233,10 @@ def test_discard_after_keeps_real_evaluations(tmp_path):
             store.add_generation(run_id, {"generation": g})
         store.discard_after(run_id, 2)
         table = store.evaluations(run_id)
-        assert sorted(zip(table["generation"], table["cached"], strict=True)) == [(2, True), (3, False)]
+        assert sorted(zip(table["generation"], table["cached"], strict=True)) == [
+            (2, True),
+            (3, False),
+        ]
         assert store.history(run_id)["generation"].tolist() == [1, 2]
 
 
@@ -292,7 +315,9 @@ def test_cli_run_into_a_bad_store_exits_2_and_touches_nothing(make_case, tmp_pat
     BAD_FILES[kind][0](path)
     before = _digest(path)
     out = tmp_path / "run"
-    result = CliRunner().invoke(main, ["run", str(folder), "--store", str(path), "--out", str(out), "--quiet"])
+    result = CliRunner().invoke(
+        main, ["run", str(folder), "--store", str(path), "--out", str(out), "--quiet"]
+    )
     assert result.exit_code == 2
     assert result.output.strip().count("\n") == 0 and result.output.startswith("Error: ")
     assert _digest(path) == before
@@ -310,7 +335,9 @@ def test_cli_resume_of_a_bad_store_exits_2_and_touches_nothing(tmp_path, kind):
     assert result.exit_code == 2
     assert result.output.strip().count("\n") == 0 and result.output.startswith("Error: ")
     assert (_digest(path) if path.exists() else None) == before
-    assert sorted(p.name for p in tmp_path.iterdir()) == ([] if kind == "missing" else ["bad.sqlite"])
+    assert sorted(p.name for p in tmp_path.iterdir()) == (
+        [] if kind == "missing" else ["bad.sqlite"]
+    )
 
 
 # ------------------------------------------------------------- an archive locked by another process
@@ -330,8 +357,20 @@ def test_locked_archive_waits_then_ends_with_one_line(make_case, tmp_path, monke
     holder = sqlite3.connect(path)
     holder.execute("BEGIN IMMEDIATE")  # another program holding the write lock
     try:
-        result = CliRunner().invoke(main, ["run", str(make_case()), "--out", str(tmp_path / "run"),
-                                           "--store", str(path), "--evaluations", "20", "--quiet"])
+        result = CliRunner().invoke(
+            main,
+            [
+                "run",
+                str(make_case()),
+                "--out",
+                str(tmp_path / "run"),
+                "--store",
+                str(path),
+                "--evaluations",
+                "20",
+                "--quiet",
+            ],
+        )
     finally:
         holder.rollback()
         holder.close()
@@ -351,7 +390,6 @@ def test_lock_released_in_time_lets_the_run_go_on(make_case, tmp_path, monkeypat
 
     from tradewise import store as store_module
     from tradewise.case import load_case
-
 
     monkeypatch.setattr(store_module, "LOCK_WAIT", 10.0)
     monkeypatch.setattr(store_module, "LOCK_NOTICE", 0.1)

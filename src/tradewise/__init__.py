@@ -6,8 +6,16 @@ from tradewise.front import Front, hypervolume, nondominated, read_front
 
 __version__ = "0.1.0"
 
-_LAZY = {"run": "search", "resume": "search", "RunResult": "search", "run_seeds": "repeats",
-         "resume_seeds": "repeats", "SeedsResult": "repeats", "save_run": "runfolder", "save_seeds": "runfolder"}
+_LAZY = {
+    "run": "search",
+    "resume": "search",
+    "RunResult": "search",
+    "run_seeds": "repeats",
+    "resume_seeds": "repeats",
+    "SeedsResult": "repeats",
+    "save_run": "runfolder",
+    "save_seeds": "runfolder",
+}
 
 
 def __getattr__(name: str):

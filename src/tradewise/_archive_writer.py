@@ -16,10 +16,12 @@ import threading
 import time
 
 COMMIT_EVERY = 0.4  # seconds an evaluation may wait uncommitted here
-COMMIT_GAP = 0.1    # a generation's end commits at once unless the last commit is younger than this
-INSERT = ("INSERT INTO evaluations (eval_id, run_id, case_hash, design_key, design, results, status,"
-          " message, duration, generation, worker, source_id, created)"
-          " VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)")
+COMMIT_GAP = 0.1  # a generation's end commits at once unless the last commit is younger than this
+INSERT = (
+    "INSERT INTO evaluations (eval_id, run_id, case_hash, design_key, design, results, status,"
+    " message, duration, generation, worker, source_id, created)"
+    " VALUES (?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)"
+)
 
 
 def finite(value):
@@ -42,7 +44,10 @@ def plain(value):
 _encoder = json.JSONEncoder(default=plain, allow_nan=False, separators=(",", ":"))
 try:  # the C encoder built once; json builds a new one for every call otherwise
     from json.encoder import c_make_encoder, encode_basestring_ascii
-    _fast = c_make_encoder(None, plain, encode_basestring_ascii, None, ":", ",", False, False, False)
+
+    _fast = c_make_encoder(
+        None, plain, encode_basestring_ascii, None, ":", ",", False, False, False
+    )
 except (ImportError, TypeError):
     _fast = None
 
@@ -66,12 +71,29 @@ class Writer:
     def apply(self, message):
         kind = message[0]
         if kind == "rows":
-            self.db.executemany(INSERT, [
-                (i, run, case, key, encode(design), encode(results), status, text, duration, gen, worker, source,
-                 created)
-                for i, run, case, key, design, results, status, text, duration, gen, worker, source, created
-                in message[1]
-            ])
+            self.db.executemany(
+                INSERT,
+                [
+                    (
+                        i,
+                        run,
+                        case,
+                        key,
+                        encode(design),
+                        encode(results),
+                        status,
+                        text,
+                        duration,
+                        gen,
+                        worker,
+                        source,
+                        created,
+                    )
+                    for i, run, case, key, design, results, status, text, duration, gen, worker, source, created in message[
+                        1
+                    ]
+                ],
+            )
             self.touch()
         elif kind == "sql":
             self.db.execute(message[1], message[2])
@@ -97,7 +119,9 @@ class Writer:
         if self.dirty_since is None:
             return False
         now = time.monotonic()
-        return now - self.dirty_since >= COMMIT_EVERY or (self.asked and now - self.last_commit >= COMMIT_GAP)
+        return now - self.dirty_since >= COMMIT_EVERY or (
+            self.asked and now - self.last_commit >= COMMIT_GAP
+        )
 
     def commit(self):
         self.db.commit()
@@ -114,9 +138,13 @@ def reserve(db, block):
         (largest,) = db.execute("SELECT COALESCE(MAX(eval_id), 0) FROM evaluations").fetchone()
         top = max(row[0] if row else 0, largest)
         if row:
-            db.execute("UPDATE sqlite_sequence SET seq = ? WHERE name = 'evaluations'", (top + block,))
+            db.execute(
+                "UPDATE sqlite_sequence SET seq = ? WHERE name = 'evaluations'", (top + block,)
+            )
         else:
-            db.execute("INSERT INTO sqlite_sequence (name, seq) VALUES ('evaluations', ?)", (top + block,))
+            db.execute(
+                "INSERT INTO sqlite_sequence (name, seq) VALUES ('evaluations', ?)", (top + block,)
+            )
         db.commit()
     except BaseException:
         db.rollback()
@@ -174,6 +202,7 @@ if __name__ == "__main__":
     # Ctrl-C reaches the whole process group; the search process decides what to do with it and
     # then tells this writer to close, so the writer itself must not die of it.
     import signal
+
     signal.signal(signal.SIGINT, signal.SIG_IGN)
     # os._exit: the reader thread may still be blocked on the input pipe, which a normal interpreter
     # shutdown does not allow.

@@ -62,7 +62,10 @@ def check_results(raw: Any, required: list[str]) -> tuple[dict[str, Any], str]:
     results: dict[str, Any] = {}
     for name in required:
         if name not in raw:
-            return {}, f"model result has no {name!r} (got keys: {', '.join(map(str, raw)) or 'none'})"
+            return (
+                {},
+                f"model result has no {name!r} (got keys: {', '.join(map(str, raw)) or 'none'})",
+            )
         value = _plain_number(raw[name])
         if isinstance(value, bool) or not isinstance(value, int | float):
             return {}, f"model result {name!r} is {value!r}, expected a number"
@@ -97,8 +100,13 @@ def evaluate(function, design: dict[str, Any], required: list[str]) -> dict[str,
 
 
 def _fields(status: str, results: dict[str, Any], message: str, duration: float) -> dict[str, Any]:
-    return {"status": status, "results": results, "message": message, "duration": duration,
-            "worker": worker_name()}
+    return {
+        "status": status,
+        "results": results,
+        "message": message,
+        "duration": duration,
+        "worker": worker_name(),
+    }
 
 
 class ImportProblem(Exception):
@@ -125,7 +133,9 @@ def import_function(file: str, function: str):
         try:
             spec.loader.exec_module(module)
         except Exception as exc:
-            raise ImportProblem(f"{file}: importing the model failed: {type(exc).__name__}: {exc}") from None
+            raise ImportProblem(
+                f"{file}: importing the model failed: {type(exc).__name__}: {exc}"
+            ) from None
         finally:
             if sys.path and sys.path[0] == folder:
                 sys.path.pop(0)
@@ -155,7 +165,9 @@ def serve(file: str, function_name: str, required: list[str]) -> None:
         while os.getppid() == parent:
             time.sleep(0.5)
         if os.name == "posix":
-            os.killpg(0, signal.SIGKILL)  # the run is gone: end this process and what the model started
+            os.killpg(
+                0, signal.SIGKILL
+            )  # the run is gone: end this process and what the model started
         os._exit(1)
 
     threading.Thread(target=watch, name="tradewise-host-watch", daemon=True).start()

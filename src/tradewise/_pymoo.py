@@ -41,9 +41,18 @@ from tradewise.case import Case
 from tradewise.errors import StoreError
 
 __all__ = [
-    "STATE_FORMAT", "Space", "Searcher", "default_population", "algorithm_name", "n_constraint_columns",
-    "encode_state", "decode_state", "search_state", "restore_state",
+    "STATE_FORMAT",
+    "Space",
+    "Searcher",
+    "default_population",
+    "algorithm_name",
+    "n_constraint_columns",
+    "encode_state",
+    "decode_state",
+    "search_state",
+    "restore_state",
 ]
+
 
 class Space:
     """Encoding of a case's variables as a real vector for the genetic operators.
@@ -63,7 +72,11 @@ class Space:
                 high.append(float(v.high))
                 discrete.append(False)
             else:
-                lo, hi = {"integer": (v.low, v.high), "choice": (0, len(v.options) - 1), "flag": (0, 1)}[v.kind]
+                lo, hi = {
+                    "integer": (v.low, v.high),
+                    "choice": (0, len(v.options) - 1),
+                    "flag": (0, 1),
+                }[v.kind]
                 low.append(lo - 0.4999)
                 high.append(hi + 0.4999)
                 discrete.append(True)
@@ -100,7 +113,9 @@ class Space:
         if self._all_real:
             return dict(zip(self._names, map(float, x), strict=True))
         design: dict[str, Any] = {}
-        for name, kind, options, value in zip(self._names, self._kinds, self._options, x, strict=True):
+        for name, kind, options, value in zip(
+            self._names, self._kinds, self._options, x, strict=True
+        ):
             if kind == "real":
                 design[name] = float(value)
             elif kind == "integer":
@@ -243,7 +258,9 @@ class Searcher:
         self.n_obj = len(case.objectives)
         self.n_con = n_constraint_columns(case)
         self.algorithm, self.name = make_algorithm(case, space, population, seed)
-        self.algorithm.setup(make_problem(case, space), termination=NoTermination(), seed=seed, verbose=False)
+        self.algorithm.setup(
+            make_problem(case, space), termination=NoTermination(), seed=seed, verbose=False
+        )
         self._pending = None
 
     def tune(self, refine: float) -> None:

@@ -246,7 +246,9 @@ class Case:
         changes = {k: v for k, v in changes.items() if v is not None}
         unknown = sorted(set(changes) - set(_SEARCH_KEYS))
         if unknown:
-            raise CaseError(f"unknown search setting {unknown[0]!r}; allowed: {', '.join(_SEARCH_KEYS)}")
+            raise CaseError(
+                f"unknown search setting {unknown[0]!r}; allowed: {', '.join(_SEARCH_KEYS)}"
+            )
         settings = replace(self.search, **changes)
         _check_search_values(settings, f"{self.path}: [search]")
         return replace(self, search=settings)
@@ -396,7 +398,9 @@ def _build_case(data: dict[str, Any], file: Path, text: str) -> Case:
         for name, entry in _entries(data, "variables", file).items()
     )
     if not variables:
-        raise CaseError(f"{file}: [variables] is missing or empty; a case needs at least one variable")
+        raise CaseError(
+            f"{file}: [variables] is missing or empty; a case needs at least one variable"
+        )
     objectives = tuple(
         _objective(name, entry, f"{file}: [objectives] {name}")
         for name, entry in _entries(data, "objectives", file).items()
@@ -568,16 +572,22 @@ def _check_search_values(settings: SearchSettings, where: str) -> None:
         if value is not None and value < least:
             raise CaseError(f"{where} {key}: got {value}, allowed: {allowed}")
     if settings.time_limit is not None and settings.time_limit <= 0:
-        raise CaseError(f"{where} time_limit: got {settings.time_limit:g}, allowed: seconds above 0")
+        raise CaseError(
+            f"{where} time_limit: got {settings.time_limit:g}, allowed: seconds above 0"
+        )
     if settings.stall_tolerance < 0:
-        raise CaseError(f"{where} stall_tolerance: got {settings.stall_tolerance:g}, allowed: 0 or more")
+        raise CaseError(
+            f"{where} stall_tolerance: got {settings.stall_tolerance:g}, allowed: 0 or more"
+        )
 
 
-def _model(data: dict[str, Any], file: Path) -> tuple[str | None, tuple[str, ...] | None, float | None]:
+def _model(
+    data: dict[str, Any], file: Path
+) -> tuple[str | None, tuple[str, ...] | None, float | None]:
     model, command = data.get("model"), data.get("command")
     if model is None and command is None:
         raise CaseError(
-            f"{file}: needs 'model' (\"file.py:function\") or 'command' ([\"program\", \"{{input}}\", \"{{output}}\"])"
+            f'{file}: needs \'model\' ("file.py:function") or \'command\' (["program", "{{input}}", "{{output}}"])'
         )
     if model is not None and command is not None:
         raise CaseError(f"{file}: give either 'model' or 'command', not both")
@@ -592,7 +602,9 @@ def _model(data: dict[str, Any], file: Path) -> tuple[str | None, tuple[str, ...
             or not command
             or not all(isinstance(a, str) and a for a in command)
         ):
-            raise CaseError(f"{file}: command must be a non-empty list of text arguments, got {command!r}")
+            raise CaseError(
+                f"{file}: command must be a non-empty list of text arguments, got {command!r}"
+            )
         if not any("{input}" in a for a in command) or not any("{output}" in a for a in command):
             raise CaseError(
                 f"{file}: command must contain the placeholders {{input}} and {{output}}, got {command!r}"
@@ -600,17 +612,21 @@ def _model(data: dict[str, Any], file: Path) -> tuple[str | None, tuple[str, ...
         return None, tuple(command), timeout
     model = _text(model, f"{file}: model")
     if model.count(":") != 1:
-        raise CaseError(f"{file}: model must look like \"model.py:evaluate\", got {model!r}")
+        raise CaseError(f'{file}: model must look like "model.py:evaluate", got {model!r}')
     module_name, function = model.split(":")
     module_file = _inside_case_folder(module_name, file)
     if not module_name.endswith(".py") or not module_file.is_file():
-        raise CaseError(f"{file}: model file {quote(module_name)} not found in the case folder {file.parent}")
+        raise CaseError(
+            f"{file}: model file {quote(module_name)} not found in the case folder {file.parent}"
+        )
     if not function.isidentifier():
         raise CaseError(f"{file}: model function {function!r} is not a Python name")
     try:
         tree = ast.parse(module_file.read_text(encoding="utf-8"), filename=str(module_file))
     except SyntaxError as exc:
-        raise CaseError(f"{module_file}: Python syntax error at line {exc.lineno}: {exc.msg}") from None
+        raise CaseError(
+            f"{module_file}: Python syntax error at line {exc.lineno}: {exc.msg}"
+        ) from None
     defined = _top_level_names(tree)
     if function not in defined:
         raise CaseError(
@@ -629,12 +645,14 @@ def _inside_case_folder(name: str, file: Path) -> Path:
     if relative.is_absolute() or relative.drive or ".." in relative.parts or "\\" in name:
         raise CaseError(
             f"{file}: model file {quote(name)} must be a path inside the case folder "
-            "(such as \"model.py\" or \"src/model.py\"), without '..' or an absolute path"
+            '(such as "model.py" or "src/model.py"), without \'..\' or an absolute path'
         )
     folder = file.parent.resolve()
     found = (folder / relative).resolve()
     if not found.is_relative_to(folder):
-        raise CaseError(f"{file}: model file {quote(name)} leads outside the case folder {file.parent} (through a link)")
+        raise CaseError(
+            f"{file}: model file {quote(name)} leads outside the case folder {file.parent} (through a link)"
+        )
     return file.parent / relative
 
 

@@ -75,7 +75,14 @@ class _Progress:
         if sys.stderr.isatty():
             from tqdm import tqdm
 
-            self.bar = tqdm(total=total, initial=initial, unit="eval", dynamic_ncols=True, leave=True, file=sys.stderr)
+            self.bar = tqdm(
+                total=total,
+                initial=initial,
+                unit="eval",
+                dynamic_ncols=True,
+                leave=True,
+                file=sys.stderr,
+            )
 
     def evaluation(self, row: dict) -> None:
         if self.bar is not None and not row.get("cached"):
@@ -111,24 +118,37 @@ def _summary(result) -> None:
 
         from tradewise.front import hypervolume_problem
 
-        problem = "" if math.isfinite(result.hypervolume) else hypervolume_problem(
-            front.points(), result.reference, front.maximise, names=front.objective_names
-        ) or "the hypervolume is not a finite number"
+        problem = (
+            ""
+            if math.isfinite(result.hypervolume)
+            else hypervolume_problem(
+                front.points(), result.reference, front.maximise, names=front.objective_names
+            )
+            or "the hypervolume is not a finite number"
+        )
         hv = "hypervolume not computable" if problem else f"hypervolume {result.hypervolume:.6g}"
-        click.echo(f"Front: {len(front)} designs, {hv} "
-                   f"(reference point {', '.join(f'{r:g}' for r in result.reference)})")
+        click.echo(
+            f"Front: {len(front)} designs, {hv} "
+            f"(reference point {', '.join(f'{r:g}' for r in result.reference)})"
+        )
         if problem:
             click.echo(f"Note: {problem[0].upper()}{problem[1:]}.")
         width = max(len(column_header(o.name, o.unit)) for o in front.objectives)
         for o in front.objectives:
             values = front.table[o.name]
-            best, worst = (values.max(), values.min()) if o.maximise else (values.min(), values.max())
-            click.echo(f"  {column_header(o.name, o.unit):<{width}}  {o.goal}  best {best:.6g}  worst {worst:.6g}")
+            best, worst = (
+                (values.max(), values.min()) if o.maximise else (values.min(), values.max())
+            )
+            click.echo(
+                f"  {column_header(o.name, o.unit):<{width}}  {o.goal}  best {best:.6g}  worst {worst:.6g}"
+            )
     elif result.least_infeasible is not None:
         click.echo("The designs closest to feasibility are in least_infeasible.csv.")
     if result.n_cached:
-        click.echo(f"{result.n_cached} proposed design(s) had been evaluated before (in this run or in the "
-                   "archive) and were reused instead of being evaluated again.")
+        click.echo(
+            f"{result.n_cached} proposed design(s) had been evaluated before (in this run or in the "
+            "archive) and were reused instead of being evaluated again."
+        )
     from tradewise.compare import convergence_advice
 
     if advice := convergence_advice(result.history):
@@ -147,21 +167,54 @@ def _run_folder(case, out: str | None) -> str:
 
 @main.command("run")
 @click.argument("case", metavar="CASE")
-@click.option("--out", "out", type=click.Path(file_okay=False), help="Run folder to write (default runs/NAME-TIME).")
+@click.option(
+    "--out",
+    "out",
+    type=click.Path(file_okay=False),
+    help="Run folder to write (default runs/NAME-TIME).",
+)
 @click.option("--seed", type=int, help="Random seed (default from the case).")
-@click.option("--seeds", "n_seeds", type=click.IntRange(min=1), metavar="K",
-              help="Make K independent runs with seeds SEED, SEED+1, ... and merge their fronts.")
+@click.option(
+    "--seeds",
+    "n_seeds",
+    type=click.IntRange(min=1),
+    metavar="K",
+    help="Make K independent runs with seeds SEED, SEED+1, ... and merge their fronts.",
+)
 @click.option("--evaluations", type=click.IntRange(min=1), help="Budget of model evaluations.")
 @click.option("--generations", type=click.IntRange(min=1), help="Stop after this many generations.")
 @click.option("--population", type=click.IntRange(min=4), help="Designs per generation.")
-@click.option("--time-limit", type=click.FloatRange(min=0, min_open=True), help="Stop after this many seconds.")
-@click.option("--store", type=click.Path(dir_okay=False), help="Archive file (default OUT/archive.sqlite).")
-@click.option("--workers", type=click.IntRange(min=1), help="Evaluate in this many local processes.")
+@click.option(
+    "--time-limit",
+    type=click.FloatRange(min=0, min_open=True),
+    help="Stop after this many seconds.",
+)
+@click.option(
+    "--store", type=click.Path(dir_okay=False), help="Archive file (default OUT/archive.sqlite)."
+)
+@click.option(
+    "--workers", type=click.IntRange(min=1), help="Evaluate in this many local processes."
+)
 @click.option("--dask", is_flag=True, help="Start a local Dask cluster of --workers processes.")
-@click.option("--scheduler", metavar="ADDRESS", help="Join an existing Dask scheduler, e.g. tcp://host:8786.")
+@click.option(
+    "--scheduler", metavar="ADDRESS", help="Join an existing Dask scheduler, e.g. tcp://host:8786."
+)
 @click.option("--quiet", is_flag=True, help="No progress output.")
-def run_command(case, out, seed, n_seeds, evaluations, generations, population, time_limit, store, workers, dask,
-                scheduler, quiet) -> None:
+def run_command(
+    case,
+    out,
+    seed,
+    n_seeds,
+    evaluations,
+    generations,
+    population,
+    time_limit,
+    store,
+    workers,
+    dask,
+    scheduler,
+    quiet,
+) -> None:
     """Search CASE for its best compromises and write a run folder.
 
     CASE is a case folder, its case.toml, or the name of a bundled case
@@ -179,21 +232,44 @@ def run_command(case, out, seed, n_seeds, evaluations, generations, population, 
     store_path = Path(store) if store else folder / "archive.sqlite"
     budget = evaluations or loaded.search.evaluations
     if n_seeds:
-        return _run_seeds(loaded, n_seeds, folder, store_path, quiet=quiet, workers=workers, seed=seed,
-                          evaluations=evaluations, generations=generations, population=population,
-                          time_limit=time_limit, dask=dask, scheduler=scheduler)
+        return _run_seeds(
+            loaded,
+            n_seeds,
+            folder,
+            store_path,
+            quiet=quiet,
+            workers=workers,
+            seed=seed,
+            evaluations=evaluations,
+            generations=generations,
+            population=population,
+            time_limit=time_limit,
+            dask=dask,
+            scheduler=scheduler,
+        )
     bar = _Progress(budget, quiet=quiet)
     try:
         result = search.run(
-            loaded, seed=seed, evaluations=evaluations, generations=generations, population=population,
-            time_limit=time_limit, store=store_path, workers=workers, dask=dask, scheduler=scheduler,
-            progress=bar.generation, on_evaluation=bar.evaluation,
+            loaded,
+            seed=seed,
+            evaluations=evaluations,
+            generations=generations,
+            population=population,
+            time_limit=time_limit,
+            store=store_path,
+            workers=workers,
+            dask=dask,
+            scheduler=scheduler,
+            progress=bar.generation,
+            on_evaluation=bar.evaluation,
         )
     finally:
         bar.close()
     written = save_run(result, folder)
     _summary(result)
-    click.echo(f"Wrote {', '.join(p.name for p in written.values())} and {store_path.name} to {folder}")
+    click.echo(
+        f"Wrote {', '.join(p.name for p in written.values())} and {store_path.name} to {folder}"
+    )
     if result.status == "interrupted":
         click.echo(f"Continue it with: tradewise resume {store_path}", err=True)
         sys.exit(130)
@@ -201,13 +277,28 @@ def run_command(case, out, seed, n_seeds, evaluations, generations, population, 
 
 @main.command("resume")
 @click.argument("store", metavar="STORE", type=click.Path(dir_okay=False))
-@click.option("--run", "run_id", type=click.IntRange(min=1), help="Which run in STORE (default the newest).")
-@click.option("--evaluations", type=click.IntRange(min=1), help="New total budget, to extend a finished run.")
-@click.option("--out", "out", type=click.Path(file_okay=False), help="Run folder to write (default STORE's folder).")
-@click.option("--case", "case", metavar="CASE", help="The case, if its folder moved since the run started.")
-@click.option("--workers", type=click.IntRange(min=1), help="Evaluate in this many local processes.")
+@click.option(
+    "--run", "run_id", type=click.IntRange(min=1), help="Which run in STORE (default the newest)."
+)
+@click.option(
+    "--evaluations", type=click.IntRange(min=1), help="New total budget, to extend a finished run."
+)
+@click.option(
+    "--out",
+    "out",
+    type=click.Path(file_okay=False),
+    help="Run folder to write (default STORE's folder).",
+)
+@click.option(
+    "--case", "case", metavar="CASE", help="The case, if its folder moved since the run started."
+)
+@click.option(
+    "--workers", type=click.IntRange(min=1), help="Evaluate in this many local processes."
+)
 @click.option("--dask", is_flag=True, help="Start a local Dask cluster of --workers processes.")
-@click.option("--scheduler", metavar="ADDRESS", help="Join an existing Dask scheduler, e.g. tcp://host:8786.")
+@click.option(
+    "--scheduler", metavar="ADDRESS", help="Join an existing Dask scheduler, e.g. tcp://host:8786."
+)
 @click.option("--quiet", is_flag=True, help="No progress output.")
 def resume_command(store, run_id, evaluations, out, case, workers, dask, scheduler, quiet) -> None:
     """Continue an interrupted run from its archive, or extend a finished one.
@@ -229,20 +320,38 @@ def resume_command(store, run_id, evaluations, out, case, workers, dask, schedul
         done = archive.count_evaluations(run_id)
     folder = Path(out) if out else Path(store).parent
     if (record["settings"] or {}).get("seed_set"):
-        return _resume_seeds(store, run_id, folder, evaluations=evaluations, case=case, workers=workers, dask=dask,
-                             scheduler=scheduler, quiet=quiet)
+        return _resume_seeds(
+            store,
+            run_id,
+            folder,
+            evaluations=evaluations,
+            case=case,
+            workers=workers,
+            dask=dask,
+            scheduler=scheduler,
+            quiet=quiet,
+        )
     budget = evaluations or record["settings"]["evaluations"]
     bar = _Progress(max(budget, done), quiet=quiet, initial=done)
     try:
         result = search.resume(
-            store, run_id=run_id, evaluations=evaluations, case=case, workers=workers, dask=dask,
-            scheduler=scheduler, progress=bar.generation, on_evaluation=bar.evaluation,
+            store,
+            run_id=run_id,
+            evaluations=evaluations,
+            case=case,
+            workers=workers,
+            dask=dask,
+            scheduler=scheduler,
+            progress=bar.generation,
+            on_evaluation=bar.evaluation,
         )
     finally:
         bar.close()
     written = save_run(result, folder)
     _summary(result)
-    click.echo(f"Resumed run {run_id}; wrote {', '.join(p.name for p in written.values())} to {folder}")
+    click.echo(
+        f"Resumed run {run_id}; wrote {', '.join(p.name for p in written.values())} to {folder}"
+    )
     if result.status == "interrupted":
         sys.exit(130)
 
@@ -253,7 +362,10 @@ def _resume_seeds(store, run_id, folder, *, quiet: bool, **options) -> None:
 
     from tradewise.repeats import resume_seeds
 
-    click.echo(f"Run {run_id} is one of a set of seeds: resuming every unfinished seed of the set.", err=True)
+    click.echo(
+        f"Run {run_id} is one of a set of seeds: resuming every unfinished seed of the set.",
+        err=True,
+    )
     result = resume_seeds(store, run_id=run_id, on_run=_seed_finished(quiet), **options)
     _write_seeds(result, folder, Path(store))
 
@@ -282,11 +394,22 @@ def check_command(case) -> None:
 
 
 #: Files a run folder holds as data; no command may write its --out over one of them.
-_RUN_DATA = frozenset({
-    "front.csv", "front.json", "history.csv", "archive.sqlite", "archive.sqlite-wal", "archive.sqlite-shm",
-    "representatives.csv", "least_infeasible.csv", "least_infeasible.json", "seeds.csv", "attainment.csv",
-    "disagreement.csv",
-})
+_RUN_DATA = frozenset(
+    {
+        "front.csv",
+        "front.json",
+        "history.csv",
+        "archive.sqlite",
+        "archive.sqlite-wal",
+        "archive.sqlite-shm",
+        "representatives.csv",
+        "least_infeasible.csv",
+        "least_infeasible.json",
+        "seeds.csv",
+        "attainment.csv",
+        "disagreement.csv",
+    }
+)
 
 
 def _is_run_folder(folder) -> bool:
@@ -329,13 +452,19 @@ def _check_out(out, inputs=(), *, with_json: bool = False) -> None:
     for target in targets:
         for given in inputs:
             if given is not None and _same_file(target, Path(given)):
-                also = "" if target == Path(out) else f" (the .json written beside it, {target.name})"
-                raise DataError(f"--out: {out}{also} is the input file {given}; writing there would replace "
-                                "it, choose another file")
+                also = (
+                    "" if target == Path(out) else f" (the .json written beside it, {target.name})"
+                )
+                raise DataError(
+                    f"--out: {out}{also} is the input file {given}; writing there would replace "
+                    "it, choose another file"
+                )
         resolved = target.resolve()
         if resolved.name in _RUN_DATA and _is_run_folder(resolved.parent):
-            raise DataError(f"--out: {target} is the {resolved.name} of the run folder {resolved.parent}, which "
-                            "holds the run's data; choose another file name")
+            raise DataError(
+                f"--out: {target} is the {resolved.name} of the run folder {resolved.parent}, which "
+                "holds the run's data; choose another file name"
+            )
 
 
 def _front_inputs(path) -> list:
@@ -349,10 +478,26 @@ def _front_inputs(path) -> list:
 
 @main.command("front")
 @click.argument("table", metavar="TABLE.csv")
-@click.option("--min", "minimise", multiple=True, metavar="COL", help="A column to make small (repeat for more).")
-@click.option("--max", "maximise", multiple=True, metavar="COL", help="A column to make large (repeat for more).")
-@click.option("--keep", multiple=True, metavar="COL", help="Keep only these other columns (default: all).")
-@click.option("--out", type=click.Path(dir_okay=False), help="Write the front here, with its .json beside it.")
+@click.option(
+    "--min",
+    "minimise",
+    multiple=True,
+    metavar="COL",
+    help="A column to make small (repeat for more).",
+)
+@click.option(
+    "--max",
+    "maximise",
+    multiple=True,
+    metavar="COL",
+    help="A column to make large (repeat for more).",
+)
+@click.option(
+    "--keep", multiple=True, metavar="COL", help="Keep only these other columns (default: all)."
+)
+@click.option(
+    "--out", type=click.Path(dir_okay=False), help="Write the front here, with its .json beside it."
+)
 def front_command(table, minimise, maximise, keep, out) -> None:
     """Keep the rows of TABLE.csv that no other row beats in every objective.
 
@@ -371,21 +516,52 @@ def front_command(table, minimise, maximise, keep, out) -> None:
         written = front.to_csv(out)
         click.echo(f"{summary}; wrote {written[0]} and {written[1].name}")
     else:
-        shown = front.table.rename(columns=lambda c: column_header(str(c), front.units.get(str(c), "")))
+        shown = front.table.rename(
+            columns=lambda c: column_header(str(c), front.units.get(str(c), ""))
+        )
         click.echo(shown.to_csv(index=False), nl=False)
         click.echo(summary, err=True)
 
 
 @main.command("pick")
 @click.argument("front_path", metavar="FRONT")
-@click.option("--method", default="knee", show_default=True, help="knee, tradeoff, kneedle, pseudo-weights, asf, topsis or weighted-sum.")
-@click.option("--weights", metavar="NAME=W,...", help="Importance of each objective, e.g. cost=2,mass=1.")
+@click.option(
+    "--method",
+    default="knee",
+    show_default=True,
+    help="knee, tradeoff, kneedle, pseudo-weights, asf, topsis or weighted-sum.",
+)
+@click.option(
+    "--weights", metavar="NAME=W,...", help="Importance of each objective, e.g. cost=2,mass=1."
+)
 @click.option("--target", metavar="NAME=V,...", help="Target values for asf, e.g. cost=900,mass=8.")
-@click.option("--limit", "limits", multiple=True, metavar="RULE", help='Keep designs with e.g. "mass<=12" (repeat for more).')
+@click.option(
+    "--limit",
+    "limits",
+    multiple=True,
+    metavar="RULE",
+    help='Keep designs with e.g. "mass<=12" (repeat for more).',
+)
 @click.option("--top", default=1, show_default=True, type=int, help="How many designs to show.")
-@click.option("--min", "minimise", multiple=True, metavar="COL", help="For a plain CSV: a column to make small.")
-@click.option("--max", "maximise", multiple=True, metavar="COL", help="For a plain CSV: a column to make large.")
-@click.option("--out", type=click.Path(dir_okay=False), help="Write the chosen designs to this CSV (with .json).")
+@click.option(
+    "--min",
+    "minimise",
+    multiple=True,
+    metavar="COL",
+    help="For a plain CSV: a column to make small.",
+)
+@click.option(
+    "--max",
+    "maximise",
+    multiple=True,
+    metavar="COL",
+    help="For a plain CSV: a column to make large.",
+)
+@click.option(
+    "--out",
+    type=click.Path(dir_okay=False),
+    help="Write the chosen designs to this CSV (with .json).",
+)
 def pick_command(front_path, method, weights, target, limits, top, minimise, maximise, out) -> None:
     """Point at the designs of FRONT worth discussing and say what each costs.
 
@@ -409,7 +585,9 @@ def pick_command(front_path, method, weights, target, limits, top, minimise, max
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", NonConvexWarning)
         rows = choose(front, method, weights=weights, target=target, limits=limits, top=top)
-    for line in describe_choice(front, rows, method=method, weights=weights, target=target, limits=limits):
+    for line in describe_choice(
+        front, rows, method=method, weights=weights, target=target, limits=limits
+    ):
         click.echo(line)
     for warning in caught:
         if issubclass(warning.category, NonConvexWarning):
@@ -417,7 +595,12 @@ def pick_command(front_path, method, weights, target, limits, top, minimise, max
     if out:
         from tradewise.runfolder import shortlist_front
 
-        settings = {"method": method, "weights": weights, "target": target, "limits": [str(x) for x in limits]}
+        settings = {
+            "method": method,
+            "weights": weights,
+            "target": target,
+            "limits": [str(x) for x in limits],
+        }
         written = shortlist_front(front, rows, settings=settings).to_csv(out)
         click.echo(f"Wrote {written[0]} and {written[1].name}")
 
@@ -435,13 +618,25 @@ def _run_inputs(run) -> list:
 
 @main.command("plot")
 @click.argument("run", metavar="RUN")
-@click.option("--kind", type=click.Choice(["front", "parallel", "history", "attainment"]), default="front",
-              show_default=True,
-              help="front: the best designs over all the others; parallel: one line a design; "
-                   "history: hypervolume and front size as the search went (a line per seed); "
-                   "attainment: what the best, median and worst of several seeds reached (run --seeds).")
-@click.option("--out", type=click.Path(dir_okay=False), help="PNG, SVG or PDF file to write (default RUN/KIND.png).")
-@click.option("--row", type=click.IntRange(min=1), help="Mark this design (a row of front.csv, counting from 1).")
+@click.option(
+    "--kind",
+    type=click.Choice(["front", "parallel", "history", "attainment"]),
+    default="front",
+    show_default=True,
+    help="front: the best designs over all the others; parallel: one line a design; "
+    "history: hypervolume and front size as the search went (a line per seed); "
+    "attainment: what the best, median and worst of several seeds reached (run --seeds).",
+)
+@click.option(
+    "--out",
+    type=click.Path(dir_okay=False),
+    help="PNG, SVG or PDF file to write (default RUN/KIND.png).",
+)
+@click.option(
+    "--row",
+    type=click.IntRange(min=1),
+    help="Mark this design (a row of front.csv, counting from 1).",
+)
 @click.option("--variables", is_flag=True, help="parallel: add an axis for each variable.")
 def plot_command(run, kind, out, row, variables) -> None:
     """Draw a figure of the run folder RUN.
@@ -462,21 +657,36 @@ def plot_command(run, kind, out, row, variables) -> None:
     if kind == "attainment":
         _, surfaces = read_seeds(run, front)
         if surfaces is None:
-            raise DataError(f"{run}: has no attainment.csv and no seeds/ folder; attainment surfaces come "
-                            "from several seeds, made with `tradewise run CASE --seeds K`")
+            raise DataError(
+                f"{run}: has no attainment.csv and no seeds/ folder; attainment surfaces come "
+                "from several seeds, made with `tradewise run CASE --seeds K`"
+            )
         fig = plot_attainment(surfaces, front.objectives, title=front.meta.get("title"))
     else:
-        fig = plot_kind(kind, front, history=history, evaluations=evaluations,
-                        highlight=row - 1 if row is not None else None, variables=variables)
+        fig = plot_kind(
+            kind,
+            front,
+            history=history,
+            evaluations=evaluations,
+            highlight=row - 1 if row is not None else None,
+            variables=variables,
+        )
     path = save_figure(fig, Path(out) if out else Path(run) / f"{kind}.png")
     click.echo(f"Wrote {path}")
 
 
 @main.command("report")
 @click.argument("run", metavar="RUN")
-@click.option("--out", type=click.Path(dir_okay=False), help="HTML file to write (default RUN/review.html).")
-@click.option("--shortlist", "shortlist_path", type=click.Path(dir_okay=False), metavar="FILE.csv",
-              help="Designs chosen to carry forward (from `tradewise pick --out` or the notebook's export).")
+@click.option(
+    "--out", type=click.Path(dir_okay=False), help="HTML file to write (default RUN/review.html)."
+)
+@click.option(
+    "--shortlist",
+    "shortlist_path",
+    type=click.Path(dir_okay=False),
+    metavar="FILE.csv",
+    help="Designs chosen to carry forward (from `tradewise pick --out` or the notebook's export).",
+)
 def report_command(run, out, shortlist_path) -> None:
     """Write one HTML page about the run folder RUN for a design review.
 
@@ -499,8 +709,15 @@ def report_command(run, out, shortlist_path) -> None:
     if shortlist_path:
         described = Path(shortlist_path).with_suffix(".json").is_file()
         shortlist = read_front(shortlist_path) if described else read_table(shortlist_path)[0]
-    path = write_report(front, Path(out) if out else Path(run) / "review.html", history=history,
-                        evaluations=evaluations, shortlist=shortlist, seeds=seeds, attainment=surfaces)
+    path = write_report(
+        front,
+        Path(out) if out else Path(run) / "review.html",
+        history=history,
+        evaluations=evaluations,
+        shortlist=shortlist,
+        seeds=seeds,
+        attainment=surfaces,
+    )
     click.echo(f"Wrote {path} ({path.stat().st_size // 1024} KiB)")
 
 
@@ -508,13 +725,23 @@ def _run_seeds(case, n_seeds: int, folder, store_path, *, quiet: bool, workers, 
     """``run --seeds K``: K runs, their merged front, each seed's own, the attainment surfaces and the spread."""
     from tradewise.repeats import run_seeds
 
-    parallel = bool(workers and workers > 1 and not (settings.get("dask") or settings.get("scheduler")))
+    parallel = bool(
+        workers and workers > 1 and not (settings.get("dask") or settings.get("scheduler"))
+    )
     budget = (settings.get("evaluations") or case.search.evaluations) * n_seeds
     bar = _Progress(budget, quiet=quiet or parallel)
 
     try:
-        result = run_seeds(case, n_seeds, store=store_path, workers=workers, progress=bar.generation,
-                             on_evaluation=bar.evaluation, on_run=_seed_finished(quiet), **settings)
+        result = run_seeds(
+            case,
+            n_seeds,
+            store=store_path,
+            workers=workers,
+            progress=bar.generation,
+            on_evaluation=bar.evaluation,
+            on_run=_seed_finished(quiet),
+            **settings,
+        )
     finally:
         bar.close()
     _write_seeds(result, folder, store_path)
@@ -526,8 +753,11 @@ def _seed_finished(quiet: bool):
 
     def finished(run) -> None:
         if not quiet:
-            click.echo(f"seed {run.seed}: {STATUS_TEXT.get(run.status, run.status)} after {run.n_evals} "
-                       f"evaluations; front of {len(run.front)} designs", err=True)
+            click.echo(
+                f"seed {run.seed}: {STATUS_TEXT.get(run.status, run.status)} after {run.n_evals} "
+                f"evaluations; front of {len(run.front)} designs",
+                err=True,
+            )
 
     return finished
 
@@ -543,7 +773,9 @@ def _write_seeds(result, folder, store_path) -> None:
     spread = seed_attainment(result)
     for line in spread.lines() if spread is not None else ():
         click.echo(line)
-    click.echo(f"Wrote {', '.join(p.name for p in written.values())}, seeds/ and {store_path.name} to {folder}")
+    click.echo(
+        f"Wrote {', '.join(p.name for p in written.values())}, seeds/ and {store_path.name} to {folder}"
+    )
     if result.status == "interrupted":
         click.echo(f"Continue every seed with: tradewise resume {store_path}", err=True)
         sys.exit(130)
@@ -551,9 +783,16 @@ def _write_seeds(result, folder, store_path) -> None:
 
 @main.command("compare")
 @click.argument("runs", metavar="RUN RUN...", nargs=-1, required=True)
-@click.option("--reference", "reference", type=click.Path(), metavar="FRONT.csv",
-              help="Measure IGD+ and epsilon against this front (default: the best designs of all RUNs together).")
-@click.option("--out", type=click.Path(dir_okay=False), help="Also write the table to this CSV file.")
+@click.option(
+    "--reference",
+    "reference",
+    type=click.Path(),
+    metavar="FRONT.csv",
+    help="Measure IGD+ and epsilon against this front (default: the best designs of all RUNs together).",
+)
+@click.option(
+    "--out", type=click.Path(dir_okay=False), help="Also write the table to this CSV file."
+)
 def compare_command(runs, reference, out) -> None:
     """Compare run folders on one scale and say which did better.
 
@@ -568,24 +807,35 @@ def compare_command(runs, reference, out) -> None:
 
     from tradewise.compare import compare_runs
 
-    _check_out(out, [p for run in runs for p in _run_inputs(run)]
-               + (_front_inputs(reference) if reference else []))
+    _check_out(
+        out,
+        [p for run in runs for p in _run_inputs(run)]
+        + (_front_inputs(reference) if reference else []),
+    )
     result = compare_runs(runs, reference=reference)
     table = result.table
     width = max(len(str(r)) for r in table["run"])
-    click.echo(f"{'run':<{width}}  {'designs':>7}  {'evals':>7}  {'failed':>6}  {'hypervolume':>11}  "
-               f"{'IGD+':>8}  {'epsilon':>8}  seeds (hypervolume median [min, max])")
+    click.echo(
+        f"{'run':<{width}}  {'designs':>7}  {'evals':>7}  {'failed':>6}  {'hypervolume':>11}  "
+        f"{'IGD+':>8}  {'epsilon':>8}  seeds (hypervolume median [min, max])"
+    )
     for row in table.to_dict("records"):
         evals = "-" if not math.isfinite(row["evaluations"]) else f"{int(row['evaluations'])}"
         failed = "-" if not math.isfinite(row["failed_share"]) else f"{row['failed_share']:.1%}"
         seeds = ""
         if isinstance(row.get("seeds"), int | float) and math.isfinite(row["seeds"]):
-            seeds = (f"{int(row['seeds'])}: {row['hv_seed_median']:.4f} "
-                     f"[{row['hv_seed_min']:.4f}, {row['hv_seed_max']:.4f}]")
-        click.echo(f"{row['run']:<{width}}  {row['front_size']:>7}  {evals:>7}  {failed:>6}  "
-                   f"{row['hypervolume']:>11.4f}  {row['igd_plus']:>8.4f}  {row['epsilon']:>8.4f}  {seeds}".rstrip())
-    click.echo(f"Scale: 0 at the best values reached, 1 at the reference point "
-               f"({', '.join(f'{v:g}' for v in result.reference)}); IGD+ and epsilon against {result.reference_set}.")
+            seeds = (
+                f"{int(row['seeds'])}: {row['hv_seed_median']:.4f} "
+                f"[{row['hv_seed_min']:.4f}, {row['hv_seed_max']:.4f}]"
+            )
+        click.echo(
+            f"{row['run']:<{width}}  {row['front_size']:>7}  {evals:>7}  {failed:>6}  "
+            f"{row['hypervolume']:>11.4f}  {row['igd_plus']:>8.4f}  {row['epsilon']:>8.4f}  {seeds}".rstrip()
+        )
+    click.echo(
+        f"Scale: 0 at the best values reached, 1 at the reference point "
+        f"({', '.join(f'{v:g}' for v in result.reference)}); IGD+ and epsilon against {result.reference_set}."
+    )
     for line in result.lines:
         click.echo(line)
     if out:

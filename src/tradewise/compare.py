@@ -96,7 +96,9 @@ def igd_plus(points: Any, reference_set: Any, maximise: bool | Sequence[bool] = 
     return _against_set(moocore.igd_plus, points, reference_set, maximise)
 
 
-def epsilon_additive(points: Any, reference_set: Any, maximise: bool | Sequence[bool] = False) -> float:
+def epsilon_additive(
+    points: Any, reference_set: Any, maximise: bool | Sequence[bool] = False
+) -> float:
     """Additive epsilon of ``points`` against ``reference_set`` (moocore): the smallest amount that,
     taken off every objective of the set, lets it weakly dominate the reference set.
 
@@ -110,7 +112,9 @@ def epsilon_additive(points: Any, reference_set: Any, maximise: bool | Sequence[
     return _against_set(moocore.epsilon_additive, points, reference_set, maximise)
 
 
-def _against_set(indicator: Any, points: Any, reference_set: Any, maximise: bool | Sequence[bool]) -> float:
+def _against_set(
+    indicator: Any, points: Any, reference_set: Any, maximise: bool | Sequence[bool]
+) -> float:
     """A moocore indicator of ``points`` against ``reference_set``; NaN when either is empty."""
     points, reference_set = _as_points(points), _as_points(reference_set)
     if len(points) == 0 or len(reference_set) == 0:
@@ -168,7 +172,9 @@ def common_reference(fronts: Sequence[Front]) -> np.ndarray:
         return _worst(np.vstack(recorded), flags)
     points = np.vstack([f.points() for f in fronts if len(f)])
     if len(points) == 0:
-        raise DataError("reference point: every front is empty; at least one front with designs is needed")
+        raise DataError(
+            "reference point: every front is empty; at least one front with designs is needed"
+        )
     return reference_point(points, flags.tolist(), worst=[o.worst for o in fronts[0].objectives])
 
 
@@ -213,14 +219,18 @@ def attainment_surfaces(
     return surfaces
 
 
-def _surfaces(point_sets: Sequence[Any], maximise: bool | Sequence[bool]) -> tuple[dict[str, np.ndarray], dict[str, int]]:
+def _surfaces(
+    point_sets: Sequence[Any], maximise: bool | Sequence[bool]
+) -> tuple[dict[str, np.ndarray], dict[str, int]]:
     sets = [_as_points(p) for p in point_sets]
     n_runs = len(sets)
     if n_runs == 0:
         raise DataError("attainment: got no runs; at least one run's front is needed")
     widths = {p.shape[1] for p in sets if len(p)}
     if len(widths) > 1:
-        raise DataError(f"attainment: the runs have different numbers of objectives ({sorted(widths)}); they must match")
+        raise DataError(
+            f"attainment: the runs have different numbers of objectives ({sorted(widths)}); they must match"
+        )
     n_obj = widths.pop() if widths else 0
     if n_obj and n_obj not in (2, 3):
         raise DataError(
@@ -361,14 +371,27 @@ def attainment(fronts: Sequence[Front], *, reference: Sequence[float] | None = N
     if len(objectives) == 2 and len(best):
         regions = _regions(best, worst, ref, objectives, flags)
     return Attainment(
-        surfaces=surfaces, levels=levels, n_runs=len(fronts), objectives=objectives,
-        reference=tuple(float(r) for r in ref), spread_volume=volume, spread_share=share, gap=gap,
-        widest=widest, regions=regions, units=units,
+        surfaces=surfaces,
+        levels=levels,
+        n_runs=len(fronts),
+        objectives=objectives,
+        reference=tuple(float(r) for r in ref),
+        spread_volume=volume,
+        spread_share=share,
+        gap=gap,
+        widest=widest,
+        regions=regions,
+        units=units,
     )
 
 
-def _regions(best: np.ndarray, worst: np.ndarray, ref: np.ndarray, objectives: Sequence[Objective],
-             flags: np.ndarray) -> pd.DataFrame:
+def _regions(
+    best: np.ndarray,
+    worst: np.ndarray,
+    ref: np.ndarray,
+    objectives: Sequence[Objective],
+    flags: np.ndarray,
+) -> pd.DataFrame:
     """The two-objective region between the best and worst staircases, cut into vertical strips.
 
     Worked in minimisation space: over each strip of the first objective both
@@ -411,7 +434,9 @@ def write_attainment(result: Attainment, folder: str | Path) -> dict[str, Path]:
     units = {o.name: result.units.get(o.name, o.unit) for o in result.objectives}
     written = {}
     path = folder / "attainment.csv"
-    result.table().rename(columns=lambda c: column_header(str(c), units.get(str(c), ""))).to_csv(path, index=False)
+    result.table().rename(columns=lambda c: column_header(str(c), units.get(str(c), ""))).to_csv(
+        path, index=False
+    )
     written["attainment"] = path
     if result.regions is not None:
         path = folder / "disagreement.csv"
@@ -425,7 +450,9 @@ def write_attainment(result: Attainment, folder: str | Path) -> dict[str, Path]:
 
 
 # ----------------------------------------------------------------------------------- comparison
-def _same_objectives(fronts: Sequence[Front], labels: Sequence[str] | None = None) -> tuple[Objective, ...]:
+def _same_objectives(
+    fronts: Sequence[Front], labels: Sequence[str] | None = None
+) -> tuple[Objective, ...]:
     if not fronts:
         raise DataError("compare: got no fronts; at least one is needed")
     labels = list(labels) if labels is not None else [f"front {i + 1}" for i in range(len(fronts))]
@@ -449,7 +476,9 @@ def _scale(ideal: np.ndarray, ref: np.ndarray, flags: np.ndarray) -> np.ndarray:
     return np.where(span > 0, span, 1.0)
 
 
-def _normalise(points: np.ndarray, ideal: np.ndarray, scale: np.ndarray, flags: np.ndarray) -> np.ndarray:
+def _normalise(
+    points: np.ndarray, ideal: np.ndarray, scale: np.ndarray, flags: np.ndarray
+) -> np.ndarray:
     """0 at the ideal, 1 at the reference point, smaller is better in every column."""
     return np.where(flags, ideal - points, points - ideal) / scale
 
@@ -536,7 +565,10 @@ def compare_fronts(
     flags = np.asarray([o.maximise for o in objectives], dtype=bool)
     seed_fronts = {k: list(v) for k, v in (seed_fronts or {}).items() if v}
     for label, seeds in seed_fronts.items():
-        _same_objectives([fronts[label], *seeds], [label] + [f"{label} seed front {i + 1}" for i in range(len(seeds))])
+        _same_objectives(
+            [fronts[label], *seeds],
+            [label] + [f"{label} seed front {i + 1}" for i in range(len(seeds))],
+        )
 
     given = None
     source = "the non-dominated union of the compared fronts"
@@ -577,43 +609,76 @@ def compare_fronts(
         n_failed = front.meta.get("n_failed")
         failed = (n_failed / n_evals) if n_evals and n_failed is not None else math.nan
         row = {
-            "run": label, "front_size": len(front), "evaluations": n_evals if n_evals is not None else math.nan,
-            "failed_share": failed, "hypervolume": hv, "igd_plus": igd, "epsilon": eps,
+            "run": label,
+            "front_size": len(front),
+            "evaluations": n_evals if n_evals is not None else math.nan,
+            "failed_share": failed,
+            "hypervolume": hv,
+            "igd_plus": igd,
+            "epsilon": eps,
         }
         if label in seed_fronts:
             values = [score(f)[0] for f in seed_fronts[label]]
             spreads[label] = values
-            row.update({"seeds": len(values), "hv_seed_median": float(np.median(values)),
-                        "hv_seed_min": float(min(values)), "hv_seed_max": float(max(values))})
+            row.update(
+                {
+                    "seeds": len(values),
+                    "hv_seed_median": float(np.median(values)),
+                    "hv_seed_min": float(min(values)),
+                    "hv_seed_max": float(max(values)),
+                }
+            )
         rows.append(row)
     table = pd.DataFrame(rows)
     dominance = pd.DataFrame(
-        [[math.nan if i == j else dominated_share(a.points(), b.points(), flags.tolist())
-          for j, b in enumerate(items)] for i, a in enumerate(items)],
-        index=labels, columns=labels,
+        [
+            [
+                math.nan if i == j else dominated_share(a.points(), b.points(), flags.tolist())
+                for j, b in enumerate(items)
+            ]
+            for i, a in enumerate(items)
+        ],
+        index=labels,
+        columns=labels,
     )
     best = labels[int(np.argmax(table["hypervolume"].to_numpy()))]
     lines = _verdict(table, dominance, best, spreads, source)
     return Comparison(
-        table=table, dominance=dominance, reference=tuple(float(r) for r in ref),
-        ideal=tuple(float(v) for v in ideal), reference_set=source, best=best, lines=lines,
+        table=table,
+        dominance=dominance,
+        reference=tuple(float(r) for r in ref),
+        ideal=tuple(float(v) for v in ideal),
+        reference_set=source,
+        best=best,
+        lines=lines,
     )
 
 
-def _verdict(table: pd.DataFrame, dominance: pd.DataFrame, best: str, spreads: dict[str, list[float]],
-             source: str) -> list[str]:
+def _verdict(
+    table: pd.DataFrame,
+    dominance: pd.DataFrame,
+    best: str,
+    spreads: dict[str, list[float]],
+    source: str,
+) -> list[str]:
     if len(table) < 2:
         return [f"Only one run: {best}."]
     by_label = table.set_index("run")
     lines = []
     order = table.sort_values("hypervolume", ascending=False)["run"].tolist()
-    lines.append(f"{best} has the largest hypervolume ({by_label.at[best, 'hypervolume']:.4f} of the common box).")
+    lines.append(
+        f"{best} has the largest hypervolume ({by_label.at[best, 'hypervolume']:.4f} of the common box)."
+    )
     for label, indicator in (("IGD+", "igd_plus"), ("epsilon", "epsilon")):
         values = table[indicator].to_numpy(dtype=float)
         if np.isfinite(values).any():
             leader = table["run"].iloc[int(np.nanargmin(values))]
-            if leader != best and not math.isclose(by_label.at[leader, indicator], by_label.at[best, indicator]):
-                lines.append(f"{label} against {source} ranks {leader} first instead: the indicators disagree.")
+            if leader != best and not math.isclose(
+                by_label.at[leader, indicator], by_label.at[best, indicator]
+            ):
+                lines.append(
+                    f"{label} against {source} ranks {leader} first instead: the indicators disagree."
+                )
     for other in order[1:]:
         h_best, h_other = by_label.at[best, "hypervolume"], by_label.at[other, "hypervolume"]
         diff = h_best - h_other
@@ -629,7 +694,9 @@ def _verdict(table: pd.DataFrame, dominance: pd.DataFrame, best: str, spreads: d
     return lines
 
 
-def _spread_text(best: str, other: str, by_label: pd.DataFrame, spreads: dict[str, list[float]]) -> str:
+def _spread_text(
+    best: str, other: str, by_label: pd.DataFrame, spreads: dict[str, list[float]]
+) -> str:
     def span(label: str) -> str:
         values = spreads[label]
         return f"{min(values):.4f} to {max(values):.4f} ({len(values)} seeds)"
@@ -637,10 +704,14 @@ def _spread_text(best: str, other: str, by_label: pd.DataFrame, spreads: dict[st
     if best in spreads and other in spreads:
         low_best, high_other = min(spreads[best]), max(spreads[other])
         if low_best > high_other:
-            verdict = "they do not overlap, so the difference is larger than the seed-to-seed spread"
+            verdict = (
+                "they do not overlap, so the difference is larger than the seed-to-seed spread"
+            )
         elif min(spreads[other]) > max(spreads[best]):
-            verdict = (f"they do not overlap, but single seeds of {other} do better: its lead comes "
-                       "from merging more seeds")
+            verdict = (
+                f"they do not overlap, but single seeds of {other} do better: its lead comes "
+                "from merging more seeds"
+            )
         else:
             verdict = "they overlap, so the difference is within the seed-to-seed spread and may be luck of the seed"
         return f"Single seeds of {best} reached {span(best)}, of {other} {span(other)}: {verdict}."
@@ -652,10 +723,14 @@ def _spread_text(best: str, other: str, by_label: pd.DataFrame, spreads: dict[st
                 where = "inside that range, so the difference is within the seed-to-seed spread"
             else:
                 side = "above" if value > high else "below"
-                where = f"{side} that range, so the difference is larger than the seed-to-seed spread"
+                where = (
+                    f"{side} that range, so the difference is larger than the seed-to-seed spread"
+                )
             return f"Single seeds of {known} reached {span(known)}; {single}'s {value:.4f} lies {where}."
-    return (f"The seed-to-seed spread of {best} and {other} is unknown; run each with --seeds to tell a real "
-            "difference from the luck of the seed.")
+    return (
+        f"The seed-to-seed spread of {best} and {other} is unknown; run each with --seeds to tell a real "
+        "difference from the luck of the seed."
+    )
 
 
 # ------------------------------------------------------------------------------------ run folders
@@ -679,7 +754,9 @@ def read_seed_fronts(folder: str | Path) -> list[Front]:
     return [read_front(sub) for _, sub in sorted(found)]
 
 
-def compare_runs(folders: Sequence[str | Path], *, reference: str | Path | None = None) -> Comparison:
+def compare_runs(
+    folders: Sequence[str | Path], *, reference: str | Path | None = None
+) -> Comparison:
     """Compare run folders (see :func:`compare_fronts`); a folder run with several seeds brings its
     seed-to-seed spread along.
 
@@ -702,7 +779,11 @@ def compare_runs(folders: Sequence[str | Path], *, reference: str | Path | None 
     paths = [Path(f) for f in folders]
     labels = _labels(paths)
     fronts = {label: read_front(path) for label, path in zip(labels, paths, strict=True)}
-    seeds = {label: read_seed_fronts(path) for label, path in zip(labels, paths, strict=True) if path.is_dir()}
+    seeds = {
+        label: read_seed_fronts(path)
+        for label, path in zip(labels, paths, strict=True)
+        if path.is_dir()
+    }
     reference_set = None
     if reference is not None:
         reference_set = _read_reference(Path(reference), next(iter(fronts.values())).objectives)
@@ -745,7 +826,9 @@ def late_gain(history: pd.DataFrame, *, tail: float = _TAIL) -> float:
     return float((last - before) / last)
 
 
-def convergence_advice(history: pd.DataFrame, *, tail: float = _TAIL, threshold: float = _GAIN) -> str:
+def convergence_advice(
+    history: pd.DataFrame, *, tail: float = _TAIL, threshold: float = _GAIN
+) -> str:
     """A sentence advising a larger budget when the front was still improving at the end, else ``""``.
 
     Still improving means the hypervolume grew by more than ``threshold``
@@ -762,7 +845,9 @@ def convergence_advice(history: pd.DataFrame, *, tail: float = _TAIL, threshold:
     if history is None or len(history) == 0:
         return ""
     if "seed" in history.columns:
-        gains = {seed: late_gain(part, tail=tail) for seed, part in history.groupby("seed", sort=True)}
+        gains = {
+            seed: late_gain(part, tail=tail) for seed, part in history.groupby("seed", sort=True)
+        }
     else:
         gains = {None: late_gain(history, tail=tail)}
     improving = {k: g for k, g in gains.items() if np.isfinite(g) and g > threshold}
@@ -770,8 +855,12 @@ def convergence_advice(history: pd.DataFrame, *, tail: float = _TAIL, threshold:
         return ""
     top = max(improving.values())
     if None in gains:
-        return (f"The front was still improving: the hypervolume grew {top:.1%} over the last {tail:.0%} of the "
-                f"generations (more than {threshold:.0%}); consider a larger budget.")
-    return (f"The front was still improving in {len(improving)} of {len(gains)} seeds: the hypervolume grew up to "
-            f"{top:.1%} over the last {tail:.0%} of the generations (more than {threshold:.0%}); "
-            "consider a larger budget.")
+        return (
+            f"The front was still improving: the hypervolume grew {top:.1%} over the last {tail:.0%} of the "
+            f"generations (more than {threshold:.0%}); consider a larger budget."
+        )
+    return (
+        f"The front was still improving in {len(improving)} of {len(gains)} seeds: the hypervolume grew up to "
+        f"{top:.1%} over the last {tail:.0%} of the generations (more than {threshold:.0%}); "
+        "consider a larger budget."
+    )

@@ -100,7 +100,7 @@ def _remove_stranded_marks(root: Path) -> None:
     if os.name != "posix":
         return  # no cheap, harmless test of whether a process id is alive
     for folder in root.glob(f"{_MARKS_PREFIX}*-*"):
-        owner = folder.name[len(_MARKS_PREFIX):].split("-", 1)[0]
+        owner = folder.name[len(_MARKS_PREFIX) :].split("-", 1)[0]
         if not owner.isdigit() or not folder.is_dir() or folder.is_symlink():
             continue
         try:
@@ -155,7 +155,9 @@ class ProcessPool(InProcess):
         finally:
             shutil.rmtree(marks, ignore_errors=True)
 
-    def _run(self, model: Model, designs: Sequence[dict[str, Any]], marks: Path) -> Iterator[tuple[int, Outcome]]:
+    def _run(
+        self, model: Model, designs: Sequence[dict[str, Any]], marks: Path
+    ) -> Iterator[tuple[int, Outcome]]:
         fresh: deque[int] = deque(range(len(designs)))
         suspects: deque[int] = deque()
         strikes = [0] * len(designs)
@@ -167,11 +169,15 @@ class ProcessPool(InProcess):
             while fresh:
                 i = fresh.popleft()
                 attempt[i] += 1
-                running[pool.submit(_marked_call, model, designs[i], str(marks / f"{i}.{attempt[i]}"))] = i
+                running[
+                    pool.submit(_marked_call, model, designs[i], str(marks / f"{i}.{attempt[i]}"))
+                ] = i
             if suspects and suspect is None:
                 i = suspect = suspects.popleft()
                 attempt[i] += 1
-                running[pool.submit(_marked_call, model, designs[i], str(marks / f"{i}.{attempt[i]}"))] = i
+                running[
+                    pool.submit(_marked_call, model, designs[i], str(marks / f"{i}.{attempt[i]}"))
+                ] = i
             done, _ = cf.wait(running, return_when=cf.FIRST_COMPLETED)
             lost: list[int] = []
             for future in done:
@@ -181,9 +187,14 @@ class ProcessPool(InProcess):
                 except cf.process.BrokenProcessPool:
                     lost.append(i)
                     continue
-                except Exception as exc:  # only a bug outside the model gets here; keep the run going
-                    outcome = Outcome("failed", {}, f"the worker could not evaluate this design: "
-                                                      f"{type(exc).__name__}: {exc}")
+                except (
+                    Exception
+                ) as exc:  # only a bug outside the model gets here; keep the run going
+                    outcome = Outcome(
+                        "failed",
+                        {},
+                        f"the worker could not evaluate this design: {type(exc).__name__}: {exc}",
+                    )
                 if i == suspect:
                     suspect = None
                 yield i, outcome
@@ -208,9 +219,14 @@ class ProcessPool(InProcess):
                     continue
                 strikes[i] += 1
                 if strikes[i] >= 2:
-                    yield i, Outcome(
-                        "failed", {}, "the worker process died while evaluating this design, twice "
-                        "(a crash, os._exit or the out-of-memory killer)"
+                    yield (
+                        i,
+                        Outcome(
+                            "failed",
+                            {},
+                            "the worker process died while evaluating this design, twice "
+                            "(a crash, os._exit or the out-of-memory killer)",
+                        ),
                     )
                 else:
                     suspects.append(i)
@@ -263,7 +279,9 @@ class DaskCluster(InProcess):
                 raise TradewiseError(f"--scheduler {scheduler}: cannot connect ({exc})") from None
         else:
             if workers is not None and workers < 1:
-                raise TradewiseError(f"workers: got {workers!r}, allowed: a whole number, 1 or more")
+                raise TradewiseError(
+                    f"workers: got {workers!r}, allowed: a whole number, 1 or more"
+                )
             n = workers or os.cpu_count() or 1
             settings = {
                 "distributed.scheduler.allowed-failures": 1,
@@ -300,7 +318,9 @@ class DaskCluster(InProcess):
         # One call for the whole generation: Dask then sees one large group of independent tasks and
         # queues them on the scheduler, handing each worker its next task only when it is free, so
         # a slow design never holds quick ones back behind it.
-        submitted = self._client.map(model, designs, key=[f"tradewise-evaluate-{uuid.uuid4().hex}" for _ in designs])
+        submitted = self._client.map(
+            model, designs, key=[f"tradewise-evaluate-{uuid.uuid4().hex}" for _ in designs]
+        )
         futures = {future: i for i, future in enumerate(submitted)}
         tries = dict.fromkeys(range(len(designs)), 1)
         # Results are fetched as soon as each task finishes and the task is then released, so a
@@ -316,15 +336,31 @@ class DaskCluster(InProcess):
                     continue
                 error = result[1] if isinstance(result, tuple) else result
                 if isinstance(error, KilledWorker):
-                    yield i, Outcome("failed", {}, "the Dask worker died while evaluating this design, "
-                                                   "each time it was tried (a crash, os._exit or running out of memory)")
-                elif tries[i] < 2:  # a lost connection, a cancelled task, an error outside the model
+                    yield (
+                        i,
+                        Outcome(
+                            "failed",
+                            {},
+                            "the Dask worker died while evaluating this design, "
+                            "each time it was tried (a crash, os._exit or running out of memory)",
+                        ),
+                    )
+                elif (
+                    tries[i] < 2
+                ):  # a lost connection, a cancelled task, an error outside the model
                     tries[i] += 1
                     again = self._client.submit(model, designs[i], pure=False)
                     futures[again] = i
                     collector.add(again)
                 else:
-                    yield i, Outcome("failed", {}, f"the Dask task failed twice: {type(error).__name__}: {error}")
+                    yield (
+                        i,
+                        Outcome(
+                            "failed",
+                            {},
+                            f"the Dask task failed twice: {type(error).__name__}: {error}",
+                        ),
+                    )
         finally:
             for future in futures:
                 future.cancel()
@@ -342,7 +378,9 @@ def _import_models() -> None:
     import tradewise.models  # noqa: F401
 
 
-def make_executor(workers: int | None = None, *, dask: bool = False, scheduler: str | None = None) -> InProcess:
+def make_executor(
+    workers: int | None = None, *, dask: bool = False, scheduler: str | None = None
+) -> InProcess:
     """Pick the executor from the user's options (``--workers``, ``--dask``, ``--scheduler``).
 
     Examples

@@ -52,7 +52,11 @@ def column_header(name: str, unit: str) -> str:
 
 
 def objective_matrix(
-    table: pd.DataFrame, objectives: Sequence[Objective], *, where: str = "table", source: str | Path | None = None
+    table: pd.DataFrame,
+    objectives: Sequence[Objective],
+    *,
+    where: str = "table",
+    source: str | Path | None = None,
 ) -> np.ndarray:
     """The objective columns of ``table`` as a float array, checked for missing and non-numeric values.
 
@@ -62,7 +66,9 @@ def objective_matrix(
     """
     missing = [o.name for o in objectives if o.name not in table.columns]
     if missing:
-        raise DataError(f"{where}: no column {missing[0]!r}; columns: {_columns_text(table.columns)}")
+        raise DataError(
+            f"{where}: no column {missing[0]!r}; columns: {_columns_text(table.columns)}"
+        )
     columns = []
     for objective in objectives:
         raw = table[objective.name]
@@ -71,21 +77,28 @@ def objective_matrix(
         if bad.any():
             position = int(np.flatnonzero(bad.to_numpy())[0])
             cell = raw.iloc[position]
-            got, row = ("NaN (not a number)" if pd.isna(cell) else quote(cell)), f"row {position + 1}"
+            got, row = (
+                ("NaN (not a number)" if pd.isna(cell) else quote(cell)),
+                f"row {position + 1}",
+            )
             if source is not None:
                 line, text = _raw_cell(source, position, objective.name)
                 if line is not None:
                     row = f"line {line} (data row {position + 1})"
                 if text is not None and pd.isna(cell):
                     got = "an empty cell" if not text.strip() else f"{quote(text)} (not a number)"
-            raise DataError(f"{where}: {row} column {objective.name!r}: expected a finite number, got {got}")
+            raise DataError(
+                f"{where}: {row} column {objective.name!r}: expected a finite number, got {got}"
+            )
         columns.append(values.to_numpy(dtype=float))
     return np.column_stack(columns) if columns else np.empty((len(table), 0))
 
 
 def _columns_text(columns: Sequence[Any], limit: int = 12) -> str:
     names = [quote(str(c), 40) for c in columns]
-    return ", ".join(names[:limit]) + (f" and {len(names) - limit} more" if len(names) > limit else "")
+    return ", ".join(names[:limit]) + (
+        f" and {len(names) - limit} more" if len(names) > limit else ""
+    )
 
 
 def _raw_cell(path: str | Path, position: int, name: str) -> tuple[int | None, str | None]:
@@ -117,7 +130,9 @@ def _raw_cell(path: str | Path, position: int, name: str) -> tuple[int | None, s
     return None, None
 
 
-def nondominated(points: Any, maximise: bool | Sequence[bool] = False, *, keep_weakly: bool = False) -> np.ndarray:
+def nondominated(
+    points: Any, maximise: bool | Sequence[bool] = False, *, keep_weakly: bool = False
+) -> np.ndarray:
     """Boolean mask of the rows of ``points`` that no other row dominates (moocore).
 
     Of several identical non-dominated rows only the first is kept unless
@@ -131,10 +146,16 @@ def nondominated(points: Any, maximise: bool | Sequence[bool] = False, *, keep_w
     points = np.asarray(points, dtype=float)
     if len(points) == 0:
         return np.zeros(0, dtype=bool)
-    return np.asarray(moocore.is_nondominated(points, maximise=_flags(maximise, points.shape[1]), keep_weakly=keep_weakly))
+    return np.asarray(
+        moocore.is_nondominated(
+            points, maximise=_flags(maximise, points.shape[1]), keep_weakly=keep_weakly
+        )
+    )
 
 
-def hypervolume(points: Any, reference: Sequence[float], maximise: bool | Sequence[bool] = False) -> float:
+def hypervolume(
+    points: Any, reference: Sequence[float], maximise: bool | Sequence[bool] = False
+) -> float:
     """Hypervolume dominated by ``points`` and bounded by ``reference`` (moocore, exact).
 
     Points that do not strictly beat the reference in every objective add nothing.
@@ -147,16 +168,28 @@ def hypervolume(points: Any, reference: Sequence[float], maximise: bool | Sequen
     points = np.asarray(points, dtype=float)
     if len(points) == 0:
         return 0.0
-    return float(moocore.hypervolume(points, ref=np.asarray(reference, dtype=float), maximise=_flags(maximise, points.shape[1])))
+    return float(
+        moocore.hypervolume(
+            points,
+            ref=np.asarray(reference, dtype=float),
+            maximise=_flags(maximise, points.shape[1]),
+        )
+    )
 
 
-def hv_contributions(points: Any, reference: Sequence[float], maximise: bool | Sequence[bool] = False) -> np.ndarray:
+def hv_contributions(
+    points: Any, reference: Sequence[float], maximise: bool | Sequence[bool] = False
+) -> np.ndarray:
     """Hypervolume that each point alone adds (moocore); dominated and repeated points add 0."""
     points = np.asarray(points, dtype=float)
     if len(points) == 0:
         return np.zeros(0)
     return np.asarray(
-        moocore.hv_contributions(points, ref=np.asarray(reference, dtype=float), maximise=_flags(maximise, points.shape[1]))
+        moocore.hv_contributions(
+            points,
+            ref=np.asarray(reference, dtype=float),
+            maximise=_flags(maximise, points.shape[1]),
+        )
     )
 
 
@@ -230,9 +263,11 @@ def hypervolume_problem(
         return ""
     j = int(np.nanargmax(np.where(np.isfinite(extent), extent, np.inf)))
     name = repr(str(names[j])) if names is not None else f"{j + 1}"
-    return (f"the hypervolume cannot be computed at this scale: the objectives' extents to the reference point "
-            f"multiply past the largest float (objective {name} spans {extent[j]:.3g}); rescale that objective, "
-            "e.g. change its unit")
+    return (
+        f"the hypervolume cannot be computed at this scale: the objectives' extents to the reference point "
+        f"multiply past the largest float (objective {name} spans {extent[j]:.3g}); rescale that objective, "
+        "e.g. change its unit"
+    )
 
 
 def _flags(maximise: bool | Sequence[bool], n: int) -> list[bool]:
@@ -240,7 +275,9 @@ def _flags(maximise: bool | Sequence[bool], n: int) -> list[bool]:
         return [bool(maximise)] * n
     flags = [bool(m) for m in maximise]
     if len(flags) != n:
-        raise DataError(f"maximise: got {len(flags)} flags for {n} objectives; give one for each objective")
+        raise DataError(
+            f"maximise: got {len(flags)} flags for {n} objectives; give one for each objective"
+        )
     return flags
 
 
@@ -286,13 +323,17 @@ class Front:
         """Keep the non-dominated rows of ``table`` under ``objectives`` (every other column is kept)."""
         objectives = tuple(objectives)
         if len(objectives) < 2:
-            raise DataError(f"{where}: a front needs at least two objectives, got {len(objectives)}")
+            raise DataError(
+                f"{where}: a front needs at least two objectives, got {len(objectives)}"
+            )
         points = objective_matrix(table, objectives, where=where)
         mask = nondominated(points, [o.maximise for o in objectives])
         kept = table.loc[mask].copy()
         for o in objectives:
             kept[o.name] = pd.to_numeric(kept[o.name])
-        kept = kept.sort_values([o.name for o in objectives], ascending=[not o.maximise for o in objectives])
+        kept = kept.sort_values(
+            [o.name for o in objectives], ascending=[not o.maximise for o in objectives]
+        )
         merged_units = {o.name: o.unit for o in objectives}
         merged_units.update(units or {})
         return cls(
@@ -328,7 +369,9 @@ class Front:
         """The recorded reference point, or one made from this front when none was recorded."""
         if self.reference is not None:
             return np.asarray(self.reference, dtype=float)
-        return reference_point(self.points(), self.maximise, worst=[o.worst for o in self.objectives])
+        return reference_point(
+            self.points(), self.maximise, worst=[o.worst for o in self.objectives]
+        )
 
     def hypervolume(self, reference: Sequence[float] | None = None) -> float:
         """Hypervolume of the front for ``reference`` (default: :meth:`reference_point`)."""
@@ -352,7 +395,8 @@ class Front:
             {
                 "format": FRONT_FORMAT,
                 "objectives": [
-                    {"name": o.name, "goal": o.goal, "unit": o.unit, "worst": o.worst} for o in self.objectives
+                    {"name": o.name, "goal": o.goal, "unit": o.unit, "worst": o.worst}
+                    for o in self.objectives
                 ],
                 "variables": list(self.variables),
                 "constraints": list(self.constraints),
@@ -406,7 +450,9 @@ def read_front(path: str | Path) -> Front:
     except (OSError, ValueError) as exc:
         raise DataError(f"{meta_path}: not readable JSON ({exc})") from None
     if not isinstance(meta, dict) or meta.get("format") != FRONT_FORMAT:
-        raise DataError(f"{meta_path}: not a tradewise front description (format {FRONT_FORMAT!r} expected)")
+        raise DataError(
+            f"{meta_path}: not a tradewise front description (format {FRONT_FORMAT!r} expected)"
+        )
     check_front_meta(meta, meta_path)
     try:
         table = pd.read_csv(path)
@@ -414,11 +460,16 @@ def read_front(path: str | Path) -> Front:
         raise DataError(f"{path}: cannot be read as CSV ({exc})") from None
     table = table.rename(columns=_strip_unit)
     objectives = tuple(
-        Objective(o["name"], o.get("goal", "min"), o.get("unit", "") or "", o.get("worst")) for o in meta["objectives"]
+        Objective(o["name"], o.get("goal", "min"), o.get("unit", "") or "", o.get("worst"))
+        for o in meta["objectives"]
     )
     objective_matrix(table, objectives, where=str(path), source=path)
     reference = meta.get("reference_point")
-    known = {k: meta[k] for k in meta if k not in {"objectives", "variables", "constraints", "units", "reference_point"}}
+    known = {
+        k: meta[k]
+        for k in meta
+        if k not in {"objectives", "variables", "constraints", "units", "reference_point"}
+    }
     return Front(
         table=table,
         objectives=objectives,
@@ -432,28 +483,81 @@ def read_front(path: str | Path) -> Front:
 
 # What each key of front.json may hold, as data: one check, one shape of message. None (null) is
 # allowed for every key but objectives and format. Keys not listed are kept unchecked.
-_TEXT, _COUNT, _NUMBER, _FLAG, _TABLE = "text", "a whole number", "a number", "true or false", "a JSON object"
+_TEXT, _COUNT, _NUMBER, _FLAG, _TABLE = (
+    "text",
+    "a whole number",
+    "a number",
+    "true or false",
+    "a JSON object",
+)
 _META_KINDS: dict[str, str] = {
     **dict.fromkeys(
-        ("title", "description", "cautions", "case_file", "case_hash", "algorithm", "status", "stop_reason",
-         "message", "reference_source", "store", "source", "seed_column"), _TEXT),
-    **dict.fromkeys(("seed", "n_evals", "n_gen", "n_failed", "n_cached", "n_seeds", "run_id", "n_designs",
-                     "n_rows"), _COUNT),
-    **dict.fromkeys(("hypervolume", "started", "finished", "hypervolume_median", "hypervolume_min",
-                     "hypervolume_max"), _NUMBER),
+        (
+            "title",
+            "description",
+            "cautions",
+            "case_file",
+            "case_hash",
+            "algorithm",
+            "status",
+            "stop_reason",
+            "message",
+            "reference_source",
+            "store",
+            "source",
+            "seed_column",
+        ),
+        _TEXT,
+    ),
+    **dict.fromkeys(
+        (
+            "seed",
+            "n_evals",
+            "n_gen",
+            "n_failed",
+            "n_cached",
+            "n_seeds",
+            "run_id",
+            "n_designs",
+            "n_rows",
+        ),
+        _COUNT,
+    ),
+    **dict.fromkeys(
+        (
+            "hypervolume",
+            "started",
+            "finished",
+            "hypervolume_median",
+            "hypervolume_min",
+            "hypervolume_max",
+        ),
+        _NUMBER,
+    ),
     "feasible": _FLAG,
     **dict.fromkeys(("settings", "versions", "descriptions", "shortlist"), _TABLE),
 }
 _META_LISTS = {  # key: what each item must be
-    "variables": _TEXT, "constraints": _TEXT, "seeds": _COUNT, "seed_hypervolumes": _NUMBER,
-    "design_space": _TABLE, "constraint_limits": _TABLE,
+    "variables": _TEXT,
+    "constraints": _TEXT,
+    "seeds": _COUNT,
+    "seed_hypervolumes": _NUMBER,
+    "design_space": _TABLE,
+    "constraint_limits": _TABLE,
 }
 _ITEM_KINDS = {  # keys of the objects inside lists and objects
     "objectives": {"name": _TEXT, "goal": _TEXT, "unit": _TEXT, "worst": _NUMBER},
     "design_space": {"name": _TEXT, "type": _TEXT, "low": _NUMBER, "high": _NUMBER, "unit": _TEXT},
     "constraint_limits": {"name": _TEXT, "min": _NUMBER, "max": _NUMBER, "unit": _TEXT},
-    "settings": {"population": _COUNT, "evaluations": _COUNT, "generations": _COUNT, "seed": _COUNT,
-                 "stall_generations": _COUNT, "time_limit": _NUMBER, "stall_tolerance": _NUMBER},
+    "settings": {
+        "population": _COUNT,
+        "evaluations": _COUNT,
+        "generations": _COUNT,
+        "seed": _COUNT,
+        "stall_generations": _COUNT,
+        "time_limit": _NUMBER,
+        "stall_tolerance": _NUMBER,
+    },
 }
 
 
@@ -472,8 +576,15 @@ def _is(value: Any, kind: str) -> bool:
 
 
 def _kind_of(value: Any) -> str:
-    names = {str: "text", bool: "true/false", int: "a number", float: "a number", list: "a list",
-             dict: "a JSON object", type(None): "null"}
+    names = {
+        str: "text",
+        bool: "true/false",
+        int: "a number",
+        float: "a number",
+        list: "a list",
+        dict: "a JSON object",
+        type(None): "null",
+    }
     return f"{names.get(type(value), type(value).__name__)} {quote(value, 40)}"
 
 
@@ -500,7 +611,9 @@ def check_front_meta(meta: dict[str, Any], where: str | Path) -> None:
     if not isinstance(objectives, list):
         raise bad("objectives", objectives, "a list of objects with a name and a goal")
     if len(objectives) < 2:
-        raise DataError(f"{where}: lists {len(objectives)} objective(s); a front needs at least two")
+        raise DataError(
+            f"{where}: lists {len(objectives)} objective(s); a front needs at least two"
+        )
     for i, item in enumerate(objectives):
         key = f"objectives[{i}]"
         if not isinstance(item, dict):
@@ -544,9 +657,13 @@ def check_front_meta(meta: dict[str, Any], where: str | Path) -> None:
             raise bad(f"settings.{name}", value, "a number, text, true/false or null")
     reference = meta.get("reference_point")
     if reference is not None:
-        fine = isinstance(reference, list) and all(_is(r, _NUMBER) and math.isfinite(r) for r in reference)
+        fine = isinstance(reference, list) and all(
+            _is(r, _NUMBER) and math.isfinite(r) for r in reference
+        )
         if not fine or len(reference) != len(objectives):
-            raise bad("reference_point", reference, f"a list of {len(objectives)} finite numbers or null")
+            raise bad(
+                "reference_point", reference, f"a list of {len(objectives)} finite numbers or null"
+            )
 
 
 def _strip_unit(header: str) -> str:
@@ -577,7 +694,9 @@ def read_table(path: str | Path) -> tuple[pd.DataFrame, dict[str, str]]:
     try:
         table = pd.read_csv(path)
     except pd.errors.EmptyDataError:
-        raise DataError(f"{path}: the file is empty; expected a CSV table with a header row") from None
+        raise DataError(
+            f"{path}: the file is empty; expected a CSV table with a header row"
+        ) from None
     except UnicodeDecodeError:
         raise DataError(f"{path}: {_where_not_utf8(path)}; save it as UTF-8 CSV") from None
     except (OSError, ValueError) as exc:
@@ -589,7 +708,9 @@ def read_table(path: str | Path) -> tuple[pd.DataFrame, dict[str, str]]:
         match = _HEADER.match(str(header))
         name = match.group("name") if match else str(header)
         if name in names:
-            raise DataError(f"{path}: two columns are named {quote(name)}; column names must differ")
+            raise DataError(
+                f"{path}: two columns are named {quote(name)}; column names must differ"
+            )
         names.append(name)
         if match and match.group("unit"):
             units[name] = match.group("unit")
@@ -615,8 +736,10 @@ def _check_header(path: Path) -> None:
         name = _strip_unit(cell.strip())
         if name in seen:
             same = "" if seen[name] == cell else f" ({quote(seen[name])} and {quote(cell)})"
-            raise DataError(f"{path}: the header row names the column {quote(name)} twice{same}; "
-                            "column names must differ")
+            raise DataError(
+                f"{path}: the header row names the column {quote(name)} twice{same}; "
+                "column names must differ"
+            )
         seen[name] = cell
 
 
@@ -663,23 +786,35 @@ def front_from_csv(
         if names.count(name) > 1:
             raise DataError(f"{where}: column {name!r} is given as an objective twice")
     if len(names) < 2:
-        raise DataError(f"{where}: a front needs at least two objectives (--min/--max), got {len(names)}")
+        raise DataError(
+            f"{where}: a front needs at least two objectives (--min/--max), got {len(names)}"
+        )
     for name in names + [_strip_unit(k) for k in keep or ()]:
         if name not in table.columns:
-            raise DataError(f"{where}: no column {quote(name)}; columns: {_columns_text(table.columns)}")
+            raise DataError(
+                f"{where}: no column {quote(name)}; columns: {_columns_text(table.columns)}"
+            )
     if len(table) == 0:
         raise DataError(f"{where}: the table has a header but no rows")
     if keep is not None:
         kept = [_strip_unit(k) for k in keep]
         table = table[names + [c for c in table.columns if c in kept and c not in names]]
-    objectives = [Objective(n, goal, units.get(n, "")) for n, (_, goal) in zip(names, wanted, strict=True)]
+    objectives = [
+        Objective(n, goal, units.get(n, "")) for n, (_, goal) in zip(names, wanted, strict=True)
+    ]
     objective_matrix(table, objectives, where=where, source=path)
     front = Front.from_table(table, objectives, units=units, where=where)
-    return replace(front, reference=tuple(front.reference_point()), meta={"source": where, "n_rows": len(table)})
+    return replace(
+        front,
+        reference=tuple(front.reference_point()),
+        meta={"source": where, "n_rows": len(table)},
+    )
 
 
 # ---------------------------------------------------------------- trade-off rates
-def tradeoff_rates(front: Front, index: int | None = None, *, n_neighbours: int | None = None) -> pd.DataFrame:
+def tradeoff_rates(
+    front: Front, index: int | None = None, *, n_neighbours: int | None = None
+) -> pd.DataFrame:
     """What one objective costs in another between neighbouring designs, in the objectives' own units.
 
     Two objectives: the designs are ordered from best to worst in the first
@@ -729,12 +864,24 @@ def tradeoff_rates(front: Front, index: int | None = None, *, n_neighbours: int 
     """
     n = len(front)
     if index is not None and not (isinstance(index, int | np.integer) and 0 <= index < n):
-        raise DataError(f"trade-off rates: design {index!r} is not a row of the front (0 to {n - 1})")
+        raise DataError(
+            f"trade-off rates: design {index!r} is not a row of the front (0 to {n - 1})"
+        )
     if len(front.objectives) == 2:
         rows = _rates_between_neighbours(front, index)
     else:
         rows = _rates_on_local_plane(front, index, n_neighbours)
-    columns = ["design", "neighbour", "gain", "give", "gain_amount", "give_amount", "rate", "per", "text"]
+    columns = [
+        "design",
+        "neighbour",
+        "gain",
+        "give",
+        "gain_amount",
+        "give_amount",
+        "rate",
+        "per",
+        "text",
+    ]
     return pd.DataFrame(rows, columns=columns)
 
 
@@ -781,7 +928,9 @@ def _rates_between_neighbours(front: Front, index: int | None) -> list[dict[str,
     return rows
 
 
-def _rates_on_local_plane(front: Front, index: int | None, n_neighbours: int | None) -> list[dict[str, Any]]:
+def _rates_on_local_plane(
+    front: Front, index: int | None, n_neighbours: int | None
+) -> list[dict[str, Any]]:
     points = front.points()
     n, m = points.shape
     low, high = points.min(axis=0), points.max(axis=0)
@@ -815,7 +964,9 @@ def _rates_on_local_plane(front: Front, index: int | None, n_neighbours: int | N
                         "give_amount": rate * per,
                         "rate": rate,
                         "per": per,
-                        "text": _plane_text(front, a, b, rate, per, fitted=not np.isnan(normal).any()),
+                        "text": _plane_text(
+                            front, a, b, rate, per, fitted=not np.isnan(normal).any()
+                        ),
                     }
                 )
     return rows
@@ -891,7 +1042,17 @@ def _rate_text(front: Front, give: str, gain: str, rate: float, per: float) -> s
         return f"{give} and {gain} do not trade off here (the front is uneven around this design)"
     give_word = "more" if goals[give] == "min" else "less"
     gain_word = "less" if goals[gain] == "min" else "more"
-    parts = [_number(rate * per), front.units.get(give, ""), give_word, give, "per", _number(per), front.units.get(gain, ""), gain_word, gain]
+    parts = [
+        _number(rate * per),
+        front.units.get(give, ""),
+        give_word,
+        give,
+        "per",
+        _number(per),
+        front.units.get(gain, ""),
+        gain_word,
+        gain,
+    ]
     return " ".join(p for p in parts if p)
 
 

@@ -118,7 +118,9 @@ class _Host:
     def __init__(self, file: str, function: str, required: list[str], start_within: float) -> None:
         self.proc = subprocess.Popen(
             [sys.executable, _host.__file__, file, function, json.dumps(required)],
-            stdin=subprocess.PIPE, stdout=subprocess.PIPE, **_NEW_GROUP,
+            stdin=subprocess.PIPE,
+            stdout=subprocess.PIPE,
+            **_NEW_GROUP,
         )
         self.name = ""
         self._lines: queue.Queue[bytes | None] = queue.Queue()
@@ -177,13 +179,20 @@ class _Host:
             _ALL_HOSTS.discard(self)
 
 
-def _evaluate_guarded(file: str, function: str, required: list[str], timeout: float,
-                      design: dict[str, Any]) -> Outcome:
+def _evaluate_guarded(
+    file: str, function: str, required: list[str], timeout: float, design: dict[str, Any]
+) -> Outcome:
     """Evaluate one design in a host process; past ``timeout`` seconds the host is killed."""
     try:
         request = json.dumps({"design": design}, default=_plain, allow_nan=False).encode() + b"\n"
     except (TypeError, ValueError) as exc:
-        return Outcome("failed", {}, f"the design cannot be sent to the model's process: {exc}", 0.0, _host.worker_name())
+        return Outcome(
+            "failed",
+            {},
+            f"the design cannot be sent to the model's process: {exc}",
+            0.0,
+            _host.worker_name(),
+        )
     key = (file, function)
     with _HOSTS_LOCK:
         idle = _IDLE_HOSTS.setdefault(key, [])
@@ -193,9 +202,14 @@ def _evaluate_guarded(file: str, function: str, required: list[str], timeout: fl
         try:
             host = _Host(file, function, required, _HOST_START + timeout)
         except _HostGone:
-            return Outcome("failed", {}, f"the process for the model did not start within {_HOST_START + timeout:g} s "
-                                         "(is importing the model file that slow?)", time.perf_counter() - start,
-                           _host.worker_name())
+            return Outcome(
+                "failed",
+                {},
+                f"the process for the model did not start within {_HOST_START + timeout:g} s "
+                "(is importing the model file that slow?)",
+                time.perf_counter() - start,
+                _host.worker_name(),
+            )
     start = time.perf_counter()
     try:
         host.send(request)
@@ -204,19 +218,36 @@ def _evaluate_guarded(file: str, function: str, required: list[str], timeout: fl
         duration = time.perf_counter() - start
         if str(gone) == "timeout":
             host.stop()
-            return Outcome("timeout", {}, f"no answer within the timeout of {timeout:g} s; the model's process "
-                                          "was stopped and a new one takes the next design", duration, host.name)
+            return Outcome(
+                "timeout",
+                {},
+                f"no answer within the timeout of {timeout:g} s; the model's process "
+                "was stopped and a new one takes the next design",
+                duration,
+                host.name,
+            )
         how = host.how_it_ended()
         host.stop()
-        return Outcome("failed", {}, f"the model's process {how} while evaluating this design "
-                                     "(a crash, os._exit or the out-of-memory killer)", duration, host.name)
+        return Outcome(
+            "failed",
+            {},
+            f"the model's process {how} while evaluating this design "
+            "(a crash, os._exit or the out-of-memory killer)",
+            duration,
+            host.name,
+        )
     except BaseException:
         host.stop()  # interrupted: the host may be busy with this design; do not leave it running
         raise
     with _HOSTS_LOCK:
         _IDLE_HOSTS.setdefault(key, []).append(host)
-    return Outcome(str(answer.get("status", "failed")), dict(answer.get("results") or {}),
-                   str(answer.get("message", "")), float(answer.get("duration", 0.0)), str(answer.get("worker", "")))
+    return Outcome(
+        str(answer.get("status", "failed")),
+        dict(answer.get("results") or {}),
+        str(answer.get("message", "")),
+        float(answer.get("duration", 0.0)),
+        str(answer.get("worker", "")),
+    )
 
 
 def stop_model_processes() -> None:
@@ -267,12 +298,16 @@ class CommandModel:
 
     def __init__(self, case: Case, *, keep_root: str | Path | None = None) -> None:
         if not case.command:
-            raise CaseError(f"{case.path}: command: got {case.command!r}, expected a list of arguments")
+            raise CaseError(
+                f"{case.path}: command: got {case.command!r}, expected a list of arguments"
+            )
         # The program runs in a folder of its own, so a case given by a relative path (`run my-case/`,
         # `run .`) must still name its files by where they are, not by where the run started.
         folder = Path(os.path.abspath(case.folder))
         self.folder = str(folder)
-        self.command = [str(folder / a) if "{" not in a and (folder / a).is_file() else a for a in case.command]
+        self.command = [
+            str(folder / a) if "{" not in a and (folder / a).is_file() else a for a in case.command
+        ]
         self.timeout = case.timeout
         self.required = case.objective_names + case.constraint_names
         self.keep_root = str(keep_root) if keep_root else None
@@ -296,7 +331,9 @@ class CommandModel:
             return Outcome(status, {}, f"{text} (kept {work})", duration, worker)
 
         try:
-            input_file.write_text(json.dumps(design, default=_plain, allow_nan=False), encoding="utf-8")
+            input_file.write_text(
+                json.dumps(design, default=_plain, allow_nan=False), encoding="utf-8"
+            )
         except (TypeError, ValueError) as exc:
             return failed(f"the design cannot be written as JSON: {exc}")
         args = self.arguments(input_file, output_file)
@@ -315,7 +352,9 @@ class CommandModel:
                 _end_group(proc)
                 return failed(
                     f"no answer within the timeout of {self.timeout:g} s; the program and its process group "
-                    "were stopped", time.perf_counter() - start, "timeout",
+                    "were stopped",
+                    time.perf_counter() - start,
+                    "timeout",
                 )
             except BaseException:
                 # Interrupted (Ctrl-C) or killed from outside: the program runs in its own session and
@@ -331,10 +370,16 @@ class CommandModel:
         _end_group(proc)
         if proc.returncode != 0:
             tail = _tail(work / "stderr.txt")
-            how = (f"was killed by signal {_signal_name(-proc.returncode)}" if proc.returncode < 0
-                   else f"exited with status {proc.returncode}")
-            return failed(f"{Path(args[0]).name} {how}" + (f"; stderr ends: {tail}" if tail else "; stderr is empty"),
-                          duration)
+            how = (
+                f"was killed by signal {_signal_name(-proc.returncode)}"
+                if proc.returncode < 0
+                else f"exited with status {proc.returncode}"
+            )
+            return failed(
+                f"{Path(args[0]).name} {how}"
+                + (f"; stderr ends: {tail}" if tail else "; stderr is empty"),
+                duration,
+            )
         try:
             text = output_file.read_text(encoding="utf-8")
         except FileNotFoundError:
@@ -346,8 +391,10 @@ class CommandModel:
         except ValueError as exc:
             return failed(f"{output_file.name} is not valid JSON ({exc})", duration)
         if not isinstance(raw, dict):
-            return failed(f"{output_file.name} holds a JSON {type(raw).__name__}, expected an object of results",
-                          duration)
+            return failed(
+                f"{output_file.name} holds a JSON {type(raw).__name__}, expected an object of results",
+                duration,
+            )
         results, problem = check_results(raw, self.required)
         if problem:
             return failed(problem, duration)
@@ -359,7 +406,8 @@ _PYTHON_NAMES = frozenset({"python", "python3"})
 _PLACEHOLDER = re.compile(r"\{(input|output|case)\}")
 _RUNNING: set[subprocess.Popen] = set()  # programs of this process now running, for stop_programs()
 _NEW_GROUP: dict[str, Any] = (
-    {"start_new_session": True} if os.name == "posix"
+    {"start_new_session": True}
+    if os.name == "posix"
     else {"creationflags": getattr(subprocess, "CREATE_NEW_PROCESS_GROUP", 0)}
 )
 
@@ -444,7 +492,9 @@ def _tail(file: Path) -> str:
             text = handle.read().decode("utf-8", "replace")
     except OSError:
         return ""
-    return " | ".join(line.strip() for line in text.strip().splitlines() if line.strip())[-_STDERR_TAIL:]
+    return " | ".join(line.strip() for line in text.strip().splitlines() if line.strip())[
+        -_STDERR_TAIL:
+    ]
 
 
 def _signal_name(number: int) -> str:

@@ -30,8 +30,15 @@ from tradewise.picker import (
 )
 
 # PickerState, load_picker_source and SHORTLIST_COLUMNS are picker.py's; they stay importable from here as before
-__all__ = ["Picker", "open_picker", "draw_picker", "write_review", "PickerState", "load_picker_source",
-           "SHORTLIST_COLUMNS"]
+__all__ = [
+    "Picker",
+    "open_picker",
+    "draw_picker",
+    "write_review",
+    "PickerState",
+    "load_picker_source",
+    "SHORTLIST_COLUMNS",
+]
 
 _MAX_FIGURE_PX = 880.0
 
@@ -54,10 +61,17 @@ def write_review(state: PickerState, path: str | Path) -> Path:
     """
     from tradewise.report import write_report
 
-    page = write_report(state.front, path, history=state.history, evaluations=state.evaluations,
-                        shortlist=state.shortlist_front())
-    state.tell(f"Wrote {Path(page).name}: the front of {len(state.front)} designs with "
-               f"{len(state.shortlist)} shortlisted.")
+    page = write_report(
+        state.front,
+        path,
+        history=state.history,
+        evaluations=state.evaluations,
+        shortlist=state.shortlist_front(),
+    )
+    state.tell(
+        f"Wrote {Path(page).name}: the front of {len(state.front)} designs with "
+        f"{len(state.shortlist)} shortlisted."
+    )
     return Path(page)
 
 
@@ -81,8 +95,14 @@ def draw_picker(state: PickerState, *, evaluations: pd.DataFrame | None = None, 
         marks["pick" if not state.by_hand else "selected"] = state.pick
     for k, row in enumerate(state.shortlist, start=1):
         marks[f"shortlist {k}"] = row
-    return plots.plot_narrowed_front(state.front, greyed=~state.kept, limits=state.limits, evaluations=evaluations,
-                                     picks=marks or None, figure=figure)
+    return plots.plot_narrowed_front(
+        state.front,
+        greyed=~state.kept,
+        limits=state.limits,
+        evaluations=evaluations,
+        picks=marks or None,
+        figure=figure,
+    )
 
 
 def _png(fig, dpi: float = 96) -> bytes:
@@ -133,8 +153,14 @@ class Picker:
             self.state = source
         else:
             front, history, evaluations = load_picker_source(source)
-            self.state = PickerState(front, method=method, weights=weights, target=target, history=history,
-                                     evaluations=evaluations)
+            self.state = PickerState(
+                front,
+                method=method,
+                weights=weights,
+                target=target,
+                history=history,
+                evaluations=evaluations,
+            )
         if clickable is None:
             try:
                 import ipympl  # noqa: F401
@@ -166,9 +192,15 @@ class Picker:
             label = f"{o.name} [{unit}]" if unit else o.name
             if high > low:
                 slider = w.FloatRangeSlider(
-                    value=(low, high), min=low, max=high, step=(high - low) / 200.0, readout_format=".4g",
-                    continuous_update=False, description=label,
-                    style={"description_width": "150px"}, layout=w.Layout(width="460px"),
+                    value=(low, high),
+                    min=low,
+                    max=high,
+                    step=(high - low) / 200.0,
+                    readout_format=".4g",
+                    continuous_update=False,
+                    description=label,
+                    style={"description_width": "150px"},
+                    layout=w.Layout(width="460px"),
                 )
                 slider.observe(self._limit_moved(o.name), names="value")
                 self._sliders[o.name] = slider
@@ -179,25 +211,45 @@ class Picker:
         reset.on_click(lambda _b: self._act(state.clear_limits))
         self.buttons = {"clear limits": reset}
         self._count = w.HTML()
-        limits_box = w.VBox([w.HTML("<b>Limits</b> <span style='color:#666'>(designs outside are greyed)</span>"),
-                             *limit_rows, w.HBox([reset, self._count])])
+        limits_box = w.VBox(
+            [
+                w.HTML(
+                    "<b>Limits</b> <span style='color:#666'>(designs outside are greyed)</span>"
+                ),
+                *limit_rows,
+                w.HBox([reset, self._count]),
+            ]
+        )
 
-        self._method = w.Dropdown(options=[(m, m) for m in state.methods], value=state.method,
-                                  description="method", style={"description_width": "60px"},
-                                  layout=w.Layout(width="260px"))
+        self._method = w.Dropdown(
+            options=[(m, m) for m in state.methods],
+            value=state.method,
+            description="method",
+            style={"description_width": "60px"},
+            layout=w.Layout(width="260px"),
+        )
         self._method.observe(self._method_changed, names="value")
         self._method_help = w.HTML(layout=w.Layout(width="440px"))
         self._weights: dict[str, Any] = {}
         weight_rows = []
         for o in front.objectives:
-            slider = w.FloatSlider(value=state.weights[o.name], min=0.0, max=5.0, step=0.1, readout_format=".1f",
-                                   continuous_update=False, description=o.name,
-                                   style={"description_width": "120px"}, layout=w.Layout(width="400px"))
+            slider = w.FloatSlider(
+                value=state.weights[o.name],
+                min=0.0,
+                max=5.0,
+                step=0.1,
+                readout_format=".1f",
+                continuous_update=False,
+                description=o.name,
+                style={"description_width": "120px"},
+                layout=w.Layout(width="400px"),
+            )
             slider.observe(self._weight_moved(o.name), names="value")
             self._weights[o.name] = slider
             weight_rows.append(slider)
-        self._use_target = w.Checkbox(value=state.target is not None, description="aim at a target (asf)",
-                                      indent=False)
+        self._use_target = w.Checkbox(
+            value=state.target is not None, description="aim at a target (asf)", indent=False
+        )
         self._use_target.observe(self._target_changed, names="value")
         self._targets: dict[str, Any] = {}
         target_rows = []
@@ -205,50 +257,87 @@ class Picker:
         for o in front.objectives:
             unit = front.units.get(o.name, o.unit) or ""
             start = (state.target or {}).get(o.name, ideal[o.name])
-            box = w.FloatText(value=float(f"{start:.6g}"), description=f"{o.name} [{unit}]" if unit else o.name,
-                              style={"description_width": "150px"}, layout=w.Layout(width="300px"))
+            box = w.FloatText(
+                value=float(f"{start:.6g}"),
+                description=f"{o.name} [{unit}]" if unit else o.name,
+                style={"description_width": "150px"},
+                layout=w.Layout(width="300px"),
+            )
             box.observe(self._target_changed, names="value")
             self._targets[o.name] = box
             target_rows.append(box)
-        prefs_box = w.VBox([w.HTML("<b>Preferences</b>"), self._method, self._method_help,
-                            w.HTML("importance (weights)"), *weight_rows, self._use_target, *target_rows])
+        prefs_box = w.VBox(
+            [
+                w.HTML("<b>Preferences</b>"),
+                self._method,
+                self._method_help,
+                w.HTML("importance (weights)"),
+                *weight_rows,
+                self._use_target,
+                *target_rows,
+            ]
+        )
 
         self._figure_box = w.Box(layout=w.Layout(width="100%", overflow="auto"))
         self._image = w.Image(format="png", layout=w.Layout(max_width="100%", height="auto"))
 
-        self._designs = w.Dropdown(description="design", style={"description_width": "60px"},
-                                   layout=w.Layout(width="620px"))
+        self._designs = w.Dropdown(
+            description="design",
+            style={"description_width": "60px"},
+            layout=w.Layout(width="620px"),
+        )
         self._designs.observe(self._design_chosen, names="value")
-        follow = w.Button(description="Method's pick", icon="crosshairs", layout=w.Layout(width="140px"))
+        follow = w.Button(
+            description="Method's pick", icon="crosshairs", layout=w.Layout(width="140px")
+        )
         follow.on_click(lambda _b: self._act(state.select, None))
         self.buttons["method's pick"] = follow
-        add = w.Button(description="Add to shortlist", icon="plus", button_style="primary",
-                       layout=w.Layout(width="160px"))
+        add = w.Button(
+            description="Add to shortlist",
+            icon="plus",
+            button_style="primary",
+            layout=w.Layout(width="160px"),
+        )
         add.on_click(lambda _b: self._act(state.add))
         self.buttons["add"] = add
         self._details = w.HTML(layout=w.Layout(width="100%"))
         self._ranking = w.HTML(layout=w.Layout(width="100%", overflow="auto"))
 
-        self._shortlist = w.Select(options=[], rows=5, description="shortlist", style={"description_width": "60px"},
-                                   layout=w.Layout(width="620px"))
+        self._shortlist = w.Select(
+            options=[],
+            rows=5,
+            description="shortlist",
+            style={"description_width": "60px"},
+            layout=w.Layout(width="620px"),
+        )
         self._shortlist.observe(self._shortlisted_chosen, names="value")
         drop = w.Button(description="Remove", icon="minus", layout=w.Layout(width="120px"))
         drop.on_click(lambda _b: self._remove_selected())
         self.buttons["remove"] = drop
-        self._path = w.Text(value="shortlist.csv", description="file", style={"description_width": "40px"},
-                            layout=w.Layout(width="300px"))
+        self._path = w.Text(
+            value="shortlist.csv",
+            description="file",
+            style={"description_width": "40px"},
+            layout=w.Layout(width="300px"),
+        )
         export = w.Button(description="Export CSV", icon="download", layout=w.Layout(width="130px"))
         export.on_click(lambda _b: self._act(state.export_shortlist, self._path.value))
         self.buttons["export"] = export
         review = w.Button(description="Review page", icon="file", layout=w.Layout(width="130px"))
-        review.on_click(lambda _b: self._act(self.write_review, str(Path(self._path.value).with_suffix(".html"))))
+        review.on_click(
+            lambda _b: self._act(
+                self.write_review, str(Path(self._path.value).with_suffix(".html"))
+            )
+        )
         self.buttons["review"] = review
         self._status = w.HTML()
 
         self.widget = w.VBox(
             [
                 self._heading,
-                w.HBox([limits_box, prefs_box], layout=w.Layout(flex_flow="row wrap", grid_gap="24px")),
+                w.HBox(
+                    [limits_box, prefs_box], layout=w.Layout(flex_flow="row wrap", grid_gap="24px")
+                ),
                 self._figure_box,
                 w.HBox([self._designs, follow, add]),
                 self._details,
@@ -288,20 +377,27 @@ class Picker:
             for box in self._targets.values():
                 box.disabled = state.method != "asf" or not self._use_target.value
             self._method_help.value = f"<small>{escape(METHODS[state.method])}</small>"
-            self._designs.options = [(self._design_label(r), r) for r in state.ranking] or [("no design meets the limits", -1)]
+            self._designs.options = [(self._design_label(r), r) for r in state.ranking] or [
+                ("no design meets the limits", -1)
+            ]
             self._designs.value = state.pick if state.pick is not None else -1
             self._shortlist.options = [(self._design_label(r), r) for r in state.shortlist]
         finally:
             self._syncing = False
         n_kept = int(state.kept.sum())
         self._count.value = f"&nbsp; {n_kept} of {len(front)} designs within the limits"
-        self._heading.value = (f"<h3 style='margin:4px 0'>{escape(self._title)}</h3>"
-                               f"<div style='color:#555'>{len(front)} designs on the front; objectives "
-                               + ", ".join(escape(f"{o.name} ({o.goal})") for o in front.objectives) + "</div>")
+        self._heading.value = (
+            f"<h3 style='margin:4px 0'>{escape(self._title)}</h3>"
+            f"<div style='color:#555'>{len(front)} designs on the front; objectives "
+            + ", ".join(escape(f"{o.name} ({o.goal})") for o in front.objectives)
+            + "</div>"
+        )
         self._details.value = self._details_html()
         self._ranking.value = self._ranking_html()
         notes = "".join(f"<div style='color:#8a5a00'>{escape(n)}</div>" for n in state.notes)
-        self._status.value = notes + (f"<div>{escape(state.message)}</div>" if state.message else "")
+        self._status.value = notes + (
+            f"<div>{escape(state.message)}</div>" if state.message else ""
+        )
         self._redraw()
 
     def _redraw(self) -> None:
@@ -330,7 +426,9 @@ class Picker:
                 self._canvas.toolbar.update()  # the zoom history belongs to the axes just cleared
             self._canvas.draw_idle()
         else:
-            self._image.value = _png(self.figure, dpi=2 * display_dpi)  # sharp on high-density screens
+            self._image.value = _png(
+                self.figure, dpi=2 * display_dpi
+            )  # sharp on high-density screens
             self._image.layout.width = f"{int(self.figure.get_figwidth() * display_dpi)}px"
             self._figure_box.children = [self._image]
 
@@ -375,7 +473,9 @@ class Picker:
         if self._syncing:
             return
         if self._use_target.value:
-            self._act(self.state.set_target, {name: box.value for name, box in self._targets.items()})
+            self._act(
+                self.state.set_target, {name: box.value for name, box in self._targets.items()}
+            )
         else:
             self._act(self.state.set_target, None)
 
@@ -391,7 +491,9 @@ class Picker:
     def _remove_selected(self) -> None:
         row = self._shortlist.value
         if row is None:
-            self._status.value = "<div style='color:#a00'>Choose a design in the shortlist first.</div>"
+            self._status.value = (
+                "<div style='color:#a00'>Choose a design in the shortlist first.</div>"
+            )
             return
         self._act(self.state.remove, int(row))
 
@@ -407,7 +509,9 @@ class Picker:
         parts = []
         for o in front.objectives:
             unit = front.units.get(o.name, o.unit) or ""
-            parts.append(f"{o.name} {show_value(float(record[o.name]))}{' ' + unit if unit else ''}")
+            parts.append(
+                f"{o.name} {show_value(float(record[o.name]))}{' ' + unit if unit else ''}"
+            )
         return f"row {row + 1}: " + ", ".join(parts)
 
     def _details_html(self) -> str:
@@ -426,8 +530,13 @@ class Picker:
             f"<td>{escape(v['unit'])}</td></tr>"
             for v in info["variables"]
         )
-        rates = "".join(f"<li>{escape(text)}</li>" for text in info["rates"]) or "<li>only one design is left</li>"
-        also = f"<div>First choice of: {escape(', '.join(info['also']))}</div>" if info["also"] else ""
+        rates = (
+            "".join(f"<li>{escape(text)}</li>" for text in info["rates"])
+            or "<li>only one design is left</li>"
+        )
+        also = (
+            f"<div>First choice of: {escape(', '.join(info['also']))}</div>" if info["also"] else ""
+        )
         cell = "style='padding:2px 8px;vertical-align:top'"
         return (
             f"<div style='border:1px solid #d9d9df;padding:6px 10px;margin:6px 0'>"
@@ -450,12 +559,16 @@ class Picker:
             record = front.table.iloc[row]
             style = " style='background:#fff1d6;font-weight:600'" if row == state.pick else ""
             marks = " *" if row in state.shortlist else ""
-            cells = "".join(f"<td style='text-align:right'>{escape(show_value(float(record[o.name])))}</td>"
-                            for o in front.objectives)
+            cells = "".join(
+                f"<td style='text-align:right'>{escape(show_value(float(record[o.name])))}</td>"
+                for o in front.objectives
+            )
             body.append(f"<tr{style}><td>{k}</td><td>row {row + 1}{marks}</td>{cells}</tr>")
-        return (f"<div><b>The {min(n_rows, len(state.ranking))} designs {escape(state.method)} prefers</b> "
-                f"<span style='color:#666'>(* on the shortlist; choose one in the list above)</span></div>"
-                f"<table><tr><th>#</th><th>row</th>{head}</tr>{''.join(body)}</table>")
+        return (
+            f"<div><b>The {min(n_rows, len(state.ranking))} designs {escape(state.method)} prefers</b> "
+            f"<span style='color:#666'>(* on the shortlist; choose one in the list above)</span></div>"
+            f"<table><tr><th>#</th><th>row</th>{head}</tr>{''.join(body)}</table>"
+        )
 
 
 def open_picker(source: Any, **options: Any) -> Picker:

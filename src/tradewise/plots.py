@@ -168,7 +168,9 @@ def _title(fig: Figure, title: str | None) -> None:
 
 
 def _new_figure(size: tuple[float, float], figure: Figure | None = None) -> Figure:
-    if figure is not None:  # drawn anew on the caller's figure, which keeps its canvas and its callbacks
+    if (
+        figure is not None
+    ):  # drawn anew on the caller's figure, which keeps its canvas and its callbacks
         figure.clear()
         figure.set_layout_engine("constrained")
         if tuple(figure.get_size_inches()) != size:
@@ -239,7 +241,9 @@ def _marks(
     for entry in out:
         if entry["is_knee"]:  # filled, ink-edged
             colour = PALETTE["highlight"]
-            entry.update(marker="D", color=colour, size=80, face=colour, edge=PALETTE["ink"], width=1.0)
+            entry.update(
+                marker="D", color=colour, size=80, face=colour, edge=PALETTE["ink"], width=1.0
+            )
         else:  # hollow, edged in its colour
             marker, name = _PICK_STYLES[pick_index % len(_PICK_STYLES)]
             pick_index += 1
@@ -591,7 +595,9 @@ def _front_figure(
                 _shade_limits(ax, front, 0, 1, narrowing)
             ax.legend(handles=_legend_handles(front, cloud, marks, listed, narrowing), loc="best")
         else:
-            fig = _front_matrix(front, objectives, cloud, marks, rasterize, listed, narrowing, figure)
+            fig = _front_matrix(
+                front, objectives, cloud, marks, rasterize, listed, narrowing, figure
+            )
         _title(fig, title)
     return fig
 
@@ -902,7 +908,9 @@ def plot_parallel(
         highlight = knee = _default_knee(front)
     elif highlight is not None:
         highlight = _check_row(front, highlight, "highlight")
-        knee = _default_knee(front)  # the legend calls the highlighted design the knee when it is one
+        knee = _default_knee(
+            front
+        )  # the legend calls the highlighted design the knee when it is one
     axes_spec = [_objective_axis(front, o) for o in objectives] + [
         _variable_axis(front, v) for v in extra
     ]
@@ -1116,7 +1124,9 @@ def plot_history(
         )
     seeds = history["seed"] if "seed" in history.columns else None
     if seeds is not None and seeds.isna().any():
-        raise DataError("history: the seed column has an empty cell; every generation needs its seed")
+        raise DataError(
+            "history: the seed column has an empty cell; every generation needs its seed"
+        )
     runs: list[tuple[Any, np.ndarray]] = []
     if seeds is not None and seeds.nunique() > 1:
         for seed in sorted(seeds.unique().tolist()):
@@ -1240,7 +1250,9 @@ def _common_reason(stop_reason: str | None) -> str | None:
     """One reason when every seed stopped for the same one ("seed 1: X; seed 2: X" gives X)."""
     if not stop_reason:
         return stop_reason
-    parts = [re.sub(r"^seed \S+: ", "", p.strip()) for p in str(stop_reason).split(";") if p.strip()]
+    parts = [
+        re.sub(r"^seed \S+: ", "", p.strip()) for p in str(stop_reason).split(";") if p.strip()
+    ]
     return parts[0] + " (every seed)" if len(set(parts)) == 1 and len(parts) > 1 else stop_reason
 
 
@@ -1604,7 +1616,10 @@ def _draw(fig: Figure, target: Any, **options: Any) -> None:
         huge = [
             label
             for ax in fig.axes
-            for label, limits in ((ax.get_xlabel(), ax.get_xlim()), (ax.get_ylabel(), ax.get_ylim()))
+            for label, limits in (
+                (ax.get_xlabel(), ax.get_xlim()),
+                (ax.get_ylabel(), ax.get_ylim()),
+            )
             if any(not math.isfinite(v) or abs(v) > _DRAWABLE for v in limits)
         ]
         if not huge:

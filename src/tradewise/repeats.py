@@ -73,14 +73,27 @@ def _spread(values: Any) -> dict[str, float]:
     values = np.asarray(values, dtype=float)
     if len(values) == 0:
         return {"median": math.nan, "min": math.nan, "max": math.nan}
-    return {"median": float(np.median(values)), "min": float(values.min()), "max": float(values.max())}
+    return {
+        "median": float(np.median(values)),
+        "min": float(values.min()),
+        "max": float(values.max()),
+    }
 
 
-def _one_seed_of_set(case: Case, seed: int, store: str | Path | None, workers: int | None,
-                     seed_set: dict[str, Any], run_id: int | None, evaluations: int | None) -> RunResult:
+def _one_seed_of_set(
+    case: Case,
+    seed: int,
+    store: str | Path | None,
+    workers: int | None,
+    seed_set: dict[str, Any],
+    run_id: int | None,
+    evaluations: int | None,
+) -> RunResult:
     """One run of a set of seeds, started or resumed, in a worker process (module level so that it pickles)."""
     if run_id is not None:
-        return search.resume(store, run_id=run_id, evaluations=evaluations, case=case, workers=workers)
+        return search.resume(
+            store, run_id=run_id, evaluations=evaluations, case=case, workers=workers
+        )
     return search.run(case, seed=seed, store=store, workers=workers, seed_set=seed_set)
 
 
@@ -151,30 +164,73 @@ def run_seeds(
     if not isinstance(case, Case):
         case = load_case(case)
     case = case.with_search(
-        seed=seed, evaluations=evaluations, generations=generations, population=population, time_limit=time_limit
+        seed=seed,
+        evaluations=evaluations,
+        generations=generations,
+        population=population,
+        time_limit=time_limit,
     )
     seeds = [case.search.seed + i for i in range(int(n_seeds))]
     if store is not None:
         # Create the file and switch it to WAL once, before several writers open it.
         open_store(store).close()
     seed_set = {"id": uuid.uuid4().hex, "seeds": seeds}
-    return _run_seed_set(case, seeds, {}, seed_set=seed_set, store=store, workers=workers, dask=dask,
-                         scheduler=scheduler, progress=progress, on_evaluation=on_evaluation, on_run=on_run)
+    return _run_seed_set(
+        case,
+        seeds,
+        {},
+        seed_set=seed_set,
+        store=store,
+        workers=workers,
+        dask=dask,
+        scheduler=scheduler,
+        progress=progress,
+        on_evaluation=on_evaluation,
+        on_run=on_run,
+    )
 
 
-def _run_seed_set(case: Case, seeds: list[int], existing: dict[int, int], *, seed_set: dict[str, Any],
-                  store: str | Path | None, workers: int | None, dask: bool, scheduler: str | None,
-                  progress, on_evaluation, on_run, evaluations: int | None = None) -> SeedsResult:
+def _run_seed_set(
+    case: Case,
+    seeds: list[int],
+    existing: dict[int, int],
+    *,
+    seed_set: dict[str, Any],
+    store: str | Path | None,
+    workers: int | None,
+    dask: bool,
+    scheduler: str | None,
+    progress,
+    on_evaluation,
+    on_run,
+    evaluations: int | None = None,
+) -> SeedsResult:
     """Run (or, for seeds in ``existing``, resume by run id) every seed of a set, and merge their fronts."""
     import concurrent.futures as cf
     import contextlib
 
     def start(s: int, inner: int | None = None, executor=None, tagged=None):
         if s in existing:
-            return search.resume(store, run_id=existing[s], evaluations=evaluations, case=case, workers=inner,
-                                executor=executor, progress=tagged, on_evaluation=on_evaluation)
-        return search.run(case, seed=s, store=store, workers=inner, executor=executor, progress=tagged,
-                         on_evaluation=on_evaluation, seed_set=seed_set)
+            return search.resume(
+                store,
+                run_id=existing[s],
+                evaluations=evaluations,
+                case=case,
+                workers=inner,
+                executor=executor,
+                progress=tagged,
+                on_evaluation=on_evaluation,
+            )
+        return search.run(
+            case,
+            seed=s,
+            store=store,
+            workers=inner,
+            executor=executor,
+            progress=tagged,
+            on_evaluation=on_evaluation,
+            seed_set=seed_set,
+        )
 
     results: dict[int, RunResult] = {}
     interrupted = False
@@ -183,8 +239,19 @@ def _run_seed_set(case: Case, seeds: list[int], existing: dict[int, int], *, see
         n_proc = min(int(workers), len(seeds))
         inner = int(workers) // n_proc
         pool = cf.ProcessPoolExecutor(max_workers=n_proc)
-        futures = {pool.submit(_one_seed_of_set, case, s, store, inner if inner > 1 else None, seed_set,
-                               existing.get(s), evaluations): s for s in seeds}
+        futures = {
+            pool.submit(
+                _one_seed_of_set,
+                case,
+                s,
+                store,
+                inner if inner > 1 else None,
+                seed_set,
+                existing.get(s),
+                evaluations,
+            ): s
+            for s in seeds
+        }
         try:
             for future in cf.as_completed(futures):
                 results[futures[future]] = future.result()
@@ -196,7 +263,9 @@ def _run_seed_set(case: Case, seeds: list[int], existing: dict[int, int], *, see
             for future, s in futures.items():
                 if future.cancel() or s in results:
                     continue
-                with contextlib.suppress(BaseException):  # a run that died on the interrupt has nothing to give
+                with contextlib.suppress(
+                    BaseException
+                ):  # a run that died on the interrupt has nothing to give
                     results[s] = future.result()
         finally:
             pool.shutdown(wait=True, cancel_futures=True)
@@ -217,8 +286,9 @@ def _run_seed_set(case: Case, seeds: list[int], existing: dict[int, int], *, see
     if not results:
         raise KeyboardInterrupt
     missing = [s for s in seeds if s not in results]
-    return _merge_repeats(case, [results[s] for s in seeds if s in results], interrupted=interrupted,
-                          missing=missing)
+    return _merge_repeats(
+        case, [results[s] for s in seeds if s in results], interrupted=interrupted, missing=missing
+    )
 
 
 def resume_seeds(
@@ -247,21 +317,38 @@ def resume_seeds(
         record = archive.run(run_id)
         seed_set = (record["settings"] or {}).get("seed_set")
         if not isinstance(seed_set, dict) or not isinstance(seed_set.get("seeds"), list):
-            raise StoreError(f"{path}: run {run_id} is a single run, not one of a set of seeds; use resume")
+            raise StoreError(
+                f"{path}: run {run_id} is a single run, not one of a set of seeds; use resume"
+            )
         existing: dict[int, int] = {}
         for other in archive.runs()["run_id"].tolist():
             settings = archive.run(int(other))["settings"] or {}
             if (settings.get("seed_set") or {}).get("id") == seed_set["id"]:
                 existing[int(archive.run(int(other))["seed"])] = int(other)
     loaded = _case_of_run(path, record, case)
-    settings = {k: v for k, v in record["settings"].items() if k not in ("seed_set", "seed") and v is not None}
+    settings = {
+        k: v
+        for k, v in record["settings"].items()
+        if k not in ("seed_set", "seed") and v is not None
+    }
     if evaluations is not None:
         settings["evaluations"] = evaluations
     loaded = loaded.with_search(**settings)
     seeds = [int(s) for s in seed_set["seeds"]]
-    return _run_seed_set(loaded, seeds, existing, seed_set=seed_set, store=path, workers=workers, dask=dask,
-                         scheduler=scheduler, progress=progress, on_evaluation=on_evaluation, on_run=on_run,
-                         evaluations=evaluations)
+    return _run_seed_set(
+        loaded,
+        seeds,
+        existing,
+        seed_set=seed_set,
+        store=path,
+        workers=workers,
+        dask=dask,
+        scheduler=scheduler,
+        progress=progress,
+        on_evaluation=on_evaluation,
+        on_run=on_run,
+        evaluations=evaluations,
+    )
 
 
 def _history_on(run: RunResult, reference: np.ndarray) -> pd.DataFrame:
@@ -294,25 +381,44 @@ def _on_common_reference(run: RunResult, reference: np.ndarray, hv: float) -> Ru
     """The run restated on the seeds' common reference point: its hypervolume, history and message."""
     own = f"Front of {len(run.front)} designs, hypervolume {run.hypervolume:.6g}."
     common = f"Front of {len(run.front)} designs, hypervolume {hv:.6g} on the seeds' common reference point."
-    meta = dict(run.meta) | {"reference_source": "the worst, per objective, of the seeds' own reference points"}
+    meta = dict(run.meta) | {
+        "reference_source": "the worst, per objective, of the seeds' own reference points"
+    }
     front = replace(run.front, reference=tuple(float(v) for v in reference), meta=meta)
-    return replace(run, front=front, hypervolume=hv, reference=tuple(float(v) for v in reference),
-                   history=_history_on(run, reference), message=run.message.replace(own, common), meta=meta)
+    return replace(
+        run,
+        front=front,
+        hypervolume=hv,
+        reference=tuple(float(v) for v in reference),
+        history=_history_on(run, reference),
+        message=run.message.replace(own, common),
+        meta=meta,
+    )
 
 
-def _merge_repeats(case: Case, runs: list[RunResult], *, interrupted: bool,
-                   missing: list[int] | None = None) -> SeedsResult:
+def _merge_repeats(
+    case: Case, runs: list[RunResult], *, interrupted: bool, missing: list[int] | None = None
+) -> SeedsResult:
     flags = np.asarray(case.maximise, dtype=bool)
     recorded = [np.asarray(r.reference, dtype=float) for r in runs if r.reference is not None]
-    reference = np.where(flags, np.min(recorded, axis=0), np.max(recorded, axis=0)) if recorded else None
+    reference = (
+        np.where(flags, np.min(recorded, axis=0), np.max(recorded, axis=0)) if recorded else None
+    )
     hvs = tuple(
-        hypervolume(r.front.points(), reference, case.maximise) if reference is not None and len(r.front) else 0.0
+        hypervolume(r.front.points(), reference, case.maximise)
+        if reference is not None and len(r.front)
+        else 0.0
         for r in runs
     )
     if reference is not None:
         # One reference for everything about a set of seeds: each run's history, message and folder too.
         runs = [_on_common_reference(r, reference, hv) for r, hv in zip(runs, hvs, strict=True)]
-    names = set(case.variable_names) | set(case.objective_names) | set(case.constraint_names) | set(case.outputs)
+    names = (
+        set(case.variable_names)
+        | set(case.objective_names)
+        | set(case.constraint_names)
+        | set(case.outputs)
+    )
     for r in runs:
         names |= set(map(str, r.front.table.columns))
     column = "seed" if "seed" not in names else "run_seed"
@@ -324,35 +430,65 @@ def _merge_repeats(case: Case, runs: list[RunResult], *, interrupted: bool,
             tables.append(table)
     seeds = tuple(r.seed for r in runs)
     statuses = [r.status for r in runs]
-    status = "interrupted" if interrupted or "interrupted" in statuses else (
-        statuses[0] if len(set(statuses)) == 1 else "mixed")
+    status = (
+        "interrupted"
+        if interrupted or "interrupted" in statuses
+        else (statuses[0] if len(set(statuses)) == 1 else "mixed")
+    )
     n_evals = sum(r.n_evals for r in runs)
     n_failed = sum(r.n_failed for r in runs)
     spread = _spread(hvs)
     meta = dict(runs[0].meta)
-    meta.update({
-        "seed": seeds[0], "seeds": list(seeds), "n_seeds": len(seeds), "seed_column": column,
-        "seed_hypervolumes": list(hvs), "hypervolume_median": spread["median"],
-        "hypervolume_min": spread["min"], "hypervolume_max": spread["max"],
-        "status": status, "stop_reason": "; ".join(f"seed {r.seed}: {STATUS_TEXT.get(r.status, r.status)}" for r in runs),
-        "n_evals": n_evals, "n_gen": sum(r.n_gen for r in runs), "n_failed": n_failed,
-        "n_cached": sum(r.n_cached for r in runs),
-        "reference_source": "the worst, per objective, of the seeds' own reference points",
-        "started": min(r.meta.get("started", math.inf) for r in runs),
-        "finished": max(r.meta.get("finished", -math.inf) for r in runs),
-    })
+    meta.update(
+        {
+            "seed": seeds[0],
+            "seeds": list(seeds),
+            "n_seeds": len(seeds),
+            "seed_column": column,
+            "seed_hypervolumes": list(hvs),
+            "hypervolume_median": spread["median"],
+            "hypervolume_min": spread["min"],
+            "hypervolume_max": spread["max"],
+            "status": status,
+            "stop_reason": "; ".join(
+                f"seed {r.seed}: {STATUS_TEXT.get(r.status, r.status)}" for r in runs
+            ),
+            "n_evals": n_evals,
+            "n_gen": sum(r.n_gen for r in runs),
+            "n_failed": n_failed,
+            "n_cached": sum(r.n_cached for r in runs),
+            "reference_source": "the worst, per objective, of the seeds' own reference points",
+            "started": min(r.meta.get("started", math.inf) for r in runs),
+            "finished": max(r.meta.get("finished", -math.inf) for r in runs),
+        }
+    )
     if tables:
         front = Front.from_table(
-            pd.concat(tables, ignore_index=True), case.objectives, units=case.units, variables=case.variable_names,
-            constraints=case.constraint_names, reference=reference, meta=meta,
+            pd.concat(tables, ignore_index=True),
+            case.objectives,
+            units=case.units,
+            variables=case.variable_names,
+            constraints=case.constraint_names,
+            reference=reference,
+            meta=meta,
         )
     else:
         empty = runs[0].front.table.iloc[0:0].copy()
         empty.insert(0, column, pd.Series(dtype="int64"))
-        front = Front(table=empty, objectives=case.objectives, units=case.units,
-                      variables=tuple(case.variable_names), constraints=tuple(case.constraint_names),
-                      reference=tuple(reference) if reference is not None else None, meta=meta)
-    merged_hv = hypervolume(front.points(), reference, case.maximise) if reference is not None and len(front) else 0.0
+        front = Front(
+            table=empty,
+            objectives=case.objectives,
+            units=case.units,
+            variables=tuple(case.variable_names),
+            constraints=tuple(case.constraint_names),
+            reference=tuple(reference) if reference is not None else None,
+            meta=meta,
+        )
+    merged_hv = (
+        hypervolume(front.points(), reference, case.maximise)
+        if reference is not None and len(front)
+        else 0.0
+    )
     histories = []
     for r in runs:
         if len(r.history):
@@ -368,10 +504,15 @@ def _merge_repeats(case: Case, runs: list[RunResult], *, interrupted: bool,
 
     stops: dict[str, int] = {}
     for r in runs:
-        stops[STATUS_TEXT.get(r.status, r.status)] = stops.get(STATUS_TEXT.get(r.status, r.status), 0) + 1
+        stops[STATUS_TEXT.get(r.status, r.status)] = (
+            stops.get(STATUS_TEXT.get(r.status, r.status), 0) + 1
+        )
     span = f"seed {seeds[0]}" if len(seeds) == 1 else f"seeds {seeds[0]} to {seeds[-1]}"
-    parts = [f"{len(runs)} run(s) with {span}, {n_evals} evaluations in all; stopped because "
-             + ", ".join(f"{text} ({count})" for text, count in stops.items()) + "."]
+    parts = [
+        f"{len(runs)} run(s) with {span}, {n_evals} evaluations in all; stopped because "
+        + ", ".join(f"{text} ({count})" for text, count in stops.items())
+        + "."
+    ]
     if n_failed:
         parts.append(f"{n_failed} evaluation(s) failed.")
     if len(front):
@@ -385,16 +526,29 @@ def _merge_repeats(case: Case, runs: list[RunResult], *, interrupted: bool,
         parts.append("No run found a feasible design.")
     if missing:
         listed = ", ".join(str(m) for m in missing)
-        parts.append(f"Seed(s) {listed} did not run: the merged front stands for {len(runs)} of "
-                     f"{len(runs) + len(missing)} seeds; resume the archive to run the rest.")
+        parts.append(
+            f"Seed(s) {listed} did not run: the merged front stands for {len(runs)} of "
+            f"{len(runs) + len(missing)} seeds; resume the archive to run the rest."
+        )
         status = meta["status"] = "interrupted"
     meta["missing_seeds"] = list(missing or [])
     return SeedsResult(
-        status=status, message=" ".join(parts), front=front, runs=tuple(runs), seeds=seeds, hypervolumes=hvs,
-        hypervolume=merged_hv, reference=tuple(float(v) for v in reference) if reference is not None else None,
-        history=history, n_evals=n_evals, n_gen=sum(r.n_gen for r in runs), n_failed=n_failed,
-        n_cached=sum(r.n_cached for r in runs), seed=seeds[0], case=case, store_path=runs[0].store_path,
-        least_infeasible=least, meta=meta,
+        status=status,
+        message=" ".join(parts),
+        front=front,
+        runs=tuple(runs),
+        seeds=seeds,
+        hypervolumes=hvs,
+        hypervolume=merged_hv,
+        reference=tuple(float(v) for v in reference) if reference is not None else None,
+        history=history,
+        n_evals=n_evals,
+        n_gen=sum(r.n_gen for r in runs),
+        n_failed=n_failed,
+        n_cached=sum(r.n_cached for r in runs),
+        seed=seeds[0],
+        case=case,
+        store_path=runs[0].store_path,
+        least_infeasible=least,
+        meta=meta,
     )
-
-

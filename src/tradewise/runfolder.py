@@ -23,8 +23,15 @@ from tradewise.errors import DataError
 from tradewise.front import Front, read_front, read_table
 from tradewise.store import open_store
 
-__all__ = ["save_run", "save_seeds", "seed_attainment", "read_run", "read_seeds", "shortlist_front",
-           "SHORTLIST_COLUMNS"]
+__all__ = [
+    "save_run",
+    "save_seeds",
+    "seed_attainment",
+    "read_run",
+    "read_seeds",
+    "shortlist_front",
+    "SHORTLIST_COLUMNS",
+]
 
 #: The columns a shortlist file adds before the design's own.
 SHORTLIST_COLUMNS = ("pick_order", "front_row")
@@ -40,8 +47,14 @@ def save_run(result: Any, folder: str | Path) -> dict[str, Path]:
     folder.mkdir(parents=True, exist_ok=True)
     written: dict[str, Path] = {}
     meta = dict(result.front.meta)
-    meta.update({"message": result.message, "hypervolume": result.hypervolume,
-                 "store": result.store_path.name if result.store_path else None, "run_id": result.run_id})
+    meta.update(
+        {
+            "message": result.message,
+            "hypervolume": result.hypervolume,
+            "store": result.store_path.name if result.store_path else None,
+            "run_id": result.run_id,
+        }
+    )
     front = replace(result.front, meta=meta)
     if len(front):
         written["front"], written["meta"] = front.to_csv(folder / "front.csv")
@@ -76,9 +89,18 @@ def save_seeds(result: Any, folder: str | Path) -> dict[str, Path]:
     rows = []
     for run, hv in zip(result.runs, result.hypervolumes, strict=True):
         save_run(run, folder / "seeds" / f"seed-{run.seed}")
-        rows.append({"seed": run.seed, "run_id": run.run_id, "status": run.status, "evaluations": run.n_evals,
-                     "generations": run.n_gen, "failed": run.n_failed, "front_size": len(run.front),
-                     "hypervolume": hv})
+        rows.append(
+            {
+                "seed": run.seed,
+                "run_id": run.run_id,
+                "status": run.status,
+                "evaluations": run.n_evals,
+                "generations": run.n_gen,
+                "failed": run.n_failed,
+                "front_size": len(run.front),
+                "hypervolume": hv,
+            }
+        )
     path = folder / "seeds.csv"
     pd.DataFrame(rows).to_csv(path, index=False)
     written["seeds"] = path
@@ -109,8 +131,10 @@ def read_run(run: str | Path, *, evaluations: bool = True):
         except (OSError, ValueError):
             feasible = True
         if feasible is False:
-            raise DataError(f"{folder}: the run found no feasible design, so it has no front to show; "
-                            "see least_infeasible.csv there")
+            raise DataError(
+                f"{folder}: the run found no feasible design, so it has no front to show; "
+                "see least_infeasible.csv there"
+            )
     front = read_front(folder)
     history = None
     if (folder / "history.csv").is_file():

@@ -46,8 +46,12 @@ STATUS_TEXT = {
     "interrupted": "the run was interrupted",
 }
 
-_FAILED_PENALTY = 1e6  # violation given to a failed evaluation: always worse than any real violation
-_FAILED_OBJECTIVE = 1e30  # objective values given to a failed design when the case has no constraints
+_FAILED_PENALTY = (
+    1e6  # violation given to a failed evaluation: always worse than any real violation
+)
+_FAILED_OBJECTIVE = (
+    1e30  # objective values given to a failed design when the case has no constraints
+)
 _EXHAUSTED_AFTER = 25  # generations in a row without a new design before giving up
 # The front has settled after a generation when it gained less than _SETTLE_GAIN of its hypervolume
 # (on its own scale) over the last _SETTLE_WINDOW generations; mutation is finest after _SETTLE_SPAN such.
@@ -85,8 +89,12 @@ def design_key(design: dict[str, Any]) -> str:
     >>> design_key({"t": 0.1 + 0.2, "n": 3, "alloy": "6063", "coat": True})
     't=0.3|n=3|alloy="6063"|coat=true'
     """
-    return "|".join([f"{name}={value:.12g}" if type(value) is float else f"{name}={_key_text(value)}"
-                     for name, value in design.items()])
+    return "|".join(
+        [
+            f"{name}={value:.12g}" if type(value) is float else f"{name}={_key_text(value)}"
+            for name, value in design.items()
+        ]
+    )
 
 
 # ----------------------------------------------------------------------------------------- result
@@ -169,7 +177,9 @@ class _Run:
         self.scale: np.ndarray | None = None
         self.history: list[dict[str, Any]] = []
         # The front after each of the last generations, for judging how much it still moves.
-        self.snapshots: deque[np.ndarray] = deque(maxlen=max(case.search.stall_generations, _SETTLE_WINDOW) + 1)
+        self.snapshots: deque[np.ndarray] = deque(
+            maxlen=max(case.search.stall_generations, _SETTLE_WINDOW) + 1
+        )
         self.settled = 0  # generations so far after which the front had settled (see _refinement)
         self.next_id = 1
         # Designs this run evaluated after its last saved state, by key; a resumed search takes
@@ -179,8 +189,17 @@ class _Run:
         self.model = None  # made on first use, so that a run that evaluates nothing imports nothing
 
     # -- one evaluation --------------------------------------------------------------------
-    def record(self, design: dict[str, Any], key: str, outcome: Outcome, generation: int,
-               *, cached: bool, source_id: int | None = None, eval_id: int | None = None) -> dict[str, Any]:
+    def record(
+        self,
+        design: dict[str, Any],
+        key: str,
+        outcome: Outcome,
+        generation: int,
+        *,
+        cached: bool,
+        source_id: int | None = None,
+        eval_id: int | None = None,
+    ) -> dict[str, Any]:
         """Add one evaluation's row (archived unless ``eval_id`` says it already is) and return it."""
         status, results, message = outcome.status, outcome.results, outcome.message
         duration, worker = outcome.duration, outcome.worker
@@ -243,10 +262,13 @@ class _Run:
         candidates = self.front_rows + fresh
         points = np.vstack([self.front_pts, new_points]) if self.front_rows else new_points
         if self.reference is None:
-            self.reference = reference_point(points, self.maximise, worst=[o.worst for o in self.objectives])
+            self.reference = reference_point(
+                points, self.maximise, worst=[o.worst for o in self.objectives]
+            )
             given = [o.name for o in self.objectives if o.worst is not None]
             self.reference_source = (
-                "worst values from the case" if len(given) == len(self.objectives)
+                "worst values from the case"
+                if len(given) == len(self.objectives)
                 else "fixed from the first feasible designs (worst value plus 10% of the range)"
                 + (f"; case values for {', '.join(given)}" if given else "")
             )
@@ -383,7 +405,11 @@ def run(
     if not isinstance(case, Case):
         case = load_case(case)
     case = case.with_search(
-        seed=seed, evaluations=evaluations, generations=generations, population=population, time_limit=time_limit
+        seed=seed,
+        evaluations=evaluations,
+        generations=generations,
+        population=population,
+        time_limit=time_limit,
     )
     # The archive first: a bad file fails before any worker or cluster is started.
     archive = open_store(store) if store is not None else None
@@ -407,7 +433,9 @@ def run(
                 versions=_versions(),
             )
         run = _Run(case, archive, run_id)
-        searcher = Searcher(case, Space(case), population=case.search.population, seed=case.search.seed)
+        searcher = Searcher(
+            case, Space(case), population=case.search.population, seed=case.search.seed
+        )
         return _loop(run, searcher, executor, progress, on_evaluation, started=time.time())
     finally:
         if own_executor:
@@ -462,7 +490,9 @@ def resume(
         if evaluations is not None:
             settings["evaluations"] = evaluations
         case = case.with_search(**{k: v for k, v in settings.items() if v is not None})
-        searcher = Searcher(case, Space(case), population=case.search.population, seed=case.search.seed)
+        searcher = Searcher(
+            case, Space(case), population=case.search.population, seed=case.search.seed
+        )
         saved = archive.state(run_id)
         state = decode_state(saved[1]) if saved is not None else None
         if state is None:
@@ -476,12 +506,23 @@ def resume(
         archive.discard_after(run_id, state_generation)
         run = _Run(case, archive, run_id)
         _restore(run, archive, run_id, record, upto=state_generation)
-        archive.update_run(run_id, status="running", message="resumed",
-                           settings=case.search.as_dict() | ({"seed_set": seed_set} if seed_set else {}))
+        archive.update_run(
+            run_id,
+            status="running",
+            message="resumed",
+            settings=case.search.as_dict() | ({"seed_set": seed_set} if seed_set else {}),
+        )
         own_executor = executor is None
         executor = executor or make_executor(workers, dask=dask, scheduler=scheduler)
         try:
-            return _loop(run, searcher, executor, progress, on_evaluation, started=record["started"] or time.time())
+            return _loop(
+                run,
+                searcher,
+                executor,
+                progress,
+                on_evaluation,
+                started=record["started"] or time.time(),
+            )
         finally:
             if own_executor:
                 executor.close()
@@ -495,7 +536,9 @@ def _case_of_run(path: Path, record: dict[str, Any], case: Case | str | Path | N
     if case is None:
         case_path = Path(record["case_path"])
         if not case_path.exists():
-            raise StoreError(f"{path}: run {run_id}'s case file {case_path} no longer exists; pass the case")
+            raise StoreError(
+                f"{path}: run {run_id}'s case file {case_path} no longer exists; pass the case"
+            )
         case = load_case(case_path)
     elif not isinstance(case, Case):
         case = load_case(case)
@@ -523,9 +566,19 @@ def _restore(run: _Run, archive: Store, run_id: int, record: dict[str, Any], *, 
     for row in table.to_dict("records"):
         design = {n: plain(row[n]) for n in names}
         key = design_key(design)
-        results = {k: plain(row[k]) for k in row if k not in design and k not in _EVAL_COLUMNS and not _missing(row[k])}
-        outcome = Outcome(row["status"], results, row["message"], row["duration"] or 0.0, row["worker"],
-                          eval_id=row["eval_id"])
+        results = {
+            k: plain(row[k])
+            for k in row
+            if k not in design and k not in _EVAL_COLUMNS and not _missing(row[k])
+        }
+        outcome = Outcome(
+            row["status"],
+            results,
+            row["message"],
+            row["duration"] or 0.0,
+            row["worker"],
+            eval_id=row["eval_id"],
+        )
         if row["generation"] > upto:
             if not row["cached"]:
                 run.adopt[key] = _Taken(outcome, design, row["generation"])
@@ -535,7 +588,14 @@ def _restore(run: _Run, archive: Store, run_id: int, record: dict[str, Any], *, 
                 run.update_front(list(range(start, len(run.records))))
                 run.snapshot()
             start, current = len(run.records), row["generation"]
-        run.record(design, key, outcome, row["generation"], cached=bool(row["cached"]), eval_id=row["eval_id"])
+        run.record(
+            design,
+            key,
+            outcome,
+            row["generation"],
+            cached=bool(row["cached"]),
+            eval_id=row["eval_id"],
+        )
     if current is not None:
         run.update_front(list(range(start, len(run.records))))
         run.snapshot()
@@ -545,15 +605,25 @@ def _restore(run: _Run, archive: Store, run_id: int, record: dict[str, Any], *, 
         run.settled = int(run.history[-1].get("settled", 0) or 0)
 
 
-_EVAL_COLUMNS = {"eval_id", "run_id", "generation", "status", "message", "duration", "worker", "cached"}
+_EVAL_COLUMNS = {
+    "eval_id",
+    "run_id",
+    "generation",
+    "status",
+    "message",
+    "duration",
+    "worker",
+    "cached",
+}
 
 
 def _missing(value: Any) -> bool:
     return value is None or (isinstance(value, float) and math.isnan(value))
 
 
-def _stop_status(settings, *, n_evals: int, generation: int, elapsed: float, gain: float, idle: int,
-                 size: float) -> str:
+def _stop_status(
+    settings, *, n_evals: int, generation: int, elapsed: float, gain: float, idle: int, size: float
+) -> str:
     """Why the run must stop before another generation (``""`` to go on): the stopping rules in order."""
     if n_evals >= settings.evaluations:
         return "budget"
@@ -573,21 +643,31 @@ def _refinement(run: _Run) -> float:
     return min(1.0, run.settled / _SETTLE_SPAN)
 
 
-def _loop(run: _Run, searcher: Searcher, executor: InProcess, progress, on_evaluation, *,
-          started: float) -> RunResult:
+def _loop(
+    run: _Run, searcher: Searcher, executor: InProcess, progress, on_evaluation, *, started: float
+) -> RunResult:
     settings = run.case.search
     generation = len(run.history)
     fronted = len(run.records)
     idle = 0
     status = ""
     # Elapsed time counts the time spent searching: a resumed run goes on from its last generation.
-    clock = time.monotonic() - (run.history[-1]["elapsed_s"] if run.history else time.time() - started)
+    clock = time.monotonic() - (
+        run.history[-1]["elapsed_s"] if run.history else time.time() - started
+    )
     saved_generation = generation
     try:
-        while not (status := _stop_status(
-            settings, n_evals=run.n_evals, generation=generation, elapsed=time.monotonic() - clock,
-            gain=run.front_gain(settings.stall_generations), idle=idle, size=searcher.space.size,
-        )):
+        while not (
+            status := _stop_status(
+                settings,
+                n_evals=run.n_evals,
+                generation=generation,
+                elapsed=time.monotonic() - clock,
+                gain=run.front_gain(settings.stall_generations),
+                idle=idle,
+                size=searcher.space.size,
+            )
+        ):
             searcher.tune(_refinement(run))
             proposal = _propose(run, searcher, generation + 1)
             if proposal is None:
@@ -635,8 +715,11 @@ def _propose(run: _Run, searcher: Searcher, number: int) -> _Proposal | None:
     look_up = [k for k in unknown if k not in run.adopt]
     archived = {
         key: Outcome(**found)
-        for key, found in (run.store.lookup(case.hash, look_up, exclude_run=run.run_id)
-                           if run.store is not None and look_up else {}).items()
+        for key, found in (
+            run.store.lookup(case.hash, look_up, exclude_run=run.run_id)
+            if run.store is not None and look_up
+            else {}
+        ).items()
     }
     fresh = [k for k in unknown if k not in archived]
     room = case.search.evaluations - run.n_evals
@@ -647,26 +730,46 @@ def _propose(run: _Run, searcher: Searcher, number: int) -> _Proposal | None:
         designs = [designs[i] for i in keep]
         keys = [keys[i] for i in keep]
         fresh = fresh[:room]
-    served = {k: run.memo[k] if k in run.memo else archived[k] for k in dict.fromkeys(keys) if k not in fresh}
+    served = {
+        k: run.memo[k] if k in run.memo else archived[k]
+        for k in dict.fromkeys(keys)
+        if k not in fresh
+    }
     return _Proposal(number, designs, keys, served, fresh, first_row=len(run.records))
 
 
-def _evaluate(run: _Run, proposal: _Proposal, executor: InProcess, on_evaluation) -> dict[str, Outcome]:
+def _evaluate(
+    run: _Run, proposal: _Proposal, executor: InProcess, on_evaluation
+) -> dict[str, Outcome]:
     """Record the served designs, take over the interrupted run's, evaluate the rest; every outcome by key."""
     designs, keys, generation = proposal.designs, proposal.keys, proposal.number
     outcomes: dict[str, Outcome] = {}
     for key, outcome in proposal.served.items():
-        row = run.record(designs[keys.index(key)], key, outcome, generation, cached=True,
-                         source_id=outcome.eval_id)
+        row = run.record(
+            designs[keys.index(key)],
+            key,
+            outcome,
+            generation,
+            cached=True,
+            source_id=outcome.eval_id,
+        )
         run.memo.setdefault(key, outcome)
         outcomes[key] = outcome
         if on_evaluation:
             on_evaluation(row)
     positions = {k: keys.index(k) for k in proposal.fresh}
-    for key in sorted((k for k in proposal.fresh if k in run.adopt), key=lambda k: run.adopt[k].outcome.eval_id):
+    for key in sorted(
+        (k for k in proposal.fresh if k in run.adopt), key=lambda k: run.adopt[k].outcome.eval_id
+    ):
         taken = run.adopt.pop(key)
-        run.record(designs[positions[key]], key, taken.outcome, generation, cached=False,
-                   eval_id=taken.outcome.eval_id)
+        run.record(
+            designs[positions[key]],
+            key,
+            taken.outcome,
+            generation,
+            cached=False,
+            eval_id=taken.outcome.eval_id,
+        )
         outcomes[key] = run.memo[key]
     to_run = [k for k in proposal.fresh if k not in outcomes]
     batch = [designs[positions[k]] for k in to_run]
@@ -704,7 +807,11 @@ def _values(case: Case, keys: list[str], outcomes: dict[str, Outcome], n_con: in
 def _update(run: _Run, proposal: _Proposal, clock: float) -> dict[str, Any]:
     """After a generation: the front, how settled it is, the reference point, and the history row."""
     new_rows = list(range(proposal.first_row, len(run.records)))
-    if proposal.number == 1 and new_rows and all(run.records[i]["status"] != "ok" for i in new_rows):
+    if (
+        proposal.number == 1
+        and new_rows
+        and all(run.records[i]["status"] != "ok" for i in new_rows)
+    ):
         message = (
             f"every design of the first generation failed ({len(new_rows)} of {len(new_rows)}); "
             f"first error: {run.first_failure}"
@@ -718,7 +825,9 @@ def _update(run: _Run, proposal: _Proposal, clock: float) -> dict[str, Any]:
     if run.front_gain(_SETTLE_WINDOW) < _SETTLE_GAIN:
         run.settled += 1
     if run.store is not None and run.reference is not None and not had_reference:
-        run.store.update_run(run.run_id, reference={"point": run.reference.tolist(), "source": run.reference_source})
+        run.store.update_run(
+            run.run_id, reference={"point": run.reference.tolist(), "source": run.reference_source}
+        )
     n_feasible = sum(1 for i in new_rows if run.records[i]["feasible"])
     row = {
         "generation": proposal.number,
@@ -739,8 +848,10 @@ def _update(run: _Run, proposal: _Proposal, clock: float) -> dict[str, Any]:
 
 def _saved_state(run: _Run, searcher: Searcher, generation: int) -> bytes:
     """The search state after ``generation`` as plain data (JSON), with the survivors' evaluation ids."""
-    ids = [getattr(run.memo.get(design_key(searcher.space.decode(x))), "eval_id", None)
-           for x in searcher.survivors().tolist()]
+    ids = [
+        getattr(run.memo.get(design_key(searcher.space.decode(x))), "eval_id", None)
+        for x in searcher.survivors().tolist()
+    ]
     return searcher.state(generation=generation, eval_ids=ids)
 
 
@@ -750,7 +861,14 @@ def _take_over_leftovers(run: _Run) -> None:
         return
     first = len(run.records)
     for key, taken in sorted(run.adopt.items(), key=lambda item: item[1].outcome.eval_id):
-        run.record(taken.design, key, taken.outcome, taken.generation, cached=False, eval_id=taken.outcome.eval_id)
+        run.record(
+            taken.design,
+            key,
+            taken.outcome,
+            taken.generation,
+            cached=False,
+            eval_id=taken.outcome.eval_id,
+        )
     run.adopt.clear()
     run.update_front(list(range(first, len(run.records))))
 
@@ -795,7 +913,14 @@ def _finish(run: _Run, status: str, algorithm_name: str, started: float) -> RunR
         "started": started,
         "finished": time.time(),
         "design_space": [
-            {"name": v.name, "type": v.kind, "low": v.low, "high": v.high, "options": list(v.options), "unit": v.unit}
+            {
+                "name": v.name,
+                "type": v.kind,
+                "low": v.low,
+                "high": v.high,
+                "options": list(v.options),
+                "unit": v.unit,
+            }
             for v in case.variables
         ],
         "descriptions": {
@@ -807,17 +932,33 @@ def _finish(run: _Run, status: str, algorithm_name: str, started: float) -> RunR
             {"name": c.name, "min": c.min, "max": c.max, "unit": c.unit} for c in case.constraints
         ],
     }
-    front_table = records.iloc[run.front_rows][columns] if run.front_rows else records.iloc[0:0].reindex(columns=columns)
-    front_table = front_table.drop(columns=[c for c in ("cached", "message", "status", "feasible", "violation", "worker")
-                                            if c in front_table.columns])
+    front_table = (
+        records.iloc[run.front_rows][columns]
+        if run.front_rows
+        else records.iloc[0:0].reindex(columns=columns)
+    )
+    front_table = front_table.drop(
+        columns=[
+            c
+            for c in ("cached", "message", "status", "feasible", "violation", "worker")
+            if c in front_table.columns
+        ]
+    )
     units = case.units
     front = Front.from_table(
-        front_table, case.objectives, units=units, variables=case.variable_names,
-        constraints=case.constraint_names, reference=run.reference, meta=meta,
+        front_table,
+        case.objectives,
+        units=units,
+        variables=case.variable_names,
+        constraints=case.constraint_names,
+        reference=run.reference,
+        meta=meta,
     )
     least = None
-    parts = [f"Stopped after {run.n_evals} evaluations in {len(run.history)} generations: "
-             f"{STATUS_TEXT.get(status, status)}."]
+    parts = [
+        f"Stopped after {run.n_evals} evaluations in {len(run.history)} generations: "
+        f"{STATUS_TEXT.get(status, status)}."
+    ]
     if status == "stalled":
         window, tolerance = case.search.stall_generations, case.search.stall_tolerance
         parts.append(
@@ -831,9 +972,20 @@ def _finish(run: _Run, status: str, algorithm_name: str, started: float) -> RunR
         parts.append(f"Front of {len(front)} designs, hypervolume {hv:.6g}.")
     else:
         ok = records[records["status"] == "ok"] if len(records) else records
-        parts.append("No feasible design was found" + (": " + _violation_summary(case, ok) if len(ok) else "; no design evaluated successfully."))
+        parts.append(
+            "No feasible design was found"
+            + (
+                ": " + _violation_summary(case, ok)
+                if len(ok)
+                else "; no design evaluated successfully."
+            )
+        )
         if len(ok):
-            least = ok.sort_values("violation").drop_duplicates(subset=case.variable_names).head(20)[columns]
+            least = (
+                ok.sort_values("violation")
+                .drop_duplicates(subset=case.variable_names)
+                .head(20)[columns]
+            )
     message = " ".join(parts)
     if run.store is not None:
         run.store.update_run(run.run_id, status=status, message=message, finished=time.time())
@@ -871,8 +1023,13 @@ def _violation_summary(case: Case, ok: pd.DataFrame) -> str:
         broken = shortfall > 0
         if broken.any():
             unit = f" {c.unit}" if c.unit else ""
-            lines.append((broken.mean(), f"{c.describe()} broken by {broken.mean():.0%} of designs, "
-                                          f"missed by {shortfall[broken].min():.4g}{unit} at best"))
+            lines.append(
+                (
+                    broken.mean(),
+                    f"{c.describe()} broken by {broken.mean():.0%} of designs, "
+                    f"missed by {shortfall[broken].min():.4g}{unit} at best",
+                )
+            )
     lines.sort(key=lambda item: -item[0])
     return "; ".join(text for _, text in lines[:3]) + "."
 

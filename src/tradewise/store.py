@@ -28,7 +28,9 @@ SCHEMA_VERSION = 1
 # them at most 0.4 s later (COMMIT_EVERY in the writer program): together well within a second.
 _HAND_OVER_EVERY = 0.1
 _TICK = 0.05
-_ID_BLOCK = 4096  # evaluation ids reserved at a time; the next block is asked for half a block ahead
+_ID_BLOCK = (
+    4096  # evaluation ids reserved at a time; the next block is asked for half a block ahead
+)
 # How long "this case has no evaluations from other runs" is trusted before asking the file again.
 _OTHERS_TTL = 1.0
 _SQLITE_HEADER = b"SQLite format 3\x00"
@@ -95,7 +97,9 @@ _TABLES = frozenset({"meta", "runs", "evaluations", "generations", "states"})
 
 
 def _is_locked(exc: BaseException) -> bool:
-    return isinstance(exc, sqlite3.OperationalError) and ("locked" in str(exc) or "busy" in str(exc))
+    return isinstance(exc, sqlite3.OperationalError) and (
+        "locked" in str(exc) or "busy" in str(exc)
+    )
 
 
 def _patiently(path: Path, db: sqlite3.Connection, action):
@@ -116,7 +120,11 @@ def _patiently(path: Path, db: sqlite3.Connection, action):
                 if db.in_transaction:
                     db.rollback()  # a stale read snapshot could not take the write lock later
             if wait == notice:
-                _log.warning("the archive %s is locked by another process; waiting up to %g s...", path, LOCK_WAIT)
+                _log.warning(
+                    "the archive %s is locked by another process; waiting up to %g s...",
+                    path,
+                    LOCK_WAIT,
+                )
         raise StoreError(
             f"{path}: the archive is locked by another process and stayed locked for {LOCK_WAIT:g} s; "
             "close the program or run that holds it and try again"
@@ -134,7 +142,9 @@ class _ProcessLink:
             # -I -S: isolated from the user's environment and site packages (a json.py in the current
             # folder must not stand in for the standard library's), and quicker to start.
             [sys.executable, "-I", "-S", _archive_writer.__file__, str(path), str(LOCK_WAIT)],
-            stdin=subprocess.PIPE, stdout=subprocess.PIPE, stderr=subprocess.PIPE,
+            stdin=subprocess.PIPE,
+            stdout=subprocess.PIPE,
+            stderr=subprocess.PIPE,
         )
         self.tokens = itertools.count(1)
         self.reserved: list[int] = []
@@ -196,7 +206,9 @@ class _ProcessLink:
             self.proc.kill()
         self.proc.wait()
         text = self.proc.stderr.read().decode("utf-8", "replace").strip().splitlines()
-        raise StoreError(f"{self.path}: writing to the archive failed ({text[-1] if text else 'the writer stopped'})")
+        raise StoreError(
+            f"{self.path}: writing to the archive failed ({text[-1] if text else 'the writer stopped'})"
+        )
 
 
 class _LocalLink:
@@ -266,10 +278,14 @@ class Store:
         self._rows_since = 0.0
         self._commit_wanted = False
         self._link: _ProcessLink | _LocalLink | None = None
-        self._proven = True  # the writer has answered (set False while a new writer process is untried)
+        self._proven = (
+            True  # the writer has answered (set False while a new writer process is untried)
+        )
         self._next_id, self._last_id = 1, 0
         self._ids_asked = False  # a block of ids was asked of the writer and not yet taken
-        self._others: dict[tuple[str, int], float] = {}  # (case, run) -> when "no other runs" was seen
+        self._others: dict[
+            tuple[str, int], float
+        ] = {}  # (case, run) -> when "no other runs" was seen
         self._closing = threading.Event()
         self._ticker: threading.Thread | None = None
         self._failure: StoreError | None = None
@@ -332,7 +348,9 @@ class Store:
                 self._proven = False
             except OSError:
                 self._link = _LocalLink(self.path)
-            self._ticker = threading.Thread(target=self._tick_loop, name="tradewise-store", daemon=True)
+            self._ticker = threading.Thread(
+                target=self._tick_loop, name="tradewise-store", daemon=True
+            )
             self._ticker.start()
 
     def _writer(self) -> _ProcessLink | _LocalLink:
@@ -410,8 +428,12 @@ class Store:
             else:
                 top = self._reserve_here()
             self._next_id, self._last_id = top + 1, top + _ID_BLOCK
-        elif (not self._ids_asked and self._link is not None and self._proven
-              and self._last_id - self._next_id < _ID_BLOCK // 2):
+        elif (
+            not self._ids_asked
+            and self._link is not None
+            and self._proven
+            and self._last_id - self._next_id < _ID_BLOCK // 2
+        ):
             link = self._link
             self._call(lambda: link.request_ids(_ID_BLOCK))
             self._ids_asked = True
@@ -427,15 +449,23 @@ class Store:
     def _reserve_block(self) -> int:
         self._db.execute("BEGIN IMMEDIATE")
         try:
-            row = self._db.execute("SELECT seq FROM sqlite_sequence WHERE name = 'evaluations'").fetchone()
-            (largest,) = self._db.execute("SELECT COALESCE(MAX(eval_id), 0) FROM evaluations").fetchone()
+            row = self._db.execute(
+                "SELECT seq FROM sqlite_sequence WHERE name = 'evaluations'"
+            ).fetchone()
+            (largest,) = self._db.execute(
+                "SELECT COALESCE(MAX(eval_id), 0) FROM evaluations"
+            ).fetchone()
             top = max(row[0] if row else 0, largest)
             if row:
-                self._db.execute("UPDATE sqlite_sequence SET seq = ? WHERE name = 'evaluations'",
-                                 (top + _ID_BLOCK,))
+                self._db.execute(
+                    "UPDATE sqlite_sequence SET seq = ? WHERE name = 'evaluations'",
+                    (top + _ID_BLOCK,),
+                )
             else:
-                self._db.execute("INSERT INTO sqlite_sequence (name, seq) VALUES ('evaluations', ?)",
-                                 (top + _ID_BLOCK,))
+                self._db.execute(
+                    "INSERT INTO sqlite_sequence (name, seq) VALUES ('evaluations', ?)",
+                    (top + _ID_BLOCK,),
+                )
             self._db.commit()
         except BaseException:
             self._db.rollback()
@@ -471,7 +501,16 @@ class Store:
             cursor = self._write_now(
                 "INSERT INTO runs (case_hash, case_title, case_path, case_text, settings, seed, versions,"
                 " status, message, started) VALUES (?, ?, ?, ?, ?, ?, ?, 'running', '', ?)",
-                (case_hash, case_title, case_path, case_text, _archive_writer.encode(settings), seed, _archive_writer.encode(versions), time.time()),
+                (
+                    case_hash,
+                    case_title,
+                    case_path,
+                    case_text,
+                    _archive_writer.encode(settings),
+                    seed,
+                    _archive_writer.encode(versions),
+                    time.time(),
+                ),
             )
             self._start_writer()  # starts while the search sets up, ready by the first evaluation
             return int(cursor.lastrowid)
@@ -484,7 +523,10 @@ class Store:
                 raise KeyError(key)
         if not fields:
             return
-        values = [_archive_writer.encode(v) if k in {"reference", "settings"} else v for k, v in fields.items()]
+        values = [
+            _archive_writer.encode(v) if k in {"reference", "settings"} else v
+            for k, v in fields.items()
+        ]
         assignments = ", ".join(f"{key} = ?" for key in fields)
         with self._lock:
             self._write_now(f"UPDATE runs SET {assignments} WHERE run_id = ?", (*values, run_id))
@@ -493,8 +535,17 @@ class Store:
         """One row a run, as a pandas DataFrame: id, case, seed, status, message, counts and times."""
         import pandas as pd
 
-        columns = ["run_id", "case_title", "case_hash", "seed", "status", "message", "started", "finished",
-                   "n_evals"]
+        columns = [
+            "run_id",
+            "case_title",
+            "case_hash",
+            "seed",
+            "status",
+            "message",
+            "started",
+            "finished",
+            "n_evals",
+        ]
         rows = self._query(
             "SELECT r.run_id, r.case_title, r.case_hash, r.seed, r.status, r.message, r.started, r.finished,"
             " (SELECT COUNT(*) FROM evaluations e WHERE e.run_id = r.run_id AND e.source_id IS NULL)"
@@ -504,8 +555,21 @@ class Store:
 
     def run(self, run_id: int) -> dict[str, Any]:
         """Everything recorded about one run (StoreError when there is no such run)."""
-        keys = ("run_id", "case_hash", "case_title", "case_path", "case_text", "settings", "seed", "versions",
-                "status", "message", "reference", "started", "finished")
+        keys = (
+            "run_id",
+            "case_hash",
+            "case_title",
+            "case_path",
+            "case_text",
+            "settings",
+            "seed",
+            "versions",
+            "status",
+            "message",
+            "reference",
+            "started",
+            "finished",
+        )
         found = self._query(f"SELECT {', '.join(keys)} FROM runs WHERE run_id = ?", (run_id,))
         if not found:
             known = [str(r) for (r,) in self._query("SELECT run_id FROM runs ORDER BY run_id")]
@@ -551,8 +615,23 @@ class Store:
             eval_id = self._take_id()
             if not self._rows:
                 self._rows_since = time.monotonic()
-            self._rows.append((eval_id, run_id, case_hash, design_key, design, results, status, message, duration,
-                               generation, worker, source_id, time.time()))
+            self._rows.append(
+                (
+                    eval_id,
+                    run_id,
+                    case_hash,
+                    design_key,
+                    design,
+                    results,
+                    status,
+                    message,
+                    duration,
+                    generation,
+                    worker,
+                    source_id,
+                    time.time(),
+                )
+            )
             if len(self._rows) >= 4096 or time.monotonic() - self._rows_since >= _HAND_OVER_EVERY:
                 self._hand_over()
         return eval_id
@@ -632,9 +711,18 @@ class Store:
             query += " WHERE case_hash = ?"
             params = (case_hash,)
         records = []
-        for eval_id, rid, gen, status, message, duration, worker, source, design, results in self._query(
-            query + " ORDER BY eval_id", params
-        ):
+        for (
+            eval_id,
+            rid,
+            gen,
+            status,
+            message,
+            duration,
+            worker,
+            source,
+            design,
+            results,
+        ) in self._query(query + " ORDER BY eval_id", params):
             record = {
                 "eval_id": eval_id,
                 "run_id": rid,
@@ -659,7 +747,9 @@ class Store:
         return int(count)
 
     # --------------------------------------------------- history and states
-    def add_generation(self, run_id: int, row: dict[str, Any], *, state: bytes | None = None) -> None:
+    def add_generation(
+        self, run_id: int, row: dict[str, Any], *, state: bytes | None = None
+    ) -> None:
         """Record one generation's summary (and the search state to resume from), and have it committed.
 
         The writer commits it, with every evaluation recorded before it, at
@@ -670,11 +760,21 @@ class Store:
         with self._lock:
             messages = [("rows", self._rows)] if self._rows else []
             self._rows = []
-            messages.append(("sql", "INSERT OR REPLACE INTO generations (run_id, generation, row) VALUES (?, ?, ?)",
-                             (run_id, generation, _archive_writer.encode(row))))
+            messages.append(
+                (
+                    "sql",
+                    "INSERT OR REPLACE INTO generations (run_id, generation, row) VALUES (?, ?, ?)",
+                    (run_id, generation, _archive_writer.encode(row)),
+                )
+            )
             if state is not None:
-                messages.append(("sql", "INSERT OR REPLACE INTO states (run_id, generation, blob) VALUES (?, ?, ?)",
-                                 (run_id, generation, state)))
+                messages.append(
+                    (
+                        "sql",
+                        "INSERT OR REPLACE INTO states (run_id, generation, blob) VALUES (?, ?, ?)",
+                        (run_id, generation, state),
+                    )
+                )
             messages.append(("commit",))
             self._commit_wanted = False
             link = self._writer()
@@ -688,17 +788,29 @@ class Store:
         with self._lock:
             self._hand_over()
             link = self._writer()
-            self._call(lambda: link.send(("many", [
-                ("sql", "INSERT OR REPLACE INTO states (run_id, generation, blob) VALUES (?, ?, ?)",
-                 (run_id, generation, state)),
-                ("commit",),
-            ])))
+            self._call(
+                lambda: link.send(
+                    (
+                        "many",
+                        [
+                            (
+                                "sql",
+                                "INSERT OR REPLACE INTO states (run_id, generation, blob) VALUES (?, ?, ?)",
+                                (run_id, generation, state),
+                            ),
+                            ("commit",),
+                        ],
+                    )
+                )
+            )
 
     def history(self, run_id: int):
         """One row a recorded generation of the run, in order, as a pandas DataFrame."""
         import pandas as pd
 
-        rows = self._query("SELECT row FROM generations WHERE run_id = ? ORDER BY generation", (run_id,))
+        rows = self._query(
+            "SELECT row FROM generations WHERE run_id = ? ORDER BY generation", (run_id,)
+        )
         return pd.DataFrame.from_records([json.loads(r) for (r,) in rows])
 
     def state(self, run_id: int) -> tuple[int, bytes] | None:
@@ -718,8 +830,12 @@ class Store:
                 "DELETE FROM evaluations WHERE run_id = ? AND generation > ? AND source_id IS NOT NULL",
                 (run_id, generation),
             )
-            self._write_now("DELETE FROM generations WHERE run_id = ? AND generation > ?", (run_id, generation))
-            self._write_now("DELETE FROM states WHERE run_id = ? AND generation > ?", (run_id, generation))
+            self._write_now(
+                "DELETE FROM generations WHERE run_id = ? AND generation > ?", (run_id, generation)
+            )
+            self._write_now(
+                "DELETE FROM states WHERE run_id = ? AND generation > ?", (run_id, generation)
+            )
 
 
 def open_store(path: str | Path, *, create: bool = True) -> Store:
@@ -762,7 +878,9 @@ def open_store(path: str | Path, *, create: bool = True) -> Store:
         except OSError as exc:
             raise StoreError(f"{path}: cannot be read ({exc.strerror or exc})") from None
         if header != _SQLITE_HEADER:
-            raise StoreError(f"{path}: is not an SQLite file (it starts with {header[:8]!r}); expected an archive")
+            raise StoreError(
+                f"{path}: is not an SQLite file (it starts with {header[:8]!r}); expected an archive"
+            )
     db = None
     try:
         db = sqlite3.connect(path, timeout=LOCK_WAIT, check_same_thread=False)
@@ -785,22 +903,30 @@ def _prepare(path: Path, db: sqlite3.Connection, *, create: bool) -> None:
     if tables:
         _check_tables(path, db, tables)
     elif not create:
-        raise StoreError(f"{path}: is an empty SQLite file, not an archive written by `tradewise run`")
+        raise StoreError(
+            f"{path}: is an empty SQLite file, not an archive written by `tradewise run`"
+        )
     db.execute("PRAGMA journal_mode=WAL")
     db.execute("PRAGMA synchronous=NORMAL")
     if not tables:
         db.executescript(_SCHEMA)
-        db.execute("INSERT OR IGNORE INTO meta (key, value) VALUES ('schema', ?)", (str(SCHEMA_VERSION),))
+        db.execute(
+            "INSERT OR IGNORE INTO meta (key, value) VALUES ('schema', ?)", (str(SCHEMA_VERSION),)
+        )
         db.commit()
 
 
 def _check_tables(path: Path, db: sqlite3.Connection, tables: set[str]) -> None:
     if not _TABLES.issubset(tables):
         shown = ", ".join(sorted(tables)[:6]) + (", ..." if len(tables) > 6 else "")
-        raise StoreError(f"{path}: is an SQLite file of something else (tables: {shown}), not a tradewise archive")
+        raise StoreError(
+            f"{path}: is an SQLite file of something else (tables: {shown}), not a tradewise archive"
+        )
     row = db.execute("SELECT value FROM meta WHERE key = 'schema'").fetchone()
     if row is None or not str(row[0]).isdigit():
-        raise StoreError(f"{path}: has no tradewise schema version, so it is not a tradewise archive")
+        raise StoreError(
+            f"{path}: has no tradewise schema version, so it is not a tradewise archive"
+        )
     if int(row[0]) > SCHEMA_VERSION:
         raise StoreError(
             f"{path}: archive schema {row[0]} was written by a newer tradewise; this one reads up to {SCHEMA_VERSION}"

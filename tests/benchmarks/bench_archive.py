@@ -35,8 +35,16 @@ from tradewise.case import load_case
 from tradewise.store import Store
 
 CASE = Path(__file__).resolve().parent.parent / "cases" / "trivial"
-STORE_CALLS = ("add_evaluation", "lookup", "add_generation", "flush", "save_state", "start_run", "update_run",
-               "close")
+STORE_CALLS = (
+    "add_evaluation",
+    "lookup",
+    "add_generation",
+    "flush",
+    "save_state",
+    "start_run",
+    "update_run",
+    "close",
+)
 inside = collections.Counter()
 
 
@@ -101,16 +109,26 @@ def main() -> None:
     ratios = [b / a for a, b in zip(plain, archived, strict=True)]
     print("10,000 trivial evaluations in-process (tests/cases/trivial, population 100, seed 1)")
     print(f"  without archive   min {min(plain):6.3f} s   median {statistics.median(plain):6.3f} s")
-    print(f"  with archive      min {min(archived):6.3f} s   median {statistics.median(archived):6.3f} s")
-    print(f"  ratio             of minima {min(archived) / min(plain):5.3f}   median of paired runs "
-          f"{statistics.median(ratios):5.3f}   (target <= 1.15)")
-    print(f"  search process inside archive calls: median {statistics.median(spent):.3f} s a run "
-          f"({statistics.median(spent) / statistics.median(plain):.1%} of the plain run)")
+    print(
+        f"  with archive      min {min(archived):6.3f} s   median {statistics.median(archived):6.3f} s"
+    )
+    print(
+        f"  ratio             of minima {min(archived) / min(plain):5.3f}   median of paired runs "
+        f"{statistics.median(ratios):5.3f}   (target <= 1.15)"
+    )
+    print(
+        f"  search process inside archive calls: median {statistics.median(spent):.3f} s a run "
+        f"({statistics.median(spent) / statistics.median(plain):.1%} of the plain run)"
+    )
     print(f"  writer process CPU: median {statistics.median(writer):.3f} s a run, on the other CPU")
-    print(f"  control: the plain run beside a spinning process: min {min(beside):.3f} s "
-          f"({min(beside) / min(plain):.2f} x the plain run alone)")
-    print(f"  archive: {rows} rows, search state {states / 1e3:.0f} kB; "
-          f"{rows / min(archived):,.0f} evaluations stored per second of run")
+    print(
+        f"  control: the plain run beside a spinning process: min {min(beside):.3f} s "
+        f"({min(beside) / min(plain):.2f} x the plain run alone)"
+    )
+    print(
+        f"  archive: {rows} rows, search state {states / 1e3:.0f} kB; "
+        f"{rows / min(archived):,.0f} evaluations stored per second of run"
+    )
 
 
 if __name__ == "__main__":

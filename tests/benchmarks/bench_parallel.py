@@ -26,16 +26,16 @@ import tradewise
 from tradewise.case import load_case
 from tradewise.executors import DaskCluster, InProcess, ProcessPool
 
-MODEL = '''
+MODEL = """
 import time
 
 def evaluate(design):
     time.sleep(0.05)
     x, y = design["x"], design["y"]
     return {"f1": x, "f2": (1 + y) * (1 - (x / (1 + y)) ** 0.5)}
-'''
+"""
 
-CASE = '''
+CASE = """
 title = "sleeping model for the parallel benchmark"
 model = "model.py:evaluate"
 
@@ -51,7 +51,7 @@ f2 = { goal = "min" }
 population = 20
 seed = 3
 stall_generations = 0
-'''
+"""
 
 
 def timed_run(case, executor, evaluations: int):
@@ -89,13 +89,19 @@ def main() -> None:
         finally:
             cluster.close()
 
-    same = front_of(by_pool).equals(front_of(reference)) and front_of(by_dask).equals(front_of(reference))
+    same = front_of(by_pool).equals(front_of(reference)) and front_of(by_dask).equals(
+        front_of(reference)
+    )
     ideal = n * 0.05
     print(f"{n} evaluations of 0.05 s (sleep), {w} workers; pure sleeping time {ideal:.1f} s")
     print(f"  in-process      {serial:7.2f} s")
     print(f"  process pool    {pooled:7.2f} s   efficiency {serial / (w * pooled):.3f}")
-    print(f"  Dask            {dasked:7.2f} s   efficiency {serial / (w * dasked):.3f}   (cluster already up)")
-    print(f"  Dask start-up   {started:7.2f} s   efficiency with it {serial / (w * (dasked + started)):.3f}")
+    print(
+        f"  Dask            {dasked:7.2f} s   efficiency {serial / (w * dasked):.3f}   (cluster already up)"
+    )
+    print(
+        f"  Dask start-up   {started:7.2f} s   efficiency with it {serial / (w * (dasked + started)):.3f}"
+    )
     print(f"  target: efficiency >= 0.85; fronts identical on all three: {same}")
 
 

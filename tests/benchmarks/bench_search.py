@@ -60,8 +60,14 @@ class _Watch(Callback):
 
 def plain_pymoo(name: str, seed: int) -> int | None:
     watch = _Watch(0.99 * EXACT[name])
-    minimize(_pymoo_problem(name), NSGA2(pop_size=100), ("n_evals", BUDGET[name]), seed=seed,
-             callback=watch, verbose=False)
+    minimize(
+        _pymoo_problem(name),
+        NSGA2(pop_size=100),
+        ("n_evals", BUDGET[name]),
+        seed=seed,
+        callback=watch,
+        verbose=False,
+    )
     return watch.hit
 
 
@@ -89,7 +95,9 @@ def tradewise_defaults(name: str, seed: int) -> int | None:
             hit.append(row["evaluations"])
 
     # Only the budget comes from here; population, operators and stopping are the tool's defaults.
-    tradewise.run(CASES / name, seed=seed, evaluations=BUDGET[name], progress=on_gen, on_evaluation=on_eval)
+    tradewise.run(
+        CASES / name, seed=seed, evaluations=BUDGET[name], progress=on_gen, on_evaluation=on_eval
+    )
     return hit[0] if hit else None
 
 
@@ -127,7 +135,9 @@ def main() -> None:
     parser.add_argument("--problems", default="zdt1,zdt2,zdt3,dtlz2")
     args = parser.parse_args()
     print("evaluations to reach 99% of the exact hypervolume (ref 1.1), median over seeds")
-    print(f"{'problem':<8}{'tradewise':>12}{'plain pymoo':>14}{'ratio':>8}   per seed (tradewise / pymoo)")
+    print(
+        f"{'problem':<8}{'tradewise':>12}{'plain pymoo':>14}{'ratio':>8}   per seed (tradewise / pymoo)"
+    )
     for name in args.problems.split(","):
         ours = [tradewise_defaults(name, s) for s in range(1, args.seeds + 1)]
         theirs = [plain_pymoo(name, s) for s in range(1, args.seeds + 1)]
@@ -136,8 +146,10 @@ def main() -> None:
         show = lambda v: "never" if v is None else f"{v:.0f}"  # noqa: E731
         print(f"{name:<8}{show(a):>12}{show(b):>14}{ratio:>8}   {ours} / {theirs}", flush=True)
     plain, mine = overhead()
-    print(f"10,000 trivial evaluations: plain pymoo loop {plain:.2f} s, tradewise {mine:.2f} s, "
-          f"ratio {mine / plain:.2f} (target <= 1.3)")
+    print(
+        f"10,000 trivial evaluations: plain pymoo loop {plain:.2f} s, tradewise {mine:.2f} s, "
+        f"ratio {mine / plain:.2f} (target <= 1.3)"
+    )
 
 
 if __name__ == "__main__":

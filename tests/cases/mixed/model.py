@@ -11,5 +11,5 @@ def evaluate(design):
     assert isinstance(fast, bool), fast
     assert 0.5 <= w <= 4.0, w
     cost = 2.0 * w + 0.5 * (n + 3) + FINISH_COST[f] + (1.0 if fast else 0.0)
-    life = FINISH_LIFE[f] * (w ** 0.5) * (1 + 0.1 * (n + 3)) * (0.7 if fast else 1.0)
+    life = FINISH_LIFE[f] * (w**0.5) * (1 + 0.1 * (n + 3)) * (0.7 if fast else 1.0)
     return {"cost": cost, "life": life, "load": 0.8 * w + 0.1 * (n + 3)}
