@@ -21,7 +21,7 @@ from collections.abc import Callable, Iterator, Sequence
 from pathlib import Path
 from typing import Any
 
-from tradewise.errors import TradewiseError
+from tradewise.errors import CaseError, ModelError
 from tradewise.models import Outcome, stop_programs
 
 __all__ = ["InProcess", "ProcessPool", "DaskCluster", "make_executor"]
@@ -131,7 +131,7 @@ class ProcessPool(InProcess):
 
     def __init__(self, workers: int) -> None:
         if not isinstance(workers, int) or isinstance(workers, bool) or workers < 1:
-            raise TradewiseError(f"workers: got {workers!r}, allowed: a whole number, 1 or more")
+            raise CaseError(f"workers: got {workers!r}, allowed: a whole number, 1 or more")
         self.workers = workers
         self._pool: cf.ProcessPoolExecutor | None = None
         self.n_restarts = 0
@@ -266,7 +266,7 @@ class DaskCluster(InProcess):
             import dask
             from dask.distributed import Client, LocalCluster
         except ImportError:
-            raise TradewiseError(
+            raise ModelError(
                 "--dask/--scheduler: dask.distributed is not installed; install the cluster extra: "
                 "pip install 'tradewise[cluster]'"
             ) from None
@@ -276,12 +276,10 @@ class DaskCluster(InProcess):
             try:
                 self._client = Client(scheduler, timeout="20s")
             except (OSError, TimeoutError) as exc:
-                raise TradewiseError(f"--scheduler {scheduler}: cannot connect ({exc})") from None
+                raise ModelError(f"--scheduler {scheduler}: cannot connect ({exc})") from None
         else:
             if workers is not None and workers < 1:
-                raise TradewiseError(
-                    f"workers: got {workers!r}, allowed: a whole number, 1 or more"
-                )
+                raise CaseError(f"workers: got {workers!r}, allowed: a whole number, 1 or more")
             n = workers or os.cpu_count() or 1
             settings = {
                 "distributed.scheduler.allowed-failures": 1,
@@ -306,7 +304,7 @@ class DaskCluster(InProcess):
             self._client.run(_import_models)
         except Exception as exc:
             self.close()
-            raise TradewiseError(
+            raise ModelError(
                 f"Dask workers cannot run tradewise models ({type(exc).__name__}: {exc}); install tradewise "
                 "in the workers' environment"
             ) from None
