@@ -7,7 +7,9 @@ import functools
 import itertools
 import json
 import logging
+import os
 import pickle
+import queue
 import sqlite3
 import struct
 import subprocess
@@ -38,6 +40,9 @@ LOCK_WAIT = 30.0
 #: standard error when nothing else is set up).
 LOCK_NOTICE = 1.0
 _log = logging.getLogger("tradewise")
+# Where the archive writer runs, for measuring the two designs against each other only:
+# "process" (a writer process fed through a pipe) or "thread" (a writer thread fed through a queue).
+_WRITER = os.environ.get("TRADEWISE_ARCHIVE_WRITER", "process")
 
 _SCHEMA = """
 CREATE TABLE IF NOT EXISTS meta (key TEXT PRIMARY KEY, value TEXT);
@@ -237,6 +242,80 @@ class _LocalLink:
             self.db.close()
 
 
+class _ThreadLink:
+    """The same writer code run in a thread of this process, fed through a queue."""
+
+    def __init__(self, path: Path) -> None:
+        self.path = path
+        self.db = sqlite3.connect(path, timeout=LOCK_WAIT, check_same_thread=False)
+        self.db.execute("PRAGMA synchronous=NORMAL")
+        self.writer = _archive_writer.Writer(self.db)
+        self.inbox: queue.SimpleQueue = queue.SimpleQueue()
+        self.replies: queue.SimpleQueue = queue.SimpleQueue()
+        self.error = ""
+        self.tokens = itertools.count(1)
+        self.reserved: list[int] = []
+        self.thread = threading.Thread(target=self._loop, name="tradewise-writer", daemon=True)
+        self.thread.start()
+
+    def _loop(self) -> None:
+        while True:
+            try:
+                message = self.inbox.get(timeout=_TICK)
+            except queue.Empty:
+                message = ()
+            if message is None:
+                return
+            try:
+                if message:
+                    reply = self.writer.apply(message)
+                    if reply is not None:
+                        self.replies.put(reply)
+                if self.writer.due():
+                    self.writer.commit()
+            except Exception as exc:  # reported to the search as one StoreError line
+                self.error = f"{type(exc).__name__}: {exc}"
+                self.replies.put(None)
+                return
+
+    def send(self, message: tuple) -> None:
+        if self.error or not self.thread.is_alive():
+            self.fail()
+        self.inbox.put(message)
+
+    def sync(self, kind: str = "sync") -> None:
+        token = next(self.tokens)
+        self.send((kind, token))
+        while (reply := self._reply()) != token:
+            self.reserved.append(reply[1])
+
+    def request_ids(self, block: int) -> None:
+        self.send(("reserve", block))
+
+    def take_ids(self) -> int:
+        while not self.reserved:
+            self.reserved.append(self._reply()[1])
+        return self.reserved.pop(0)
+
+    def _reply(self):
+        reply = self.replies.get()
+        if reply is None:
+            self.fail()
+        return reply
+
+    def tick(self) -> None:
+        pass  # the writer thread keeps its own time
+
+    def close(self) -> None:
+        self.sync("close")
+        self.inbox.put(None)
+        self.thread.join()
+        self.db.close()
+
+    def fail(self):
+        raise StoreError(f"{self.path}: writing to the archive failed ({self.error or 'the writer stopped'})")
+
+
 class Store:
     """An open archive file; use :func:`open_store` to get one.
 
@@ -265,7 +344,7 @@ class Store:
         self._rows: list[tuple] = []  # evaluations recorded, not yet handed to the writer
         self._rows_since = 0.0
         self._commit_wanted = False
-        self._link: _ProcessLink | _LocalLink | None = None
+        self._link: _ProcessLink | _LocalLink | _ThreadLink | None = None
         self._proven = True  # the writer has answered (set False while a new writer process is untried)
         self._next_id, self._last_id = 1, 0
         self._ids_asked = False  # a block of ids was asked of the writer and not yet taken
@@ -326,6 +405,10 @@ class Store:
 
     def _start_writer(self) -> None:
         """Start the writer process (without waiting for it); call with the lock held."""
+        if self._link is None and _WRITER == "thread":
+            self._link = _ThreadLink(self.path)
+            self._ticker = threading.Thread(target=self._tick_loop, name="tradewise-store", daemon=True)
+            self._ticker.start()
         if self._link is None:
             try:
                 self._link = _ProcessLink(self.path)

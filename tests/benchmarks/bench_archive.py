@@ -1,17 +1,22 @@
-"""Archive benchmark: 10,000 trivial evaluations in-process, with and without the SQLite archive.
+"""Archive benchmark: 10,000 trivial evaluations in-process, without the SQLite archive and with it.
 
-Both variants run in the same process, alternately, on the same case and seed, so they do the same
+The archive is written by a writer process fed through a pipe, or by a writer thread of the search
+process fed through a queue (``store._WRITER``). The variants run in the same process, in turn
+(the order rotates from one repeat to the next), on the same case and seed, so they do the same
 search; the difference is the archive (one row per evaluation, commits at generation ends and at
-most half a second after each evaluation, the search state saved at most once a second). The rows
-are encoded and written by the archive's writer process, so the search process only hands them
-over. Prints:
+most half a second after each evaluation, the search state saved at most once a second). Prints,
+for each writer:
 
-- wall-clock times (minimum and median over the repeats) and the median of the paired ratios;
-- the time the search process spent inside archive calls, and the CPU time of the writer process;
+- wall-clock times (minimum and median over the repeats);
+- the paired ratio to the run without the archive, and of the thread to the process: median and
+  range over the repeats;
+- the time the search process spent inside archive calls, and the CPU time of the whole run
+  (search process with its threads, plus the writer process);
 - a control: the same plain run beside a process that only spins, which shows how much a busy
-  second CPU slows the search on this machine (the writer needs that second CPU).
+  second CPU slows the search on this machine (the writer process needs that second CPU).
 
-Target: the archive adds at most 15 % to the run time.
+Targets: the archive adds at most 15 % to the run time; the thread is kept over the process when
+it is within 5 % of it.
 
 Run:  python tests/benchmarks/bench_archive.py [--repeats 7]
 """
@@ -31,12 +36,21 @@ import time
 from pathlib import Path
 
 import tradewise
+from tradewise import store as store_module
 from tradewise.case import load_case
 from tradewise.store import Store
 
 CASE = Path(__file__).resolve().parent.parent / "cases" / "trivial"
-STORE_CALLS = ("add_evaluation", "lookup", "add_generation", "flush", "save_state", "start_run", "update_run",
-               "close")
+STORE_CALLS = (
+    "add_evaluation",
+    "lookup",
+    "add_generation",
+    "flush",
+    "save_state",
+    "start_run",
+    "update_run",
+    "close",
+)
 inside = collections.Counter()
 
 
@@ -54,9 +68,13 @@ def _timed_method(name):
     return timed
 
 
-def children_cpu() -> float:
-    usage = resource.getrusage(resource.RUSAGE_CHILDREN)
-    return usage.ru_utime + usage.ru_stime
+def cpu() -> float:
+    """CPU seconds of this process (all its threads) and of its finished children."""
+    total = 0.0
+    for who in (resource.RUSAGE_SELF, resource.RUSAGE_CHILDREN):
+        usage = resource.getrusage(who)
+        total += usage.ru_utime + usage.ru_stime
+    return total
 
 
 def run(case, store: Path | None) -> float:
@@ -67,30 +85,67 @@ def run(case, store: Path | None) -> float:
     return elapsed
 
 
+def archived_run(case, store: Path, writer: str) -> tuple[float, float, float]:
+    """Wall time, time inside archive calls and CPU time of one run with the given writer."""
+    originals = {name: getattr(Store, name) for name in STORE_CALLS}
+    for name in STORE_CALLS:
+        setattr(Store, name, _timed_method(name))
+    inside.clear()
+    store_module._WRITER = writer
+    before = cpu()
+    try:
+        elapsed = run(case, store)
+    finally:
+        for name, method in originals.items():
+            setattr(Store, name, method)
+    return elapsed, sum(inside.values()), cpu() - before
+
+
+def spread(values: list[float]) -> str:
+    return (
+        f"median {statistics.median(values):5.3f}  range {min(values):5.3f} to {max(values):5.3f}"
+    )
+
+
 def main() -> None:
     parser = argparse.ArgumentParser()
     parser.add_argument("--repeats", type=int, default=7)
     args = parser.parse_args()
     case = load_case(CASE)
     run(case, None)  # warm-up: imports, the model module, numpy's first calls
-    plain, archived, spent, writer = [], [], [], []
-    originals = {name: getattr(Store, name) for name in STORE_CALLS}
+    writers = ("process", "thread")
+    plain, plain_cpu = [], []
+    wall = {w: [] for w in writers}
+    spent = {w: [] for w in writers}
+    used = {w: [] for w in writers}
+    chosen = store_module._WRITER
     with tempfile.TemporaryDirectory() as folder:
-        for i in range(args.repeats):
-            plain.append(run(case, None))
-            for name in STORE_CALLS:
-                setattr(Store, name, _timed_method(name))
-            inside.clear()
-            before = children_cpu()
-            store = Path(folder) / f"archive-{i}.sqlite"
-            archived.append(run(case, store))
-            writer.append(children_cpu() - before)
-            spent.append(sum(inside.values()))
-            for name, method in originals.items():
-                setattr(Store, name, method)
-        with sqlite3.connect(store) as db:
-            rows = db.execute("SELECT COUNT(*) FROM evaluations").fetchone()[0]
-            states = db.execute("SELECT LENGTH(blob) FROM states").fetchone()[0]
+        try:
+            for i in range(args.repeats):
+                order = ["plain", *writers]
+                order = order[i % 3 :] + order[: i % 3]
+                for variant in order:
+                    if variant == "plain":
+                        before = cpu()
+                        plain.append(run(case, None))
+                        plain_cpu.append(cpu() - before)
+                        continue
+                    store = Path(folder) / f"archive-{variant}-{i}.sqlite"
+                    elapsed, inside_calls, cpu_time = archived_run(case, store, variant)
+                    wall[variant].append(elapsed)
+                    spent[variant].append(inside_calls)
+                    used[variant].append(cpu_time)
+        finally:
+            store_module._WRITER = chosen
+        counts = {}
+        for variant in writers:
+            with sqlite3.connect(
+                store.with_name(f"archive-{variant}-{args.repeats - 1}.sqlite")
+            ) as db:
+                counts[variant] = (
+                    db.execute("SELECT COUNT(*) FROM evaluations").fetchone()[0],
+                    db.execute("SELECT LENGTH(blob) FROM states").fetchone()[0],
+                )
     spinner = subprocess.Popen([sys.executable, "-c", "while True: pass"])
     try:
         time.sleep(0.2)
@@ -98,19 +153,33 @@ def main() -> None:
     finally:
         spinner.kill()
         spinner.wait()
-    ratios = [b / a for a, b in zip(plain, archived, strict=True)]
-    print("10,000 trivial evaluations in-process (tests/cases/trivial, population 100, seed 1)")
-    print(f"  without archive   min {min(plain):6.3f} s   median {statistics.median(plain):6.3f} s")
-    print(f"  with archive      min {min(archived):6.3f} s   median {statistics.median(archived):6.3f} s")
-    print(f"  ratio             of minima {min(archived) / min(plain):5.3f}   median of paired runs "
-          f"{statistics.median(ratios):5.3f}   (target <= 1.15)")
-    print(f"  search process inside archive calls: median {statistics.median(spent):.3f} s a run "
-          f"({statistics.median(spent) / statistics.median(plain):.1%} of the plain run)")
-    print(f"  writer process CPU: median {statistics.median(writer):.3f} s a run, on the other CPU")
-    print(f"  control: the plain run beside a spinning process: min {min(beside):.3f} s "
-          f"({min(beside) / min(plain):.2f} x the plain run alone)")
-    print(f"  archive: {rows} rows, search state {states / 1e3:.0f} kB; "
-          f"{rows / min(archived):,.0f} evaluations stored per second of run")
+    print(
+        f"10,000 trivial evaluations in-process (tests/cases/trivial, population 100, seed 1), "
+        f"{args.repeats} repeats"
+    )
+    print(
+        f"  without archive    min {min(plain):6.3f} s   median {statistics.median(plain):6.3f} s   "
+        f"CPU median {statistics.median(plain_cpu):.3f} s"
+    )
+    for variant in writers:
+        ratios = [b / a for a, b in zip(plain, wall[variant], strict=True)]
+        print(
+            f"  {variant + ' writer':<18} min {min(wall[variant]):6.3f} s   median "
+            f"{statistics.median(wall[variant]):6.3f} s   CPU median {statistics.median(used[variant]):.3f} s"
+        )
+        print(f"    ratio to no archive: {spread(ratios)}   (target <= 1.15)")
+        print(
+            f"    search process inside archive calls: median {statistics.median(spent[variant]):.3f} s a run "
+            f"({statistics.median(spent[variant]) / statistics.median(plain):.1%} of the plain run)"
+        )
+        rows, states = counts[variant]
+        print(f"    archive: {rows} rows, search state {states / 1e3:.0f} kB")
+    paired = [t / p for p, t in zip(wall["process"], wall["thread"], strict=True)]
+    print(f"  thread / process (paired runs): {spread(paired)}   (the thread is kept when <= 1.05)")
+    print(
+        f"  control: the plain run beside a spinning process: min {min(beside):.3f} s "
+        f"({min(beside) / min(plain):.2f} x the plain run alone)"
+    )
 
 
 if __name__ == "__main__":
