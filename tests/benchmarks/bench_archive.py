@@ -36,6 +36,7 @@ import time
 from pathlib import Path
 
 import tradewise
+from tradewise import _store_process
 from tradewise import store as store_module
 from tradewise.case import load_case
 from tradewise.store import Store
@@ -54,8 +55,8 @@ STORE_CALLS = (
 inside = collections.Counter()
 
 
-def _timed_method(name):
-    method = getattr(Store, name)
+def _timed_method(cls, name):
+    method = getattr(cls, name)
 
     @functools.wraps(method)
     def timed(self, *args, **kwargs):
@@ -87,9 +88,10 @@ def run(case, store: Path | None) -> float:
 
 def archived_run(case, store: Path, writer: str) -> tuple[float, float, float]:
     """Wall time, time inside archive calls and CPU time of one run with the given writer."""
-    originals = {name: getattr(Store, name) for name in STORE_CALLS}
+    cls = _store_process.Store if writer == "process" else Store
+    originals = {name: getattr(cls, name) for name in STORE_CALLS}
     for name in STORE_CALLS:
-        setattr(Store, name, _timed_method(name))
+        setattr(cls, name, _timed_method(cls, name))
     inside.clear()
     store_module._WRITER = writer
     before = cpu()
@@ -97,7 +99,7 @@ def archived_run(case, store: Path, writer: str) -> tuple[float, float, float]:
         elapsed = run(case, store)
     finally:
         for name, method in originals.items():
-            setattr(Store, name, method)
+            setattr(cls, name, method)
     return elapsed, sum(inside.values()), cpu() - before
 
 
