@@ -1,39 +1,50 @@
 """The SQLite archive of runs, every evaluation and the generation history.
 
-Rows are written by a thread of this process fed through a queue (standard library only). It
-replaced a writer process fed through a pipe: measured side by side with
-tests/benchmarks/bench_archive.py it was as quick, and it passed the same kill -9 tests; the one
-thing the process did better, keeping what it had been handed when only the search process was
-killed, covered rows younger than half a second, which a kill of the whole run loses either way.
+Why the writer is a process of its own (tradewise/_archive_writer.py, fed through a pipe) and not
+a thread of the search process fed through a queue, which would be about 230 lines shorter and
+need no pickle: both were measured side by side with tests/benchmarks/bench_archive.py (10,000
+trivial evaluations, writers in turn in one run; the thread committed on its own connection,
+500 rows a statement). Median of the paired thread/process time ratios over four runs of the
+benchmark: 1.056 and 1.068 (15 repeats each), 1.007 and 1.106 (25 each); of the fastest runs:
+1.11, 1.12, 1.10 and 0.96. The thread keeps the encoding of every row on the search's interpreter
+lock (about 0.05 s of 0.1 s of its work a run), while the process does all of it on another CPU,
+so the thread was not within 5 % and the process stays. Both passed the kill -9 tests
+(tests/test_resume.py); designs evaluated again after a kill, three tries each, thread against
+process: in-process 2, 2, 3 against 2, 3, 3; two workers 8, 2, 2 against 9, 14, 18; first
+generation 9, 9, 9 against 3, 2, 3. The process also keeps what it was handed when only the search
+process is killed. The module is a little over 800 lines because the two links to the writer
+(process, and in-process fallback) live beside the Store they serve.
 """
 
 from __future__ import annotations
 
+import contextlib
+import functools
 import itertools
 import json
 import logging
-import math
-import os
-import queue
+import pickle
 import sqlite3
+import struct
+import subprocess
+import sys
 import threading
 import time
 from collections.abc import Iterable
 from pathlib import Path
 from typing import Any
 
+from tradewise import _archive_writer
 from tradewise.errors import StoreError
 
 __all__ = ["Store", "open_store", "SCHEMA_VERSION"]
 
 SCHEMA_VERSION = 1
-# An evaluation is taken off the queue within _TICK of being recorded and committed at most
-# _COMMIT_EVERY after that: within half a second. A generation's end commits at once, unless
-# the last commit is younger than _COMMIT_GAP (generations that end faster than ten a second).
+# Evaluations wait at most this long in this process before they go to the writer, which commits
+# them at most 0.4 s later (COMMIT_EVERY in the writer program): together well within a second.
+_HAND_OVER_EVERY = 0.1
 _TICK = 0.05
-_COMMIT_EVERY = 0.4
-_COMMIT_GAP = 0.1
-_ID_BLOCK = 4096  # evaluation ids reserved at a time
+_ID_BLOCK = 4096  # evaluation ids reserved at a time; the next block is asked for half a block ahead
 # How long "this case has no evaluations from other runs" is trusted before asking the file again.
 _OTHERS_TTL = 1.0
 _SQLITE_HEADER = b"SQLite format 3\x00"
@@ -43,16 +54,6 @@ LOCK_WAIT = 30.0
 #: standard error when nothing else is set up).
 LOCK_NOTICE = 1.0
 _log = logging.getLogger("tradewise")
-# Measurement only: "process" opens archives with the writer process of _store_process.
-_WRITER = os.environ.get("TRADEWISE_ARCHIVE_WRITER", "thread")
-_INSERT = (
-    "INSERT INTO evaluations (eval_id, run_id, case_hash, design_key, design, results, status,"
-    " message, duration, generation, worker, source_id, created) VALUES "
-)
-_ROW = "(?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?, ?)"
-# Rows go in many to a statement: the sqlite3 module lets go of the interpreter lock for every
-# statement it steps, and taking the lock back from a busy search costs the writer a switch.
-_ROWS_A_STATEMENT = 500
 
 _SCHEMA = """
 CREATE TABLE IF NOT EXISTS meta (key TEXT PRIMARY KEY, value TEXT);
@@ -102,39 +103,11 @@ CREATE TABLE IF NOT EXISTS states (
 """
 _TABLES = frozenset({"meta", "runs", "evaluations", "generations", "states"})
 
-
-def _finite(value):
-    if isinstance(value, float) and not math.isfinite(value):
-        return None
-    if isinstance(value, dict):
-        return {k: _finite(v) for k, v in value.items()}
-    if isinstance(value, (list, tuple)):
-        return [_finite(v) for v in value]
-    return value
-
-
-def _plain(value):
-    if hasattr(value, "item"):  # a numpy number
-        value = value.item()
-        return None if isinstance(value, float) and not math.isfinite(value) else value
-    raise TypeError(f"cannot store {type(value).__name__}")
-
-
-_encoder = json.JSONEncoder(default=_plain, allow_nan=False, separators=(",", ":"))
-try:  # the C encoder built once; json builds a new one for every call otherwise
-    from json.encoder import c_make_encoder, encode_basestring_ascii
-
-    _fast = c_make_encoder(None, _plain, encode_basestring_ascii, None, ":", ",", False, False, False)
-except (ImportError, TypeError):
-    _fast = None
-
-
-def _encode(value) -> str:
-    """JSON text of a value; NaN and infinities (which JSON has not) become null."""
-    try:
-        return "".join(_fast(value, 0)) if _fast is not None else _encoder.encode(value)
-    except ValueError:
-        return _encoder.encode(_finite(value))
+# The archive writer (tradewise/_archive_writer.py): standard library only, run in a process of its
+# own so that encoding and writing rows never takes time from the search, and so that
+# everything handed to it is committed even when the search process is killed. The same code
+# serves in this process when no writer process can be started. Messages are pickled tuples,
+# each preceded by its length (4 bytes, big-endian); the search process is the only sender.
 
 
 def _is_locked(exc: BaseException) -> bool:
@@ -168,146 +141,116 @@ def _patiently(path: Path, db: sqlite3.Connection, action):
         db.execute(f"PRAGMA busy_timeout = {int(LOCK_WAIT * 1000)}")
 
 
-def _reserve_block(db: sqlite3.Connection) -> int:
-    """Move the evaluation id counter past a block of ids; return the id before the block."""
-    db.execute("BEGIN IMMEDIATE")
-    try:
-        row = db.execute("SELECT seq FROM sqlite_sequence WHERE name = 'evaluations'").fetchone()
-        (largest,) = db.execute("SELECT COALESCE(MAX(eval_id), 0) FROM evaluations").fetchone()
-        top = max(row[0] if row else 0, largest)
-        if row:
-            db.execute("UPDATE sqlite_sequence SET seq = ? WHERE name = 'evaluations'", (top + _ID_BLOCK,))
-        else:
-            db.execute("INSERT INTO sqlite_sequence (name, seq) VALUES ('evaluations', ?)", (top + _ID_BLOCK,))
-        db.commit()
-    except BaseException:
-        db.rollback()
-        raise
-    return top
-
-
-class _Writer:
-    """The writer thread: takes rows off its queue, encodes them and commits them on its own connection.
-
-    Items on the queue: ``("row", values)`` an evaluation, ``("sql", sql, params)``
-    another write, ``("commit",)`` commit soon, ``("sync", event)`` commit now and
-    set the event, ``("stop", event)`` the same, then end. A write that fails is
-    kept in :attr:`failure` (one StoreError line); nothing is written after it.
-    """
+class _ProcessLink:
+    """The writer in a process of its own, fed through its standard input."""
 
     def __init__(self, path: Path) -> None:
         self.path = path
-        self.inbox: queue.SimpleQueue = queue.SimpleQueue()
-        self.wake = threading.Event()
-        self.failure: StoreError | None = None
-        self.db = sqlite3.connect(path, timeout=LOCK_WAIT, check_same_thread=False)
-        self.db.execute("PRAGMA synchronous=NORMAL")
-        variables = self.db.getlimit(sqlite3.SQLITE_LIMIT_VARIABLE_NUMBER)
-        self.chunk = max(1, min(_ROWS_A_STATEMENT, variables // _ROW.count("?")))
-        # Not a daemon: when the program ends without closing the archive, the thread still
-        # commits what it holds (it watches the main thread) before the interpreter exits.
-        self.thread = threading.Thread(target=self._loop, name="tradewise-store")
-        self.thread.start()
+        self.proc = subprocess.Popen(
+            # -I -S: isolated from the user's environment and site packages (a json.py in the current
+            # folder must not stand in for the standard library's), and quicker to start.
+            [sys.executable, "-I", "-S", _archive_writer.__file__, str(path), str(LOCK_WAIT)],
+            stdin=subprocess.PIPE, stdout=subprocess.PIPE, stderr=subprocess.PIPE,
+        )
+        self.tokens = itertools.count(1)
+        self.reserved: list[int] = []
 
-    # -- the search's side ------------------------------------------------------------------
-    def put(self, item: tuple) -> None:
-        self.inbox.put(item)
-
-    def commit_soon(self) -> None:
-        self.inbox.put(("commit",))
-        self.wake.set()
+    def send(self, message: tuple) -> None:
+        data = pickle.dumps(message, protocol=pickle.HIGHEST_PROTOCOL)
+        try:
+            self.proc.stdin.write(struct.pack(">I", len(data)) + data)
+            self.proc.stdin.flush()
+        except (BrokenPipeError, OSError, ValueError):
+            self.fail()
 
     def sync(self, kind: str = "sync") -> None:
-        """Wait until everything put so far is committed (StoreError if that failed)."""
-        done = threading.Event()
-        self.inbox.put((kind, done))
-        self.wake.set()
-        while not done.wait(_TICK):
-            if not self.thread.is_alive():
-                self.failure = self.failure or StoreError(
-                    f"{self.path}: writing to the archive failed (the writer stopped)"
-                )
-                break
-        if self.failure is not None:
-            raise self.failure
+        token = next(self.tokens)
+        self.send((kind, token))
+        while (reply := self._reply()) != token:
+            if not (isinstance(reply, tuple) and reply[0] == "reserved"):
+                self.fail()
+            self.reserved.append(reply[1])
 
-    def stop(self) -> None:
-        """Commit everything and end the thread (StoreError if a write failed)."""
-        try:
-            self.sync("stop")
-        finally:
-            self.thread.join()
+    def request_ids(self, block: int) -> None:
+        """Ask for a block of evaluation ids; the answer is collected by :meth:`take_ids`."""
+        self.send(("reserve", block))
 
-    # -- the thread --------------------------------------------------------------------------
-    def _loop(self) -> None:
-        rows: list[tuple] = []
-        writes: list[tuple] = []
-        oldest = None  # when the oldest uncommitted item was taken off the queue
-        asked = False
-        last = time.monotonic()
-        main = threading.main_thread()
-        try:
-            while True:
-                self.wake.wait(_TICK)
-                self.wake.clear()
-                waiting, stop = [], not main.is_alive()
-                while True:
-                    try:
-                        item = self.inbox.get_nowait()
-                    except queue.Empty:
-                        break
-                    kind = item[0]
-                    if kind == "row":
-                        rows.append(item[1])
-                    elif kind == "sql":
-                        writes.append(item[1:])
-                    elif kind == "commit":
-                        asked = True
-                    else:
-                        waiting.append(item[1])
-                        stop = stop or kind == "stop"
-                now = time.monotonic()
-                if oldest is None and (rows or writes):
-                    oldest = now
-                if oldest is None:
-                    asked = False  # nothing to commit
-                elif waiting or stop or now - oldest >= _COMMIT_EVERY or (asked and now - last >= _COMMIT_GAP):
-                    if self.failure is None:
-                        self._commit(rows, writes)
-                    rows, writes, oldest, asked, last = [], [], None, False, time.monotonic()
-                for done in waiting:
-                    done.set()
-                if stop:
-                    return
-        finally:
+    def take_ids(self) -> int:
+        """The first answer to :meth:`request_ids` (waiting for it if it has not come yet)."""
+        while not self.reserved:
+            reply = self._reply()
+            if not (isinstance(reply, tuple) and reply[0] == "reserved"):
+                self.fail()
+            self.reserved.append(reply[1])
+        return self.reserved.pop(0)
+
+    def _reply(self):
+        head = self.proc.stdout.read(4)
+        if len(head) < 4:
+            self.fail()
+        (size,) = struct.unpack(">I", head)
+        return pickle.loads(self.proc.stdout.read(size))
+
+    def tick(self) -> None:
+        pass  # the writer keeps its own time
+
+    def close(self) -> None:
+        # Said in words rather than by closing the pipe: worker processes forked after the writer
+        # started hold copies of its end, so the writer would not see the end of its input.
+        self.sync("close")
+        with contextlib.suppress(OSError):
+            self.proc.stdin.close()
+        if self.proc.wait() != 0:
+            self.fail()
+        self.proc.stdout.close()
+        self.proc.stderr.close()
+
+    def fail(self):
+        with contextlib.suppress(OSError):
+            self.proc.stdin.close()
+        if self.proc.poll() is None:
+            self.proc.kill()
+        self.proc.wait()
+        text = self.proc.stderr.read().decode("utf-8", "replace").strip().splitlines()
+        raise StoreError(f"{self.path}: writing to the archive failed ({text[-1] if text else 'the writer stopped'})")
+
+
+class _LocalLink:
+    """The same writer code run in this process, when no writer process can be started."""
+
+    def __init__(self, path: Path) -> None:
+        self.db = sqlite3.connect(path, timeout=LOCK_WAIT, check_same_thread=False)
+        self.db.execute("PRAGMA synchronous=NORMAL")
+        self.writer = _archive_writer.Writer(self.db)
+        self.lock = threading.Lock()
+        self.reserved: list[int] = []
+
+    def send(self, message: tuple) -> None:
+        with self.lock:
+            self.writer.apply(message)
+            if self.writer.due():
+                self.writer.commit()
+
+    def sync(self) -> None:
+        with self.lock:
+            self.writer.commit()
+
+    def request_ids(self, block: int) -> None:
+        with self.lock:
+            self.reserved.append(self.writer.apply(("reserve", block))[1])
+
+    def take_ids(self) -> int:
+        return self.reserved.pop(0)
+
+    def tick(self) -> None:
+        with self.lock:
+            if self.writer.due():
+                self.writer.commit()
+
+    def close(self) -> None:
+        with self.lock:
+            self.writer.commit()
             self.db.close()
-
-    def _commit(self, rows: list[tuple], writes: list[tuple]) -> None:
-        try:
-            encoded = [
-                (i, run, case, key, _encode(design), _encode(results), *rest)
-                for i, run, case, key, design, results, *rest in rows
-            ]
-
-            def write() -> None:
-                self.db.execute("BEGIN IMMEDIATE")
-                try:
-                    for start in range(0, len(encoded), self.chunk):
-                        part = encoded[start : start + self.chunk]
-                        values = list(itertools.chain.from_iterable(part))
-                        self.db.execute(_INSERT + ", ".join([_ROW] * len(part)), values)
-                    for sql, params in writes:
-                        self.db.execute(sql, params)
-                    self.db.commit()
-                except BaseException:
-                    self.db.rollback()
-                    raise
-
-            _patiently(self.path, self.db, write)
-        except StoreError as exc:
-            self.failure = exc
-        except Exception as exc:  # SQLite's complaint, or a value JSON cannot hold
-            self.failure = StoreError(f"{self.path}: writing to the archive failed ({type(exc).__name__}: {exc})")
 
 
 class Store:
@@ -317,8 +260,9 @@ class Store:
     evaluation remembers its case hash so that a design already evaluated
     for the same case is served from here in any later run.
 
-    Evaluations and generation rows are encoded and written by a writer
-    thread, so recording one only puts it on a queue. Each evaluation is
+    Evaluations and generation rows are written by a small writer process,
+    so the search never waits for the disk, and rows handed to the writer
+    are committed even if the search process is killed. Each evaluation is
     committed at most about half a second after it was recorded, also while
     the search waits for a slow model; the end of a generation commits at
     once (or, when generations end faster than ten a second, within a tenth
@@ -334,25 +278,36 @@ class Store:
         self.path = path
         self._db = connection  # reads, and the rare writes made after a sync with the writer
         self._lock = threading.RLock()
-        self._writer: _Writer | None = None  # started with the first run recorded or written to
-        self._failure: StoreError | None = None
+        self._rows: list[tuple] = []  # evaluations recorded, not yet handed to the writer
+        self._rows_since = 0.0
+        self._commit_wanted = False
+        self._link: _ProcessLink | _LocalLink | None = None
+        self._proven = True  # the writer has answered (set False while a new writer process is untried)
         self._next_id, self._last_id = 1, 0
+        self._ids_asked = False  # a block of ids was asked of the writer and not yet taken
         self._others: dict[tuple[str, int], float] = {}  # (case, run) -> when "no other runs" was seen
+        self._closing = threading.Event()
+        self._ticker: threading.Thread | None = None
+        self._failure: StoreError | None = None
 
     # ------------------------------------------------------------- plumbing
     def close(self) -> None:
-        """Let the writer commit everything and stop, and close the file."""
-        with self._lock:
-            try:
-                if self._writer is not None:
-                    writer, self._writer = self._writer, None
-                    writer.stop()
-            except StoreError as exc:
-                self._failure = exc
-            finally:
-                self._db.close()
-            if self._failure is not None:
-                raise self._failure
+        """Hand everything over, let the writer commit and stop, and close the file."""
+        self._closing.set()
+        if self._ticker is not None:
+            self._ticker.join()
+            self._ticker = None
+        try:
+            with self._lock:
+                if self._link is not None and self._failure is None:
+                    link = self._writer()
+                    self._hand_over()
+                    link.close()
+        finally:
+            self._link = None
+            self._db.close()
+        if self._failure is not None:
+            raise self._failure
 
     def __enter__(self) -> Store:
         return self
@@ -368,42 +323,87 @@ class Store:
         caller goes on.
         """
         with self._lock:
-            if self._writer is None:
+            if self._link is None:
                 return
-            self._check()
             if wait:
                 self._sync()
             else:
-                self._writer.commit_soon()
+                # Sent with the next message (the generation's row follows at once) or by the ticker.
+                self._commit_wanted = True
 
-    def _check(self) -> None:
-        """Raise the writer's failure, if it had one; call with the lock held."""
-        if self._failure is None and self._writer is not None:
-            self._failure = self._writer.failure
+    def _call(self, action) -> None:
         if self._failure is not None:
             raise self._failure
+        try:
+            action()
+        except StoreError as exc:
+            self._failure = exc
+            raise
 
-    def _started(self) -> _Writer:
-        """The writer thread, started on first use; call with the lock held."""
-        if self._writer is None:
-            self._writer = _Writer(self.path)
-        return self._writer
+    def _start_writer(self) -> None:
+        """Start the writer process (without waiting for it); call with the lock held."""
+        if self._link is None:
+            try:
+                self._link = _ProcessLink(self.path)
+                self._proven = False
+            except OSError:
+                self._link = _LocalLink(self.path)
+            self._ticker = threading.Thread(target=self._tick_loop, name="tradewise-store", daemon=True)
+            self._ticker.start()
+
+    def _writer(self) -> _ProcessLink | _LocalLink:
+        """The link to a writer that has answered once; call with the lock held.
+
+        A writer process that fails before anything was handed to it (no
+        usable Python at ``sys.executable``, say) is replaced by the same
+        writer code run in this process.
+        """
+        self._start_writer()
+        if not self._proven:
+            self._proven = True
+            try:
+                self._link.sync()
+            except StoreError:
+                self._link = _LocalLink(self.path)
+        return self._link
 
     def _sync(self) -> None:
-        """Wait until the writer has committed everything recorded; call with the lock held."""
-        if self._writer is not None:
-            try:
-                self._writer.sync()
-            finally:
-                self._check()
+        """Hand everything over and wait until the writer has committed it; call with the lock held."""
+        link = self._writer()
+        self._hand_over()
+        self._call(link.sync)
+
+    def _hand_over(self) -> None:
+        """Send the recorded evaluations to the writer; call with the lock held."""
+        if self._rows:
+            rows, self._rows = self._rows, []
+            link = self._writer()
+            self._call(lambda: link.send(("rows", rows)))
+
+    def _tick_loop(self) -> None:
+        """Hand over evaluations that have waited long enough while the search waits for a slow model."""
+        while not self._closing.wait(_TICK):
+            with self._lock:
+                if self._failure is not None or self._link is None:
+                    return
+                try:
+                    if self._rows and time.monotonic() - self._rows_since >= _HAND_OVER_EVERY:
+                        self._hand_over()
+                    if self._commit_wanted:
+                        self._hand_over()
+                        self._call(functools.partial(self._writer().send, ("commit",)))
+                        self._commit_wanted = False
+                    self._link.tick()
+                except StoreError:
+                    return  # kept in self._failure; the owner sees it on its next call
 
     def _write_now(self, sql: str, params: tuple = ()) -> sqlite3.Cursor:
         """A write through this process's own connection, committed at once; call with the lock held.
 
-        The writer is synced first, so that the write comes after everything recorded before it.
+        The writer is synced first, so it holds no open transaction.
         """
-        self._check()
-        self._sync()
+        if self._link is not None:
+            self._sync()
 
         def write() -> sqlite3.Cursor:
             cursor = self._db.execute(sql, params)
@@ -413,17 +413,60 @@ class Store:
         return _patiently(self.path, self._db, write)
 
     def _take_id(self) -> int:
-        """The next evaluation id of this store's reserved block; call with the lock held."""
+        """The next evaluation id of this store's reserved block; call with the lock held.
+
+        The first block is reserved here; each later one is asked of the
+        writer when half of the current block is used, so its answer is
+        waiting by the time it is needed.
+        """
         if self._next_id > self._last_id:
-            top = _patiently(self.path, self._db, lambda: _reserve_block(self._db))
+            if self._ids_asked:
+                self._ids_asked = False
+                top = self._call_value(self._link.take_ids)
+            else:
+                top = self._reserve_here()
             self._next_id, self._last_id = top + 1, top + _ID_BLOCK
+        elif (not self._ids_asked and self._link is not None and self._proven
+              and self._last_id - self._next_id < _ID_BLOCK // 2):
+            link = self._link
+            self._call(lambda: link.request_ids(_ID_BLOCK))
+            self._ids_asked = True
         self._next_id += 1
         return self._next_id - 1
+
+    def _reserve_here(self) -> int:
+        """Reserve a block of ids through this process's connection; call with the lock held."""
+        if self._link is not None and self._proven:
+            self._sync()  # the writer must not hold an open transaction
+        return _patiently(self.path, self._db, self._reserve_block)
+
+    def _reserve_block(self) -> int:
+        self._db.execute("BEGIN IMMEDIATE")
+        try:
+            row = self._db.execute("SELECT seq FROM sqlite_sequence WHERE name = 'evaluations'").fetchone()
+            (largest,) = self._db.execute("SELECT COALESCE(MAX(eval_id), 0) FROM evaluations").fetchone()
+            top = max(row[0] if row else 0, largest)
+            if row:
+                self._db.execute("UPDATE sqlite_sequence SET seq = ? WHERE name = 'evaluations'",
+                                 (top + _ID_BLOCK,))
+            else:
+                self._db.execute("INSERT INTO sqlite_sequence (name, seq) VALUES ('evaluations', ?)",
+                                 (top + _ID_BLOCK,))
+            self._db.commit()
+        except BaseException:
+            self._db.rollback()
+            raise
+        return top
+
+    def _call_value(self, action):
+        result = []
+        self._call(lambda: result.append(action()))
+        return result[0]
 
     def _query(self, sql: str, params: tuple = ()) -> list[tuple]:
         """Read with everything recorded so far committed first."""
         with self._lock:
-            if self._failure is None and (self._writer is None or self._writer.failure is None):
+            if self._link is not None and self._failure is None:
                 self._sync()
             return self._db.execute(sql, params).fetchall()
 
@@ -444,10 +487,9 @@ class Store:
             cursor = self._write_now(
                 "INSERT INTO runs (case_hash, case_title, case_path, case_text, settings, seed, versions,"
                 " status, message, started) VALUES (?, ?, ?, ?, ?, ?, ?, 'running', '', ?)",
-                (case_hash, case_title, case_path, case_text, _encode(settings), seed, _encode(versions),
-                 time.time()),
+                (case_hash, case_title, case_path, case_text, _archive_writer.encode(settings), seed, _archive_writer.encode(versions), time.time()),
             )
-            self._started()  # ready by the first evaluation
+            self._start_writer()  # starts while the search sets up, ready by the first evaluation
             return int(cursor.lastrowid)
 
     def update_run(self, run_id: int, **fields: Any) -> None:
@@ -458,7 +500,7 @@ class Store:
                 raise KeyError(key)
         if not fields:
             return
-        values = [_encode(v) if k in {"reference", "settings"} else v for k, v in fields.items()]
+        values = [_archive_writer.encode(v) if k in {"reference", "settings"} else v for k, v in fields.items()]
         assignments = ", ".join(f"{key} = ?" for key in fields)
         with self._lock:
             self._write_now(f"UPDATE runs SET {assignments} WHERE run_id = ?", (*values, run_id))
@@ -520,11 +562,15 @@ class Store:
         second (see the class notes).
         """
         with self._lock:
-            self._check()
-            writer = self._started()
+            if self._failure is not None:
+                raise self._failure
             eval_id = self._take_id()
-            writer.put(("row", (eval_id, run_id, case_hash, design_key, dict(design), dict(results), status,
-                                message, duration, generation, worker, source_id, time.time())))
+            if not self._rows:
+                self._rows_since = time.monotonic()
+            self._rows.append((eval_id, run_id, case_hash, design_key, design, results, status, message, duration,
+                               generation, worker, source_id, time.time()))
+            if len(self._rows) >= 4096 or time.monotonic() - self._rows_since >= _HAND_OVER_EVERY:
+                self._hand_over()
         return eval_id
 
     def lookup(
@@ -638,14 +684,17 @@ class Store:
         """
         generation = int(row["generation"])
         with self._lock:
-            self._check()
-            writer = self._started()
-            writer.put(("sql", "INSERT OR REPLACE INTO generations (run_id, generation, row) VALUES (?, ?, ?)",
-                        (run_id, generation, _encode(row))))
+            messages = [("rows", self._rows)] if self._rows else []
+            self._rows = []
+            messages.append(("sql", "INSERT OR REPLACE INTO generations (run_id, generation, row) VALUES (?, ?, ?)",
+                             (run_id, generation, _archive_writer.encode(row))))
             if state is not None:
-                writer.put(("sql", "INSERT OR REPLACE INTO states (run_id, generation, blob) VALUES (?, ?, ?)",
-                            (run_id, generation, state)))
-            writer.commit_soon()
+                messages.append(("sql", "INSERT OR REPLACE INTO states (run_id, generation, blob) VALUES (?, ?, ?)",
+                                 (run_id, generation, state)))
+            messages.append(("commit",))
+            self._commit_wanted = False
+            link = self._writer()
+            self._call(lambda: link.send(("many", messages)))
 
     def save_state(self, run_id: int, generation: int, state: bytes) -> None:
         """Keep the search state reached after ``generation`` (one state a run: the newest).
@@ -653,11 +702,13 @@ class Store:
         Committed by the writer within a tenth of a second, and at :meth:`close`.
         """
         with self._lock:
-            self._check()
-            writer = self._started()
-            writer.put(("sql", "INSERT OR REPLACE INTO states (run_id, generation, blob) VALUES (?, ?, ?)",
-                        (run_id, generation, state)))
-            writer.commit_soon()
+            self._hand_over()
+            link = self._writer()
+            self._call(lambda: link.send(("many", [
+                ("sql", "INSERT OR REPLACE INTO states (run_id, generation, blob) VALUES (?, ?, ?)",
+                 (run_id, generation, state)),
+                ("commit",),
+            ])))
 
     def history(self, run_id: int):
         """One row a recorded generation of the run, in order, as a pandas DataFrame."""
@@ -740,10 +791,6 @@ def open_store(path: str | Path, *, create: bool = True) -> Store:
         if db is not None:
             db.close()
         raise StoreError(f"{path}: cannot be used as an archive ({exc})") from None
-    if _WRITER == "process":
-        from tradewise import _store_process
-
-        return _store_process.Store(path, db)
     return Store(path, db)
 
 
