@@ -160,6 +160,47 @@ def test_killed_search_process_loses_nothing_it_handed_over(tmp_path):
     assert _count(path) == 60
 
 
+def test_kill_right_after_a_generation_end_keeps_that_generation(tmp_path):
+    """SIGKILL a fifth of a second after a generation's end: that generation and every evaluation before it
+    are in the file (the end of a generation commits at once, not after the half-second)."""
+    path = tmp_path / "a.sqlite"
+    script = textwrap.dedent(f"""
+        import time
+        from tradewise.store import open_store
+        store = open_store({str(path)!r})
+        run = store.start_run(case_hash="h", case_title="t", case_path="p", case_text="x",
+                              settings={{}}, seed=1, versions={{}})
+        for i in range(60):
+            store.add_evaluation(run, case_hash="h", design_key=f"k{{i}}", design={{"x": i}}, results={{}},
+                                 status="ok", message="", duration=0.0, generation=1 + i // 50)
+            if i == 49:
+                store.add_generation(run, {{"generation": 1}})
+                time.sleep(0.2)
+        print("recorded", flush=True)
+        time.sleep(60)
+    """)
+    proc = subprocess.Popen([sys.executable, "-c", script], stdout=subprocess.PIPE, text=True)
+    try:
+        assert proc.stdout.readline().strip() == "recorded"
+    finally:
+        proc.kill()
+        proc.wait()
+    assert _count(path, "generation = 1") == 50
+    with sqlite3.connect(path) as other:
+        assert other.execute("SELECT generation FROM generations").fetchall() == [(1,)]
+
+
+def test_evaluation_is_durable_within_one_second_while_the_search_computes(tmp_path):
+    """The writer commits while this thread is busy in Python code and never waits."""
+    path = tmp_path / "a.sqlite"
+    with open_store(path) as store:
+        _add(store, _start(store), "k1")
+        deadline = time.monotonic() + 1.0
+        while time.monotonic() < deadline:
+            sum(range(1000))
+        assert _count(path) == 1
+
+
 @pytest.mark.parametrize("python", ["/no/such/python", "/bin/false"])
 def test_without_a_writer_process_the_store_writes_itself(tmp_path, monkeypatch, python):
     """When no writer process can be started, or it dies at once, the same writer runs in this process."""
