@@ -5,9 +5,14 @@ from __future__ import annotations
 import textwrap
 from pathlib import Path
 
+import numpy as np
+import pandas as pd
 import pytest
 
+import tradewise
 from support import GOOD_MODEL, GOOD_TOML
+from tradewise.case import Objective
+from tradewise.front import Front
 
 
 @pytest.fixture
@@ -23,3 +28,20 @@ def make_case(tmp_path):
         return folder
 
     return write
+
+
+@pytest.fixture(scope="module")
+def run():
+    """A short search on the bundled heat-sink case: a real three-objective front with variables."""
+
+    return tradewise.run("heat-sink", evaluations=400, population=40, seed=2)
+
+
+@pytest.fixture
+def zdt1():
+    """Points of the ZDT1 Pareto front f2 = 1 - sqrt(f1) (Zitzler, Deb and Thiele 2000), with units."""
+    f1 = np.linspace(0.0, 1.0, 21)
+    table = pd.DataFrame({"x": f1, "cost": f1 * 100.0, "mass": (1.0 - np.sqrt(f1)) * 10.0})
+    return Front.from_table(
+        table, [Objective("cost", unit="EUR"), Objective("mass", unit="kg")], variables=["x"]
+    )

@@ -154,18 +154,12 @@ def fingerprints() -> dict[str, str]:
             prints[f"{name}/attainment.svg"] = _sha(
                 _svg(plot_attainment(surfaces, front.objectives, title=front.meta.get("title")))
             )
-        with matplotlib.rc_context({"svg.hashsalt": "tradewise-fingerprint"}):
-            page = build_report(
-                front,
-                history=history,
-                evaluations=evaluations,
-                seeds=seeds,
-                attainment=surfaces,
-                generated=GENERATED,
-            )
-        prints[f"{name}/review.html"] = _sha(page)
-        if (folder / "shortlist.csv").is_file():
-            shortlist = read_front(folder / "shortlist.csv")
+        listed = (
+            read_front(folder / "shortlist.csv") if (folder / "shortlist.csv").is_file() else None
+        )
+        for suffix, shortlist in (("", None), ("-shortlist", listed)):
+            if suffix and shortlist is None:
+                continue
             with matplotlib.rc_context({"svg.hashsalt": "tradewise-fingerprint"}):
                 page = build_report(
                     front,
@@ -176,7 +170,7 @@ def fingerprints() -> dict[str, str]:
                     shortlist=shortlist,
                     generated=GENERATED,
                 )
-            prints[f"{name}/review-shortlist.html"] = _sha(page)
+            prints[f"{name}/review{suffix}.html"] = _sha(page)
         plt.close("all")
     return prints
 

@@ -12,7 +12,6 @@ import pandas as pd
 import pytest
 
 import tradewise
-from tradewise.case import Objective
 from tradewise.choose import (
     WEIGHTED_METHODS,
     NonConvexWarning,
@@ -21,25 +20,8 @@ from tradewise.choose import (
     knee_agreement,
 )
 from tradewise.errors import DataError
-from tradewise.front import Front, read_front, tradeoff_rates
+from tradewise.front import read_front, tradeoff_rates
 from tradewise.picker import SHORTLIST_COLUMNS, PickerState, load_picker_source, shortlist_front
-
-
-@pytest.fixture(scope="module")
-def run():
-    """A short search on the bundled heat-sink case: a real three-objective front with variables."""
-
-    return tradewise.run("heat-sink", evaluations=400, population=40, seed=2)
-
-
-@pytest.fixture
-def zdt1():
-    """Points of the ZDT1 Pareto front f2 = 1 - sqrt(f1) (Zitzler, Deb and Thiele 2000), with units."""
-    f1 = np.linspace(0.0, 1.0, 21)
-    table = pd.DataFrame({"x": f1, "cost": f1 * 100.0, "mass": (1.0 - np.sqrt(f1)) * 10.0})
-    return Front.from_table(
-        table, [Objective("cost", unit="EUR"), Objective("mass", unit="kg")], variables=["x"]
-    )
 
 
 def _choose_quietly(front, method, **kwargs):
