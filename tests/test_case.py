@@ -214,3 +214,39 @@ def test_case_file_not_utf8_names_the_line(make_case):
     (folder / "case.toml").write_bytes(b'title = "t"\n# caf\xe9\n')
     with pytest.raises(CaseError, match=r"case\.toml: line 2 holds the byte 0xe9"):
         load_case(folder)
+
+
+@pytest.mark.parametrize(
+    ("field", "written", "meant"),
+    [
+        ("type", "float", "real"),
+        ("type", "int", "integer"),
+        ("type", "boolean", "flag"),
+        ("type", "enum", "choice"),
+        ("goal", "minimise", "min"),
+        ("goal", "Maximize", "max"),
+        ("type", "Real", "real"),
+    ],
+)
+def test_words_an_engineer_writes_get_the_right_suggestion(make_case, field, written, meant):
+    """`type = "float"` suggests real (not flag, which is merely spelt alike), `goal = "minimise"` min."""
+    from tradewise.errors import CaseError
+
+    toml = GOOD_TOML_FOR_WORDS.replace(
+        f'{field} = "{"real" if field == "type" else "min"}"', f'{field} = "{written}"', 1
+    )
+    with pytest.raises(CaseError, match=rf"did you mean '{meant}'\?"):
+        load_case(make_case(toml))
+
+
+GOOD_TOML_FOR_WORDS = """
+title = "tiny"
+model = "model.py:evaluate"
+
+[variables]
+x = { type = "real", low = 0.0, high = 1.0 }
+
+[objectives]
+cost = { goal = "min", unit = "EUR" }
+mass = { goal = "min", unit = "kg" }
+"""

@@ -333,8 +333,41 @@ def _find_case_file(path: str | Path) -> Path:
     raise CaseError(f"{p}: no such case folder, file or bundled case{hint} (bundled: {names})")
 
 
+# Words an engineer may write for an allowed value, which spelling alone would not lead to.
+_SYNONYMS = {
+    "float": "real",
+    "double": "real",
+    "continuous": "real",
+    "number": "real",
+    "int": "integer",
+    "whole": "integer",
+    "bool": "flag",
+    "boolean": "flag",
+    "switch": "flag",
+    "categorical": "choice",
+    "category": "choice",
+    "enum": "choice",
+    "option": "choice",
+    "minimise": "min",
+    "minimize": "min",
+    "minimum": "min",
+    "lower": "min",
+    "maximise": "max",
+    "maximize": "max",
+    "maximum": "max",
+    "higher": "max",
+}
+
+
 def _suggest(name: str, allowed: Any) -> str:
-    close = difflib.get_close_matches(str(name), [str(a) for a in allowed], n=1, cutoff=0.6)
+    allowed = [str(a) for a in allowed]
+    meant = _SYNONYMS.get(str(name).strip().lower())
+    if meant in allowed:
+        return f" (did you mean {meant!r}?)"
+    lowered = {a.lower(): a for a in allowed}
+    if str(name).lower() in lowered:
+        return f" (did you mean {lowered[str(name).lower()]!r}?)"
+    close = difflib.get_close_matches(str(name), allowed, n=1, cutoff=0.6)
     return f" (did you mean {close[0]!r}?)" if close else ""
 
 
