@@ -677,3 +677,19 @@ def test_knee_count_does_not_grow_with_density_or_noise(n, noise):
     assert len(knees) == 2
     found = sorted(tuple(row_values(front, r)) for r in knees)
     assert np.allclose(found, [(2.08, 4.59), (4.59, 2.08)], atol=0.1)
+
+
+@pytest.mark.parametrize("n", [21, 61])
+def test_noisy_edges_of_a_three_objective_front_are_not_knees(n):
+    """DEB3DK with K = 1 (Branke et al. 2004; c = 1) keeps its one knee at the centre under Gaussian
+    noise of 0.1 % of the range: noise breaks the ties at the best along the edges of the front
+    (f1 = 0 or f2 = 0 there), and those edges, which bulge more than the centre, are not knees."""
+    rng = np.random.default_rng(5)
+    points = deb3dk(1, n=n)
+    points = points + rng.normal(0.0, 1e-3 * np.ptp(points, axis=0), size=points.shape)
+    front = make_front(points[moocore.is_nondominated(points)])
+    knees = find_knees(front).knees
+    assert len(knees) == 1
+    # the centre x1 = x2 = 0.5 is F = (2, 2, 2 sqrt 2) (reference notes 3.3, X); the grid of 21 steps
+    # by 0.05 in x, so the nearest design lies within about 0.3 of it
+    assert np.allclose(row_values(front, knees[0]), (2, 2, 2 * np.sqrt(2)), atol=0.35)

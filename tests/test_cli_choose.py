@@ -257,7 +257,10 @@ def test_pick_says_plainly_when_a_front_has_no_knee(tmp_path):
     picked = runner.invoke(main, ["pick", str(tmp_path / "front.csv"), "--method", "knee"])
     assert picked.exit_code == 0, picked.output
     assert "front has no knee" in picked.output
-    front = pd.read_csv(tmp_path / "front.csv")
+    # said before the first choice is shown, and the choice is the design the sentence offers
+    assert picked.output.index("front has no knee") < picked.output.index("Choice 1")
     first = picked.output.split("Choice 1: row ")[1].split()[0]
+    assert f"row {first}, the design closest to the ideal point" in picked.output
+    front = pd.read_csv(tmp_path / "front.csv")
     chosen = front.iloc[int(first) - 1][["f1", "f2", "f3"]].to_numpy(dtype=float)
     assert not np.allclose(np.sort(chosen), [0.0, 0.0, 6.5], atol=0.2)

@@ -12,6 +12,7 @@ import pandas as pd
 import pytest
 
 import tradewise
+from tradewise.case import Objective
 from tradewise.choose import (
     WEIGHTED_METHODS,
     NonConvexWarning,
@@ -20,7 +21,7 @@ from tradewise.choose import (
     knee_agreement,
 )
 from tradewise.errors import DataError
-from tradewise.front import read_front, tradeoff_rates
+from tradewise.front import Front, read_front, tradeoff_rates
 from tradewise.picker import SHORTLIST_COLUMNS, PickerState, load_picker_source, shortlist_front
 
 
@@ -401,3 +402,14 @@ def test_the_picker_imports_no_widgets_figures_or_faces():
     )
     out = subprocess.run([sys.executable, "-c", code], capture_output=True, text=True, check=True)
     assert out.stdout.strip() == "[]"
+
+
+def test_details_say_plainly_when_the_front_has_no_knee():
+    """On a concave front (f2 = 1 - f1^2, ZDT2's shape, Zitzler, Deb and Thiele 2000) the details
+    panel says the front has no knee, not that no design meets the limits."""
+    f1 = np.linspace(0, 1, 21)
+    table = pd.DataFrame({"cost": f1, "mass": 1 - f1**2})
+    state = PickerState(Front.from_table(table, [Objective("cost"), Objective("mass")]))
+    lines = state.describe()
+    assert "  knee methods: the front has no knee" in lines
+    assert not any("meets the limits" in line for line in lines)

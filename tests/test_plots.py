@@ -615,3 +615,25 @@ def test_bad_rows_and_empty_inputs_raise_data_errors():
         plots.plot_history(pd.DataFrame({"evaluations": [], "hypervolume": [], "front_size": []}))
     with pytest.raises(DataError, match="figure kind"):
         plots.plot_kind("pie", front)
+
+
+def test_auto_knee_is_marked_only_on_a_front_with_a_knee():
+    """With knee="auto" the ZDT1 front (convex, Zitzler, Deb and Thiele 2000) gets its knee marked and
+    the DTLZ2 quarter circle (bulges away from the ideal point, Deb et al. 2002) gets no mark at all:
+    the design closest to the ideal point that the knee method offers there is not a knee."""
+    from tradewise import choose
+
+    front = zdt1_front()
+    knee = choose.find_knees(front).knees[0]
+    texts = [t.get_text() for t in plots.plot_front(front).axes[0].get_legend().get_texts()]
+    assert f"knee (row {knee + 1})" in texts
+    curve = sphere_front(2)
+    assert not choose.find_knees(curve).has_knee
+    legends = [
+        plots.plot_front(curve, knee="auto").axes[0].get_legend(),
+        plots.plot_parallel(curve, highlight="auto").axes[0].get_legend(),
+    ]
+    for legend in legends:
+        assert not any("knee" in t.get_text() for t in legend.get_texts())
+    assert 'id="highlight-line' not in plots.to_svg(plots.plot_parallel(curve, highlight="auto"))
+    assert 'id="mark-1' not in plots.to_svg(plots.plot_front(curve, knee="auto"))

@@ -208,6 +208,23 @@ def test_report_and_plot_commands_on_a_run_folder(run_folder, tmp_path):
     assert result.exit_code == 2 and "--row" in result.output
 
 
+def test_a_front_without_a_knee_says_so_and_marks_none():
+    """A concave front (f2 = 1 - f1^2, ZDT2's shape, Zitzler, Deb and Thiele 2000) has no knee: the
+    page says so in words and neither a caption nor a card calls any design the knee; the ZDT1-shaped
+    front keeps its knee sentence and amber diamond."""
+    f1 = np.linspace(0, 1, 21)
+    table = pd.DataFrame({"cost": 100 + 900 * f1, "mass": 2 + 8 * (1 - f1**2)})
+    front = Front.from_table(table, [Objective("cost"), Objective("mass")], meta={"title": "Tray"})
+    assert not choose.find_knees(front).has_knee
+    picks = _section(build_report(front), "picks")
+    assert "This front has no knee" in picks
+    assert "no design is marked as a knee" in picks
+    assert "amber" not in picks and "Knee design" not in picks
+    with_knee = _section(build_report(small_front()), "picks")
+    assert "This front has no knee" not in with_knee
+    assert "The knee is the amber diamond" in with_knee and "drawn in amber" in with_knee
+
+
 # ------------------------------------------------------------------------------- shortlist and seeds
 def _facts(text: str) -> dict[str, str]:
     return dict(

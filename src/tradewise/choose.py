@@ -843,10 +843,15 @@ def find_knees(front: Front, *, limits: Iterable[Limit | str] = ()) -> KneeVerdi
     :func:`knee_distance`), (2) bulges more than its neighbours (its distance is
     the largest among its ``2 M`` nearest designs) and (3) is best in no
     objective: an extreme or a design on the edge of the front is a corner, not
-    a knee. A knee must also bulge most of all designs within
-    :data:`KNEE_SEPARATION` of it, and of knees closer than that only the
-    strongest is kept: one knee a region, however densely or noisily the
-    front is sampled. A front that is flat or bulges away from the ideal point has no
+    a knee (with three or more objectives, within :data:`KNEE_MARGIN` of the
+    best counts as the best, so noise does not turn an edge into knees). A knee
+    must also bulge most of all designs within :data:`KNEE_SEPARATION` of it,
+    and of knees closer than that only the strongest is kept: one knee a
+    region, however densely or noisily the front is sampled. The neighbourhood
+    is a share of the front's extent, not a count of designs, as in the knee
+    neighbourhoods of Zhang, Tian and Jin (2015, from memory), who also take
+    the bulge beyond the extreme plane as the knee measure; the bulge itself is
+    that of Das (1999, from memory). A front that is flat or bulges away from the ideal point has no
     knee; the design closest to the ideal point (Euclidean distance in
     normalised objectives, compromise programming) is offered instead.
 
@@ -896,7 +901,13 @@ def _knee_positions(scaled: np.ndarray) -> np.ndarray:
     distance = knee_distance(scaled)
     _, nearest = cKDTree(scaled).query(scaled, k=min(2 * m, n - 1) + 1)
     bulges = distance >= distance[nearest[:, 1:]].max(axis=1)
-    inside = (scaled > 1e-12).all(axis=1)  # best in no objective
+    # Best in no objective. With three or more objectives the front has edges (designs best in
+    # one objective that trade the others off), and noise breaks their ties at the best, so an
+    # edge turns into a thin band of designs; within KNEE_MARGIN of the best counts as the best
+    # there, by the same scale that the margin sets for a bulge that matters. A design near the
+    # best in every objective is a sharp corner toward the ideal point, which is a knee.
+    near = scaled <= (KNEE_MARGIN if m >= 3 else 1e-12)
+    inside = ~near.any(axis=1) | near.all(axis=1)
     knees = np.flatnonzero(bulges & inside & (distance >= KNEE_MARGIN))
     knees = knees[np.argsort(-distance[knees], kind="stable")]
     # One knee a region: a weaker local bulge within KNEE_SEPARATION of a stronger knee is the same

@@ -413,8 +413,9 @@ class PickerState:
             declared variables, its other columns); ``rates``: trade-off
             rates to its neighbours among the kept designs, as text; ``knees``:
             knee method to the row it finds; ``knee_agree``: the knee methods
-            that find this design; ``also``: the other methods whose first
-            choice it is.
+            that find this design; ``no_knee``: True when designs meet the
+            limits but the front has none that is a knee; ``also``: the other
+            methods whose first choice it is.
         """
         row = self.pick if row is None else self._check_row(row, "details")
         if row is None:
@@ -477,6 +478,7 @@ class PickerState:
             "rates": rates,
             "knees": knees,
             "knee_agree": [m for m, r in knees.items() if r == row],
+            "no_knee": bool(len(keep)) and not knees,
             "also": also,
         }
 
@@ -625,6 +627,8 @@ def knee_sentence(info: Mapping[str, Any]) -> str:
     """What the knee methods say about the design of ``info`` (a :meth:`PickerState.details` result)."""
     knees, agree = info["knees"], info["knee_agree"]
     if not knees:
+        if info.get("no_knee"):
+            return "knee methods: the front has no knee"
         return "knee methods: no design meets the limits"
     others = [f"{m} row {r + 1}" for m, r in knees.items() if m not in agree]
     if agree and not others:

@@ -710,6 +710,9 @@ def _picks(front: Front, marks: dict[str, Any]) -> dict[str, Any]:
         "few": len(front) < 3,
         "agree": agree,
         "disagree": disagree,
+        "knee": marks["knee"] is not None,
+        "no_knee": not (marks["knees"] or marks.get("error") or len(front) < 3),
+        "knee_margin": f"{_choose.KNEE_MARGIN:g}",
         "shape": _SHAPES.get(min(len(front.objectives), 4), ""),
         "heads": [_heading(front, o.name) for o in front.objectives],
         "rows": [
