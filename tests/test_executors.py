@@ -429,3 +429,37 @@ def test_make_executor_picks_from_the_options():
     assert isinstance(pool, ProcessPool) and pool.workers == 3
     with pytest.raises(TradewiseError, match="workers: got 0"):
         ProcessPool(0)
+
+
+def _reaped() -> int:
+    """The id of a process that has ended and been reaped."""
+    proc = subprocess.Popen([sys.executable, "-c", "pass"])
+    proc.wait()
+    return proc.pid
+
+
+@pytest.mark.parametrize("who", ["pool worker", "model process"])
+def test_a_watcher_whose_parent_is_already_gone_ends_its_process(who, tmp_path):
+    """A pool worker, or a model's process, whose run died before the worker had even started (so its
+    parent is already init) still ends: the parent's id is handed over, not read in the child."""
+    gone = _reaped()
+    if who == "pool worker":
+        code = (
+            "import time; from tradewise.executors import _watch_parent; "
+            f"_watch_parent({gone}); print('watching', flush=True); time.sleep(60)"
+        )
+        args = [sys.executable, "-c", code]
+    else:
+        model = tmp_path / "model.py"
+        model.write_text("def evaluate(d):\n    return {}\n", encoding="utf-8")
+        import tradewise._model_host as host
+
+        args = [sys.executable, host.__file__, str(model), "evaluate", "[]", str(gone)]
+    proc = subprocess.Popen(
+        args, stdin=subprocess.PIPE, stdout=subprocess.DEVNULL, start_new_session=True
+    )
+    try:
+        assert proc.wait(timeout=20) != 0
+    finally:
+        proc.kill()
+        proc.wait()

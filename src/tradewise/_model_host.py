@@ -1,7 +1,7 @@
 """Calling a Python model function on one design, in this process or in a separate one that can be killed.
 
 This module imports the standard library only, so that the separate process
-(started as ``python _model_host.py FILE FUNCTION REQUIRED``, without the
+(started as ``python _model_host.py FILE FUNCTION REQUIRED PARENT``, without the
 tradewise package and its pandas) is ready in a fraction of a second. It
 speaks JSON lines on its stdin and stdout: never pickle, so nothing it sends
 back can make the run execute code.
@@ -154,20 +154,23 @@ def _innermost_frame(exc: BaseException) -> str:
     return f" (at {Path(last.filename).name} line {last.lineno})"
 
 
-def serve(file: str, function_name: str, required: list[str]) -> None:
-    """The separate process: import the model, then answer one JSON line for each design sent."""
+def serve(file: str, function_name: str, required: list[str], parent: int) -> None:
+    """The separate process: import the model, then answer one JSON line for each design sent.
+
+    ``parent`` is the id of the process that started it, handed over by that
+    process (read here, it could already be init's if the run was killed
+    while this process started, and the watch below would never end).
+    """
     answers = os.fdopen(os.dup(1), "wb")
     os.dup2(2, 1)  # what the model prints must not mix with the answers
     sys.path.pop(0)  # this file's folder (the package) is no place to find the model's imports
-    parent = os.getppid()
 
     def watch() -> None:
         while os.getppid() == parent:
             time.sleep(0.5)
         if os.name == "posix":
-            os.killpg(
-                0, signal.SIGKILL
-            )  # the run is gone: end this process and what the model started
+            # The run is gone: end this process and what the model started.
+            os.killpg(0, signal.SIGKILL)
         os._exit(1)
 
     threading.Thread(target=watch, name="tradewise-host-watch", daemon=True).start()
@@ -187,4 +190,4 @@ def serve(file: str, function_name: str, required: list[str]) -> None:
 
 
 if __name__ == "__main__":
-    serve(sys.argv[1], sys.argv[2], json.loads(sys.argv[3]))
+    serve(sys.argv[1], sys.argv[2], json.loads(sys.argv[3]), int(sys.argv[4]))

@@ -465,11 +465,6 @@ def _array(state: dict[str, Any], key: str, where: str) -> np.ndarray:
 
 def _count(state: dict[str, Any], key: str, where: str) -> int:
     value = state.get(key)
-    if (
-        isinstance(value, bool)
-        or not isinstance(value, int)
-        or value < 0
-        or not math.isfinite(value)
-    ):
+    if isinstance(value, bool) or not isinstance(value, int) or value < 0:
         raise StoreError(f"{where}: the saved search state's {key} is not a count")
     return value

@@ -393,38 +393,6 @@ def check_command(case) -> None:
     click.echo(f"The case is valid and its model answered in {outcome.duration * 1000:.3g} ms.")
 
 
-#: Files a run folder holds as data; no command may write its --out over one of them.
-_RUN_DATA = frozenset(
-    {
-        "front.csv",
-        "front.json",
-        "history.csv",
-        "archive.sqlite",
-        "archive.sqlite-wal",
-        "archive.sqlite-shm",
-        "representatives.csv",
-        "least_infeasible.csv",
-        "least_infeasible.json",
-        "seeds.csv",
-        "attainment.csv",
-        "disagreement.csv",
-    }
-)
-
-
-def _is_run_folder(folder) -> bool:
-    """Whether ``folder`` was written by a run (its front.json names a case, or it holds a history or archive)."""
-    import json
-
-    if (folder / "history.csv").is_file() or (folder / "archive.sqlite").is_file():
-        return True
-    try:
-        meta = json.loads((folder / "front.json").read_text(encoding="utf-8"))
-    except (OSError, ValueError):
-        return False
-    return isinstance(meta, dict) and bool(meta.get("case_hash"))
-
-
 def _same_file(a, b) -> bool:
     import os
 
@@ -445,6 +413,7 @@ def _check_out(out, inputs=(), *, with_json: bool = False) -> None:
     from pathlib import Path
 
     from tradewise.errors import DataError
+    from tradewise.runfolder import DATA_FILES, is_run_folder
 
     if out is None:
         return
@@ -460,7 +429,7 @@ def _check_out(out, inputs=(), *, with_json: bool = False) -> None:
                     "it, choose another file"
                 )
         resolved = target.resolve()
-        if resolved.name in _RUN_DATA and _is_run_folder(resolved.parent):
+        if resolved.name in DATA_FILES and is_run_folder(resolved.parent):
             raise DataError(
                 f"--out: {target} is the {resolved.name} of the run folder {resolved.parent}, which "
                 "holds the run's data; choose another file name"
@@ -609,11 +578,13 @@ def _run_inputs(run) -> list:
     """The data files of a run folder and of its seeds (or the front CSV and its .json, for a file)."""
     from pathlib import Path
 
+    from tradewise.runfolder import DATA_FILES
+
     path = Path(run)
     if not path.is_dir():
         return _front_inputs(path)
     folders = [path, *sorted(p for p in (path / "seeds").glob("seed-*") if p.is_dir())]
-    return [folder / name for folder in folders for name in sorted(_RUN_DATA)]
+    return [folder / name for folder in folders for name in sorted(DATA_FILES)]
 
 
 @main.command("plot")
@@ -766,11 +737,11 @@ def _write_seeds(result, folder, store_path) -> None:
     """Write the folder of a set of seeds (merged front, each seed's folder, attainment) and summarise it."""
     from tradewise.runfolder import save_seeds, seed_attainment
 
-    written = save_seeds(result, folder)
+    spread = seed_attainment(result)
+    written = save_seeds(result, folder, spread=spread)
     _summary(result)
     for run, hv in zip(result.runs, result.hypervolumes, strict=True):
         click.echo(f"  seed {run.seed}: hypervolume {hv:.6g} on the common reference point")
-    spread = seed_attainment(result)
     for line in spread.lines() if spread is not None else ():
         click.echo(line)
     click.echo(

@@ -53,14 +53,15 @@ class InProcess:
         return f"{type(self).__name__}(workers={self.workers})"
 
 
-def _watch_parent() -> None:
-    """Pool worker initializer: end this worker soon after the process that started it is gone.
+def _watch_parent(parent: int) -> None:
+    """Pool worker initializer: end this worker soon after the process ``parent`` that started it is gone.
 
     A run killed with SIGKILL cannot stop its pool; without this its workers
     would wait forever for work, and a command-model program they run would
-    go on alone.
+    go on alone. The parent's id is handed over by the parent itself: read
+    here, it would already be init's when the run was killed while the
+    worker started, and the worker would then watch for ever.
     """
-    parent = os.getppid()
 
     def watch() -> None:
         while os.getppid() == parent:
@@ -138,7 +139,9 @@ class ProcessPool(InProcess):
 
     def _get_pool(self) -> cf.ProcessPoolExecutor:
         if self._pool is None:
-            self._pool = cf.ProcessPoolExecutor(max_workers=self.workers, initializer=_watch_parent)
+            self._pool = cf.ProcessPoolExecutor(
+                max_workers=self.workers, initializer=_watch_parent, initargs=(os.getpid(),)
+            )
         return self._pool
 
     def _drop_pool(self) -> None:
@@ -187,9 +190,8 @@ class ProcessPool(InProcess):
                 except cf.process.BrokenProcessPool:
                     lost.append(i)
                     continue
-                except (
-                    Exception
-                ) as exc:  # only a bug outside the model gets here; keep the run going
+                # Only a bug outside the model gets here; keep the run going.
+                except Exception as exc:
                     outcome = Outcome(
                         "failed",
                         {},
@@ -343,9 +345,8 @@ class DaskCluster(InProcess):
                             "each time it was tried (a crash, os._exit or running out of memory)",
                         ),
                     )
-                elif (
-                    tries[i] < 2
-                ):  # a lost connection, a cancelled task, an error outside the model
+                # A lost connection, a cancelled task, an error outside the model: once more.
+                elif tries[i] < 2:
                     tries[i] += 1
                     again = self._client.submit(model, designs[i], pure=False)
                     futures[again] = i

@@ -117,7 +117,14 @@ class _Host:
 
     def __init__(self, file: str, function: str, required: list[str], start_within: float) -> None:
         self.proc = subprocess.Popen(
-            [sys.executable, _host.__file__, file, function, json.dumps(required)],
+            [
+                sys.executable,
+                _host.__file__,
+                file,
+                function,
+                json.dumps(required),
+                str(os.getpid()),
+            ],
             stdin=subprocess.PIPE,
             stdout=subprocess.PIPE,
             **_NEW_GROUP,

@@ -168,9 +168,8 @@ def _title(fig: Figure, title: str | None) -> None:
 
 
 def _new_figure(size: tuple[float, float], figure: Figure | None = None) -> Figure:
-    if (
-        figure is not None
-    ):  # drawn anew on the caller's figure, which keeps its canvas and its callbacks
+    # Drawn anew on the caller's figure, which keeps its canvas and its callbacks.
+    if figure is not None:
         figure.clear()
         figure.set_layout_engine("constrained")
         if tuple(figure.get_size_inches()) != size:

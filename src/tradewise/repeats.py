@@ -17,10 +17,12 @@ from tradewise.case import Case, load_case
 from tradewise.errors import StoreError
 from tradewise.executors import make_executor
 from tradewise.front import Front, hypervolume, nondominated
-from tradewise.search import STATUS_TEXT, RunResult, _case_of_run
+from tradewise.search import STATUS_TEXT, RunResult, _case_of_run, _front_sentence
 from tradewise.store import open_store
 
 __all__ = ["SeedsResult", "run_seeds", "resume_seeds"]
+
+_COMMON_REFERENCE = "the worst, per objective, of the seeds' own reference points"
 
 
 @dataclass(frozen=True)
@@ -84,17 +86,19 @@ def _one_seed_of_set(
     case: Case,
     seed: int,
     store: str | Path | None,
-    workers: int | None,
     seed_set: dict[str, Any],
     run_id: int | None,
     evaluations: int | None,
+    **where: Any,
 ) -> RunResult:
-    """One run of a set of seeds, started or resumed, in a worker process (module level so that it pickles)."""
+    """One run of a set of seeds: resumed when it has a ``run_id``, else started.
+
+    ``where`` holds ``workers`` or ``executor`` and the callbacks. Module
+    level, so that a process pool can run it.
+    """
     if run_id is not None:
-        return search.resume(
-            store, run_id=run_id, evaluations=evaluations, case=case, workers=workers
-        )
-    return search.run(case, seed=seed, store=store, workers=workers, seed_set=seed_set)
+        return search.resume(store, run_id=run_id, evaluations=evaluations, case=case, **where)
+    return search.run(case, seed=seed, store=store, seed_set=seed_set, **where)
 
 
 def run_seeds(
@@ -209,29 +213,6 @@ def _run_seed_set(
     import concurrent.futures as cf
     import contextlib
 
-    def start(s: int, inner: int | None = None, executor=None, tagged=None):
-        if s in existing:
-            return search.resume(
-                store,
-                run_id=existing[s],
-                evaluations=evaluations,
-                case=case,
-                workers=inner,
-                executor=executor,
-                progress=tagged,
-                on_evaluation=on_evaluation,
-            )
-        return search.run(
-            case,
-            seed=s,
-            store=store,
-            workers=inner,
-            executor=executor,
-            progress=tagged,
-            on_evaluation=on_evaluation,
-            seed_set=seed_set,
-        )
-
     results: dict[int, RunResult] = {}
     interrupted = False
     parallel = bool(workers and workers > 1 and not (dask or scheduler) and len(seeds) > 1)
@@ -245,10 +226,10 @@ def _run_seed_set(
                 case,
                 s,
                 store,
-                inner if inner > 1 else None,
                 seed_set,
                 existing.get(s),
                 evaluations,
+                workers=inner if inner > 1 else None,
             ): s
             for s in seeds
         }
@@ -263,9 +244,8 @@ def _run_seed_set(
             for future, s in futures.items():
                 if future.cancel() or s in results:
                     continue
-                with contextlib.suppress(
-                    BaseException
-                ):  # a run that died on the interrupt has nothing to give
+                # A run that died on the interrupt has nothing to give.
+                with contextlib.suppress(BaseException):
                     results[s] = future.result()
         finally:
             pool.shutdown(wait=True, cancel_futures=True)
@@ -274,7 +254,17 @@ def _run_seed_set(
         try:
             for s in seeds:
                 tagged = (lambda row, s=s: progress({**row, "seed": s})) if progress else None
-                result = start(s, executor=executor, tagged=tagged)
+                result = _one_seed_of_set(
+                    case,
+                    s,
+                    store,
+                    seed_set,
+                    existing.get(s),
+                    evaluations,
+                    executor=executor,
+                    progress=tagged,
+                    on_evaluation=on_evaluation,
+                )
                 results[s] = result
                 if on_run:
                     on_run(result)
@@ -322,9 +312,9 @@ def resume_seeds(
             )
         existing: dict[int, int] = {}
         for other in archive.runs()["run_id"].tolist():
-            settings = archive.run(int(other))["settings"] or {}
-            if (settings.get("seed_set") or {}).get("id") == seed_set["id"]:
-                existing[int(archive.run(int(other))["seed"])] = int(other)
+            other_record = archive.run(int(other))
+            if ((other_record["settings"] or {}).get("seed_set") or {}).get("id") == seed_set["id"]:
+                existing[int(other_record["seed"])] = int(other)
     loaded = _case_of_run(path, record, case)
     settings = {
         k: v
@@ -379,11 +369,9 @@ def _history_on(run: RunResult, reference: np.ndarray) -> pd.DataFrame:
 
 def _on_common_reference(run: RunResult, reference: np.ndarray, hv: float) -> RunResult:
     """The run restated on the seeds' common reference point: its hypervolume, history and message."""
-    own = f"Front of {len(run.front)} designs, hypervolume {run.hypervolume:.6g}."
-    common = f"Front of {len(run.front)} designs, hypervolume {hv:.6g} on the seeds' common reference point."
-    meta = dict(run.meta) | {
-        "reference_source": "the worst, per objective, of the seeds' own reference points"
-    }
+    own = _front_sentence(len(run.front), run.hypervolume)
+    common = _front_sentence(len(run.front), hv, "on the seeds' common reference point")
+    meta = dict(run.meta) | {"reference_source": _COMMON_REFERENCE}
     front = replace(run.front, reference=tuple(float(v) for v in reference), meta=meta)
     return replace(
         run,
@@ -457,7 +445,7 @@ def _merge_repeats(
             "n_gen": sum(r.n_gen for r in runs),
             "n_failed": n_failed,
             "n_cached": sum(r.n_cached for r in runs),
-            "reference_source": "the worst, per objective, of the seeds' own reference points",
+            "reference_source": _COMMON_REFERENCE,
             "started": min(r.meta.get("started", math.inf) for r in runs),
             "finished": max(r.meta.get("finished", -math.inf) for r in runs),
         }

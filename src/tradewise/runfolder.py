@@ -31,7 +31,39 @@ __all__ = [
     "read_seeds",
     "shortlist_front",
     "SHORTLIST_COLUMNS",
+    "DATA_FILES",
+    "is_run_folder",
 ]
+
+#: Files a run folder holds as data; no command may write its --out over one of them.
+DATA_FILES = frozenset(
+    {
+        "front.csv",
+        "front.json",
+        "history.csv",
+        "archive.sqlite",
+        "archive.sqlite-wal",
+        "archive.sqlite-shm",
+        "representatives.csv",
+        "least_infeasible.csv",
+        "least_infeasible.json",
+        "seeds.csv",
+        "attainment.csv",
+        "disagreement.csv",
+    }
+)
+
+
+def is_run_folder(folder: Path) -> bool:
+    """Whether ``folder`` was written by a run (its front.json names a case, or it holds a history or archive)."""
+    if (folder / "history.csv").is_file() or (folder / "archive.sqlite").is_file():
+        return True
+    try:
+        meta = json.loads((folder / "front.json").read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return False
+    return isinstance(meta, dict) and bool(meta.get("case_hash"))
+
 
 #: The columns a shortlist file adds before the design's own.
 SHORTLIST_COLUMNS = ("pick_order", "front_row")
@@ -75,14 +107,15 @@ def save_run(result: Any, folder: str | Path) -> dict[str, Path]:
     return written
 
 
-def save_seeds(result: Any, folder: str | Path) -> dict[str, Path]:
+def save_seeds(result: Any, folder: str | Path, *, spread: Any = None) -> dict[str, Path]:
     """Write a run folder for several seeds.
 
     The merged front goes where a single run's would (``front.csv``,
     ``front.json``, ``history.csv`` with a ``seed`` column), each seed's own
     run folder to ``seeds/seed-N/``, and ``seeds.csv`` holds one row a seed:
     its status, evaluations, generations, failures, front size and
-    hypervolume on the common reference point.
+    hypervolume on the common reference point. ``spread`` is the set's
+    :func:`seed_attainment` when the caller has already worked it out.
     """
     folder = Path(folder)
     written = save_run(result, folder)
@@ -104,7 +137,7 @@ def save_seeds(result: Any, folder: str | Path) -> dict[str, Path]:
     path = folder / "seeds.csv"
     pd.DataFrame(rows).to_csv(path, index=False)
     written["seeds"] = path
-    spread = seed_attainment(result)
+    spread = spread if spread is not None else seed_attainment(result)
     if spread is not None:
         written.update(write_attainment(spread, folder))
     return written

@@ -46,12 +46,10 @@ STATUS_TEXT = {
     "interrupted": "the run was interrupted",
 }
 
-_FAILED_PENALTY = (
-    1e6  # violation given to a failed evaluation: always worse than any real violation
-)
-_FAILED_OBJECTIVE = (
-    1e30  # objective values given to a failed design when the case has no constraints
-)
+# The violation given to a failed evaluation: always worse than any real violation.
+_FAILED_PENALTY = 1e6
+# The objective values given to a failed design when the case has no constraints.
+_FAILED_OBJECTIVE = 1e30
 _EXHAUSTED_AFTER = 25  # generations in a row without a new design before giving up
 # The front has settled after a generation when it gained less than _SETTLE_GAIN of its hypervolume
 # (on its own scale) over the last _SETTLE_WINDOW generations; mutation is finest after _SETTLE_SPAN such.
@@ -181,6 +179,7 @@ class _Run:
             maxlen=max(case.search.stall_generations, _SETTLE_WINDOW) + 1
         )
         self.settled = 0  # generations so far after which the front had settled (see _refinement)
+        self._gains: dict[int, float] = {}  # front_gain by window, for the latest snapshot
         self.next_id = 1
         # Designs this run evaluated after its last saved state, by key; a resumed search takes
         # each over when it proposes it again instead of evaluating it twice.
@@ -288,6 +287,7 @@ class _Run:
     def snapshot(self) -> None:
         """Keep the front as it stands after a generation."""
         self.snapshots.append(self.front_pts)
+        self._gains.clear()
 
     def front_gain(self, window: int) -> float:
         """How much the front gained over the last ``window`` generations, judged on its own scale.
@@ -301,6 +301,11 @@ class _Run:
         three objectives; with four or more, fronts above 2,000 designs are
         thinned evenly first (an approximation, for speed).
         """
+        if window not in self._gains:
+            self._gains[window] = self._gain(window)
+        return self._gains[window]
+
+    def _gain(self, window: int) -> float:
         if window <= 0 or len(self.snapshots) <= window:
             return math.inf
         new, old = self.snapshots[-1], self.snapshots[-1 - window]
@@ -428,7 +433,7 @@ def run(
                 case_title=case.title,
                 case_path=str(case.path.resolve()),
                 case_text=case.text,
-                settings=case.search.as_dict() | ({"seed_set": seed_set} if seed_set else {}),
+                settings=_recorded_settings(case, seed_set),
                 seed=case.search.seed,
                 versions=_versions(),
             )
@@ -510,7 +515,7 @@ def resume(
             run_id,
             status="running",
             message="resumed",
-            settings=case.search.as_dict() | ({"seed_set": seed_set} if seed_set else {}),
+            settings=_recorded_settings(case, seed_set),
         )
         own_executor = executor is None
         executor = executor or make_executor(workers, dask=dask, scheduler=scheduler)
@@ -528,6 +533,11 @@ def resume(
                 executor.close()
     finally:
         archive.close()
+
+
+def _recorded_settings(case: Case, seed_set: dict[str, Any] | None) -> dict[str, Any]:
+    """The search settings recorded with a run, with the set of seeds it belongs to, if any."""
+    return case.search.as_dict() | ({"seed_set": seed_set} if seed_set else {})
 
 
 def _case_of_run(path: Path, record: dict[str, Any], case: Case | str | Path | None) -> Case:
@@ -969,7 +979,7 @@ def _finish(run: _Run, status: str, algorithm_name: str, started: float) -> RunR
     if run.n_failed:
         parts.append(f"{run.n_failed} evaluation(s) failed (first: {run.first_failure}).")
     if len(front):
-        parts.append(f"Front of {len(front)} designs, hypervolume {hv:.6g}.")
+        parts.append(_front_sentence(len(front), hv))
     else:
         ok = records[records["status"] == "ok"] if len(records) else records
         parts.append(
@@ -1008,6 +1018,11 @@ def _finish(run: _Run, status: str, algorithm_name: str, started: float) -> RunR
         least_infeasible=least,
         meta=meta,
     )
+
+
+def _front_sentence(n_designs: int, hv: float, on: str = "") -> str:
+    """The sentence of a run's message about its front (``on`` names another reference point)."""
+    return f"Front of {n_designs} designs, hypervolume {hv:.6g}{' ' + on if on else ''}."
 
 
 def _violation_summary(case: Case, ok: pd.DataFrame) -> str:

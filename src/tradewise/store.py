@@ -44,9 +44,8 @@ SCHEMA_VERSION = 1
 # them at most 0.4 s later (COMMIT_EVERY in the writer program): together well within a second.
 _HAND_OVER_EVERY = 0.1
 _TICK = 0.05
-_ID_BLOCK = (
-    4096  # evaluation ids reserved at a time; the next block is asked for half a block ahead
-)
+# Evaluation ids reserved at a time; the next block is asked for half a block ahead.
+_ID_BLOCK = 4096
 # How long "this case has no evaluations from other runs" is trusted before asking the file again.
 _OTHERS_TTL = 1.0
 _SQLITE_HEADER = b"SQLite format 3\x00"
@@ -294,9 +293,8 @@ class Store:
         self._rows_since = 0.0
         self._commit_wanted = False
         self._link: _ProcessLink | _LocalLink | None = None
-        self._proven = (
-            True  # the writer has answered (set False while a new writer process is untried)
-        )
+        # The writer has answered (set False while a new writer process is untried).
+        self._proven = True
         self._next_id, self._last_id = 1, 0
         self._ids_asked = False  # a block of ids was asked of the writer and not yet taken
         self._others: dict[
