@@ -232,21 +232,8 @@ def test_words_an_engineer_writes_get_the_right_suggestion(make_case, field, wri
     """`type = "float"` suggests real (not flag, which is merely spelt alike), `goal = "minimise"` min."""
     from tradewise.errors import CaseError
 
-    toml = GOOD_TOML_FOR_WORDS.replace(
+    toml = GOOD_TOML.replace(
         f'{field} = "{"real" if field == "type" else "min"}"', f'{field} = "{written}"', 1
     )
     with pytest.raises(CaseError, match=rf"did you mean '{meant}'\?"):
         load_case(make_case(toml))
-
-
-GOOD_TOML_FOR_WORDS = """
-title = "tiny"
-model = "model.py:evaluate"
-
-[variables]
-x = { type = "real", low = 0.0, high = 1.0 }
-
-[objectives]
-cost = { goal = "min", unit = "EUR" }
-mass = { goal = "min", unit = "kg" }
-"""
