@@ -155,7 +155,7 @@ def fingerprints() -> dict[str, str]:
         )
         if surfaces is not None:
             prints[f"{name}/attainment.svg"] = _sha(
-                _svg(plot_attainment(surfaces, front.objectives, title=front.meta.get("title")))
+                _svg(plot_attainment(surfaces, front.objectives, title=front.info.title))
             )
         listed = (
             read_front(folder / "shortlist.csv") if (folder / "shortlist.csv").is_file() else None

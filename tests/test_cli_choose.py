@@ -185,7 +185,7 @@ def test_pick_plain_csv_with_limits_weights_and_shortlist(table, tmp_path):
     # max(0.133, 0.086) = 0.133, (20,30) -> max(0.356, 0.029) = 0.356: 15 k$ then 12 k$.
     assert shortlist.table["cost"].tolist() == [15, 12]
     assert shortlist.table["pick_order"].tolist() == [1, 2]
-    assert shortlist.meta["shortlist"]["method"] == "asf"
+    assert shortlist.info.shortlist["method"] == "asf"
 
 
 def test_pick_weighted_sum_notes_unreachable_designs(tmp_path):

@@ -34,11 +34,11 @@ REFERENCE_SET = [[1.0, 3.0], [2.0, 2.0], [3.0, 1.0]]
 APPROXIMATION = [[1.5, 3.0], [3.0, 1.5]]
 
 
-def _front(points, *, goals=("min", "min"), reference=None, meta=None) -> Front:
+def _front(points, *, goals=("min", "min"), reference=None, info=None) -> Front:
     names = [f"f{i + 1}" for i in range(len(goals))]
     table = pd.DataFrame(np.asarray(points, dtype=float), columns=names)
     objectives = [Objective(n, g) for n, g in zip(names, goals, strict=True)]
-    return Front.from_table(table, objectives, reference=reference, meta=meta)
+    return Front.from_table(table, objectives, reference=reference, info=info)
 
 
 # ------------------------------------------------------------------------------- indicators

@@ -233,10 +233,7 @@ def test_the_shortlist_export_round_trips(run, tmp_path):
     assert {k: back.units[k] for k in front.objective_names} == {
         o.name: o.unit for o in front.objectives
     }
-    assert (
-        back.meta["case_hash"] == front.meta["case_hash"]
-        and back.meta["seed"] == front.meta["seed"]
-    )
+    assert back.info.case_hash == front.info.case_hash and back.info.seed == front.info.seed
     settings = json.loads(json_path.read_text())["shortlist"]
     assert settings["rows"] == [r + 1 for r in rows]
     assert settings["method"] == "asf" and settings["weights"]["resistance"] == 4
@@ -312,11 +309,11 @@ def test_shortlist_front_numbers_the_rows_in_pick_order(zdt1, tmp_path):
         picked.table.drop(columns=list(SHORTLIST_COLUMNS)),
         zdt1.table.iloc[rows].reset_index(drop=True),
     )
-    assert picked.meta["shortlist"] == {"method": "knee", "limits": ["cost <= 50"]}
+    assert picked.info.shortlist == {"method": "knee", "limits": ["cost <= 50"]}
     assert picked.objectives == zdt1.objectives and picked.units == zdt1.units
     back = read_front(picked.to_csv(tmp_path / "picked.csv")[0])
     assert back.table["front_row"].tolist() == [6, 3, 10]
-    assert back.meta["shortlist"]["limits"] == ["cost <= 50"]
+    assert back.info.shortlist["limits"] == ["cost <= 50"]
 
 
 def test_shortlist_front_refuses_what_it_cannot_write(zdt1):

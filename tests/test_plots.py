@@ -14,10 +14,11 @@ import pandas as pd
 import pytest
 from PIL import Image
 
-from tradewise import plots
+from tradewise import compare, plots
 from tradewise.case import Objective
 from tradewise.errors import DataError
 from tradewise.front import Front
+from tradewise.runinfo import LimitSpec, RunInfo
 
 SVG = "{http://www.w3.org/2000/svg}"
 XLINK_HREF = "{http://www.w3.org/1999/xlink}href"
@@ -44,7 +45,7 @@ def zdt1_front(n: int = 31) -> Front:
         [Objective("mass", "min", "g"), Objective("cost", "min", "EUR")],
         variables=["width", "grade"],
         units={"width": "mm"},
-        meta=meta,
+        info=RunInfo.from_json(meta, "test"),
     )
 
 
@@ -233,7 +234,7 @@ def test_feasibility_comes_from_status_and_constraint_limits_without_a_feasible_
         table=front.table,
         objectives=front.objectives,
         units=front.units,
-        meta={"constraint_limits": [{"name": "gap", "min": 2.0, "max": None}]},
+        info=RunInfo(constraint_limits=(LimitSpec("gap", min=2.0),)),
     )
     tree = svg_tree(
         plots.plot_front(front, evaluations=evaluations, knee=None, rasterize_cloud=False)
@@ -339,8 +340,10 @@ def test_attainment_staircases_match_brute_force_counting(goals):
         moocore.generate_ndset(8, 2, "sphere", seed=int(s)) * (1 + 0.15 * k) * signs
         for k, s in enumerate(rng.integers(0, 1000, 4))
     ]
-    surfaces = plots.attainment(runs, objectives)
-    fig = plots.plot_attainment(surfaces, objectives, runs=runs)
+    surfaces = compare.attainment_surfaces(runs, [g == "max" for g in goals])
+    fig = plots.plot_attainment(
+        surfaces, objectives, runs=runs, levels={"best": 1, "median": 2, "worst": 4}, n_runs=4
+    )
     ax = fig.axes[0]
     lines = {line.get_gid(): line.get_xydata() for line in ax.lines}
     needed = {"attainment-best": 1, "attainment-median": 2, "attainment-worst": 4}
@@ -413,7 +416,8 @@ def test_attainment_median_of_five_runs_is_named_by_the_runs_that_reach_it():
         moocore.generate_ndset(7, 2, "sphere", seed=s) * (1 + 0.1 * k)
         for k, s in enumerate(range(5))
     ]
-    fig = plots.plot_attainment(plots.attainment(runs, objectives), objectives)
+    fronts = [Front.from_table(pd.DataFrame(r, columns=["cost", "mass"]), objectives) for r in runs]
+    fig = plots.plot_attainment(compare.attainment(fronts).table(), objectives)
     ax = fig.axes[0]
     median = next(line.get_xydata() for line in ax.lines if line.get_gid() == "attainment-median")
     signs = np.ones(2)
@@ -426,13 +430,12 @@ def test_attainment_median_of_five_runs_is_named_by_the_runs_that_reach_it():
     ]
 
 
-def test_attainment_refuses_three_objectives_and_single_runs():
-    """Three objectives or one run are refused with a DataError naming the problem."""
-    two = [Objective("a"), Objective("b")]
-    with pytest.raises(DataError, match="at least two runs"):
-        plots.attainment([np.ones((3, 2))], two)
+def test_attainment_figure_refuses_three_objectives():
+    """Three objectives are refused with a DataError naming the problem (the figure is a plane)."""
+    three = [Objective("a"), Objective("b"), Objective("c")]
+    surfaces = compare.attainment_surfaces([np.ones((3, 3))] * 2)
     with pytest.raises(DataError, match="two objectives"):
-        plots.attainment([np.ones((3, 3))] * 2, two + [Objective("c")])
+        plots.plot_attainment(surfaces, three)
 
 
 def test_shortlist_rings_sit_on_the_chosen_designs_and_carry_their_pick_numbers():

@@ -115,8 +115,8 @@ def test_run_folder_for_several_seeds(tmp_path):
     assert seeds["seed"].tolist() == [1, 2, 3]
     assert seeds["hypervolume"].tolist() == pytest.approx(list(result.hypervolumes))
     merged = read_front(run)
-    assert len(merged) == len(result.front) and merged.meta["seeds"] == [1, 2, 3]
-    assert merged.meta["hypervolume_median"] == pytest.approx(result.spread["median"])
+    assert len(merged) == len(result.front) and merged.info.seeds.seeds == (1, 2, 3)
+    assert merged.info.seeds.median == pytest.approx(result.spread["median"])
     per_seed = read_seed_fronts(run)
     assert [len(f) for f in per_seed] == [len(r.front) for r in result.runs]
     history = pd.read_csv(run / "history.csv")
@@ -259,7 +259,7 @@ def test_an_interrupted_set_of_seeds_resumes_every_seed(make_case, tmp_path):
 
     cut = tradewise.run_seeds(folder, 3, store=tmp_path / "cut.sqlite", progress=stop_in_seed_five)
     assert cut.status == "interrupted" and cut.seeds == (4, 5)
-    assert "Seed(s) 6 did not run" in cut.message and cut.meta["missing_seeds"] == [6]
+    assert "Seed(s) 6 did not run" in cut.message and cut.info.seeds.missing == (6,)
     resumed = tradewise.resume_seeds(tmp_path / "cut.sqlite")
     whole = tradewise.run_seeds(folder, 3, store=tmp_path / "whole.sqlite")
     assert resumed.seeds == whole.seeds == (4, 5, 6)

@@ -31,6 +31,7 @@ from tradewise.cli import main
 from tradewise.errors import DataError
 from tradewise.front import Front, read_front
 from tradewise.report import build_report, safety_domains, write_report
+from tradewise.runinfo import RunInfo
 
 HOSTILE_TITLE = 'Fan <script>window.__pwned = 1</script> & "cooler" test'
 
@@ -86,7 +87,7 @@ def small_front(meta: dict | None = None) -> Front:
         variables=["t"],
         units={"t": "mm"},
         reference=(1100.0, 11.0),
-        meta=base,
+        info=RunInfo.from_json(base, "test"),
     )
 
 
@@ -214,7 +215,9 @@ def test_a_front_without_a_knee_says_so_and_marks_none():
     front keeps its knee sentence and amber diamond."""
     f1 = np.linspace(0, 1, 21)
     table = pd.DataFrame({"cost": 100 + 900 * f1, "mass": 2 + 8 * (1 - f1**2)})
-    front = Front.from_table(table, [Objective("cost"), Objective("mass")], meta={"title": "Tray"})
+    front = Front.from_table(
+        table, [Objective("cost"), Objective("mass")], info=RunInfo(title="Tray")
+    )
     assert not choose.find_knees(front).has_knee
     picks = _section(build_report(front), "picks")
     assert "This front has no knee" in picks
@@ -261,7 +264,7 @@ def test_shortlist_page_keeps_the_whole_front_and_lists_the_designs_in_pick_orde
     }
     shortlist = Front(table=table.reset_index(drop=True), objectives=front.objectives, units=front.units,
                       variables=front.variables, reference=front.reference,
-                      meta={**front.meta, "shortlist": settings})  # fmt: skip
+                      info=front.info.but(shortlist=settings))  # fmt: skip
     shortlist.to_csv(tmp_path / "short.csv")
     result = CliRunner().invoke(
         main, ["report", str(run_folder), "--shortlist", str(tmp_path / "short.csv"),
@@ -636,7 +639,7 @@ def test_page_prints_to_a_tidy_pdf(browser, tmp_path):
     front = Front.from_table(
         table,
         [Objective("cost", "min", "EUR"), Objective("mass", "min", "kg")],
-        meta={"title": "Print"},
+        info=RunInfo(title="Print"),
     )
     page = tmp_path / "review.html"
     page.write_text(build_report(front), encoding="utf-8")
@@ -688,9 +691,9 @@ def test_every_text_from_the_case_and_the_tables_is_escaped_on_the_page():
     front = small_front(meta)
     table = front.table.assign(note=[f"n{k}{MARK}" for k in range(len(front))])
     front = Front(table=table, objectives=front.objectives, units={**front.units, "t": MARK},
-                  variables=front.variables, reference=front.reference, meta=front.meta)  # fmt: skip
+                  variables=front.variables, reference=front.reference, info=front.info)  # fmt: skip
     shortlist = Front(table=table.iloc[[3]], objectives=front.objectives, units=front.units,
-                      meta={"shortlist": {"method": MARK, "limits": [MARK]}})  # fmt: skip
+                      info=RunInfo(shortlist={"method": MARK, "limits": [MARK]}))  # fmt: skip
     seeds = pd.DataFrame({"seed": [1, 2], "status": [MARK, "done"], "hypervolume": [1.0, 2.0]})
     text = build_report(front, shortlist=shortlist, seeds=seeds)
     assert "<i>" not in text and "&lt;i&gt;&#34;" not in text

@@ -3,6 +3,7 @@
 from tradewise.case import Case, Constraint, Objective, SearchSettings, Variable, load_case
 from tradewise.errors import CaseError, DataError, ModelError, StoreError, TradewiseError
 from tradewise.front import Front, hypervolume, nondominated, read_front
+from tradewise.runinfo import RunInfo
 
 __version__ = "0.1.0"
 
@@ -43,6 +44,7 @@ __all__ = [
     "RunResult",
     "SeedsResult",
     "Front",
+    "RunInfo",
     "read_front",
     "hypervolume",
     "nondominated",

@@ -480,7 +480,7 @@ def front_command(table, minimise, maximise, keep, out) -> None:
 
     _check_out(out, [table], with_json=True)
     front = front_from_csv(table, minimise=minimise, maximise=maximise, keep=keep or None)
-    summary = f"{len(front)} of {front.meta['n_rows']} rows are on the front"
+    summary = f"{len(front)} of {front.info.n_rows} rows are on the front"
     if out:
         written = front.to_csv(out)
         click.echo(f"{summary}; wrote {written[0]} and {written[1].name}")
@@ -632,7 +632,7 @@ def plot_command(run, kind, out, row, variables) -> None:
                 f"{run}: has no attainment.csv and no seeds/ folder; attainment surfaces come "
                 "from several seeds, made with `tradewise run CASE --seeds K`"
             )
-        fig = plot_attainment(surfaces, front.objectives, title=front.meta.get("title"))
+        fig = plot_attainment(surfaces, front.objectives, title=front.info.title)
     else:
         fig = plot_kind(
             kind,

@@ -528,7 +528,7 @@ def compare_fronts(
     Parameters
     ----------
     fronts : mapping of str to Front
-        The fronts, by the label to show. Each front's ``meta`` may carry
+        The fronts, by the label to show. Each front's ``info`` may carry
         ``n_evals`` and ``n_failed`` (a run's front does).
     reference_set : Front or array, optional
         The set IGD+ and epsilon measure against (for example a known true
@@ -605,8 +605,8 @@ def compare_fronts(
     spreads: dict[str, list[float]] = {}
     for label, front in zip(labels, items, strict=True):
         hv, igd, eps = score(front)
-        n_evals = front.meta.get("n_evals")
-        n_failed = front.meta.get("n_failed")
+        n_evals = front.info.n_evals
+        n_failed = front.info.n_failed
         failed = (n_failed / n_evals) if n_evals and n_failed is not None else math.nan
         row = {
             "run": label,

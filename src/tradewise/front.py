@@ -24,17 +24,16 @@ import pandas as pd
 from tradewise._plain import write_json
 from tradewise.case import Objective
 from tradewise.errors import DataError, quote, undecodable
+from tradewise.runinfo import FRONT_FORMAT, RunInfo, check_format, check_front_keys
 
 __all__ = [
     "Front",
-    "FRONT_FORMAT",
     "nondominated",
     "hypervolume",
     "hv_contributions",
     "reference_point",
     "hypervolume_problem",
     "read_front",
-    "check_front_meta",
     "column_header",
     "objective_matrix",
     "read_table",
@@ -42,7 +41,6 @@ __all__ = [
     "tradeoff_rates",
 ]
 
-FRONT_FORMAT = "tradewise-front/1"
 _HEADER = re.compile(r"^(?P<name>.*?) \[(?P<unit>[^\[\]]*)\]$")
 
 
@@ -287,8 +285,9 @@ class Front:
 
     ``table`` holds one row a design, with user names as column names
     (variables, objectives, constraints, outputs) and tradewise's own columns
-    such as ``eval_id``. ``meta`` holds the run's provenance (title, seed,
-    settings, versions, case hash) when it came from a run.
+    such as ``eval_id``. ``info`` (a :class:`tradewise.runinfo.RunInfo`) holds
+    the run's provenance (title, seed, settings, versions, case hash) when it
+    came from a run.
 
     Examples
     --------
@@ -305,7 +304,7 @@ class Front:
     variables: tuple[str, ...] = ()
     constraints: tuple[str, ...] = ()
     reference: tuple[float, ...] | None = None
-    meta: dict[str, Any] = field(default_factory=dict)
+    info: RunInfo = field(default_factory=RunInfo)
 
     @classmethod
     def from_table(
@@ -317,7 +316,7 @@ class Front:
         variables: Sequence[str] = (),
         constraints: Sequence[str] = (),
         reference: Sequence[float] | None = None,
-        meta: dict[str, Any] | None = None,
+        info: RunInfo | None = None,
         where: str = "table",
     ) -> Front:
         """Keep the non-dominated rows of ``table`` under ``objectives`` (every other column is kept)."""
@@ -343,7 +342,7 @@ class Front:
             variables=tuple(variables),
             constraints=tuple(constraints),
             reference=tuple(float(r) for r in reference) if reference is not None else None,
-            meta=dict(meta or {}),
+            info=info if info is not None else RunInfo(),
         )
 
     def __len__(self) -> int:
@@ -390,7 +389,7 @@ class Front:
     # ------------------------------------------------------------------ files
     def metadata(self) -> dict[str, Any]:
         """The JSON-ready description written beside the CSV."""
-        meta = dict(self.meta)
+        meta = self.info.to_json()
         meta.update(
             {
                 "format": FRONT_FORMAT,
@@ -449,11 +448,9 @@ def read_front(path: str | Path) -> Front:
         meta = json.loads(meta_path.read_text(encoding="utf-8"))
     except (OSError, ValueError) as exc:
         raise DataError(f"{meta_path}: not readable JSON ({exc})") from None
-    if not isinstance(meta, dict) or meta.get("format") != FRONT_FORMAT:
-        raise DataError(
-            f"{meta_path}: not a tradewise front description (format {FRONT_FORMAT!r} expected)"
-        )
-    check_front_meta(meta, meta_path)
+    check_format(meta, meta_path)
+    check_front_keys(meta, meta_path)
+    info = RunInfo.from_json(meta, meta_path)
     try:
         table = pd.read_csv(path)
     except (OSError, ValueError) as exc:
@@ -465,11 +462,6 @@ def read_front(path: str | Path) -> Front:
     )
     objective_matrix(table, objectives, where=str(path), source=path)
     reference = meta.get("reference_point")
-    known = {
-        k: meta[k]
-        for k in meta
-        if k not in {"objectives", "variables", "constraints", "units", "reference_point"}
-    }
     return Front(
         table=table,
         objectives=objectives,
@@ -477,193 +469,8 @@ def read_front(path: str | Path) -> Front:
         variables=tuple(meta.get("variables") or []),
         constraints=tuple(meta.get("constraints") or []),
         reference=tuple(float(r) for r in reference) if reference is not None else None,
-        meta=known,
+        info=info,
     )
-
-
-# What each key of front.json may hold, as data: one check, one shape of message. None (null) is
-# allowed for every key but objectives and format. Keys not listed are kept unchecked.
-_TEXT, _COUNT, _NUMBER, _FLAG, _TABLE = (
-    "text",
-    "a whole number",
-    "a number",
-    "true or false",
-    "a JSON object",
-)
-_META_KINDS: dict[str, str] = {
-    **dict.fromkeys(
-        (
-            "title",
-            "description",
-            "cautions",
-            "case_file",
-            "case_hash",
-            "algorithm",
-            "status",
-            "stop_reason",
-            "message",
-            "reference_source",
-            "store",
-            "source",
-            "seed_column",
-        ),
-        _TEXT,
-    ),
-    **dict.fromkeys(
-        (
-            "seed",
-            "n_evals",
-            "n_gen",
-            "n_failed",
-            "n_cached",
-            "n_seeds",
-            "run_id",
-            "n_designs",
-            "n_rows",
-        ),
-        _COUNT,
-    ),
-    **dict.fromkeys(
-        (
-            "hypervolume",
-            "started",
-            "finished",
-            "hypervolume_median",
-            "hypervolume_min",
-            "hypervolume_max",
-        ),
-        _NUMBER,
-    ),
-    "feasible": _FLAG,
-    **dict.fromkeys(("settings", "versions", "descriptions", "shortlist"), _TABLE),
-}
-_META_LISTS = {  # key: what each item must be
-    "variables": _TEXT,
-    "constraints": _TEXT,
-    "seeds": _COUNT,
-    "seed_hypervolumes": _NUMBER,
-    "design_space": _TABLE,
-    "constraint_limits": _TABLE,
-}
-_ITEM_KINDS = {  # keys of the objects inside lists and objects
-    "objectives": {"name": _TEXT, "goal": _TEXT, "unit": _TEXT, "worst": _NUMBER},
-    "design_space": {"name": _TEXT, "type": _TEXT, "low": _NUMBER, "high": _NUMBER, "unit": _TEXT},
-    "constraint_limits": {"name": _TEXT, "min": _NUMBER, "max": _NUMBER, "unit": _TEXT},
-    "settings": {
-        "population": _COUNT,
-        "evaluations": _COUNT,
-        "generations": _COUNT,
-        "seed": _COUNT,
-        "stall_generations": _COUNT,
-        "time_limit": _NUMBER,
-        "stall_tolerance": _NUMBER,
-    },
-}
-
-
-def _is(value: Any, kind: str) -> bool:
-    if kind == _TEXT:
-        return isinstance(value, str)
-    if kind == _FLAG:
-        return isinstance(value, bool)
-    if kind == _TABLE:
-        return isinstance(value, dict)
-    if isinstance(value, bool):
-        return False
-    if kind == _COUNT:
-        return isinstance(value, int)
-    return isinstance(value, int | float)
-
-
-def _kind_of(value: Any) -> str:
-    names = {
-        str: "text",
-        bool: "true/false",
-        int: "a number",
-        float: "a number",
-        list: "a list",
-        dict: "a JSON object",
-        type(None): "null",
-    }
-    return f"{names.get(type(value), type(value).__name__)} {quote(value, 40)}"
-
-
-def check_front_meta(meta: dict[str, Any], where: str | Path) -> None:
-    """Check the shape of a front description (front.json) once, where it is read.
-
-    Raises
-    ------
-    DataError
-        Naming the file and the key (``objectives[1].goal``, ``units.mass``)
-        whose value has the wrong type, with what it holds and what is allowed.
-    """
-
-    def bad(key: str, value: Any, allowed: str) -> DataError:
-        return DataError(f"{where}: key {key!r} must be {allowed}, got {_kind_of(value)}")
-
-    def check_item(key: str, item: Any, kinds: dict[str, str]) -> None:
-        for name, kind in kinds.items():
-            value = item.get(name)
-            if value is not None and not _is(value, kind):
-                raise bad(f"{key}.{name}", value, kind)
-
-    objectives = meta.get("objectives")
-    if not isinstance(objectives, list):
-        raise bad("objectives", objectives, "a list of objects with a name and a goal")
-    if len(objectives) < 2:
-        raise DataError(
-            f"{where}: lists {len(objectives)} objective(s); a front needs at least two"
-        )
-    for i, item in enumerate(objectives):
-        key = f"objectives[{i}]"
-        if not isinstance(item, dict):
-            raise bad(key, item, "an object with a name and a goal")
-        if not isinstance(item.get("name"), str) or not item["name"]:
-            raise bad(f"{key}.name", item.get("name"), "the objective's name as text")
-        if item.get("goal", "min") not in ("min", "max"):
-            raise bad(f"{key}.goal", item.get("goal"), "'min' or 'max'")
-        check_item(key, item, _ITEM_KINDS["objectives"])
-        if item.get("worst") is not None and not math.isfinite(item["worst"]):
-            raise bad(f"{key}.worst", item["worst"], "a finite number or null")
-    for key, kind in _META_KINDS.items():
-        value = meta.get(key)
-        if value is not None and not _is(value, kind):
-            raise bad(key, value, kind)
-    for key, kind in _META_LISTS.items():
-        value = meta.get(key)
-        if value is None:
-            continue
-        if not isinstance(value, list):
-            raise bad(key, value, f"a list of {'objects' if kind == _TABLE else kind}")
-        for i, item in enumerate(value):
-            if not _is(item, kind):
-                raise bad(f"{key}[{i}]", item, kind)
-            if key in _ITEM_KINDS:
-                check_item(f"{key}[{i}]", item, _ITEM_KINDS[key])
-    units = meta.get("units")
-    if units is not None:
-        if not isinstance(units, dict):
-            raise bad("units", units, "a JSON object of column name to unit text")
-        for name, unit in units.items():
-            if unit is not None and not isinstance(unit, str):
-                raise bad(f"units.{name}", unit, "the unit as text")
-    for key in ("versions", "descriptions"):
-        for name, value in (meta.get(key) or {}).items():
-            if value is not None and not isinstance(value, str):
-                raise bad(f"{key}.{name}", value, "text")
-    check_item("settings", meta.get("settings") or {}, _ITEM_KINDS["settings"])
-    for name, value in (meta.get("settings") or {}).items():
-        if value is not None and not isinstance(value, str | int | float | bool):
-            raise bad(f"settings.{name}", value, "a number, text, true/false or null")
-    reference = meta.get("reference_point")
-    if reference is not None:
-        fine = isinstance(reference, list) and all(
-            _is(r, _NUMBER) and math.isfinite(r) for r in reference
-        )
-        if not fine or len(reference) != len(objectives):
-            raise bad(
-                "reference_point", reference, f"a list of {len(objectives)} finite numbers or null"
-            )
 
 
 def _strip_unit(header: str) -> str:
@@ -807,7 +614,7 @@ def front_from_csv(
     return replace(
         front,
         reference=tuple(front.reference_point()),
-        meta={"source": where, "n_rows": len(table)},
+        info=RunInfo(source=where, n_rows=len(table)),
     )
 
 

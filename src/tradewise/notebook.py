@@ -180,8 +180,8 @@ class Picker:
     # ------------------------------------------------------------------------ layout
     def _build(self) -> None:
         w, state, front = self._w, self.state, self.state.front
-        source = front.meta.get("source")
-        title = str(front.meta.get("title") or (f"Front of {source}" if source else "Front"))
+        source = front.info.source
+        title = str(front.info.title or (f"Front of {source}" if source else "Front"))
         self._heading = w.HTML()
         self._title = title
         self._sliders: dict[str, Any] = {}

@@ -539,7 +539,7 @@ class PickerState:
     def shortlist_front(self) -> Front:
         """The shortlisted designs as a front with the run's metadata (see :func:`shortlist_front`).
 
-        ``meta["shortlist"]`` records the rows, the size of the front, the
+        ``info.shortlist`` records the rows, the size of the front, the
         limits, the method and its weights and target at the time.
 
         Raises

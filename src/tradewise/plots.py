@@ -45,7 +45,6 @@ __all__ = [
     "clicked_row",
     "plot_parallel",
     "plot_history",
-    "attainment",
     "plot_attainment",
     "plot_kind",
     "save_figure",
@@ -274,16 +273,16 @@ def _cloud(front: Front, evaluations: pd.DataFrame | None) -> tuple[np.ndarray, 
         feasible = np.ones(len(evaluations), dtype=bool)
         if "status" in evaluations.columns:
             feasible &= (evaluations["status"].astype(str) == "ok").to_numpy()
-        for limit in front.meta.get("constraint_limits") or []:
-            name = limit.get("name")
+        for limit in front.info.constraint_limits:
+            name = limit.name
             if name not in evaluations.columns:
                 continue
             column = pd.to_numeric(evaluations[name], errors="coerce").to_numpy(dtype=float)
             ok = np.isfinite(column)
-            if limit.get("min") is not None:
-                ok &= column >= float(limit["min"])
-            if limit.get("max") is not None:
-                ok &= column <= float(limit["max"])
+            if limit.min is not None:
+                ok &= column >= float(limit.min)
+            if limit.max is not None:
+                ok &= column <= float(limit.max)
             feasible &= ok
     return values[usable & feasible], values[usable & ~feasible]
 
@@ -503,7 +502,7 @@ def plot_front(
     evaluations : pandas.DataFrame, optional
         Every evaluation of the run, with the objective columns and either a
         boolean ``feasible`` column or ``status`` and the constraint columns
-        (checked against ``front.meta["constraint_limits"]``).
+        (checked against ``front.info.constraint_limits``).
     knee : int, "auto" or None
         Row position of the knee design; ``"auto"`` asks the knee method of
         :mod:`tradewise.choose` when it is available; None marks no knee.
@@ -1053,12 +1052,12 @@ def _variable_axis(front: Front, name: str) -> dict[str, Any]:
 
 
 def _options_of(front: Front, name: str, column: pd.Series) -> list[str]:
-    for spec in front.meta.get("design_space") or []:
-        if spec.get("name") == name:
-            if spec.get("type") == "flag":
+    for spec in front.info.design_space:
+        if spec.name == name:
+            if spec.kind == "flag":
                 return ["False", "True"]
-            if spec.get("options"):
-                known = [str(o) for o in spec["options"]]
+            if spec.options:
+                known = [str(o) for o in spec.options]
                 return known + sorted({str(v) for v in column} - set(known))
     return sorted({str(v) for v in column})
 
@@ -1256,53 +1255,6 @@ def _common_reason(stop_reason: str | None) -> str | None:
 
 
 # ---------------------------------------------------------------------------- attainment
-def attainment(runs: Sequence[Any], objectives: Sequence[Objective]) -> np.ndarray:
-    """Best, median and worst attainment surfaces of several runs' fronts (moocore's EAF).
-
-    Parameters
-    ----------
-    runs : sequence of array-like
-        One (n_i, 2) array of objective values per run, in the user's senses.
-    objectives : sequence of Objective
-        The two objectives (their goals turn maximised columns for moocore).
-
-    Returns
-    -------
-    numpy.ndarray
-        Rows ``(f1, f2, percent)`` in the user's senses: ``percent`` is the
-        share of runs that attain the point, ``100 / len(runs)`` for the best
-        surface, 50 for the median and 100 for the worst.
-    """
-    objectives = list(objectives)
-    if len(objectives) != 2:
-        raise DataError(f"attainment: drawn for two objectives, got {len(objectives)}")
-    if len(runs) < 2:
-        raise DataError(f"attainment: needs the fronts of at least two runs, got {len(runs)}")
-    import moocore
-
-    sign = np.array([1.0 if o.goal == "min" else -1.0 for o in objectives])
-    points, sets = [], []
-    for k, run in enumerate(runs, start=1):
-        values = np.asarray(run, dtype=float)
-        if (
-            values.ndim != 2
-            or values.shape[1] != 2
-            or len(values) == 0
-            or not np.isfinite(values).all()
-        ):
-            raise DataError(
-                f"attainment: run {k} must be a non-empty (n, 2) array of finite numbers, got shape {values.shape}"
-            )
-        points.append(values * sign)
-        sets.append(np.full(len(values), k))
-    best = 100.0 / len(runs)
-    surfaces = moocore.eaf(
-        np.vstack(points), sets=np.concatenate(sets), percentiles=[best, 50, 100]
-    )
-    surfaces[:, :2] *= sign
-    return surfaces
-
-
 def plot_attainment(
     surfaces: np.ndarray | pd.DataFrame | Mapping[str, Any],
     objectives: Sequence[Objective],
@@ -1317,7 +1269,7 @@ def plot_attainment(
     Parameters
     ----------
     surfaces : numpy.ndarray, pandas.DataFrame or mapping
-        Either rows ``(f1, f2, percent)`` as from :func:`attainment` (the
+        Either rows ``(f1, f2, percent)`` as moocore's ``eaf`` gives them (the
         smallest percent is drawn as the best surface, 50 as the median and
         100 as the worst); or a table with a ``surface`` column naming
         ``best``, ``median`` and ``worst``, optional ``runs`` and ``n_runs``
@@ -1544,7 +1496,7 @@ def plot_kind(
         raise DataError(
             f"figure kind {kind!r} is not known; choose one of {', '.join(FIGURE_KINDS)}"
         )
-    title = title if title is not None else front.meta.get("title")
+    title = title if title is not None else front.info.title
     if kind == "front":
         picks = {"chosen": highlight} if highlight is not None else None
         return plot_front(front, evaluations=evaluations, picks=picks, title=title)
@@ -1559,10 +1511,8 @@ def plot_kind(
         raise DataError(
             "history: the run folder has no history.csv, so convergence cannot be drawn"
         )
-    budget = (front.meta.get("settings") or {}).get("evaluations")
-    return plot_history(
-        history, stop_reason=front.meta.get("stop_reason"), budget=budget, title=title
-    )
+    budget = front.info.settings.get("evaluations")
+    return plot_history(history, stop_reason=front.info.stop_reason, budget=budget, title=title)
 
 
 # -------------------------------------------------------------------------------- output

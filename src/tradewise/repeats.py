@@ -5,7 +5,7 @@ from __future__ import annotations
 import math
 import uuid
 from collections.abc import Callable
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, replace
 from pathlib import Path
 from typing import Any
 
@@ -17,6 +17,7 @@ from tradewise.case import Case, load_case
 from tradewise.errors import StoreError
 from tradewise.executors import make_executor
 from tradewise.front import Front, hypervolume, nondominated
+from tradewise.runinfo import RunInfo, SeedSet
 from tradewise.search import STATUS_TEXT, RunResult, _case_of_run, _front_sentence
 from tradewise.store import open_store
 
@@ -56,7 +57,11 @@ class SeedsResult:
     store_path: Path | None = None
     run_id: int | None = None
     least_infeasible: pd.DataFrame | None = None
-    meta: dict[str, Any] = field(default_factory=dict)
+
+    @property
+    def info(self) -> RunInfo:
+        """What the set recorded about itself (its merged front's :class:`~tradewise.runinfo.RunInfo`)."""
+        return self.front.info
 
     @property
     def spread(self) -> dict[str, float]:
@@ -371,8 +376,8 @@ def _on_common_reference(run: RunResult, reference: np.ndarray, hv: float) -> Ru
     """The run restated on the seeds' common reference point: its hypervolume, history and message."""
     own = _front_sentence(len(run.front), run.hypervolume)
     common = _front_sentence(len(run.front), hv, "on the seeds' common reference point")
-    meta = dict(run.meta) | {"reference_source": _COMMON_REFERENCE}
-    front = replace(run.front, reference=tuple(float(v) for v in reference), meta=meta)
+    info = run.info.but(reference_source=_COMMON_REFERENCE)
+    front = replace(run.front, reference=tuple(float(v) for v in reference), info=info)
     return replace(
         run,
         front=front,
@@ -380,7 +385,6 @@ def _on_common_reference(run: RunResult, reference: np.ndarray, hv: float) -> Ru
         reference=tuple(float(v) for v in reference),
         history=_history_on(run, reference),
         message=run.message.replace(own, common),
-        meta=meta,
     )
 
 
@@ -426,29 +430,28 @@ def _merge_repeats(
     n_evals = sum(r.n_evals for r in runs)
     n_failed = sum(r.n_failed for r in runs)
     spread = _spread(hvs)
-    meta = dict(runs[0].meta)
-    meta.update(
-        {
-            "seed": seeds[0],
-            "seeds": list(seeds),
-            "n_seeds": len(seeds),
-            "seed_column": column,
-            "seed_hypervolumes": list(hvs),
-            "hypervolume_median": spread["median"],
-            "hypervolume_min": spread["min"],
-            "hypervolume_max": spread["max"],
-            "status": status,
-            "stop_reason": "; ".join(
-                f"seed {r.seed}: {STATUS_TEXT.get(r.status, r.status)}" for r in runs
-            ),
-            "n_evals": n_evals,
-            "n_gen": sum(r.n_gen for r in runs),
-            "n_failed": n_failed,
-            "n_cached": sum(r.n_cached for r in runs),
-            "reference_source": _COMMON_REFERENCE,
-            "started": min(r.meta.get("started", math.inf) for r in runs),
-            "finished": max(r.meta.get("finished", -math.inf) for r in runs),
-        }
+    info = runs[0].info.but(
+        seed=seeds[0],
+        seeds=SeedSet(
+            seeds=seeds,
+            column=column,
+            hypervolumes=hvs,
+            median=spread["median"],
+            min=spread["min"],
+            max=spread["max"],
+            missing=tuple(missing or ()),
+        ),
+        status="interrupted" if missing else status,
+        stop_reason="; ".join(
+            f"seed {r.seed}: {STATUS_TEXT.get(r.status, r.status)}" for r in runs
+        ),
+        n_evals=n_evals,
+        n_gen=sum(r.n_gen for r in runs),
+        n_failed=n_failed,
+        n_cached=sum(r.n_cached for r in runs),
+        reference_source=_COMMON_REFERENCE,
+        started=min((r.info.started for r in runs if r.info.started is not None), default=None),
+        finished=max((r.info.finished for r in runs if r.info.finished is not None), default=None),
     )
     if tables:
         front = Front.from_table(
@@ -458,7 +461,7 @@ def _merge_repeats(
             variables=case.variable_names,
             constraints=case.constraint_names,
             reference=reference,
-            meta=meta,
+            info=info,
         )
     else:
         empty = runs[0].front.table.iloc[0:0].copy()
@@ -470,7 +473,7 @@ def _merge_repeats(
             variables=tuple(case.variable_names),
             constraints=tuple(case.constraint_names),
             reference=tuple(reference) if reference is not None else None,
-            meta=meta,
+            info=info,
         )
     merged_hv = (
         hypervolume(front.points(), reference, case.maximise)
@@ -518,8 +521,7 @@ def _merge_repeats(
             f"Seed(s) {listed} did not run: the merged front stands for {len(runs)} of "
             f"{len(runs) + len(missing)} seeds; resume the archive to run the rest."
         )
-        status = meta["status"] = "interrupted"
-    meta["missing_seeds"] = list(missing or [])
+        status = "interrupted"
     return SeedsResult(
         status=status,
         message=" ".join(parts),
@@ -538,5 +540,4 @@ def _merge_repeats(
         case=case,
         store_path=runs[0].store_path,
         least_infeasible=least,
-        meta=meta,
     )

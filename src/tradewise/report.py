@@ -129,8 +129,8 @@ def safety_domains(front: Front) -> list[str]:
     Whole words are looked for in the title, description, cautions, column
     names and units recorded with the front.
     """
-    meta = front.meta
-    parts = [str(meta.get(k) or "") for k in ("title", "description", "cautions")]
+    info = front.info
+    parts = [str(v or "") for v in (info.title, info.description, info.cautions)]
     parts += [str(c) for c in front.table.columns] + [str(u) for u in front.units.values()]
     parts += [str(o.name) for o in front.objectives] + [str(o.unit) for o in front.objectives]
     text = " " + " ".join(parts) + " "
@@ -162,7 +162,7 @@ def build_report(
     Parameters
     ----------
     front : Front
-        The whole front, with the run's description in ``front.meta`` (as
+        The whole front, with the run's description in ``front.info`` (as
         read back from a run folder by :func:`tradewise.front.read_front`).
     history : pandas.DataFrame, optional
         The run's generation history (``history.csv``), for the convergence
@@ -173,7 +173,7 @@ def build_report(
         Designs of ``front`` a designer chose to carry forward, as written by
         ``tradewise pick --out`` or the notebook picker's shortlist export
         (columns ``pick_order`` and ``front_row`` where present,
-        ``meta["shortlist"]`` for how they were chosen). Each is found on the
+        ``info.shortlist`` for how they were chosen). Each is found on the
         front by ``front_row``, else ``eval_id``, else its objective values.
         The page keeps the whole front and adds a section on the shortlist,
         in pick order, with the designs ringed on a figure of the front.
@@ -201,8 +201,9 @@ def build_report(
     Examples
     --------
     >>> from tradewise.case import Objective
+    >>> from tradewise.runinfo import RunInfo
     >>> table = pd.DataFrame({"cost": [1.0, 2, 4], "mass": [5.0, 3, 2]})
-    >>> front = Front.from_table(table, [Objective("cost"), Objective("mass")], meta={"title": "A <b> test"})
+    >>> front = Front.from_table(table, [Objective("cost"), Objective("mass")], info=RunInfo(title="A <b> test"))
     >>> "A &lt;b&gt; test" in build_report(front)
     True
     >>> page = build_report(front, shortlist=pd.DataFrame({"cost": [4.0], "mass": [2.0]}))
@@ -219,7 +220,7 @@ def build_report(
     spread = _seed_spread(front, seeds)
     figures = _figures(front, history, evaluations, marks, listed, attainment)
     context = {
-        "title": str(front.meta.get("title") or "Untitled trade-off study"),
+        "title": str(front.info.title or "Untitled trade-off study"),
         "script_hash": _script_hash(),
         "figures": figures,
         "masthead": _masthead(front),
@@ -338,7 +339,7 @@ def _shortlisted(front: Front, shortlist: Front | pd.DataFrame | None) -> dict[s
                 f"shortlist: its objectives {theirs} differ from the front's {ours}; "
                 "give a shortlist made from this run's front"
             )
-        table, settings = shortlist.table, dict(shortlist.meta.get("shortlist") or {})
+        table, settings = shortlist.table, dict(shortlist.info.shortlist or {})
     elif isinstance(shortlist, pd.DataFrame):
         table, settings = shortlist, {}
     else:
@@ -404,7 +405,7 @@ def _seed_spread(front: Front, seeds: pd.DataFrame | None) -> dict[str, Any] | N
         )
     hv = pd.to_numeric(seeds["hypervolume"], errors="coerce").to_numpy(dtype=float)
     known = hv[np.isfinite(hv)]
-    merged = front.meta.get("hypervolume")
+    merged = front.info.hypervolume
     if merged is None and front.reference is not None:
         merged = front.hypervolume()
     return {
@@ -434,7 +435,7 @@ def _method_labels(marks: dict[str, Any]) -> dict[int, list[str]]:
 
 def _figures(front: Front, history, evaluations, marks, listed, attainment) -> dict[str, str]:
     """The page's figures as SVG text from :func:`tradewise.plots.to_svg`, by name."""
-    knee, meta = marks["knee"], front.meta
+    knee, info = marks["knee"], front.info
     picks = {", ".join(methods): row for row, methods in _grouped(marks["picks"]) if row != knee}
     drawings = {
         "front": (
@@ -449,9 +450,9 @@ def _figures(front: Front, history, evaluations, marks, listed, attainment) -> d
         ),
     }
     if history is not None and len(history):
-        budget = (meta.get("settings") or {}).get("evaluations")
+        budget = info.settings.get("evaluations")
         drawings["history"] = (
-            lambda: plots.plot_history(history, stop_reason=meta.get("stop_reason"), budget=budget),
+            lambda: plots.plot_history(history, stop_reason=info.stop_reason, budget=budget),
             "Hypervolume and front size against evaluations",
         )
     if listed:
@@ -487,7 +488,7 @@ def _masthead(front: Front) -> dict[str, str]:
     names = ", ".join(
         f"{o.name} ({'lower' if o.goal == 'min' else 'higher'} is better)" for o in front.objectives
     )
-    finished = front.meta.get("finished")
+    finished = front.info.finished
     when = ""
     if isinstance(finished, int | float):
         when = f" Run finished {_dt.datetime.fromtimestamp(finished, _dt.UTC):%Y-%m-%d %H:%M UTC}."
@@ -499,7 +500,7 @@ def _cautions(front: Front) -> dict[str, Any]:
     domains = safety_domains(front)
     return {
         "safety": _safety_sentence(domains) if domains else None,
-        "text": str(front.meta.get("cautions") or "").strip(),
+        "text": str(front.info.cautions or "").strip(),
     }
 
 
@@ -516,28 +517,28 @@ def _facts(
     front: Front, listed: dict[str, Any] | None, spread: dict[str, Any] | None
 ) -> list[tuple[str, str]]:
     """The headline numbers as (value, what it counts)."""
-    meta = front.meta
+    info = front.info
     items = [(_fmt(len(front)), "designs on the front")]
     if listed:
         items.append((_fmt(len(listed["designs"])), "designs on the shortlist"))
     if spread:
         items.append((_fmt(spread["n"]), "independent runs (seeds), merged"))
-    for key, label in (("n_evals", "evaluations of the model"), ("n_gen", "generations")):
-        if meta.get(key) is not None:
-            items.append((_fmt(meta[key]), label))
-    hv = meta.get("hypervolume")
+    for value, label in ((info.n_evals, "evaluations of the model"), (info.n_gen, "generations")):
+        if value is not None:
+            items.append((_fmt(value), label))
+    hv = info.hypervolume
     if hv is None and front.reference is not None:
         hv = front.hypervolume()
     if hv is not None:
         items.append((_fmt(hv), "hypervolume of the front"))
-    if meta.get("n_failed"):
-        items.append((_fmt(meta.get("n_failed")), "evaluations failed"))
+    if info.n_failed:
+        items.append((_fmt(info.n_failed), "evaluations failed"))
     return items
 
 
 def _case(front: Front) -> dict[str, Any]:
     """The case: description, objectives, variables and constraints as tables of text."""
-    meta = front.meta
+    info = front.info
     reference = (
         list(front.reference) if front.reference is not None else [None] * len(front.objectives)
     )
@@ -552,37 +553,29 @@ def _case(front: Front) -> dict[str, Any]:
         for o, ref in zip(front.objectives, reference, strict=True)
     ]
     variables = []
-    for v in meta.get("design_space") or []:
-        kind = v.get("type", "")
+    for v in info.design_space:
+        kind = v.kind
         if kind in ("real", "integer"):
-            allowed = f"{_fmt(v.get('low'))} to {_fmt(v.get('high'))}"
+            allowed = f"{_fmt(v.low)} to {_fmt(v.high)}"
         elif kind == "choice":
-            allowed = ", ".join(map(str, v.get("options") or []))
+            allowed = ", ".join(map(str, v.options))
         elif kind == "flag":
             allowed = "yes or no"
         else:
             allowed = "\u2014"
-        variables.append(
-            [str(v.get("name", "")), str(kind), allowed, str(v.get("unit") or "\u2014")]
-        )
+        variables.append([str(v.name), str(kind), allowed, str(v.unit or "\u2014")])
     constraints = []
-    for c in meta.get("constraint_limits") or []:
+    for c in info.constraint_limits:
         bounds = []
-        if c.get("min") is not None:
-            bounds.append(f"at least {_fmt(c['min'])}")
-        if c.get("max") is not None:
-            bounds.append(f"at most {_fmt(c['max'])}")
-        constraints.append(
-            [
-                str(c.get("name", "")),
-                " and ".join(bounds) or "\u2014",
-                str(c.get("unit") or "\u2014"),
-            ]
-        )
+        if c.min is not None:
+            bounds.append(f"at least {_fmt(c.min)}")
+        if c.max is not None:
+            bounds.append(f"at most {_fmt(c.max)}")
+        constraints.append([str(c.name), " and ".join(bounds) or "\u2014", str(c.unit or "\u2014")])
     return {
-        "description": str(meta.get("description") or "").strip(),
-        "case_file": str(meta["case_file"]) if meta.get("case_file") else None,
-        "case_hash": str(meta.get("case_hash", "")),
+        "description": str(info.description or "").strip(),
+        "case_file": str(info.case_file) if info.case_file else None,
+        "case_hash": str(info.case_hash or ""),
         "objectives": objectives,
         "variables": variables,
         "variable_names": ", ".join(map(str, front.variables)) if front.variables else None,
@@ -730,13 +723,13 @@ def _picks(front: Front, marks: dict[str, Any]) -> dict[str, Any]:
 
 def _run(front: Front, history, spread: dict[str, Any] | None) -> dict[str, Any]:
     """How the search ran: its message, its settings and counts as (label, value), and the seeds."""
-    meta, settings = front.meta, front.meta.get("settings") or {}
-    several = bool(spread) or (meta.get("n_seeds") or 0) > 1
+    info, settings = front.info, front.info.settings
+    several = bool(spread) or info.n_seeds > 1
     each = " (each seed)" if several else ""
     together = " (all seeds together)" if several else ""
     entries = []
-    if meta.get("algorithm") not in (None, ""):
-        entries.append(("method", str(meta["algorithm"])))
+    if info.algorithm:
+        entries.append(("method", str(info.algorithm)))
     for label, key, unit in (
         ("evaluation budget" + each, "evaluations", ""),
         ("designs per generation", "population", ""),
@@ -751,45 +744,45 @@ def _run(front: Front, history, spread: dict[str, Any] | None) -> dict[str, Any]
             f"stop when the front gains less than {_fmt(settings.get('stall_tolerance'))} of its hypervolume, "
             f"judged on its own scale, over {_fmt(settings['stall_generations'])} generations",
         ))  # fmt: skip
-    if several and meta.get("seeds"):
-        entries.append(("seeds", ", ".join(_fmt(v) for v in meta["seeds"])))
-    elif meta.get("seed") is not None:
-        entries.append(("seed", _fmt(meta["seed"])))
-    for label, key in (
-        ("evaluations used" + together, "n_evals"),
-        ("generations" + together, "n_gen"),
+    if several and info.seeds is not None:
+        entries.append(("seeds", ", ".join(_fmt(v) for v in info.seeds.seeds)))
+    elif info.seed is not None:
+        entries.append(("seed", _fmt(info.seed)))
+    for label, value in (
+        ("evaluations used" + together, info.n_evals),
+        ("generations" + together, info.n_gen),
     ):
-        if meta.get(key) is not None:
-            entries.append((label, _fmt(meta[key])))
-    if meta.get("stop_reason") not in (None, ""):
-        entries.append(("why it stopped", str(meta["stop_reason"])))
-    if meta.get("n_failed") is not None:
+        if value is not None:
+            entries.append((label, _fmt(value)))
+    if info.stop_reason:
+        entries.append(("why it stopped", str(info.stop_reason)))
+    if info.n_failed is not None:
         entries.append((
             "failed evaluations",
-            f"{_fmt(meta['n_failed'])} (stored with their message and treated as infeasible)",
+            f"{_fmt(info.n_failed)} (stored with their message and treated as infeasible)",
         ))  # fmt: skip
-    if meta.get("n_cached"):
-        n = int(meta["n_cached"])
+    if info.n_cached:
+        n = int(info.n_cached)
         said = f"{n} design{'s' if n != 1 else ''} seen before {'were' if n != 1 else 'was'}"
         entries.append(("served from the archive", said + " not evaluated again"))
     if front.reference is not None:
         ref = ", ".join(
             f"{o.name} {_fmt(r)}" for o, r in zip(front.objectives, front.reference, strict=True)
         )
-        source = f" ({meta['reference_source']})" if meta.get("reference_source") else ""
+        source = f" ({info.reference_source})" if info.reference_source else ""
         entries.append(("hypervolume reference point", ref + source))
-    started, finished = meta.get("started"), meta.get("finished")
+    started, finished = info.started, info.finished
     if (
         isinstance(started, int | float)
         and isinstance(finished, int | float)
         and finished >= started
     ):
         entries.append(("run time", f"{finished - started:.3g} s"))
-    if meta.get("versions"):
-        entries.append(("software", ", ".join(f"{k} {v}" for k, v in meta["versions"].items())))
+    if info.versions:
+        entries.append(("software", ", ".join(f"{k} {v}" for k, v in info.versions.items())))
     per_seed = history is not None and "seed" in history.columns and history["seed"].nunique() > 1
     return {
-        "message": str(meta["message"]) if meta.get("message") else None,
+        "message": str(info.message) if info.message else None,
         "entries": entries,
         "per_seed": per_seed,
         "no_history": history is None,
@@ -887,7 +880,7 @@ def _front_table(
 
 
 def _assumptions(front: Front) -> list[str]:
-    meta = front.meta
+    info = front.info
     items = [
         "Every number comes from the designer's model as the case file describes it; the front is only as "
         "good as that model and its inputs.",
@@ -897,7 +890,7 @@ def _assumptions(front: Front) -> list[str]:
         "failed (an error, a timeout or a missing number) count as infeasible.",
     ]
     if front.reference is not None:
-        source = f" ({meta['reference_source']})" if meta.get("reference_source") else ""
+        source = f" ({info.reference_source})" if info.reference_source else ""
         items.append(
             "The hypervolume is measured against a fixed reference point"
             + source
@@ -922,7 +915,7 @@ def _assumptions(front: Front) -> list[str]:
 
 
 def _footer(front: Front, generated: _dt.datetime) -> dict[str, str]:
-    version = (front.meta.get("versions") or {}).get("tradewise")
+    version = front.info.versions.get("tradewise")
     return {
         "made": f"tradewise {version}" if version else "tradewise",
         "when": generated.strftime("%Y-%m-%d %H:%M UTC"),

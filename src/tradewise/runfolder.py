@@ -78,16 +78,13 @@ def save_run(result: Any, folder: str | Path) -> dict[str, Path]:
     folder = Path(folder)
     folder.mkdir(parents=True, exist_ok=True)
     written: dict[str, Path] = {}
-    meta = dict(result.front.meta)
-    meta.update(
-        {
-            "message": result.message,
-            "hypervolume": result.hypervolume,
-            "store": result.store_path.name if result.store_path else None,
-            "run_id": result.run_id,
-        }
+    info = result.front.info.but(
+        message=result.message,
+        hypervolume=result.hypervolume,
+        store=result.store_path.name if result.store_path else None,
+        run_id=result.run_id,
     )
-    front = replace(result.front, meta=meta)
+    front = replace(result.front, info=info)
     if len(front):
         written["front"], written["meta"] = front.to_csv(folder / "front.csv")
     else:
@@ -95,7 +92,7 @@ def save_run(result: Any, folder: str | Path) -> dict[str, Path]:
         if stale.exists():
             stale.unlink()
         meta_path = folder / "front.json"
-        write_json(meta_path, front.metadata() | {"feasible": False})
+        write_json(meta_path, replace(front, info=info.but(feasible=False)).metadata())
         written["meta"] = meta_path
         if result.least_infeasible is not None:
             path = folder / "least_infeasible.csv"
@@ -176,16 +173,16 @@ def read_run(run: str | Path, *, evaluations: bool = True):
         except (OSError, ValueError) as exc:
             raise DataError(f"{folder / 'history.csv'}: cannot be read as CSV ({exc})") from None
     table = None
-    store_name, run_id = front.meta.get("store"), front.meta.get("run_id")
+    store_name, run_id = front.info.store, front.info.run_id
     if evaluations and store_name and run_id is not None and (folder / store_name).is_file():
         with open_store(folder / store_name, create=False) as archive:
             record = archive.run(int(run_id))
-            ours = front.meta.get("case_hash")
+            ours = front.info.case_hash
             if ours and record["case_hash"] != ours:
                 raise DataError(
                     f"{folder / store_name}: run {run_id} of this archive is of the case "
                     f"{record['case_title']!r} ({record['case_hash']}), but {meta_path} is of the case "
-                    f"{front.meta.get('title')!r} ({ours}); put the run's own archive beside its front.json"
+                    f"{front.info.title!r} ({ours}); put the run's own archive beside its front.json"
                 )
             table = archive.evaluations(int(run_id))
     return front, history, table
@@ -217,7 +214,7 @@ def shortlist_front(
     Two columns come first: ``pick_order`` (1, 2, ... in the order of
     ``rows``) and ``front_row`` (the design's row in the whole front, counting
     from 1). The metadata is the front's, with ``settings`` (how the designs
-    were chosen) under ``meta["shortlist"]``. :meth:`Front.to_csv` writes it
+    were chosen) as ``info.shortlist``. :meth:`Front.to_csv` writes it
     and :func:`tradewise.front.read_front` reads it back.
 
     Raises
@@ -250,4 +247,4 @@ def shortlist_front(
     table = front.table.iloc[rows].copy()
     table.insert(0, "front_row", [r + 1 for r in rows])
     table.insert(0, "pick_order", range(1, len(rows) + 1))
-    return replace(front.with_table(table), meta={**front.meta, "shortlist": dict(settings or {})})
+    return replace(front.with_table(table), info=front.info.but(shortlist=dict(settings or {})))

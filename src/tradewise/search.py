@@ -17,7 +17,7 @@ import platform
 import time
 from collections import deque
 from collections.abc import Callable
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, replace
 from importlib import metadata
 from pathlib import Path
 from typing import Any
@@ -32,6 +32,7 @@ from tradewise.errors import ModelError, StoreError
 from tradewise.executors import InProcess, make_executor
 from tradewise.front import Front, hypervolume, nondominated, reference_point
 from tradewise.models import Outcome, make_model
+from tradewise.runinfo import LimitSpec, RunInfo, VariableSpec
 from tradewise.store import Store, open_store
 
 __all__ = ["RunResult", "run", "middle_design", "resume", "design_key", "STATUS_TEXT"]
@@ -122,7 +123,11 @@ class RunResult:
     n_failed: int = 0
     n_cached: int = 0
     least_infeasible: pd.DataFrame | None = None
-    meta: dict[str, Any] = field(default_factory=dict)
+
+    @property
+    def info(self) -> RunInfo:
+        """What the run recorded about itself (its front's :class:`~tradewise.runinfo.RunInfo`)."""
+        return self.front.info
 
     def __repr__(self) -> str:
         return (
@@ -902,46 +907,37 @@ def _finish(run: _Run, status: str, algorithm_name: str, started: float) -> RunR
     evaluations = records[columns] if len(records) else records
     history = pd.DataFrame.from_records(run.history)
     hv = run.hypervolume()
-    meta = {
-        "title": case.title,
-        "description": case.description,
-        "cautions": case.cautions,
-        "case_file": case.path.name,
-        "case_hash": case.hash,
-        "algorithm": algorithm_name,
-        "status": status,
-        "stop_reason": STATUS_TEXT.get(status, status),
-        "seed": case.search.seed,
-        "settings": case.search.as_dict()
+    info = RunInfo(
+        title=case.title,
+        description=case.description,
+        cautions=case.cautions,
+        case_file=case.path.name,
+        case_hash=case.hash,
+        algorithm=algorithm_name,
+        status=status,
+        stop_reason=STATUS_TEXT.get(status, status),
+        seed=case.search.seed,
+        settings=case.search.as_dict()
         | {"population": case.search.population or default_population(len(case.objectives))},
-        "versions": _versions(),
-        "n_evals": run.n_evals,
-        "n_gen": len(run.history),
-        "n_failed": run.n_failed,
-        "n_cached": run.n_cached,
-        "reference_source": run.reference_source,
-        "started": started,
-        "finished": time.time(),
-        "design_space": [
-            {
-                "name": v.name,
-                "type": v.kind,
-                "low": v.low,
-                "high": v.high,
-                "options": list(v.options),
-                "unit": v.unit,
-            }
+        versions=_versions(),
+        n_evals=run.n_evals,
+        n_gen=len(run.history),
+        n_failed=run.n_failed,
+        n_cached=run.n_cached,
+        reference_source=run.reference_source,
+        started=started,
+        finished=time.time(),
+        design_space=tuple(
+            VariableSpec(v.name, v.kind, v.low, v.high, tuple(v.options), v.unit)
             for v in case.variables
-        ],
-        "descriptions": {
+        ),
+        descriptions={
             item.name: item.description
             for item in (*case.variables, *case.objectives, *case.constraints)
             if item.description
         },
-        "constraint_limits": [
-            {"name": c.name, "min": c.min, "max": c.max, "unit": c.unit} for c in case.constraints
-        ],
-    }
+        constraint_limits=tuple(LimitSpec(c.name, c.min, c.max, c.unit) for c in case.constraints),
+    )
     front_table = (
         records.iloc[run.front_rows][columns]
         if run.front_rows
@@ -962,7 +958,7 @@ def _finish(run: _Run, status: str, algorithm_name: str, started: float) -> RunR
         variables=case.variable_names,
         constraints=case.constraint_names,
         reference=run.reference,
-        meta=meta,
+        info=info,
     )
     least = None
     parts = [
@@ -1016,7 +1012,6 @@ def _finish(run: _Run, status: str, algorithm_name: str, started: float) -> RunR
         n_failed=run.n_failed,
         n_cached=run.n_cached,
         least_infeasible=least,
-        meta=meta,
     )
 
 

@@ -461,30 +461,7 @@ class Store:
         return _patiently(self.path, self._db, self._reserve_block)
 
     def _reserve_block(self) -> int:
-        self._db.execute("BEGIN IMMEDIATE")
-        try:
-            row = self._db.execute(
-                "SELECT seq FROM sqlite_sequence WHERE name = 'evaluations'"
-            ).fetchone()
-            (largest,) = self._db.execute(
-                "SELECT COALESCE(MAX(eval_id), 0) FROM evaluations"
-            ).fetchone()
-            top = max(row[0] if row else 0, largest)
-            if row:
-                self._db.execute(
-                    "UPDATE sqlite_sequence SET seq = ? WHERE name = 'evaluations'",
-                    (top + _ID_BLOCK,),
-                )
-            else:
-                self._db.execute(
-                    "INSERT INTO sqlite_sequence (name, seq) VALUES ('evaluations', ?)",
-                    (top + _ID_BLOCK,),
-                )
-            self._db.commit()
-        except BaseException:
-            self._db.rollback()
-            raise
-        return top
+        return _archive_writer.reserve(self._db, _ID_BLOCK)
 
     def _call_value(self, action):
         result = []
