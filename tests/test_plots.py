@@ -271,10 +271,18 @@ def test_parallel_turns_maximised_objectives_so_better_is_still_up():
     assert list(line.get_ydata()) == pytest.approx([0.0, 1.0])
 
 
+def _as_drawn(history: pd.DataFrame) -> pd.DataFrame:
+    """The history as the figure draws it: the hypervolume as a percentage of its largest value."""
+    return history.assign(hypervolume=100 * history["hypervolume"] / history["hypervolume"].max())
+
+
 def test_history_lines_carry_the_history_and_mark_the_stop():
-    """The two curves hold the history's values and the stop marker sits at the last generation."""
+    """The two curves hold the history's values (the hypervolume as % of the best reached) and the
+    stop marker sits at the last generation."""
     history = history_table()
     fig = plots.plot_history(history, stop_reason="the hypervolume stopped improving", budget=2000)
+    assert "% of the best" in fig.axes[0].get_ylabel()
+    history = _as_drawn(history)
     top, bottom = fig.axes
     hv = next(a for a in top.lines if a.get_gid() == "hypervolume-line")
     size = next(a for a in bottom.lines if a.get_gid() == "front-size-line")
@@ -303,6 +311,7 @@ def test_history_with_seeds_draws_one_line_per_seed_and_a_star_at_each_end():
         stop_reason="seed 1: budget used; seed 2: budget used; seed 3: budget used",
         budget=1200,
     )
+    history = _as_drawn(history)
     top, bottom = fig.axes
     for seed, part in history.groupby("seed"):
         hv = next(a for a in top.lines if a.get_gid() == f"hypervolume-seed-{seed}")

@@ -275,8 +275,11 @@ def test_shortlist_page_keeps_the_whole_front_and_lists_the_designs_in_pick_orde
     facts = _facts(text)
     assert facts["designs on the front"] == str(len(front))
     assert facts["designs on the shortlist"] == "2"
-    expected_hv = moocore.hypervolume(front.points(), ref=np.asarray(front.reference))
-    assert float(facts["hypervolume of the front"]) == pytest.approx(expected_hv, rel=1e-4)
+    # the share of the box from the front's best values to the reference point (all minimised here)
+    box = np.prod(np.asarray(front.reference) - front.points().min(axis=0))
+    expected_hv = moocore.hypervolume(front.points(), ref=np.asarray(front.reference)) / box
+    covered = facts["of the box from the best values to the reference point, covered"]
+    assert float(covered.rstrip(" %")) == pytest.approx(100 * expected_hv, abs=0.05)
     assert html.escape(HOSTILE_TITLE) in text and "shortlist of" not in text
     part = _section(text, "shortlist")
     assert re.findall(r"<h3>(\d+)\. row (\d+)</h3>", part) == [("1", "6"), ("2", "2")]
@@ -347,10 +350,17 @@ def test_seeds_folder_page_shows_the_spread_and_the_attainment_figure(seeds_fold
     seeds = pd.read_csv(seeds_folder / "seeds.csv")
     hv = seeds["hypervolume"].to_numpy()
     part = _section(text, "run").split('<h3 id="seeds">')[1]
-    said = re.search(r"hypervolume of ([\d.e-]+) \(median\), from ([\d.e-]+) to ([\d.e-]+)", part)
+    said = re.search(r"cover ([\d.]+) % \(median\), from ([\d.]+) % to ([\d.]+) %", part)
     assert said is not None, part[:500]
+    # as shares of the box from the merged front's best values to the common reference point
+    merged = read_front(seeds_folder)
+    flags = np.asarray(merged.maximise)
+    ideal = np.where(flags, merged.points().max(axis=0), merged.points().min(axis=0))
+    box = np.prod(np.abs(np.asarray(merged.reference) - ideal))
     np.testing.assert_allclose(
-        [float(v) for v in said.groups()], [np.median(hv), hv.min(), hv.max()], rtol=1e-4
+        [float(v) for v in said.groups()],
+        100 * np.array([np.median(hv), hv.min(), hv.max()]) / box,
+        atol=0.05,
     )
     seed_table = part.split('<table class="seeds">')[1].split("</table>")[0]
     assert len(re.findall(r"<tr>", seed_table)) == len(seeds) + 1

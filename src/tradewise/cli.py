@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import logging
+import math
 import sys
 
 import click
@@ -89,10 +90,10 @@ class _Progress:
             self.bar.update(1)
 
     def generation(self, row: dict) -> None:
-        text = (
-            f"gen {row['generation']}  evals {row['evaluations']}  front {row['front_size']}  "
-            f"hv {row['hypervolume']:.5g}"
-        )
+        text = f"gen {row['generation']}  evals {row['evaluations']}  front {row['front_size']}"
+        share = row.get("hypervolume_share")
+        if share is not None and share == share:
+            text += f"  covers {100 * share:.1f} %"
         if self.bar is not None:
             self.bar.set_postfix_str(text, refresh=True)
         elif not self.quiet:
@@ -114,8 +115,6 @@ def _summary(result) -> None:
     click.echo(result.message)
     front = result.front
     if len(front):
-        import math
-
         from tradewise.front import hypervolume_problem
 
         problem = (
@@ -126,10 +125,23 @@ def _summary(result) -> None:
             )
             or "the hypervolume is not a finite number"
         )
-        hv = "hypervolume not computable" if problem else f"hypervolume {result.hypervolume:.6g}"
+        share = front.hypervolume_share(result.reference) if not problem else math.nan
+        hv = (
+            "hypervolume not computable"
+            if problem
+            else f"covering {100 * share:.1f} % of the box from its best values to the reference point"
+            if math.isfinite(share)
+            else f"hypervolume {result.hypervolume:.6g}"
+        )
+        point = ", ".join(
+            f"{o.name} {r:g}{' ' + o.unit if o.unit else ''}"
+            for o, r in zip(front.objectives, result.reference, strict=True)
+        )
+        click.echo(f"Front: {len(front)} designs, {hv}.")
+        source = result.info.reference_source
         click.echo(
-            f"Front: {len(front)} designs, {hv} "
-            f"(reference point {', '.join(f'{r:g}' for r in result.reference)})"
+            f"Reference point: {point} ({source + '; ' if source else ''}a corner beyond the worst "
+            "design in every objective, used only to measure the front; not a design or a limit)."
         )
         if problem:
             click.echo(f"Note: {problem[0].upper()}{problem[1:]}.")
@@ -740,8 +752,21 @@ def _write_seeds(result, folder, store_path) -> None:
     spread = seed_attainment(result)
     written = save_seeds(result, folder, spread=spread)
     _summary(result)
+    from tradewise.front import hypervolume_box
+
+    box = (
+        hypervolume_box(result.front.points(), result.reference, result.front.maximise)
+        if len(result.front) and result.reference is not None
+        else math.nan
+    )
     for run, hv in zip(result.runs, result.hypervolumes, strict=True):
-        click.echo(f"  seed {run.seed}: hypervolume {hv:.6g} on the common reference point")
+        if math.isfinite(box):
+            click.echo(
+                f"  seed {run.seed}: covers {100 * hv / box:.1f} % of the merged front's box "
+                "(its best values to the common reference point)"
+            )
+        else:
+            click.echo(f"  seed {run.seed}: hypervolume {hv:.6g} on the common reference point")
     for line in spread.lines() if spread is not None else ():
         click.echo(line)
     click.echo(
@@ -774,8 +799,6 @@ def compare_command(runs, reference, out) -> None:
     A run made with --seeds brings its seed-to-seed spread, which says
     whether a difference is more than the luck of the seed.
     """
-    import math
-
     from tradewise.compare import compare_runs
 
     _check_out(

@@ -31,6 +31,8 @@ __all__ = [
     "nondominated",
     "hypervolume",
     "hv_contributions",
+    "hypervolume_box",
+    "hypervolume_share",
     "reference_point",
     "hypervolume_problem",
     "read_front",
@@ -173,6 +175,54 @@ def hypervolume(
             maximise=_flags(maximise, points.shape[1]),
         )
     )
+
+
+def hypervolume_box(
+    points: Any, reference: Sequence[float], maximise: bool | Sequence[bool] = False
+) -> float:
+    """Volume of the box between the best value of ``points`` in every objective and ``reference``.
+
+    No set of designs can dominate more than this box, so the hypervolume divided by it is a
+    share between 0 and 1 (:func:`hypervolume_share`). NaN when ``points`` is empty or the
+    reference does not lie beyond the best values in every objective.
+
+    Examples
+    --------
+    >>> hypervolume_box([[1, 3], [2, 2], [3, 1]], [4, 4])
+    9.0
+    """
+    points = np.asarray(points, dtype=float)
+    if len(points) == 0:
+        return math.nan
+    flags = np.asarray(_flags(maximise, points.shape[1]), dtype=bool)
+    ideal = np.where(flags, points.max(axis=0), points.min(axis=0))
+    sides = np.where(
+        flags, ideal - np.asarray(reference, dtype=float), np.asarray(reference) - ideal
+    )
+    if not np.all(np.isfinite(sides)) or np.any(sides <= 0):
+        return math.nan
+    with np.errstate(over="ignore"):
+        volume = float(np.prod(sides))
+    return volume if math.isfinite(volume) and volume > 0 else math.nan
+
+
+def hypervolume_share(
+    points: Any, reference: Sequence[float], maximise: bool | Sequence[bool] = False
+) -> float:
+    """The share (0 to 1) of :func:`hypervolume_box` that ``points`` dominate; NaN where the box is.
+
+    A readable form of the hypervolume: unlike the raw value (a product of the objectives'
+    units), it does not depend on the units, and 1 would mean one design best in everything.
+
+    Examples
+    --------
+    >>> hypervolume_share([[1, 3], [2, 2], [3, 1]], [4, 4])
+    0.6666666666666666
+    """
+    box = hypervolume_box(points, reference, maximise)
+    if not math.isfinite(box):
+        return math.nan
+    return min(1.0, hypervolume(points, reference, maximise) / box)
 
 
 def hv_contributions(
@@ -376,6 +426,11 @@ class Front:
         """Hypervolume of the front for ``reference`` (default: :meth:`reference_point`)."""
         ref = self.reference_point() if reference is None else reference
         return hypervolume(self.points(), ref, self.maximise)
+
+    def hypervolume_share(self, reference: Sequence[float] | None = None) -> float:
+        """The share of the box from the front's best values to ``reference`` that it dominates."""
+        ref = self.reference_point() if reference is None else reference
+        return hypervolume_share(self.points(), ref, self.maximise)
 
     def contributions(self, reference: Sequence[float] | None = None) -> np.ndarray:
         """Exclusive hypervolume contribution of each design (moocore)."""

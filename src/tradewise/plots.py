@@ -1078,6 +1078,9 @@ def plot_history(
 ) -> Figure:
     """Draw the hypervolume and the front size against evaluations, with the stopping point marked.
 
+    The hypervolume is drawn as a percentage of the largest value in the history (the
+    final front's, for one run or a set of seeds on their common reference point).
+
     A history with a ``seed`` column (``run --seeds K``) draws one line per
     seed, each against that seed's own evaluations and in the same style in
     both panels, with a star where each seed stopped.
@@ -1132,6 +1135,11 @@ def plot_history(
     else:
         runs.append((None, np.arange(len(history))))
     evals, hv, size = columns["evaluations"], columns["hypervolume"], columns["front_size"]
+    # A raw hypervolume is a product of units no reader can judge; as a share of the best value any
+    # generation reached (the last one's, for a run, as the front only grows) it reads as progress.
+    best = float(np.max(hv)) if len(hv) else 0.0
+    if best > 0:
+        hv = 100.0 * hv / best
     with _styled():
         fig = _new_figure((7.2, 5.4))
         top, bottom = fig.subplots(2, 1, sharex=True, height_ratios=[1.4, 1.0])
@@ -1154,7 +1162,9 @@ def plot_history(
                             gid=f"front-size-seed-{seed}", **style)  # fmt: skip
             if len(runs) <= _MAX_SHOWN_RUNS:
                 top.legend(loc="upper left", ncol=2 if len(runs) > 4 else 1, fontsize=8)
-        top.set_ylabel("hypervolume\n(higher is better)")
+        top.set_ylabel(
+            "hypervolume, % of the best\nreached (higher is better)" if best > 0 else "hypervolume"
+        )
         bottom.set_ylabel("designs on the front")
         bottom.set_xlabel("evaluations" if len(runs) == 1 else "evaluations (each seed's own)")
         ends = [int(rows[-1]) for _, rows in runs]

@@ -16,7 +16,7 @@ from tradewise import search
 from tradewise.case import Case, load_case
 from tradewise.errors import StoreError
 from tradewise.executors import make_executor
-from tradewise.front import Front, hypervolume, nondominated
+from tradewise.front import Front, hypervolume, hypervolume_box, hypervolume_share, nondominated
 from tradewise.runinfo import RunInfo, SeedSet
 from tradewise.search import STATUS_TEXT, RunResult, _case_of_run, _front_sentence
 from tradewise.store import open_store
@@ -360,7 +360,7 @@ def _history_on(run: RunResult, reference: np.ndarray) -> pd.DataFrame:
     generations = ok["generation"].to_numpy()
     points = ok[names].to_numpy(dtype=float)
     front = np.empty((0, len(names)))
-    values, done = [], -math.inf
+    values, shares, done = [], [], -math.inf
     for generation in history["generation"].tolist():
         new = points[(generations > done) & (generations <= generation)]
         done = generation
@@ -368,14 +368,19 @@ def _history_on(run: RunResult, reference: np.ndarray) -> pd.DataFrame:
             candidates = np.vstack([front, new])
             front = candidates[nondominated(candidates, run.case.maximise)]
         values.append(hypervolume(front, reference, run.case.maximise) if len(front) else 0.0)
+        shares.append(
+            hypervolume_share(front, reference, run.case.maximise) if len(front) else math.nan
+        )
     history["hypervolume"] = values
+    if "hypervolume_share" in history.columns:
+        history["hypervolume_share"] = shares
     return history
 
 
 def _on_common_reference(run: RunResult, reference: np.ndarray, hv: float) -> RunResult:
     """The run restated on the seeds' common reference point: its hypervolume, history and message."""
-    own = _front_sentence(len(run.front), run.hypervolume)
-    common = _front_sentence(len(run.front), hv, "on the seeds' common reference point")
+    own = _front_sentence(run.front, run.reference)
+    common = _front_sentence(run.front, reference, "the seeds' common reference point")
     info = run.info.but(reference_source=_COMMON_REFERENCE)
     front = replace(run.front, reference=tuple(float(v) for v in reference), info=info)
     return replace(
@@ -508,11 +513,22 @@ def _merge_repeats(
         parts.append(f"{n_failed} evaluation(s) failed.")
     if len(front):
         s = spread
-        parts.append(
-            f"Merged front of {len(front)} designs, hypervolume {merged_hv:.6g}; single runs: median "
-            f"{s['median']:.6g}, min {s['min']:.6g}, max {s['max']:.6g} (spread {s['max'] - s['min']:.3g}) "
-            f"on the common reference point ({', '.join(f'{v:g}' for v in reference)})."
-        )
+        box = hypervolume_box(front.points(), reference, case.maximise)
+        if math.isfinite(box):
+            share = {k: 100 * v / box for k, v in s.items()}
+            parts.append(
+                f"Merged front of {len(front)} designs, covering {100 * merged_hv / box:.1f} % of the "
+                "box from its best values to the common reference point (hypervolume share); single "
+                f"runs: median {share['median']:.1f} %, min {share['min']:.1f} %, max "
+                f"{share['max']:.1f} % of that box (spread {share['max'] - share['min']:.2g} points)."
+            )
+        else:
+            parts.append(
+                f"Merged front of {len(front)} designs, hypervolume {merged_hv:.6g}; single runs: "
+                f"median {s['median']:.6g}, min {s['min']:.6g}, max {s['max']:.6g} on the common "
+                f"reference point ({', '.join(f'{v:g}' for v in reference)}), which does not lie "
+                "beyond the front's best values in every objective."
+            )
     else:
         parts.append("No run found a feasible design.")
     if missing:

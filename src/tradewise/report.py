@@ -39,7 +39,7 @@ from markupsafe import Markup
 from tradewise import choose as _choose
 from tradewise import plots
 from tradewise.errors import DataError
-from tradewise.front import Front, objective_matrix, tradeoff_rates
+from tradewise.front import Front, hypervolume_box, objective_matrix, tradeoff_rates
 
 __all__ = ["build_report", "write_report", "safety_domains"]
 
@@ -408,7 +408,13 @@ def _seed_spread(front: Front, seeds: pd.DataFrame | None) -> dict[str, Any] | N
     merged = front.info.hypervolume
     if merged is None and front.reference is not None:
         merged = front.hypervolume()
+    box = (
+        hypervolume_box(front.points(), front.reference, front.maximise)
+        if front.reference is not None
+        else math.nan
+    )
     return {
+        "box": box,
         "table": seeds,
         "n": len(seeds),
         "median": float(np.median(known)) if len(known) else None,
@@ -526,11 +532,14 @@ def _facts(
     for value, label in ((info.n_evals, "evaluations of the model"), (info.n_gen, "generations")):
         if value is not None:
             items.append((_fmt(value), label))
-    hv = info.hypervolume
-    if hv is None and front.reference is not None:
-        hv = front.hypervolume()
-    if hv is not None:
-        items.append((_fmt(hv), "hypervolume of the front"))
+    share = front.hypervolume_share() if front.reference is not None else math.nan
+    if math.isfinite(share):
+        items.append(
+            (
+                f"{100 * share:.1f} %",
+                "of the box from the best values to the reference point, covered",
+            )
+        )
     if info.n_failed:
         items.append((_fmt(info.n_failed), "evaluations failed"))
     return items
@@ -770,7 +779,19 @@ def _run(front: Front, history, spread: dict[str, Any] | None) -> dict[str, Any]
             f"{o.name} {_fmt(r)}" for o, r in zip(front.objectives, front.reference, strict=True)
         )
         source = f" ({info.reference_source})" if info.reference_source else ""
-        entries.append(("hypervolume reference point", ref + source))
+        entries.append((
+            "hypervolume reference point",
+            ref + source + "; a corner beyond the worst design in every objective that "
+            "only bounds the measure, not a design or a limit",
+        ))  # fmt: skip
+        hv = info.hypervolume if info.hypervolume is not None else front.hypervolume()
+        share = front.hypervolume_share()
+        if math.isfinite(share):
+            entries.append((
+                "hypervolume",
+                f"{100 * share:.1f} % of the box from the front's best values to the reference point "
+                f"(raw value {_fmt(hv)}, in the product of the objectives' units)",
+            ))  # fmt: skip
     started, finished = info.started, info.finished
     if (
         isinstance(started, int | float)
@@ -798,7 +819,7 @@ _SEED_COLUMNS = {
     "generations": "generations",
     "failed": "failed",
     "front_size": "designs on its front",
-    "hypervolume": "hypervolume",
+    "hypervolume": "share of the merged front's box",
 }
 
 
@@ -810,15 +831,24 @@ def _seeds(front: Front, spread: dict[str, Any]) -> dict[str, Any]:
         "each with its own seed; a design is on it when no design of any run beats it."
     )
     if spread["median"] is not None:
-        text += (
-            f" Measured on the same reference point, the single runs reach a hypervolume of "
-            f"{_fmt(spread['median'])} (median), from {_fmt(spread['min'])} to {_fmt(spread['max'])}"
-        )
+        box = spread["box"]
+        if math.isfinite(box):
+            text += (
+                " Measured on the same reference point, the single runs cover "
+                f"{100 * spread['median'] / box:.1f} % (median), from {100 * spread['min'] / box:.1f} % "
+                f"to {100 * spread['max'] / box:.1f} %, of the box from the merged front's best values to "
+                "the reference point"
+            )
+        else:
+            text += (
+                f" Measured on the same reference point, the single runs reach a hypervolume of "
+                f"{_fmt(spread['median'])} (median), from {_fmt(spread['min'])} to {_fmt(spread['max'])}"
+            )
         if spread["median"] > 0:
             share = (spread["max"] - spread["min"]) / spread["median"]
             text += f", a spread of {share:.1%} of the median"
-        if spread["merged"] is not None:
-            text += f"; the merged front reaches {_fmt(spread['merged'])}"
+        if spread["merged"] is not None and math.isfinite(box):
+            text += f"; the merged front covers {100 * spread['merged'] / box:.1f} %"
         text += (
             ". A small spread says the search found much the same front from every start; a large one says "
             "more evaluations or more seeds would likely still change it."
@@ -830,7 +860,15 @@ def _seeds(front: Front, spread: dict[str, Any]) -> dict[str, Any]:
         "text": text,
         "heads": [_SEED_COLUMNS[c] for c in shown],
         "rows": [
-            [_fmt(_plain(v)) for v in record] for record in table[shown].itertuples(index=False)
+            [
+                f"{100 * float(v) / spread['box']:.1f} %"
+                if c == "hypervolume"
+                and math.isfinite(spread["box"])
+                and _number_or_none(v) is not None
+                else _fmt(_plain(v))
+                for c, v in zip(shown, record, strict=True)
+            ]
+            for record in table[shown].itertuples(index=False)
         ],
         "numeric": [k for k, c in enumerate(shown) if c != "status"],
         "many_objectives": len(front.objectives) > 2,

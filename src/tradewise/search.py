@@ -30,7 +30,7 @@ from tradewise._pymoo import Searcher, Space, decode_state, default_population
 from tradewise.case import Case, load_case
 from tradewise.errors import ModelError, StoreError
 from tradewise.executors import InProcess, make_executor
-from tradewise.front import Front, hypervolume, nondominated, reference_point
+from tradewise.front import Front, hypervolume, hypervolume_share, nondominated, reference_point
 from tradewise.models import Outcome, make_model
 from tradewise.runinfo import LimitSpec, RunInfo, VariableSpec
 from tradewise.store import Store, open_store
@@ -853,6 +853,11 @@ def _update(run: _Run, proposal: _Proposal, clock: float) -> dict[str, Any]:
         "feasible_share": n_feasible / len(new_rows) if new_rows else 0.0,
         "front_size": len(run.front_rows),
         "hypervolume": run.hypervolume(),
+        "hypervolume_share": _finite(
+            hypervolume_share(run.front_points(), run.reference, run.maximise)
+            if run.reference is not None and run.front_rows
+            else math.nan
+        ),
         "elapsed_s": round(time.monotonic() - clock, 3),
         "front_gain": _finite(run.front_gain(run.case.search.stall_generations or _SETTLE_WINDOW)),
         "settled": run.settled,
@@ -975,7 +980,7 @@ def _finish(run: _Run, status: str, algorithm_name: str, started: float) -> RunR
     if run.n_failed:
         parts.append(f"{run.n_failed} evaluation(s) failed (first: {run.first_failure}).")
     if len(front):
-        parts.append(_front_sentence(len(front), hv))
+        parts.append(_front_sentence(front, run.reference))
     else:
         ok = records[records["status"] == "ok"] if len(records) else records
         parts.append(
@@ -1015,9 +1020,25 @@ def _finish(run: _Run, status: str, algorithm_name: str, started: float) -> RunR
     )
 
 
-def _front_sentence(n_designs: int, hv: float, on: str = "") -> str:
-    """The sentence of a run's message about its front (``on`` names another reference point)."""
-    return f"Front of {n_designs} designs, hypervolume {hv:.6g}{' ' + on if on else ''}."
+def _front_sentence(front: Front, reference: Any, point: str = "the reference point") -> str:
+    """The sentence of a run's message about its front (``point`` names the reference point).
+
+    The hypervolume is told as the share of the box from the front's best values to the
+    reference point that the front dominates; the raw value (a product of units) stays in
+    front.json.
+    """
+    share = (
+        hypervolume_share(front.points(), reference, front.maximise)
+        if reference is not None and len(front)
+        else math.nan
+    )
+    if not math.isfinite(share):
+        hv = hypervolume(front.points(), reference, front.maximise) if len(front) else 0.0
+        return f"Front of {len(front)} designs, hypervolume {hv:.6g} on {point}."
+    return (
+        f"Front of {len(front)} designs, covering {100 * share:.1f} % of the box from its best "
+        f"values to {point} (hypervolume share)."
+    )
 
 
 def _violation_summary(case: Case, ok: pd.DataFrame) -> str:
