@@ -13,6 +13,7 @@ import moocore
 import numpy as np
 import pandas as pd
 
+from tradewise import format as _format
 from tradewise.errors import DataError
 from tradewise.front import Front, column_header, tradeoff_rates
 
@@ -1179,14 +1180,14 @@ def describe_choice(
         lines.append(f"Choice {choice}: row {int(row) + 1}")
         width = max(len(o.name) for o in front.objectives)
         for o in front.objectives:
-            value = f"{_show(record[o.name])} {o.unit}".strip()
+            value = f"{_format.value(record[o.name])} {o.unit}".strip()
             lines.append(
                 f"  {o.name:<{width}}  {value:<16} rank {int(ranks.iloc[k][o.name])} of {len(sub)} ({o.goal})"
             )
         for title, columns in (("variables", variables), ("other columns", others)):
             if columns:
                 shown = ", ".join(
-                    f"{c} = {_show(record[c])}{' ' + front.units[c] if front.units.get(c) else ''}"
+                    f"{c} = {_format.value(record[c])}{' ' + front.units[c] if front.units.get(c) else ''}"
                     for c in columns
                 )
                 lines.append(f"  {title}: {shown}")
@@ -1202,9 +1203,9 @@ def describe_choice(
             if len(front.objectives) > 2:
                 lines.extend(_nearest_moves(sub, k, keep))
         if total > 0:
-            share = 100.0 * contributions[int(row)] / total
             lines.append(
-                f"  hypervolume contribution: {_show(contributions[int(row)])} ({share:.3g} % of the front's)"
+                f"  hypervolume contribution: {_format.share(contributions[int(row)] / total)} of the "
+                "front's, covered by this design alone"
             )
         agree = [m for m, r in picks.items() if r == int(row) and m != method]
         lines.append(
@@ -1242,9 +1243,3 @@ def _nearest_moves(front: Front, k: int, keep: np.ndarray, n_moves: int = 3) -> 
         )
         lines.append(f"  near row {int(keep[j]) + 1}: {changes}")
     return lines
-
-
-def _show(value: object) -> str:
-    if isinstance(value, float | np.floating):
-        return f"{float(value):.6g}"
-    return str(value)

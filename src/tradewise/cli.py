@@ -8,6 +8,7 @@ import sys
 
 import click
 
+from tradewise import format as fmt
 from tradewise.errors import TradewiseError, one_line
 
 
@@ -93,7 +94,7 @@ class _Progress:
         text = f"gen {row['generation']}  evals {row['evaluations']}  front {row['front_size']}"
         share = row.get("hypervolume_share")
         if share is not None and share == share:
-            text += f"  covers {100 * share:.1f} %"
+            text += f"  covers {fmt.share(share)}"
         if self.bar is not None:
             self.bar.set_postfix_str(text, refresh=True)
         elif not self.quiet:
@@ -129,12 +130,12 @@ def _summary(result) -> None:
         hv = (
             "hypervolume not computable"
             if problem
-            else f"covering {100 * share:.1f} % of the box from its best values to the reference point"
+            else f"covering {fmt.share(share)} of the box from its best values to the reference point"
             if math.isfinite(share)
-            else f"hypervolume {result.hypervolume:.6g}"
+            else f"hypervolume {fmt.number(result.hypervolume)}"
         )
         point = ", ".join(
-            f"{o.name} {r:g}{' ' + o.unit if o.unit else ''}"
+            f"{o.name} {fmt.quantity(r, o.unit)}"
             for o, r in zip(front.objectives, result.reference, strict=True)
         )
         click.echo(f"Front: {len(front)} designs, {hv}.")
@@ -152,7 +153,8 @@ def _summary(result) -> None:
                 (values.max(), values.min()) if o.maximise else (values.min(), values.max())
             )
             click.echo(
-                f"  {column_header(o.name, o.unit):<{width}}  {o.goal}  best {best:.6g}  worst {worst:.6g}"
+                f"  {column_header(o.name, o.unit):<{width}}  {o.goal}  "
+                f"best {fmt.number(best)}  worst {fmt.number(worst)}"
             )
     elif result.least_infeasible is not None:
         click.echo("The designs closest to feasibility are in least_infeasible.csv.")
@@ -397,12 +399,12 @@ def check_command(case) -> None:
     outcome = make_model(loaded)(design)
     units = loaded.units
     for name, value in design.items():
-        click.echo(f"  {name} = {value} {units.get(name, '')}".rstrip())
+        click.echo(f"  {name} = {fmt.quantity(value, units.get(name))}")
     if not outcome.ok:
         raise ModelError(f"{loaded.path}: the model failed on the middle design: {outcome.message}")
     for name, value in outcome.results.items():
-        click.echo(f"  -> {name} = {value} {units.get(name, '')}".rstrip())
-    click.echo(f"The case is valid and its model answered in {outcome.duration * 1000:.3g} ms.")
+        click.echo(f"  -> {name} = {fmt.quantity(value, units.get(name))}")
+    click.echo(f"The case is valid and its model answered in {fmt.seconds(outcome.duration)}.")
 
 
 def _same_file(a, b) -> bool:
@@ -762,11 +764,13 @@ def _write_seeds(result, folder, store_path) -> None:
     for run, hv in zip(result.runs, result.hypervolumes, strict=True):
         if math.isfinite(box):
             click.echo(
-                f"  seed {run.seed}: covers {100 * hv / box:.1f} % of the merged front's box "
+                f"  seed {run.seed}: covers {fmt.share(hv / box)} of the merged front's box "
                 "(its best values to the common reference point)"
             )
         else:
-            click.echo(f"  seed {run.seed}: hypervolume {hv:.6g} on the common reference point")
+            click.echo(
+                f"  seed {run.seed}: hypervolume {fmt.number(hv)} on the common reference point"
+            )
     for line in spread.lines() if spread is not None else ():
         click.echo(line)
     click.echo(
@@ -819,16 +823,17 @@ def compare_command(runs, reference, out) -> None:
         seeds = ""
         if isinstance(row.get("seeds"), int | float) and math.isfinite(row["seeds"]):
             seeds = (
-                f"{int(row['seeds'])}: {row['hv_seed_median']:.4f} "
-                f"[{row['hv_seed_min']:.4f}, {row['hv_seed_max']:.4f}]"
+                f"{int(row['seeds'])}: {fmt.share(row['hv_seed_median'], 2)} "
+                f"[{fmt.share(row['hv_seed_min'], 2)}, {fmt.share(row['hv_seed_max'], 2)}]"
             )
         click.echo(
             f"{row['run']:<{width}}  {row['front_size']:>7}  {evals:>7}  {failed:>6}  "
-            f"{row['hypervolume']:>11.4f}  {row['igd_plus']:>8.4f}  {row['epsilon']:>8.4f}  {seeds}".rstrip()
+            f"{fmt.share(row['hypervolume'], 2):>11}  {row['igd_plus']:>8.4f}  {row['epsilon']:>8.4f}  {seeds}".rstrip()
         )
     click.echo(
-        f"Scale: 0 at the best values reached, 1 at the reference point "
-        f"({', '.join(f'{v:g}' for v in result.reference)}); IGD+ and epsilon against {result.reference_set}."
+        "Scale: each objective from 0 at the best value reached to 1 at the reference point "
+        f"({', '.join(fmt.number(v) for v in result.reference)}); the hypervolume is the share of that "
+        f"box covered; IGD+ and epsilon on that scale against {result.reference_set}."
     )
     for line in result.lines:
         click.echo(line)

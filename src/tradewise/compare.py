@@ -20,6 +20,7 @@ import moocore
 import numpy as np
 import pandas as pd
 
+from tradewise import format as _format
 from tradewise.case import Objective
 from tradewise.errors import DataError
 from tradewise.front import (
@@ -315,7 +316,7 @@ class Attainment:
         )
         if self.widest is not None and self.gap > 0:
             where = ", ".join(
-                f"{o.name} {value:.4g}{(' ' + self.units.get(o.name, o.unit)) if self.units.get(o.name, o.unit) else ''}"
+                f"{o.name} {_format.quantity(value, self.units.get(o.name, o.unit))}"
                 for o, value in zip(self.objectives, self.widest, strict=True)
             )
             text.append(
@@ -484,7 +485,7 @@ def _normalise(
 
 
 def _point_text(point: Sequence[float]) -> str:
-    return "(" + ", ".join(f"{v:.4g}" for v in point) + ")"
+    return "(" + ", ".join(_format.number(v) for v in point) + ")"
 
 
 @dataclass(frozen=True)
@@ -667,7 +668,8 @@ def _verdict(
     lines = []
     order = table.sort_values("hypervolume", ascending=False)["run"].tolist()
     lines.append(
-        f"{best} has the largest hypervolume ({by_label.at[best, 'hypervolume']:.4f} of the common box)."
+        f"{best} has the largest hypervolume ({_format.share(by_label.at[best, 'hypervolume'], 2)} of the "
+        "common box)."
     )
     for label, indicator in (("IGD+", "igd_plus"), ("epsilon", "epsilon")):
         values = table[indicator].to_numpy(dtype=float)
@@ -685,7 +687,7 @@ def _verdict(
         if diff <= 1e-12 * max(1.0, abs(h_best)):
             lines.append(f"{other} has the same hypervolume as {best}.")
             continue
-        text = f"{other} is lower by {diff:.4f}"
+        text = f"{other} is lower by {100 * diff:.2f} points of that share"
         d_bo, d_ob = dominance.at[best, other], dominance.at[other, best]
         if np.isfinite(d_bo) and np.isfinite(d_ob):
             text += f"; {best} dominates {d_bo:.0%} of {other}'s designs, {other} {d_ob:.0%} of {best}'s"
@@ -699,7 +701,7 @@ def _spread_text(
 ) -> str:
     def span(label: str) -> str:
         values = spreads[label]
-        return f"{min(values):.4f} to {max(values):.4f} ({len(values)} seeds)"
+        return f"{_format.share(min(values), 2)} to {_format.share(max(values), 2)} ({len(values)} seeds)"
 
     if best in spreads and other in spreads:
         low_best, high_other = min(spreads[best]), max(spreads[other])
@@ -726,7 +728,7 @@ def _spread_text(
                 where = (
                     f"{side} that range, so the difference is larger than the seed-to-seed spread"
                 )
-            return f"Single seeds of {known} reached {span(known)}; {single}'s {value:.4f} lies {where}."
+            return f"Single seeds of {known} reached {span(known)}; {single}'s {_format.share(value, 2)} lies {where}."
     return (
         f"The seed-to-seed spread of {best} and {other} is unknown; run each with --seeds to tell a real "
         "difference from the luck of the seed."

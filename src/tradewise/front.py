@@ -21,6 +21,7 @@ import moocore
 import numpy as np
 import pandas as pd
 
+from tradewise import format as _format
 from tradewise._plain import write_json
 from tradewise.case import Objective
 from tradewise.errors import DataError, quote, undecodable
@@ -919,14 +920,5 @@ def _rate_text(front: Front, give: str, gain: str, rate: float, per: float) -> s
 
 
 def _number(value: float) -> str:
-    """Three significant digits, positional with thousands separators between 1e-4 and 1e9."""
-    value = float(value)
-    if value == 0 or not math.isfinite(value):
-        return f"{value:g}"
-    if not 1e-4 <= abs(value) < 1e9:
-        return f"{value:.3g}"
-    decimals = 2 - math.floor(math.log10(abs(value)))
-    rounded = round(value, decimals)
-    if decimals <= 0:
-        return f"{round(rounded):,}"
-    return f"{rounded:,.{decimals}f}".rstrip("0").rstrip(".")
+    # Rates are estimates from neighbouring designs: three significant digits say all they know.
+    return _format.number(float(value), 3)

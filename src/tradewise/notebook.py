@@ -206,7 +206,9 @@ class Picker:
                 self._sliders[o.name] = slider
                 limit_rows.append(slider)
             else:
-                limit_rows.append(w.HTML(f"<i>{escape(label)}: every design has {low:.5g}</i>"))
+                limit_rows.append(
+                    w.HTML(f"<i>{escape(label)}: every design has {show_value(low)}</i>")
+                )
         reset = w.Button(description="Clear limits", icon="undo", layout=w.Layout(width="140px"))
         reset.on_click(lambda _b: self._act(state.clear_limits))
         self.buttons = {"clear limits": reset}

@@ -17,6 +17,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from tradewise import format as _format
 from tradewise._plain import plain
 from tradewise.case import RESERVED_NAMES
 from tradewise.choose import (
@@ -617,10 +618,8 @@ def _finite_or_none(value: Any, what: str) -> float | None:
 
 
 def show_value(value: Any) -> str:
-    """A value as the picker shows it: floats to five significant digits, anything else as text."""
-    if isinstance(value, float | np.floating):
-        return f"{float(value):.5g}"
-    return str(value)
+    """A value as the picker shows it (the one rule of :mod:`tradewise.format`)."""
+    return _format.value(value)
 
 
 def knee_sentence(info: Mapping[str, Any]) -> str:

@@ -32,6 +32,7 @@ from matplotlib.lines import Line2D
 from matplotlib.patches import Patch, Polygon
 
 from tradewise import choose as _choose
+from tradewise import format as _format
 from tradewise.case import Objective
 from tradewise.errors import DataError
 from tradewise.front import Front, objective_matrix
@@ -1017,7 +1018,11 @@ def _objective_axis(front: Front, objective: Objective) -> dict[str, Any]:
     if objective.goal == "min":
         scaled = 1.0 - scaled  # better is up
     best, worst = (lo, hi) if objective.goal == "min" else (hi, lo)
-    ticks = [(1.0, _number(best)), (0.0, _number(worst))] if span > 0 else [(0.5, _number(lo))]
+    ticks = (
+        [(1.0, _format.number(best)), (0.0, _format.number(worst))]
+        if span > 0
+        else [(0.5, _format.number(lo))]
+    )
     unit = front.units.get(objective.name, objective.unit)
     label = (
         f"{objective.name}\n[{unit}]\n{objective.goal}"
@@ -1038,10 +1043,14 @@ def _variable_axis(front: Front, name: str) -> dict[str, Any]:
         if hi > lo:
             return {
                 "levels": (values - lo) / (hi - lo),
-                "ticks": [(1.0, _number(hi)), (0.0, _number(lo))],
+                "ticks": [(1.0, _format.number(hi)), (0.0, _format.number(lo))],
                 "label": label,
             }
-        return {"levels": np.full(len(values), 0.5), "ticks": [(0.5, _number(lo))], "label": label}
+        return {
+            "levels": np.full(len(values), 0.5),
+            "ticks": [(0.5, _format.number(lo))],
+            "label": label,
+        }
     options = _options_of(front, name, column)
     position = {
         option: (k / (len(options) - 1) if len(options) > 1 else 0.5)
@@ -1060,12 +1069,6 @@ def _options_of(front: Front, name: str, column: pd.Series) -> list[str]:
                 known = [str(o) for o in spec.options]
                 return known + sorted({str(v) for v in column} - set(known))
     return sorted({str(v) for v in column})
-
-
-def _number(value: float) -> str:
-    if value != 0 and not 1e-4 <= abs(value) < 1e7:
-        return f"{value:.4g}"
-    return np.format_float_positional(value, precision=5, unique=True, fractional=False, trim="-")
 
 
 # ------------------------------------------------------------------------------- history

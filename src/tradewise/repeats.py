@@ -12,6 +12,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from tradewise import format as _format
 from tradewise import search
 from tradewise.case import Case, load_case
 from tradewise.errors import StoreError
@@ -71,8 +72,9 @@ class SeedsResult:
     def __repr__(self) -> str:
         s = self.spread
         return (
-            f"SeedsResult({len(self.runs)} seeds, front={len(self.front)} designs, hypervolume={self.hypervolume:.6g}, "
-            f"single runs median {s['median']:.6g} [{s['min']:.6g}, {s['max']:.6g}])"
+            f"SeedsResult({len(self.runs)} seeds, front={len(self.front)} designs, hypervolume={_format.number(self.hypervolume)}, "
+            f"single runs median {_format.number(s['median'])} [{_format.number(s['min'])}, "
+            f"{_format.number(s['max'])}])"
         )
 
 
@@ -515,18 +517,19 @@ def _merge_repeats(
         s = spread
         box = hypervolume_box(front.points(), reference, case.maximise)
         if math.isfinite(box):
-            share = {k: 100 * v / box for k, v in s.items()}
+            share = {k: _format.share(v / box) for k, v in s.items()}
             parts.append(
-                f"Merged front of {len(front)} designs, covering {100 * merged_hv / box:.1f} % of the "
+                f"Merged front of {len(front)} designs, covering {_format.share(merged_hv / box)} of the "
                 "box from its best values to the common reference point (hypervolume share); single "
-                f"runs: median {share['median']:.1f} %, min {share['min']:.1f} %, max "
-                f"{share['max']:.1f} % of that box (spread {share['max'] - share['min']:.2g} points)."
+                f"runs: median {share['median']}, min {share['min']}, max "
+                f"{share['max']} of that box (spread {100 * (s['max'] - s['min']) / box:.2g} points)."
             )
         else:
             parts.append(
-                f"Merged front of {len(front)} designs, hypervolume {merged_hv:.6g}; single runs: "
-                f"median {s['median']:.6g}, min {s['min']:.6g}, max {s['max']:.6g} on the common "
-                f"reference point ({', '.join(f'{v:g}' for v in reference)}), which does not lie "
+                f"Merged front of {len(front)} designs, hypervolume {_format.number(merged_hv)}; single runs: "
+                f"median {_format.number(s['median'])}, min {_format.number(s['min'])}, max "
+                f"{_format.number(s['max'])} on the common "
+                f"reference point ({', '.join(_format.number(v) for v in reference)}), which does not lie "
                 "beyond the front's best values in every objective."
             )
     else:

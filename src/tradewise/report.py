@@ -37,6 +37,7 @@ from jinja2.ext import Extension
 from markupsafe import Markup
 
 from tradewise import choose as _choose
+from tradewise import format as _format
 from tradewise import plots
 from tradewise.errors import DataError
 from tradewise.front import Front, hypervolume_box, objective_matrix, tradeoff_rates
@@ -266,22 +267,7 @@ def write_report(
 
 # -------------------------------------------------------------------------------- values
 def _fmt(value: Any) -> str:
-    if value is None:
-        return "\u2014"
-    if isinstance(value, bool | np.bool_):
-        return "yes" if value else "no"
-    if isinstance(value, int | np.integer):
-        return str(int(value))
-    if isinstance(value, float | np.floating):
-        value = float(value)
-        if not math.isfinite(value):
-            return "\u2014"
-        if value != 0 and not 1e-4 <= abs(value) < 1e9:
-            return f"{value:.5g}"
-        return np.format_float_positional(
-            value, precision=5, unique=True, fractional=False, trim="-"
-        )
-    return str(value)
+    return _format.value(value)
 
 
 def _unit(front: Front, name: str) -> str:
@@ -536,7 +522,7 @@ def _facts(
     if math.isfinite(share):
         items.append(
             (
-                f"{100 * share:.1f} %",
+                _format.share(share),
                 "of the box from the best values to the reference point, covered",
             )
         )
@@ -789,7 +775,7 @@ def _run(front: Front, history, spread: dict[str, Any] | None) -> dict[str, Any]
         if math.isfinite(share):
             entries.append((
                 "hypervolume",
-                f"{100 * share:.1f} % of the box from the front's best values to the reference point "
+                f"{_format.share(share)} of the box from the front's best values to the reference point "
                 f"(raw value {_fmt(hv)}, in the product of the objectives' units)",
             ))  # fmt: skip
     started, finished = info.started, info.finished
@@ -798,7 +784,7 @@ def _run(front: Front, history, spread: dict[str, Any] | None) -> dict[str, Any]
         and isinstance(finished, int | float)
         and finished >= started
     ):
-        entries.append(("run time", f"{finished - started:.3g} s"))
+        entries.append(("run time", _format.seconds(finished - started)))
     if info.versions:
         entries.append(("software", ", ".join(f"{k} {v}" for k, v in info.versions.items())))
     per_seed = history is not None and "seed" in history.columns and history["seed"].nunique() > 1
@@ -835,8 +821,8 @@ def _seeds(front: Front, spread: dict[str, Any]) -> dict[str, Any]:
         if math.isfinite(box):
             text += (
                 " Measured on the same reference point, the single runs cover "
-                f"{100 * spread['median'] / box:.1f} % (median), from {100 * spread['min'] / box:.1f} % "
-                f"to {100 * spread['max'] / box:.1f} %, of the box from the merged front's best values to "
+                f"{_format.share(spread['median'] / box)} (median), from {_format.share(spread['min'] / box)} "
+                f"to {_format.share(spread['max'] / box)}, of the box from the merged front's best values to "
                 "the reference point"
             )
         else:
@@ -848,7 +834,7 @@ def _seeds(front: Front, spread: dict[str, Any]) -> dict[str, Any]:
             share = (spread["max"] - spread["min"]) / spread["median"]
             text += f", a spread of {share:.1%} of the median"
         if spread["merged"] is not None and math.isfinite(box):
-            text += f"; the merged front covers {100 * spread['merged'] / box:.1f} %"
+            text += f"; the merged front covers {_format.share(spread['merged'] / box)}"
         text += (
             ". A small spread says the search found much the same front from every start; a large one says "
             "more evaluations or more seeds would likely still change it."
@@ -861,7 +847,7 @@ def _seeds(front: Front, spread: dict[str, Any]) -> dict[str, Any]:
         "heads": [_SEED_COLUMNS[c] for c in shown],
         "rows": [
             [
-                f"{100 * float(v) / spread['box']:.1f} %"
+                _format.share(float(v) / spread["box"])
                 if c == "hypervolume"
                 and math.isfinite(spread["box"])
                 and _number_or_none(v) is not None

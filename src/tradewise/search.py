@@ -25,6 +25,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from tradewise import format as _format
 from tradewise._plain import plain
 from tradewise._pymoo import Searcher, Space, decode_state, default_population
 from tradewise.case import Case, load_case
@@ -132,7 +133,7 @@ class RunResult:
     def __repr__(self) -> str:
         return (
             f"RunResult({self.message!r}, front={len(self.front)} designs, n_evals={self.n_evals}, "
-            f"n_gen={self.n_gen}, hypervolume={self.hypervolume:.6g})"
+            f"n_gen={self.n_gen}, hypervolume={_format.number(self.hypervolume)})"
         )
 
 
@@ -1034,9 +1035,9 @@ def _front_sentence(front: Front, reference: Any, point: str = "the reference po
     )
     if not math.isfinite(share):
         hv = hypervolume(front.points(), reference, front.maximise) if len(front) else 0.0
-        return f"Front of {len(front)} designs, hypervolume {hv:.6g} on {point}."
+        return f"Front of {len(front)} designs, hypervolume {_format.number(hv)} on {point}."
     return (
-        f"Front of {len(front)} designs, covering {100 * share:.1f} % of the box from its best "
+        f"Front of {len(front)} designs, covering {_format.share(share)} of the box from its best "
         f"values to {point} (hypervolume share)."
     )
 
@@ -1053,12 +1054,11 @@ def _violation_summary(case: Case, ok: pd.DataFrame) -> str:
             shortfall = shortfall + (values - c.max).clip(lower=0)
         broken = shortfall > 0
         if broken.any():
-            unit = f" {c.unit}" if c.unit else ""
             lines.append(
                 (
                     broken.mean(),
                     f"{c.describe()} broken by {broken.mean():.0%} of designs, "
-                    f"missed by {shortfall[broken].min():.4g}{unit} at best",
+                    f"missed by {_format.quantity(shortfall[broken].min(), c.unit)} at best",
                 )
             )
     lines.sort(key=lambda item: -item[0])
