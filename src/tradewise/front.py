@@ -4,6 +4,10 @@ Everything here works on any table of designs (a run's result or a CSV from
 elsewhere); it never touches the search, the models or the archive. The
 numerical kernels (non-dominated filtering, hypervolume, contributions) come
 from moocore.
+
+Over 800 lines because reading a user's CSV (with an error that names the
+file, row and column of every kind of bad cell) and the trade-off rates in
+words live beside the Front they build and describe.
 """
 
 from __future__ import annotations

@@ -7,6 +7,10 @@ it is saved, and files are written through the Agg (PNG) or the vector
 canvases. Roles are told apart by marker shape, fill and line style as well as
 by colour, and the colours differ in lightness so that they survive a
 greyscale print.
+
+Over 800 lines because it is the one module that imports matplotlib (the
+design keeps that dependency in one place): six kinds of figure and the
+picker's drawing share one style, palette and label rule.
 """
 
 from __future__ import annotations

@@ -7,6 +7,10 @@ new ones), evaluate (record the known, take over an interrupted run's,
 evaluate the rest), tell the algorithm, update the front, the settling
 measure and the history, save the state, and decide whether to stop
 (``_stop_status``, a status, never an exception).
+
+Over 800 lines, about a third of them numpydoc, because the public face
+(``run``, ``resume``, ``RunResult``) and the run's closing sentences belong
+with the loop whose state they report.
 """
 
 from __future__ import annotations
