@@ -861,6 +861,10 @@ def _seeds(front: Front, spread: dict[str, Any]) -> dict[str, Any]:
     }
 
 
+#: Fronts up to this many designs are shown (and printed) in full; longer ones fold away.
+_OPEN_FRONT_ROWS = 60
+
+
 def _front_table(
     front: Front, marks: dict[str, Any], listed: dict[str, Any] | None
 ) -> dict[str, Any]:
@@ -897,6 +901,8 @@ def _front_table(
     )
     return {
         "n": len(front),
+        # a front that prints on a page or two is shown; a longer one folds away (front.csv has it)
+        "open": len(front) <= _OPEN_FRONT_ROWS,
         "goals": goals,
         "heads": [_heading(front, column) for column in columns],
         "rows": rows,
