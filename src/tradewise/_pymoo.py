@@ -60,14 +60,21 @@ class Space:
     Reals are themselves. Integers, choices (option index) and flags (0/1) are
     searched on a real axis widened by half a step at each end and rounded, so
     every legal value has the same share of the axis and no fractional or
-    out-of-range value ever reaches the model.
+    out-of-range value ever reaches the model. A discrete variable (standard
+    sizes) and a real with a step are searched the same way by the index of
+    their sorted values, so neighbouring sizes are neighbours for crossover and
+    mutation and no value off the list is ever proposed.
     """
 
     def __init__(self, case: Case) -> None:
         self.variables = case.variables
         low, high, discrete = [], [], []
         for v in case.variables:
-            if v.kind == "real":
+            if v.grid:
+                low.append(-0.4999)
+                high.append(len(v.grid) - 1 + 0.4999)
+                discrete.append(True)
+            elif v.kind == "real":
                 low.append(float(v.low))
                 high.append(float(v.high))
                 discrete.append(False)
@@ -86,7 +93,8 @@ class Space:
         self._names = [v.name for v in case.variables]
         self._kinds = [v.kind for v in case.variables]
         self._options = [v.options for v in case.variables]
-        self._all_real = all(kind == "real" for kind in self._kinds)
+        self._grids = [v.grid for v in case.variables]
+        self._all_real = all(v.kind == "real" and not v.grid for v in case.variables)
         #: (column, number of options) of every choice and flag
         self.categorical = [
             (i, len(v.options) if v.kind == "choice" else 2)
@@ -113,10 +121,12 @@ class Space:
         if self._all_real:
             return dict(zip(self._names, map(float, x), strict=True))
         design: dict[str, Any] = {}
-        for name, kind, options, value in zip(
-            self._names, self._kinds, self._options, x, strict=True
+        for name, kind, options, grid, value in zip(
+            self._names, self._kinds, self._options, self._grids, x, strict=True
         ):
-            if kind == "real":
+            if grid:
+                design[name] = grid[int(round(value))]
+            elif kind == "real":
                 design[name] = float(value)
             elif kind == "integer":
                 design[name] = int(round(value))
@@ -132,6 +142,8 @@ class Space:
             value = design[v.name]
             if v.kind == "choice":
                 x.append(float(v.options.index(value)))
+            elif v.grid:
+                x.append(float(np.argmin(np.abs(np.asarray(v.grid) - float(value)))))
             else:
                 x.append(float(value))
         return np.asarray(x, dtype=float)

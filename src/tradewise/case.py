@@ -5,6 +5,7 @@ from __future__ import annotations
 import ast
 import difflib
 import hashlib
+import itertools
 import math
 import re
 import tomllib
@@ -45,7 +46,7 @@ RESERVED_NAMES = frozenset(
     }
 )
 
-VARIABLE_TYPES = ("real", "integer", "choice", "flag")
+VARIABLE_TYPES = ("real", "integer", "discrete", "choice", "flag")
 GOALS = ("min", "max")
 _NAME = re.compile(r"^[A-Za-z_][A-Za-z0-9_\-]{0,63}$")
 
@@ -63,8 +64,9 @@ _TOP_KEYS = (
     "search",
 )
 _VARIABLE_KEYS = {
-    "real": ("type", "low", "high", "unit", "description"),
+    "real": ("type", "low", "high", "step", "unit", "description"),
     "integer": ("type", "low", "high", "unit", "description"),
+    "discrete": ("type", "values", "unit", "description"),
     "choice": ("type", "options", "unit", "description"),
     "flag": ("type", "description"),
 }
@@ -86,9 +88,12 @@ _SEARCH_KEYS = (
 class Variable:
     """One design variable.
 
-    ``kind`` is ``"real"``, ``"integer"``, ``"choice"`` or ``"flag"``. Reals and
-    integers have inclusive ``low`` and ``high`` bounds; a choice has its
-    ``options``; a flag is a boolean.
+    ``kind`` is ``"real"``, ``"integer"``, ``"discrete"``, ``"choice"`` or
+    ``"flag"``. Reals and integers have inclusive ``low`` and ``high`` bounds; a
+    real may have a ``step`` (its values are then ``low``, ``low + step``, ...
+    up to ``high``); a discrete variable takes one of its sorted ``values``
+    (standard sizes: wire gauges, plate thicknesses), with ``low`` and ``high``
+    its smallest and largest; a choice has its ``options``; a flag is a boolean.
     """
 
     name: str
@@ -98,6 +103,18 @@ class Variable:
     options: tuple[Any, ...] = ()
     unit: str = ""
     description: str = ""
+    values: tuple[float, ...] = ()
+    step: float | None = None
+
+    @property
+    def grid(self) -> tuple[float, ...]:
+        """The ordered legal values of a discrete variable or a real with a step (else empty)."""
+        if self.kind == "discrete":
+            return self.values
+        if self.kind == "real" and self.step is not None:
+            n = math.floor((self.high - self.low) / self.step * (1 + 1e-12) + 1e-9)
+            return tuple(self.low + k * self.step for k in range(n + 1))
+        return ()
 
     def contains(self, value: Any) -> bool:
         """Say whether ``value`` is a legal value of this variable."""
@@ -109,6 +126,8 @@ class Variable:
             return False
         if self.kind == "integer" and not float(value).is_integer():
             return False
+        if self.grid:
+            return any(math.isclose(value, g, rel_tol=1e-9, abs_tol=1e-12) for g in self.grid)
         return self.low <= value <= self.high
 
 
@@ -348,6 +367,9 @@ _SYNONYMS = {
     "category": "choice",
     "enum": "choice",
     "option": "choice",
+    "sizes": "discrete",
+    "list": "discrete",
+    "standard": "discrete",
     "minimise": "min",
     "minimize": "min",
     "minimum": "min",
@@ -496,6 +518,9 @@ def _build_case(data: dict[str, Any], file: Path, text: str) -> Case:
 def _variable(name: str, entry: dict[str, Any], where: str) -> Variable:
     kind = entry.get("type")
     if kind is None:
+        # a misspelt key is the likelier mistake than a forgotten one: name it first
+        known = tuple(dict.fromkeys(k for keys in _VARIABLE_KEYS.values() for k in keys))
+        _check_keys(entry, known, where)
         raise CaseError(f"{where}: missing 'type'; allowed: {', '.join(VARIABLE_TYPES)}")
     if kind not in VARIABLE_TYPES:
         raise CaseError(
@@ -520,6 +545,8 @@ def _variable(name: str, entry: dict[str, Any], where: str) -> Variable:
         if len(options) < 2:
             raise CaseError(f"{where}: a choice needs at least two options, got {options!r}")
         return Variable(name, kind, options=tuple(options), unit=unit, description=description)
+    if kind == "discrete":
+        return _discrete(name, entry, where, unit, description)
     integer = kind == "integer"
     for key in ("low", "high"):
         if key not in entry:
@@ -533,9 +560,52 @@ def _variable(name: str, entry: dict[str, Any], where: str) -> Variable:
             f"{where}: the range from {low:g} to {high:g} is too wide to compute with (high - low overflows "
             "a float); narrow it or change the variable's unit"
         )
-    if not integer:
-        low, high = float(low), float(high)
-    return Variable(name, kind, low=low, high=high, unit=unit, description=description)
+    if integer:
+        return Variable(name, kind, low=low, high=high, unit=unit, description=description)
+    step = None
+    if "step" in entry:
+        step = float(_number(entry["step"], f"{where}: step"))
+        if not (math.isfinite(step) and 0 < step <= float(high) - float(low)):
+            raise CaseError(
+                f"{where}: 'step' must be above 0 and at most high - low ({float(high) - float(low):g}), "
+                f"got {step:g}"
+            )
+    return Variable(
+        name, kind, low=float(low), high=float(high), unit=unit, description=description, step=step
+    )
+
+
+def _discrete(
+    name: str, entry: dict[str, Any], where: str, unit: str, description: str
+) -> Variable:
+    """A variable that takes one of a sorted list of numbers (standard sizes)."""
+    values = entry.get("values")
+    if not isinstance(values, list):
+        raise CaseError(
+            f"{where}: 'values' must be a list of numbers in rising order, e.g. [0.8, 1.0, 1.25], "
+            f"got {values!r}"
+        )
+    numbers = [float(_number(v, f"{where}: values[{i}]")) for i, v in enumerate(values)]
+    if len(numbers) < 2:
+        raise CaseError(f"{where}: 'values' needs at least two sizes, got {len(numbers)}")
+    for i, (a, b) in enumerate(itertools.pairwise(numbers)):
+        if not math.isfinite(a) or not math.isfinite(b):
+            raise CaseError(f"{where}: values[{i}] is not a finite number")
+        if b == a:
+            raise CaseError(f"{where}: value {a:g} is repeated; the sizes must be distinct")
+        if b < a:
+            raise CaseError(
+                f"{where}: 'values' must rise: values[{i + 1}] ({b:g}) comes after {a:g}"
+            )
+    return Variable(
+        name,
+        "discrete",
+        low=numbers[0],
+        high=numbers[-1],
+        unit=unit,
+        description=description,
+        values=tuple(numbers),
+    )
 
 
 def _objective(name: str, entry: dict[str, Any], where: str) -> Objective:

@@ -550,7 +550,11 @@ def _case(front: Front) -> dict[str, Any]:
     variables = []
     for v in info.design_space:
         kind = v.kind
-        if kind in ("real", "integer"):
+        if kind == "discrete" or (kind == "real" and v.options):
+            allowed = ", ".join(_fmt(o) for o in v.options)
+            if len(v.options) > 12:
+                allowed = f"{len(v.options)} sizes from {_fmt(v.low)} to {_fmt(v.high)}"
+        elif kind in ("real", "integer"):
             allowed = f"{_fmt(v.low)} to {_fmt(v.high)}"
         elif kind == "choice":
             allowed = ", ".join(map(str, v.options))

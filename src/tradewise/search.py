@@ -938,7 +938,7 @@ def _finish(run: _Run, status: str, algorithm_name: str, started: float) -> RunR
         started=started,
         finished=time.time(),
         design_space=tuple(
-            VariableSpec(v.name, v.kind, v.low, v.high, tuple(v.options), v.unit)
+            VariableSpec(v.name, v.kind, v.low, v.high, tuple(v.options or v.grid), v.unit)
             for v in case.variables
         ),
         descriptions={
