@@ -69,7 +69,11 @@ def test_check_evaluates_one_design():
     """`tradewise check` validates the case and shows one evaluated design."""
     result = CliRunner().invoke(main, ["check", str(CASES / "truss")])
     assert result.exit_code == 0, result.output
-    assert "-> volume =" in result.output and "The case is valid" in result.output
+    out = result.output
+    assert "volume = 0.03354 m3" in out and "is a valid case" in out
+    # the case in plain words, and each constraint's limit with whether the middle design meets it
+    assert "Objectives (2):" in out and "volume: as low as possible, in m3" in out
+    assert "stress_check = 17,889 kPa  (must be at most 100,000 kPa: met)" in out
 
 
 def test_check_reports_a_failing_model(make_case):

@@ -13,6 +13,7 @@ from dataclasses import dataclass, field, replace
 from pathlib import Path
 from typing import Any
 
+from tradewise import format as _format
 from tradewise.errors import CaseError, quote, undecodable
 
 __all__ = [
@@ -169,6 +170,17 @@ class Constraint:
             total += (value - self.max) / max(abs(self.max), 1e-12 if self.max else 1.0)
         return total
 
+    def plain(self) -> str:
+        """The limit in words: 'at least 2 mm', 'at most 90 degC', 'from 1 to 3 mm'."""
+        low, high = (_format.quantity(x, self.unit) for x in (self.min, self.max))
+        if self.min is not None and self.max is not None:
+            return f"from {_format.number(self.min)} to {high}"
+        return f"at least {low}" if self.min is not None else f"at most {high}"
+
+    def met_by(self, value: float) -> bool:
+        """Whether ``value`` keeps to the limit."""
+        return self.violation(value) <= 0
+
     def describe(self) -> str:
         unit = f" {self.unit}" if self.unit else ""
         if self.min is not None and self.max is not None:
@@ -271,6 +283,53 @@ class Case:
         settings = replace(self.search, **changes)
         _check_search_values(settings, f"{self.path}: [search]")
         return replace(self, search=settings)
+
+    def plain_lines(self) -> list[str]:
+        """The case in plain words, a line an item, for ``tradewise check`` and other people.
+
+        Examples
+        --------
+        >>> case = Case(Path("case.toml"), "Bracket", (Variable("t", "real", 1.0, 5.0, unit="mm"),),
+        ...             (Objective("mass", unit="g"), Objective("stiffness", "max", "N/mm")),
+        ...             (Constraint("stress", max=120.0, unit="MPa"),), model="model.py:evaluate")
+        >>> print(chr(10).join(case.plain_lines()))
+        Bracket
+        Model: the Python function model.py:evaluate
+        Variables (1):
+          t: a real number from 1 to 5 mm
+        Objectives (2):
+          mass: as low as possible, in g
+          stiffness: as high as possible, in N/mm
+        Constraints (1):
+          stress: at most 120 MPa
+        """
+        lines = [self.title]
+        if self.model:
+            lines.append(f"Model: the Python function {self.model}")
+        elif self.command:
+            lines.append(f"Model: the program {' '.join(self.command)}")
+        if self.timeout:
+            lines[-1] += f" (stopped after {_format.seconds(self.timeout)})"
+        lines.append(f"Variables ({len(self.variables)}):")
+        for v in self.variables:
+            lines.append(f"  {v.name}: {_plain_variable(v)}")
+        lines.append(f"Objectives ({len(self.objectives)}):")
+        for o in self.objectives:
+            sense = "as high as possible" if o.maximise else "as low as possible"
+            unit = f", in {o.unit}" if o.unit else ""
+            worst = (
+                f"; worst acceptable {_format.quantity(o.worst, o.unit)}"
+                if o.worst is not None
+                else ""
+            )
+            lines.append(f"  {o.name}: {sense}{unit}{worst}")
+        if self.constraints:
+            lines.append(f"Constraints ({len(self.constraints)}):")
+            for c in self.constraints:
+                lines.append(f"  {c.name}: {c.plain()}")
+        if self.outputs:
+            lines.append(f"Other outputs kept: {', '.join(self.outputs)}")
+        return lines
 
     def __repr__(self) -> str:
         return (
@@ -573,6 +632,21 @@ def _variable(name: str, entry: dict[str, Any], where: str) -> Variable:
     return Variable(
         name, kind, low=float(low), high=float(high), unit=unit, description=description, step=step
     )
+
+
+def _plain_variable(v: Variable) -> str:
+    unit = f" {v.unit}" if v.unit else ""
+    if v.kind == "flag":
+        return "yes or no"
+    if v.kind == "choice":
+        return "one of " + ", ".join(str(o) for o in v.options)
+    if v.kind == "discrete":
+        sizes = ", ".join(_format.number(x) for x in v.values)
+        return f"one of the sizes {sizes}{unit}"
+    if v.kind == "integer":
+        return f"a whole number from {_format.number(v.low)} to {_format.number(v.high)}{unit}"
+    step = f" in steps of {_format.number(v.step)}" if v.step is not None else ""
+    return f"a real number from {_format.number(v.low)} to {_format.number(v.high)}{unit}{step}"
 
 
 def _discrete(

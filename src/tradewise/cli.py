@@ -400,17 +400,25 @@ def check_command(case) -> None:
     from tradewise.search import middle_design
 
     loaded = load_case(case)
-    click.echo(f"{loaded.path}: {loaded!r}")
+    click.echo(f"{loaded.path} is a valid case:")
+    for line in loaded.plain_lines():
+        click.echo(f"  {line}")
     design = middle_design(loaded)
     outcome = make_model(loaded)(design)
     units = loaded.units
+    click.echo("A design in the middle of every range:")
     for name, value in design.items():
         click.echo(f"  {name} = {fmt.quantity(value, units.get(name))}")
     if not outcome.ok:
         raise ModelError(f"{loaded.path}: the model failed on the middle design: {outcome.message}")
+    click.echo(f"The model answered in {fmt.seconds(outcome.duration)}:")
+    limits = {c.name: c for c in loaded.constraints}
     for name, value in outcome.results.items():
-        click.echo(f"  -> {name} = {fmt.quantity(value, units.get(name))}")
-    click.echo(f"The case is valid and its model answered in {fmt.seconds(outcome.duration)}.")
+        text = f"  {name} = {fmt.quantity(value, units.get(name))}"
+        if name in limits:
+            c = limits[name]
+            text += f"  (must be {c.plain()}: {'met' if c.met_by(float(value)) else 'NOT met'})"
+        click.echo(text)
 
 
 def _same_file(a, b) -> bool:

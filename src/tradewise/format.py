@@ -85,7 +85,9 @@ def quantity(x: Any, unit: str | None = None, digits: int = DIGITS) -> str:
     >>> quantity(0.12345, "K/W"), quantity(12, None)
     ('0.1235 K/W', '12')
     """
-    text = number(x, digits)
+    if isinstance(x, np.generic):
+        x = x.item()
+    text = number(x, digits) if x is None or isinstance(x, int | float) else str(x)
     return f"{text} {unit}" if unit and text != MISSING else text
 
 
