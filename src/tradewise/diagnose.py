@@ -43,8 +43,8 @@ BOUND_SHARE = 0.5
 #: front already decides a whole stretch of it.
 LIMIT_SHARE = 0.2
 #: "At" a bound or limit means within this share of the scale: for a real variable, its range;
-#: for a limit, the larger of the limit's size and the span of its column on the front.
-#: Our own choice; integers count only when exactly at the bound.
+#: for a limit, the larger of the limit's size (1 for a zero limit) and the span of its column on
+#: the front. Our own choice; integers count only when exactly at the bound.
 NEAR = 0.01
 
 #: The order of kinds when two findings have the same share: what the designer can loosen first.
@@ -185,7 +185,9 @@ def _limit_findings(front: Front, spec: LimitSpec, *, share: float, near: float)
     for side, limit, word in (("min", spec.min, "minimum"), ("max", spec.max, "maximum")):
         if limit is None:
             continue
-        tolerance = near * max(abs(limit), span)
+        # A zero limit has no size of its own; as in the search's relative violation
+        # (case.Constraint.violation), its scale is then 1.
+        tolerance = near * max(abs(limit) if limit else 1.0, span)
         at = np.abs(values - limit) <= tolerance
         part = float(np.mean(at))
         if part >= share and at.any():
@@ -411,13 +413,14 @@ def what_if(evaluations: pd.DataFrame, front: Front, limits: Iterable[Limit | st
     before_mask = _meets(table, [r for rules in case_rules.values() for r in rules])
     after_mask = _meets(table, [r for rules in new_rules.values() for r in rules] + added)
     preferred = set(_ids_of(front.table))
-    before = _archive_front(table[before_mask], front, preferred, front.info)
+    scale = _tie_scale(front, table)
+    before = _archive_front(table[before_mask], front, preferred, front.info, scale)
     after_info = front.info.but(
         constraint_limits=_new_limit_specs(front, replaced),
         hypervolume=None,
         message="what-if from the archive: " + "; ".join(str(limit) for limit in limits),
     )
-    after = _archive_front(table[after_mask], front, preferred, after_info)
+    after = _archive_front(table[after_mask], front, preferred, after_info, scale)
     ids_before, ids_after = _ids_of(before.table), _ids_of(after.table)
 
     newly_allowed = []
@@ -568,14 +571,22 @@ def _rule_text(
     return f"{shown} (the case has {was.column} {was.op} {_show(was.value)}{unit}: {change})"
 
 
-def _archive_front(rows: pd.DataFrame, front: Front, preferred: set[int], info) -> Front:
-    """The non-dominated rows as a front like ``front``; of identical designs (one served from the
-    archive, one evaluated) the one already on ``front`` is kept, so an unchanged front keeps its ids."""
+def _archive_front(
+    rows: pd.DataFrame, front: Front, preferred: set[int], info, scale: np.ndarray
+) -> Front:
+    """The non-dominated rows as a front like ``front``.
+
+    As in the search, values within 1e-9 of an objective's scale (:func:`_tie_scale`) are
+    ties, and of tied designs (one served from the archive and one evaluated, or two that
+    differ by rounding) the one already on ``front`` is kept, so that an unchanged limit gives
+    back the run's front with its ids.
+    """
     if "eval_id" in rows.columns and preferred:
         first = rows["eval_id"].isin(preferred).to_numpy()
         rows = pd.concat([rows[first], rows[~first]])
     points = np.column_stack([_numbers(rows[name]) for name in front.objective_names])
-    kept = rows[nondominated(points, front.maximise)] if len(rows) else rows
+    ties = np.round(points / scale, 9)
+    kept = rows[nondominated(ties, front.maximise)] if len(rows) else rows
     columns = [c for c in front.table.columns if c in kept.columns]
     if len(columns) <= len(front.objectives):
         columns = [c for c in kept.columns if c not in _BOOKKEEPING or c == "eval_id"]
@@ -588,6 +599,18 @@ def _archive_front(rows: pd.DataFrame, front: Front, preferred: set[int], info) 
         reference=front.reference,
         info=info,
     )
+
+
+def _tie_scale(front: Front, table: pd.DataFrame) -> np.ndarray:
+    """Each objective's scale for ties: as in the search, the distance from the best value to the
+    reference point (here the front's), or the span over the archive where the front has none."""
+    if front.reference is not None and len(front):
+        best = np.where(front.maximise, front.points().max(axis=0), front.points().min(axis=0))
+        scale = np.abs(np.asarray(front.reference, dtype=float) - best)
+    else:
+        points = np.column_stack([_numbers(table[name]) for name in front.objective_names])
+        scale = np.ptp(points, axis=0) if len(points) else np.ones(len(front.objectives))
+    return np.where(np.isfinite(scale) & (scale > 0), scale, 1.0)
 
 
 def _ids_of(table: pd.DataFrame) -> list[int]:
@@ -650,6 +673,8 @@ def _same(a: float, b: float) -> bool:
 def _share_text(share: float) -> str:
     if share >= 1.0:
         return "every design of the front"
+    if share < 0.005:
+        return "under 1% of the front"
     # never rounded up to 100 % when a design is not there
     percent = min(math.floor(share * 100 + 0.5), 99)
     return f"{percent}% of the front"
