@@ -246,7 +246,7 @@ def test_what_if_front_matches_a_plain_numpy_filter(constr_run):
 
 def test_unknown_column_and_equality_on_a_constraint_are_data_errors(constr_run):
     """A limit on a column the archive lacks names it and lists the known ones; == on a case
-    constraint is refused; no limit at all is refused."""
+    constraint, no limit at all and an empty archive are refused."""
     front, _, archive = read_run(constr_run)
     with pytest.raises(DataError, match=r"no column 'g3'.*known columns: x1, x2, f1, f2, g1, g2"):
         what_if(archive, front, ["g3 >= 1"])
@@ -254,6 +254,8 @@ def test_unknown_column_and_equality_on_a_constraint_are_data_errors(constr_run)
         what_if(archive, front, ["g1 = 5"])
     with pytest.raises(DataError, match="no limit given"):
         what_if(archive, front, [])
+    with pytest.raises(DataError, match="holds no evaluation"):
+        what_if(archive.iloc[0:0], front, ["g1 >= 5"])
 
 
 def test_whatif_command_prints_the_answer_and_writes_the_front(constr_run, tmp_path):

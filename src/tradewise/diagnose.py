@@ -13,7 +13,7 @@ from __future__ import annotations
 import difflib
 import math
 from collections.abc import Iterable, Sequence
-from dataclasses import dataclass, field, replace
+from dataclasses import dataclass, replace
 from typing import Any
 
 import numpy as np
@@ -273,7 +273,6 @@ class WhatIfAnswer:
     newly_allowed: tuple[tuple[str, int], ...] = ()
     n_tightened: int = 0
     case_title: str | None = None
-    notes: tuple[str, ...] = field(default=())
 
     def __repr__(self) -> str:
         return (
@@ -306,8 +305,8 @@ class WhatIfAnswer:
                 else:
                     out.append(f"Best {name}: {_show(now)}{unit} (before: {_show(was)}{unit}).")
             out.append(
-                f"Knee: {_knee_text(front, self.knee_after)} "
-                f"(before: {_knee_text(before, self.knee_before)})."
+                f"Knee: {_knee_text(front, self.knee_after)}; "
+                f"before: {_knee_text(before, self.knee_before)}."
             )
         for band, count in self.newly_allowed:
             design_word = "design lies" if count == 1 else "designs lie"
@@ -318,17 +317,17 @@ class WhatIfAnswer:
                 "are unknown and may do better."
             )
         if self.newly_allowed:
+            case = f" of the case {self.case_title!r}" if self.case_title else ""
             out.append(
-                "To search there, change the limit in the case's case.toml and run "
+                f"To search there, change the limit in the case.toml{case} and run "
                 "`tradewise run CASE` again; the edited case is a new case to the archive, which "
                 "serves only runs of the unchanged case file, so that run evaluates afresh."
             )
         if self.n_tightened:
             out.append(
-                "Caveat: the search aimed at the case's own limits, not at these; designs it "
-                "never evaluated may do better within them."
+                "Caveat: the search aimed at the case's own limits, not at the added or tightened "
+                "ones here; designs it never evaluated may do better within them."
             )
-        out.extend(self.notes)
         return out
 
 
@@ -385,6 +384,10 @@ def what_if(evaluations: pd.DataFrame, front: Front, limits: Iterable[Limit | st
         raise DataError("what-if: no limit given; give at least one, such as 'mass <= 12'")
     if not isinstance(evaluations, pd.DataFrame):
         raise DataError("what-if: the run's archive of evaluations is needed, and none was given")
+    if len(evaluations) == 0:
+        raise DataError(
+            "what-if: the archive holds no evaluation of this run, so it has nothing to judge"
+        )
     _check_columns(evaluations, front, limits)
     table = evaluations
     if "status" in table.columns:
