@@ -795,6 +795,56 @@ def _write_seeds(result, folder, store_path) -> None:
         sys.exit(130)
 
 
+@main.command("whatif")
+@click.argument("run", metavar="RUN")
+@click.option(
+    "--limit",
+    "limits",
+    multiple=True,
+    required=True,
+    metavar="RULE",
+    help='A limit such as "index>=3.5" or "mass<=5" (repeat for more).',
+)
+@click.option(
+    "--out",
+    type=click.Path(dir_okay=False),
+    metavar="FILE.csv",
+    help="Write the front these limits give to this CSV (with .json).",
+)
+def whatif_command(run, limits, out) -> None:
+    """Say what the front of the run folder RUN would be under other limits.
+
+    No design is evaluated: every design in the run's archive is judged
+    again. A limit on one of the case's constraints replaces the case's
+    limit on that side (so "index>=3.5" loosens "index >= 4"); a limit on
+    any other column is added. The answer says which designs join and leave
+    the front, how each objective's best value and the knee move, and how
+    little the archive knows where a loosened limit opens new ground.
+    """
+    from tradewise.diagnose import what_if
+    from tradewise.errors import DataError
+    from tradewise.runfolder import read_run
+
+    _check_out(out, _run_inputs(run), with_json=True)
+    front, _, evaluations = read_run(run)
+    if front.info.seeds is not None:
+        raise DataError(
+            f"{run}: is the merged front of a set of seeds, which a what-if does not read yet; "
+            "it needs the archive of one run, as a run folder of `tradewise run` without --seeds has"
+        )
+    if evaluations is None:
+        raise DataError(
+            f"{run}: no archive of the run's evaluations found beside its front.json; a what-if "
+            "needs the archive.sqlite that `tradewise run` writes into the run folder"
+        )
+    answer = what_if(evaluations, front, limits)
+    for line in answer.lines():
+        click.echo(line)
+    if out:
+        written = answer.front.to_csv(out)
+        click.echo(f"Wrote {written[0]} and {written[1].name}")
+
+
 @main.command("compare")
 @click.argument("runs", metavar="RUN RUN...", nargs=-1, required=True)
 @click.option(
