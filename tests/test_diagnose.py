@@ -295,3 +295,54 @@ def test_whatif_command_refuses_to_write_over_the_run_front(constr_run):
     )
     assert result.exit_code == 2
     assert "Error: --out:" in result.output
+
+
+@pytest.mark.slow
+def test_what_if_does_not_overstate_a_rerun_with_the_relaxed_limit(constr_run, tmp_path):
+    """Every design the what-if front claims is truly feasible under g1 >= 5 with the values it
+    claims (re-evaluated by the model), and the what-if front covers no more than a new search of
+    the relaxed case finds (hypervolume, moocore, on one reference point)."""
+    import importlib.util
+
+    import moocore
+
+    front, _, archive = read_run(constr_run)
+    answer = what_if(archive, front, ["g1>=5"])
+    spec = importlib.util.spec_from_file_location("constr_model", CASES / "constr" / "model.py")
+    model = importlib.util.module_from_spec(spec)
+    spec.loader.exec_module(model)
+    for record in answer.front.table.to_dict("records"):
+        again = model.evaluate({"x1": record["x1"], "x2": record["x2"]})
+        assert again["g1"] >= 5 - 1e-9 and again["g2"] >= 1 - 1e-9
+        assert again["f1"] == pytest.approx(record["f1"]) and again["f2"] == pytest.approx(
+            record["f2"]
+        )
+    relaxed = tmp_path / "relaxed"
+    shutil.copytree(CASES / "constr", relaxed)
+    toml = (relaxed / "case.toml").read_text().replace("g1 = { min = 6.0 }", "g1 = { min = 5.0 }")
+    (relaxed / "case.toml").write_text(toml)
+    rerun = tradewise.run(relaxed, evaluations=6000, seed=2)
+    ref = np.array([1.1, 11.0])
+    claimed = moocore.hypervolume(answer.front.points(), ref=ref)
+    found = moocore.hypervolume(rerun.front.points(), ref=ref)
+    assert claimed <= found * 1.001
+
+
+def test_the_faces_say_what_pins_the_front(constr_run, tmp_path):
+    """run's closing summary, pick's output and the review page all carry what pins the front; the
+    page also answers what loosening the binding limit would give, from the archive."""
+    result = CliRunner().invoke(
+        main, ["run", str(CASES / "constr"), "--out", str(tmp_path / "run"), "--quiet"]
+    )
+    assert result.exit_code == 0, result.output
+    assert "What pins the front:" in result.output and "g1 is at its minimum 6" in result.output
+    result = CliRunner().invoke(main, ["pick", str(constr_run)])
+    assert result.exit_code == 0, result.output
+    assert "What pins the front:" in result.output and "g1 is at its minimum 6" in result.output
+    out = tmp_path / "review.html"
+    result = CliRunner().invoke(main, ["report", str(constr_run), "--out", str(out)])
+    assert result.exit_code == 0, result.output
+    page = out.read_text()
+    section = page.split('<section id="binds">')[1].split("</section>")[0]
+    assert "g1 is at its minimum 6" in section
+    assert "What if g1 &gt;= " in section and "loosened" in section

@@ -162,6 +162,11 @@ def _summary(result) -> None:
                 f"  {column_header(o.name, o.unit):<{width}}  {o.goal}  "
                 f"best {fmt.number(best)}  worst {fmt.number(worst)}"
             )
+        from tradewise.diagnose import pins_lines
+
+        click.echo("What pins the front:")
+        for line in pins_lines(front):
+            click.echo(f"  {line}")
     elif result.least_infeasible is not None:
         click.echo("The designs closest to feasibility are in least_infeasible.csv.")
     if result.n_cached:
@@ -589,6 +594,12 @@ def pick_command(front_path, method, weights, target, limits, top, minimise, max
     for warning in caught:
         if issubclass(warning.category, NonConvexWarning):
             click.echo(f"Note: {warning.message}", err=True)
+    from tradewise.diagnose import pins_lines
+
+    click.echo("")
+    click.echo("What pins the front:")
+    for line in pins_lines(front):
+        click.echo(f"  {line}")
     if out:
         from tradewise.runfolder import shortlist_front
 

@@ -19,6 +19,7 @@ from typing import Any
 import numpy as np
 import pandas as pd
 
+from tradewise import format as _format
 from tradewise.choose import Limit, find_knees, parse_limit
 from tradewise.errors import DataError
 from tradewise.front import Front, nondominated
@@ -30,8 +31,10 @@ __all__ = [
     "NEAR",
     "Finding",
     "what_pins",
+    "pins_lines",
     "WhatIfAnswer",
     "what_if",
+    "loosening_rule",
 ]
 
 #: A variable is reported at a bound when at least this share of the front sits there. Our own
@@ -72,6 +75,36 @@ _BOOKKEEPING = frozenset(
 
 
 # --------------------------------------------------------------------------- what pins a front
+def pins_lines(front: Front, *, most: int = 6) -> list[str]:
+    """What pins ``front`` as sentences for a person: the ``most`` strongest findings, or one
+    sentence saying that nothing does (with the thresholds, so the reader knows what was looked for).
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> from tradewise.case import Objective
+    >>> table = pd.DataFrame({"cost": [1.0, 2.0], "mass": [2.0, 1.0], "alloy": ["a", "b"]})
+    >>> pins_lines(Front.from_table(table, [Objective("cost"), Objective("mass")], variables=["alloy"]))
+    ['Nothing pins this front: no variable holds one value on every design (the run folder also knows bounds and limits).']
+    """
+    found = what_pins(front)
+    if found:
+        lines = [f.text for f in found[:most]]
+        if len(found) > most:
+            lines.append(f"... and {len(found) - most} more of the same kinds.")
+        return lines
+    if front.info.design_space or front.info.constraint_limits:
+        return [
+            "Nothing pins this front: no variable sits at a bound on "
+            f"{_format.share(BOUND_SHARE, 0)} of it or more, no limit binds on "
+            f"{_format.share(LIMIT_SHARE, 0)} of it or more, and every variable varies."
+        ]
+    return [
+        "Nothing pins this front: no variable holds one value on every design "
+        "(the run folder also knows bounds and limits)."
+    ]
+
+
 @dataclass(frozen=True)
 class Finding:
     """One thing that pins a front, with a sentence saying what the designer can do about it.
@@ -329,6 +362,33 @@ class WhatIfAnswer:
                 "ones here; designs it never evaluated may do better within them."
             )
         return out
+
+
+def loosening_rule(front: Front, finding: Finding, *, by: float = 0.1) -> str | None:
+    """A rule that loosens the limit of a binding-limit finding by ``by`` of its scale, for a what-if.
+
+    The scale is the larger of the limit's size and its column's span on the front
+    (1 for a zero limit), as for :data:`NEAR`. None for findings of other kinds.
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> from tradewise.case import Objective
+    >>> table = pd.DataFrame({"cost": [1.0, 2.0], "mass": [2.0, 1.0], "gap": [2.0, 2.5]})
+    >>> front = Front.from_table(table, [Objective("cost"), Objective("mass")])
+    >>> loosening_rule(front, Finding("limit", "gap", 0.5, "", "min", 2.0))
+    'gap>=1.8'
+    """
+    if finding.kind != "limit" or finding.value is None:
+        return None
+    limit = float(finding.value)
+    values = _numbers(front.table[finding.name]) if finding.name in front.table else np.array([])
+    finite = values[np.isfinite(values)]
+    span = float(np.ptp(finite)) if len(finite) else 0.0
+    step = by * max(abs(limit) if limit else 1.0, span)
+    new = limit - step if finding.side == "min" else limit + step
+    op = ">=" if finding.side == "min" else "<="
+    return f"{finding.name}{op}{_format.number(new).replace(',', '')}"
 
 
 def what_if(evaluations: pd.DataFrame, front: Front, limits: Iterable[Limit | str]) -> WhatIfAnswer:
@@ -677,10 +737,10 @@ def _share_text(share: float) -> str:
     if share >= 1.0:
         return "every design of the front"
     if share < 0.005:
-        return "under 1% of the front"
+        return "under 1 % of the front"
     # never rounded up to 100 % when a design is not there
     percent = min(math.floor(share * 100 + 0.5), 99)
-    return f"{percent}% of the front"
+    return f"{percent} % of the front"
 
 
 def _is_number(value: Any) -> bool:
@@ -694,14 +754,10 @@ def _plain(value: Any) -> Any:
 
 
 def _show(value: Any, *, quoted: bool = False) -> str:
-    """A value for a sentence: numbers with four significant digits, text quoted when asked."""
+    """A value for a sentence (the one number rule of tradewise.format), text quoted when asked."""
     value = _plain(value)
     if isinstance(value, bool):
         return "true" if value else "false"
-    if isinstance(value, int):
-        return f"{value:,}" if abs(value) >= 10_000 else str(value)
-    if isinstance(value, float):
-        if value.is_integer() and abs(value) < 1e15:
-            return _show(int(value))
-        return f"{value:.4g}"
+    if isinstance(value, int | float):
+        return _format.number(value)
     return repr(str(value)) if quoted else str(value)

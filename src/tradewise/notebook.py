@@ -20,6 +20,7 @@ import pandas as pd
 
 from tradewise import plots
 from tradewise.choose import METHODS, WEIGHTED_METHODS
+from tradewise.diagnose import pins_lines
 from tradewise.errors import DataError
 from tradewise.picker import (
     SHORTLIST_COLUMNS,
@@ -333,6 +334,10 @@ class Picker:
         )
         self.buttons["review"] = review
         self._status = w.HTML()
+        pins = "".join(f"<li>{escape(line)}</li>" for line in pins_lines(state.front))
+        self._pins = w.HTML(
+            f"<details><summary><b>What pins this front</b></summary><ul>{pins}</ul></details>"
+        )
 
         self.widget = w.VBox(
             [
@@ -341,6 +346,7 @@ class Picker:
                     [limits_box, prefs_box], layout=w.Layout(flex_flow="row wrap", grid_gap="24px")
                 ),
                 self._figure_box,
+                self._pins,
                 w.HBox([self._designs, follow, add]),
                 self._details,
                 self._ranking,

@@ -229,6 +229,7 @@ def build_report(
         "case": _case(front),
         "shortlist": _shortlist(front, listed, marks),
         "picks": _picks(front, marks),
+        "binds": _binds(front, evaluations),
         "run": _run(front, history, spread),
         "front_table": _front_table(front, marks, listed),
         "assumptions": _assumptions(front),
@@ -863,6 +864,23 @@ def _seeds(front: Front, spread: dict[str, Any]) -> dict[str, Any]:
         "numeric": [k for k, c in enumerate(shown) if c != "status"],
         "many_objectives": len(front.objectives) > 2,
     }
+
+
+def _binds(front: Front, evaluations: pd.DataFrame | None) -> dict[str, Any]:
+    """What pins the front, and for the limit that binds most, what loosening it would give."""
+    from tradewise import diagnose
+
+    found = diagnose.what_pins(front)
+    answer, rule = [], None
+    limit = next((f for f in found if f.kind == "limit"), None)
+    if limit is not None:
+        rule = diagnose.loosening_rule(front, limit)
+    if rule is not None and evaluations is not None and "status" in evaluations.columns:
+        try:
+            answer = diagnose.what_if(evaluations, front, [rule]).lines()
+        except DataError:
+            answer = []
+    return {"lines": diagnose.pins_lines(front), "rule": rule, "answer": answer}
 
 
 #: Fronts up to this many designs are shown (and printed) in full; longer ones fold away.
