@@ -16,12 +16,18 @@ import tradewise
 import tradewise.case
 from tradewise.case import bundled_cases, load_case
 
-NAMES = ("cargo-bike-pack", "footbridge-girder", "heat-sink")
+NAMES = ("cargo-bike-pack", "compression-spring", "footbridge-girder", "heat-sink")
 ROOT = Path(__file__).resolve().parent.parent
 
 # An interior design of each case, used for the load, output and perturbation checks.
 BASE_DESIGNS = {
     "cargo-bike-pack": {"series": 12, "parallel": 5, "cell": "R21-E50", "cooled_housing": False},
+    "compression-spring": {
+        "wire_diameter": 2.0,
+        "coil_diameter": 16.0,
+        "active_coils": 8,
+        "material": "music wire",
+    },
     "footbridge-girder": {
         "flange_width": 200.0,
         "flange_thickness": 15.0,
@@ -50,8 +56,8 @@ def model_of(name: str):
 
 
 # ------------------------------------------------------------------------------ every case
-def test_all_three_cases_are_bundled():
-    """The three cases are found by name among the bundled cases."""
+def test_the_python_model_cases_are_bundled():
+    """The cases with a Python model are found by name among the bundled cases."""
     assert set(NAMES) <= set(bundled_cases())
 
 
@@ -110,10 +116,10 @@ def test_an_installed_package_reads_its_own_cases_only(tmp_path, monkeypatch):
 
 @pytest.mark.parametrize("name", NAMES)
 def test_case_loads_by_name(name):
-    """Each case loads by name, has three objectives with a reference value, and safety cautions."""
+    """Each case loads by name, has two or three objectives with a reference value, and safety cautions."""
     case = load_case(name)
     assert case.model == "model.py:evaluate"
-    assert len(case.objectives) == 3
+    assert len(case.objectives) in (2, 3)
     assert all(o.worst is not None for o in case.objectives)
     assert "qualified" in case.cautions
     readme = (case.folder / "README.md").read_text(encoding="utf-8")
@@ -214,6 +220,116 @@ def test_pack_sixty_volt_rule_allows_fourteen_nmc_cells():
     base = {"parallel": 4, "cell": "R21-E50", "cooled_housing": True}
     assert m.evaluate({**base, "series": 14})["full_voltage"] == pytest.approx(58.8)
     assert m.evaluate({**base, "series": 15})["full_voltage"] == pytest.approx(63.0)
+
+
+# ------------------------------------------------------------------------ compression-spring
+SPRING = BASE_DESIGNS["compression-spring"]
+
+
+def test_spring_hand_computed_design():
+    """d = 2 mm, D = 16 mm, N = 8, music wire at 40 N: rate, stress, strength and mass worked by hand (Shigley, from memory)."""
+    m = model_of("compression-spring")
+    r = m.evaluate(dict(SPRING))
+    g, d, coil, n, force = 81_700.0, 2.0, 16.0, 8, 40.0  # MPa, mm, mm, -, N
+    # C = D/d = 8; K_B = (4C + 2)/(4C - 3) = 34/29
+    index = coil / d
+    k_b = (4 * index + 2) / (4 * index - 3)
+    assert r["index"] == pytest.approx(8.0, rel=1e-9)
+    assert r["bergstrasser_factor"] == pytest.approx(34.0 / 29.0, rel=1e-9)
+    # k = G d^4 / (8 D^3 N) = 81700 x 16 / (8 x 4096 x 8) = 4.986572265625 N/mm
+    assert r["stiffness"] == pytest.approx(g * d**4 / (8 * coil**3 * n), rel=1e-9)
+    assert r["stiffness"] == pytest.approx(4.986572265625, rel=1e-9)
+    # tau = K_B 8 F D / (pi d^3) = 1.172414 x 8 x 40 x 16 / (pi x 8) = 238.8422 MPa
+    assert r["shear_stress"] == pytest.approx(k_b * 8 * force * coil / (math.pi * d**3), rel=1e-9)
+    assert r["shear_stress"] == pytest.approx(238.84217667, rel=1e-9)
+    # Sut = 2211 / 2^0.145 = 1999.583 MPa (Shigley Table 10-4, from memory); allowed 45 %
+    assert r["tensile_strength"] == pytest.approx(2211.0 / 2.0**0.145, rel=1e-9)
+    assert r["allowed_stress"] == pytest.approx(0.45 * 2211.0 / 2.0**0.145, rel=1e-9)
+    assert r["stress_use"] == pytest.approx(238.84217667 / 899.81226170, rel=1e-9)
+    # mass = rho (pi d^2 / 4)(pi D)(N + 2) = 7.85e-3 g/mm^3 x pi x 16 pi x 10 = 12.39622 g
+    assert r["mass"] == pytest.approx(7.85e-3 * math.pi * d**2 / 4 * math.pi * coil * 10, rel=1e-9)
+    assert r["mass"] == pytest.approx(12.396223128, rel=1e-9)
+    # y = F/k = 8.02154 mm; L_s = d (N + 2) = 20 mm; L_0 = L_s + 1.15 y; OD = D + d = 18 mm
+    assert r["deflection"] == pytest.approx(force / 4.986572265625, rel=1e-9)
+    assert r["solid_length"] == pytest.approx(20.0, rel=1e-9)
+    assert r["free_length"] == pytest.approx(20.0 + 1.15 * force / 4.986572265625, rel=1e-9)
+    assert r["outer_diameter"] == pytest.approx(18.0, rel=1e-9)
+
+
+def test_bergstrasser_factor_at_the_index_limits():
+    """K_B = (4C + 2)/(4C - 3) is 18/13 at C = 4 and 50/45 at C = 12, and falls toward 1 as C grows (Shigley)."""
+    m = model_of("compression-spring")
+    assert m.bergstrasser_factor(4.0) == pytest.approx(18.0 / 13.0, rel=1e-12)
+    assert m.bergstrasser_factor(12.0) == pytest.approx(50.0 / 45.0, rel=1e-12)
+    values = [m.bergstrasser_factor(c) for c in (4.0, 6.0, 9.0, 12.0, 100.0)]
+    assert all(a > b > 1.0 for a, b in zip(values, values[1:], strict=False))
+
+
+def test_spring_rate_of_springs_in_series():
+    """Doubling the active coils halves the rate: the coils act as springs in series (k = G d^4 / 8 D^3 N)."""
+    m = model_of("compression-spring")
+    assert m.spring_rate(1.5, 12.0, 10, 77_200.0) == pytest.approx(
+        m.spring_rate(1.5, 12.0, 5, 77_200.0) / 2, rel=1e-12
+    )
+
+
+def test_stainless_strength_fits_switch_by_wire_size():
+    """302 stainless uses A = 1867, m = 0.146 below 2.5 mm and A = 2065, m = 0.263 from 2.5 to 5 mm (Shigley Table 10-4, from memory)."""
+    m = model_of("compression-spring")
+    stainless = m.MATERIALS["stainless 302"]
+    assert m.tensile_strength(stainless, 1.0) == pytest.approx(1867.0, rel=1e-12)
+    assert m.tensile_strength(stainless, 3.0) == pytest.approx(2065.0 / 3.0**0.263, rel=1e-12)
+    below, above = m.tensile_strength(stainless, 2.4999), m.tensile_strength(stainless, 2.5)
+    assert abs(below - above) / below < 0.01  # the two fits nearly meet at 2.5 mm
+
+
+@pytest.mark.parametrize(
+    ("variable", "value", "moves"),
+    [
+        # thicker wire: more metal, much stiffer (d^4), lower stress, smaller index
+        ("wire_diameter", 2.2, {"mass": 1, "stiffness": 1, "stress_use": -1, "index": -1}),
+        # wider coils: more metal, softer (D^3), higher stress, larger index and outer diameter
+        (
+            "coil_diameter",
+            18.0,
+            {"mass": 1, "stiffness": -1, "stress_use": 1, "index": 1, "outer_diameter": 1},
+        ),
+        # more coils: more metal, softer, longer; the stress at a given load does not change
+        (
+            "active_coils",
+            9,
+            {"mass": 1, "stiffness": -1, "stress_use": 0, "index": 0, "free_length": 1},
+        ),
+        # 302 stainless: lower G, denser, weaker and allowed a smaller share of its strength
+        ("material", "stainless 302", {"mass": 1, "stiffness": -1, "stress_use": 1, "index": 0}),
+        # oil-tempered: lower G, same density, weaker wire but a larger allowed share
+        ("material", "oil-tempered", {"mass": 0, "stiffness": -1, "index": 0}),
+    ],
+)
+def test_spring_results_move_the_expected_way(variable, value, moves):
+    """One variable changed from the base spring moves each result up (1), down (-1) or not at all (0)."""
+    m = model_of("compression-spring")
+    base = m.evaluate(dict(SPRING))
+    changed = m.evaluate({**SPRING, variable: value})
+    for key, sign in moves.items():
+        difference = changed[key] - base[key]
+        if sign == 0:
+            assert difference == pytest.approx(0.0, abs=1e-12 * abs(base[key])), key
+        else:
+            assert np.sign(difference) == sign, key
+
+
+def test_spring_short_search_gives_a_front():
+    """1000 evaluations find >= 15 non-dominated springs, with mass and stiffness both varying, all feasible."""
+    result = tradewise.run("compression-spring", evaluations=1000, population=40, seed=1)
+    front = result.front.table
+    assert len(front) >= 15
+    assert front["mass"].max() > 5 * front["mass"].min()
+    assert front["stiffness"].max() > 3 * front["stiffness"].min()
+    # The lighter spring of two on the front is never the stiffer one.
+    ordered = front.sort_values("mass")
+    assert np.all(np.diff(ordered["stiffness"].to_numpy()) > 0)
+    assert (front["stress_use"] <= 1.0).all() and (front["index"] >= 4.0).all()
 
 
 # ------------------------------------------------------------------------- footbridge-girder
@@ -457,7 +573,10 @@ def test_default_search_gives_a_broad_front(name):
     span = points.max(axis=0) - points.min(axis=0)
     assert np.all(span > 0)
     scaled = (points - points.min(axis=0)) / span
-    # Not collinear: no pair moves in lockstep, and the scaled cloud fills all three directions.
-    correlation = np.corrcoef(scaled.T)
-    assert np.all(np.abs(correlation[np.triu_indices(3, 1)]) < 0.99)
-    assert np.linalg.matrix_rank(scaled - scaled.mean(axis=0), tol=1e-3) == 3
+    # Not collinear: the scaled cloud fills every direction, and with three objectives no pair
+    # moves in lockstep.
+    n_objectives = points.shape[1]
+    if n_objectives == 3:
+        correlation = np.corrcoef(scaled.T)
+        assert np.all(np.abs(correlation[np.triu_indices(3, 1)]) < 0.99)
+    assert np.linalg.matrix_rank(scaled - scaled.mean(axis=0), tol=1e-3) == n_objectives

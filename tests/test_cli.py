@@ -76,6 +76,13 @@ def test_check_evaluates_one_design():
     assert "stress_check = 17,889 kPa  (must be at most 100,000 kPa: met)" in out
 
 
+def test_check_shows_a_choice_variable_as_its_option():
+    """`tradewise check` on a case with a choice variable prints the option's name beside the numbers."""
+    result = CliRunner().invoke(main, ["check", "heat-sink"])
+    assert result.exit_code == 0, result.output
+    assert "  alloy = 1050A" in result.output and "The case is valid" in result.output
+
+
 def test_check_reports_a_failing_model(make_case):
     """A model that fails on the middle design gives exit 2 and one Error line quoting it."""
     folder = make_case(model="def evaluate(d):\n    return {'cost': 1.0}\n")

@@ -31,6 +31,7 @@ from tradewise import format as fmt
         (np.float64(0.25), "0.25"),
         (np.int64(2500), "2,500"),
         (True, "yes"),
+        ("stainless 302", "stainless 302"),
         (None, fmt.MISSING),
         (math.nan, fmt.MISSING),
     ],

@@ -44,7 +44,8 @@ def number(x: Any, digits: int = DIGITS) -> str:
     """A number as a person reads it: ``digits`` significant digits, thousands separated.
 
     Whole numbers (``int``) keep every digit; floats at least ``10**digits``
-    are rounded to the unit, never to tens or hundreds.
+    are rounded to the unit, never to tens or hundreds. Text (a choice
+    variable's option) is shown as it is.
 
     Examples
     --------
@@ -53,6 +54,8 @@ def number(x: Any, digits: int = DIGITS) -> str:
     """
     if x is None:
         return MISSING
+    if isinstance(x, str | np.str_):
+        return str(x)
     if isinstance(x, bool | np.bool_):
         return "yes" if x else "no"
     if isinstance(x, int | np.integer):
