@@ -31,7 +31,9 @@ def test_run_writes_folder_and_summary(tmp_path):
     assert result.exit_code == 0, result.output
     for name in ("front.csv", "front.json", "history.csv", "archive.sqlite"):
         assert (out / name).exists()
-    assert "Front:" in result.output and "hypervolume" in result.output
+    # the front's size and hypervolume share are said once, in the run's message
+    assert "Front of " in result.output and "hypervolume share" in result.output
+    assert "Front: " not in result.output
     assert "cost [EUR]  min  best" in result.output and "life [h]" in result.output
     meta = json.loads((out / "front.json").read_text())
     assert meta["seed"] == 3 and meta["settings"]["evaluations"] == 200
@@ -80,7 +82,7 @@ def test_check_shows_a_choice_variable_as_its_option():
     """`tradewise check` on a case with a choice variable prints the option's name beside the numbers."""
     result = CliRunner().invoke(main, ["check", "heat-sink"])
     assert result.exit_code == 0, result.output
-    assert "  alloy = 1050A" in result.output and "The case is valid" in result.output
+    assert "  alloy = 1050A" in result.output and "is a valid case" in result.output
 
 
 def test_check_reports_a_failing_model(make_case):

@@ -144,7 +144,9 @@ def _summary(result) -> None:
             f"{o.name} {fmt.quantity(r, o.unit)}"
             for o, r in zip(front.objectives, result.reference, strict=True)
         )
-        click.echo(f"Front: {len(front)} designs, {hv}.")
+        if problem or not math.isfinite(share):
+            # the run's message already gives the size and share of a front it could measure
+            click.echo(f"Front: {len(front)} designs, {hv}.")
         source = result.info.reference_source
         click.echo(
             f"Reference point: {point} ({source + '; ' if source else ''}a corner beyond the worst "
