@@ -237,3 +237,15 @@ def test_words_an_engineer_writes_get_the_right_suggestion(make_case, field, wri
     )
     with pytest.raises(CaseError, match=rf"did you mean '{meant}'\?"):
         load_case(make_case(toml))
+
+
+def test_hazards_are_checked_against_the_list(make_case):
+    """hazards must be a list of the known words; a near miss gets a suggestion."""
+    case = load_case(make_case(GOOD_TOML.replace("model =", 'hazards = ["heat"]\nmodel =')))
+    assert case.hazards == ("heat",)
+    with pytest.raises(
+        CaseError, match=r"'structure' is not one of them \(did you mean 'structures'\?\)"
+    ):
+        load_case(make_case(GOOD_TOML.replace("model =", 'hazards = ["structure"]\nmodel =')))
+    with pytest.raises(CaseError, match="hazards must be a list"):
+        load_case(make_case(GOOD_TOML.replace("model =", 'hazards = "heat"\nmodel =')))

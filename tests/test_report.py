@@ -175,6 +175,20 @@ def test_safety_statement_appears_for_structures_packs_and_heat_only():
     assert "licensed" not in build_report(plain)
 
 
+def test_the_safety_statement_follows_declared_hazards_not_column_names():
+    """A case that declares its hazards gets the statement naming them; an output merely called
+    deflection or a unit in MPa no longer triggers it, and neither does a word in the cautions."""
+    declared = small_front({"hazards": ["stored energy", "structures"]})
+    assert safety_domains(declared) == ["stored energy", "structures"]
+    assert "This case touches stored energy and structures." in build_report(declared)
+    front = small_front({"cautions": "Temperature effects are not checked."})
+    table = front.table.assign(deflection=1.0)
+    front = front.with_table(table)
+    front.units["deflection"] = "mm"
+    assert safety_domains(front) == []
+    assert "licensed" not in build_report(front)
+
+
 def test_empty_front_and_wrong_suffix_are_refused(tmp_path):
     """An empty front and an output name without .html raise DataError."""
     front = small_front()

@@ -25,6 +25,7 @@ __all__ = [
     "load_case",
     "bundled_cases",
     "RESERVED_NAMES",
+    "HAZARDS",
 ]
 
 #: Column names that tradewise itself writes into design tables; no variable,
@@ -47,6 +48,10 @@ RESERVED_NAMES = frozenset(
     }
 )
 
+#: What a case may declare it touches (``hazards = [...]``): the review page then says plainly that
+#: its numbers are screening estimates to be checked by a qualified, licensed professional.
+HAZARDS = ("structures", "electrical", "heat", "pressure", "stored energy", "moving parts")
+
 VARIABLE_TYPES = ("real", "integer", "discrete", "choice", "flag")
 GOALS = ("min", "max")
 _NAME = re.compile(r"^[A-Za-z_][A-Za-z0-9_\-]{0,63}$")
@@ -55,6 +60,7 @@ _TOP_KEYS = (
     "title",
     "description",
     "cautions",
+    "hazards",
     "model",
     "command",
     "timeout",
@@ -239,6 +245,7 @@ class Case:
     search: SearchSettings = field(default_factory=SearchSettings)
     description: str = ""
     cautions: str = ""
+    hazards: tuple[str, ...] = ()
     text: str = ""
     hash: str = ""
 
@@ -506,6 +513,7 @@ def _build_case(data: dict[str, Any], file: Path, text: str) -> Case:
     title = _text(data.get("title", file.parent.name), f"{file}: title")
     description = _text(data.get("description", ""), f"{file}: description")
     cautions = _text(data.get("cautions", ""), f"{file}: cautions")
+    hazards = _hazards(data.get("hazards", []), file)
 
     variables = tuple(
         _variable(name, entry, f"{file}: [variables] {name}")
@@ -569,6 +577,7 @@ def _build_case(data: dict[str, Any], file: Path, text: str) -> Case:
         search=search,
         description=description,
         cautions=cautions,
+        hazards=hazards,
         text=text,
         hash=digest.hexdigest()[:16],
     )
@@ -632,6 +641,20 @@ def _variable(name: str, entry: dict[str, Any], where: str) -> Variable:
     return Variable(
         name, kind, low=float(low), high=float(high), unit=unit, description=description, step=step
     )
+
+
+def _hazards(value: Any, file: Path) -> tuple[str, ...]:
+    if not isinstance(value, list) or not all(isinstance(h, str) for h in value):
+        raise CaseError(
+            f'{file}: hazards must be a list of text, e.g. ["heat"]; allowed: {", ".join(HAZARDS)}'
+        )
+    for h in value:
+        if h not in HAZARDS:
+            raise CaseError(
+                f"{file}: hazards: {h!r} is not one of them{_suggest(h, HAZARDS)}; "
+                f"allowed: {', '.join(HAZARDS)}"
+            )
+    return tuple(dict.fromkeys(value))
 
 
 def _plain_variable(v: Variable) -> str:

@@ -125,16 +125,16 @@ def _script_hash() -> str:
 
 # --------------------------------------------------------------------------------- public
 def safety_domains(front: Front) -> list[str]:
-    """The safety-relevant domains a front's case touches (structures, electrical packs, heat).
+    """The safety-relevant domains a front's case touches (structures, electrical packs, heat, ...).
 
-    Whole words are looked for in the title, description, cautions, column
-    names and units recorded with the front.
+    What the case declares (``hazards = [...]`` in case.toml, recorded with the run) decides. A
+    case that declares nothing is judged by whole words in its own title and description only,
+    never by what a column or an output happens to be called.
     """
     info = front.info
-    parts = [str(v or "") for v in (info.title, info.description, info.cautions)]
-    parts += [str(c) for c in front.table.columns] + [str(u) for u in front.units.values()]
-    parts += [str(o.name) for o in front.objectives] + [str(o.unit) for o in front.objectives]
-    text = " " + " ".join(parts) + " "
+    if info.hazards:
+        return [_HAZARD_WORDS.get(h, h) for h in info.hazards]
+    text = " " + " ".join(str(v or "") for v in (info.title, info.description)) + " "
     found = []
     for domain, words in _DOMAIN_WORDS.items():
         for word in words:
@@ -146,6 +146,10 @@ def safety_domains(front: Front) -> list[str]:
                 found.append(domain)
                 break
     return found
+
+
+#: How the page names a declared hazard.
+_HAZARD_WORDS = {"electrical": "electrical packs"}
 
 
 def build_report(

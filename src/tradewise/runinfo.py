@@ -210,6 +210,7 @@ class RunInfo:
     title: str | None = None
     description: str | None = None
     cautions: str | None = None
+    hazards: tuple[str, ...] = ()
     case_file: str | None = None
     case_hash: str | None = None
     algorithm: str | None = None
@@ -256,9 +257,15 @@ class RunInfo:
             if f.name in ("extra", "seeds", "design_space", "constraint_limits", "shortlist"):
                 continue
             value = getattr(self, f.name)
-            if value is None or (isinstance(value, dict) and not value):
+            if value is None or (isinstance(value, dict | tuple) and not value):
                 continue
-            data[f.name] = dict(value) if isinstance(value, dict) else value
+            data[f.name] = (
+                dict(value)
+                if isinstance(value, dict)
+                else list(value)
+                if isinstance(value, tuple)
+                else value
+            )
         if self.design_space:
             data["design_space"] = [v.to_json() for v in self.design_space]
         if self.constraint_limits or self.design_space:
@@ -376,6 +383,7 @@ class RunInfo:
             feasible=get("feasible", _FLAG),
             design_space=space,
             constraint_limits=limits,
+            hazards=numbers("hazards", _TEXT),
             seeds=seed_set,
             shortlist=dict(shortlist) if shortlist is not None else None,
             extra=extra,

@@ -921,6 +921,7 @@ def _finish(run: _Run, status: str, algorithm_name: str, started: float) -> RunR
         title=case.title,
         description=case.description,
         cautions=case.cautions,
+        hazards=case.hazards,
         case_file=case.path.name,
         case_hash=case.hash,
         algorithm=algorithm_name,
