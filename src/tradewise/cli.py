@@ -15,7 +15,7 @@ import sys
 import click
 
 from tradewise import format as fmt
-from tradewise.errors import TradewiseError, one_line
+from tradewise.errors import CaseError, TradewiseError, one_line
 
 
 class _Group(click.Group):
@@ -27,7 +27,10 @@ class _Group(click.Group):
         except TradewiseError as exc:
             if ctx.obj and ctx.obj.get("debug"):
                 raise
-            click.echo(f"Error: {one_line(str(exc))}", err=True)
+            text = one_line(str(exc))
+            if isinstance(exc, CaseError) and "case.toml" in text:
+                text += " (every key of a case file: docs/case-file.md)"
+            click.echo(f"Error: {text}", err=True)
             ctx.exit(exc.exit_code)
 
 
