@@ -117,3 +117,51 @@ def test_debug_shows_traceback(make_case):
     folder = make_case("title = 'x'\n[variables\n")
     result = CliRunner().invoke(main, ["--debug", "check", str(folder)])
     assert result.exit_code != 0 and result.exception is not None
+
+
+def test_a_reused_out_folder_keeps_no_files_of_the_earlier_run(tmp_path):
+    """A second run into the same --out folder removes the earlier run's page, figures and seed
+    folders (drawn from another front) after writing its own files, keeps the archive and any
+    file that is not the tool's, and says what it removed."""
+    out = tmp_path / "run"
+    first = CliRunner().invoke(
+        main,
+        [
+            "run",
+            str(CASES / "zdt1"),
+            "--out",
+            str(out),
+            "--evaluations",
+            "300",
+            "--seeds",
+            "2",
+            "--quiet",
+        ],
+    )
+    assert first.exit_code == 0, first.output
+    assert CliRunner().invoke(main, ["report", str(out)]).exit_code == 0
+    assert CliRunner().invoke(main, ["plot", str(out), "--kind", "front"]).exit_code == 0
+    (out / "notes.txt").write_text("mine")
+    second = CliRunner().invoke(
+        main, ["run", str(CASES / "zdt1"), "--out", str(out), "--evaluations", "300", "--quiet"]
+    )
+    assert second.exit_code == 0, second.output
+    assert not (out / "review.html").exists() and not (out / "front.png").exists()
+    assert not (out / "seeds").exists() and not (out / "seeds.csv").exists()
+    assert (out / "front.csv").is_file() and (out / "archive.sqlite").is_file()
+    assert (out / "notes.txt").read_text() == "mine"
+    assert "Removed " in second.output and "review.html" in second.output
+
+
+def test_resume_of_a_finished_run_says_it_has_nothing_to_do(tmp_path):
+    """resume on a run that used its budget leaves the folder alone and says how to extend it."""
+    out = tmp_path / "run"
+    done = CliRunner().invoke(
+        main, ["run", str(CASES / "zdt1"), "--out", str(out), "--evaluations", "200", "--quiet"]
+    )
+    assert done.exit_code == 0, done.output
+    before = (out / "front.json").stat().st_mtime_ns
+    again = CliRunner().invoke(main, ["resume", str(out / "archive.sqlite")])
+    assert again.exit_code == 0, again.output
+    assert "nothing to do" in again.output and "--evaluations N with N above 200" in again.output
+    assert (out / "front.json").stat().st_mtime_ns == before

@@ -300,6 +300,7 @@ def run_command(
     click.echo(
         f"Wrote {', '.join(p.name for p in written.values())} and {store_path.name} to {folder}"
     )
+    _remove_stale(folder, written.values())
     if result.status == "interrupted":
         click.echo(f"Continue it with: tradewise resume {store_path}", err=True)
         sys.exit(130)
@@ -361,6 +362,20 @@ def resume_command(store, run_id, evaluations, out, case, workers, dask, schedul
             scheduler=scheduler,
             quiet=quiet,
         )
+    status = record.get("status")
+    if (
+        status in search.STATUS_TEXT
+        and status != "interrupted"
+        and (evaluations is None or evaluations <= done)
+        and all((folder / name).is_file() for name in ("front.csv", "front.json"))
+    ):
+        search._case_of_run(Path(store), record, case)  # a changed or other case is still refused
+        click.echo(
+            f"Run {run_id} had already finished ({search.STATUS_TEXT[status]}) after {done:,} "
+            f"evaluations: nothing to do, and {folder} was left as it is. To extend the run, give "
+            f"--evaluations N with N above {done:,}."
+        )
+        return
     budget = evaluations or record["settings"]["evaluations"]
     bar = _Progress(max(budget, done), quiet=quiet, initial=done)
     try:
@@ -777,12 +792,29 @@ def _seed_finished(quiet: bool):
     return finished
 
 
+def _remove_stale(folder, written) -> None:
+    """Remove what an earlier run left in a re-used folder, and say so."""
+    from tradewise.runfolder import remove_stale
+
+    removed = remove_stale(folder, list(written))
+    if removed:
+        names = ", ".join(p.name for p in removed[:6]) + (", ..." if len(removed) > 6 else "")
+        click.echo(
+            f"Removed {len(removed)} file(s) an earlier run had left in {folder} ({names}); "
+            "its archive was kept."
+        )
+
+
 def _write_seeds(result, folder, store_path) -> None:
     """Write the folder of a set of seeds (merged front, each seed's folder, attainment) and summarise it."""
     from tradewise.runfolder import save_seeds, seed_attainment
 
     spread = seed_attainment(result)
     written = save_seeds(result, folder, spread=spread)
+    from pathlib import Path
+
+    seed_files = [Path(folder) / "seeds" / f"seed-{run.seed}" / "front.json" for run in result.runs]
+    _remove_stale(folder, [*written.values(), *seed_files])
     _summary(result)
     from tradewise.front import hypervolume_box
 

@@ -33,6 +33,8 @@ __all__ = [
     "SHORTLIST_COLUMNS",
     "DATA_FILES",
     "is_run_folder",
+    "remove_stale",
+    "DRAWN_FILES",
 ]
 
 #: Files a run folder holds as data; no command may write its --out over one of them.
@@ -52,6 +54,49 @@ DATA_FILES = frozenset(
         "disagreement.csv",
     }
 )
+
+
+#: What the tool itself writes into a run folder besides its data: the figures `plot` and the
+#: page `report` write under their default names.
+DRAWN_FILES = frozenset(
+    {"review.html"} | {f"{kind}.{ext}" for kind in ("front", "parallel", "history", "attainment")
+                        for ext in ("png", "svg", "pdf")}
+)  # fmt: skip
+
+
+def remove_stale(folder: str | Path, written: Mapping[str, Path] | Sequence[Path]) -> list[Path]:
+    """Remove from ``folder`` what an earlier run wrote there and this one did not.
+
+    Called after a run's files are written (so a failed run never costs the
+    earlier results): the tool's own data files that were not written anew,
+    its default figures and review page (drawn from the earlier front), and
+    an earlier set of seeds' ``seeds/`` folder. The archive stays: it is the
+    record of every evaluation, and the new run's cache. Files of other names
+    are never touched.
+    """
+    folder = Path(folder)
+    kept = {
+        Path(p).resolve() for p in (written.values() if isinstance(written, Mapping) else written)
+    }
+    removed = []
+    names = (DATA_FILES - {n for n in DATA_FILES if n.startswith("archive.sqlite")}) | DRAWN_FILES
+    for name in sorted(names):
+        path = folder / name
+        if path.is_file() and path.resolve() not in kept:
+            path.unlink()
+            removed.append(path)
+    seeds = folder / "seeds"
+    if seeds.is_dir():
+        import shutil
+
+        for child in sorted(seeds.glob("seed-*")):
+            ours = (child / "front.json").is_file() or (child / "least_infeasible.csv").is_file()
+            if child.is_dir() and ours and not any(child in p.parents for p in kept):
+                shutil.rmtree(child)
+                removed.append(child)
+        if not any(seeds.iterdir()):
+            seeds.rmdir()
+    return removed
 
 
 def is_run_folder(folder: Path) -> bool:
