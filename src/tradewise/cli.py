@@ -211,6 +211,13 @@ def _run_folder(case, out: str | None) -> str:
 @click.option(
     "--scheduler", metavar="ADDRESS", help="Join an existing Dask scheduler, e.g. tcp://host:8786."
 )
+@click.option(
+    "--representatives",
+    type=click.IntRange(min=1),
+    metavar="N",
+    help="How many designs at most stand for the front in representatives.csv (default from "
+    "the case, else 20).",
+)
 @click.option("--quiet", is_flag=True, help="No progress output.")
 def run_command(
     case,
@@ -225,13 +232,16 @@ def run_command(
     workers,
     dask,
     scheduler,
+    representatives,
     quiet,
 ) -> None:
     """Search CASE for its best compromises and write a run folder.
 
     CASE is a case folder, its case.toml, or the name of a bundled case
     (see `tradewise cases`). The run folder gets front.csv, front.json,
-    history.csv and the archive of every evaluation.
+    representatives.csv (a few designs spread over the front, with the
+    extremes and the knee, that stand for it in a review), history.csv and
+    the archive of every evaluation.
     """
     from pathlib import Path
 
@@ -239,7 +249,7 @@ def run_command(
     from tradewise.case import load_case
     from tradewise.runfolder import save_run
 
-    loaded = load_case(case)
+    loaded = load_case(case).with_search(representatives=representatives)
     folder = Path(_run_folder(loaded, out))
     store_path = Path(store) if store else folder / "archive.sqlite"
     budget = evaluations or loaded.search.evaluations
