@@ -638,6 +638,8 @@ def pick_command(
 
 def _separation_line(front, gaps: dict, given: dict, *, top: int, shown: int) -> str:
     """One sentence saying how far apart the designs shown by ``pick --top`` are."""
+    from tradewise.choose import DISTINCT_SHARE
+
     parts = []
     for o in front.objectives:
         amount = f"{gaps[o.name]:.3g}{' ' + o.unit if o.unit else ''}"
@@ -645,8 +647,8 @@ def _separation_line(front, gaps: dict, given: dict, *, top: int, shown: int) ->
     rule = (
         ""
         if len(given) == len(gaps)
-        else "; 5 % of an objective's range on the front where no tolerance is given, "
-        "a rule of thumb of our own"
+        else f"; {100 * DISTINCT_SHARE:g} % of an objective's range on the front where no "
+        "tolerance is given, a rule of thumb of our own"
     )
     fewer = (
         f" Only {shown} {'design stands' if shown == 1 else 'designs are that far'} apart, "
