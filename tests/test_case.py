@@ -84,6 +84,12 @@ BAD = [
         "did you mean 'evaluate'",
     ),
     (GOOD_TOML + "\n[search]\npopulation = 2\n", "[search] population", "at least 4"),
+    (GOOD_TOML + "\n[search]\nrepresentatives = 0\n", "[search] representatives", "at least 1"),
+    (
+        GOOD_TOML + "\n[search]\nrepresentatives = 2.5\n",
+        "[search] representatives",
+        "expected an integer",
+    ),
     (GOOD_TOML.replace("x = {", "status = {"), "[variables] status", "reserved"),
     (
         GOOD_TOML + "\n[constraints]\ngap = { unit = 'mm' }\n",
@@ -127,6 +133,16 @@ def test_with_search_overrides_and_checks():
     assert case.search.population == 8 and case.search.seed == 1
     with pytest.raises(CaseError, match="population"):
         case.with_search(population=1)
+
+
+def test_representatives_setting_reads_and_overrides(make_case):
+    """[search] representatives sets the size of the representative set (default 20); overrides are checked."""
+    assert load_case(CASES / "zdt1").search.representatives == 20
+    case = load_case(make_case(GOOD_TOML + "\n[search]\nrepresentatives = 7\n"))
+    assert case.search.representatives == 7 and case.search.as_dict()["representatives"] == 7
+    assert case.with_search(representatives=3).search.representatives == 3
+    with pytest.raises(CaseError, match=r"\[search\] representatives: got 0, allowed: at least 1"):
+        case.with_search(representatives=0)
 
 
 # ------------------------------------------------------------- ranges and model files

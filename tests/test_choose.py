@@ -1,8 +1,10 @@
 """Tests of choose.py: knee and compromise methods against published knees, hand-worked
-examples and pymoo, and limits."""
+examples and pymoo, limits, representative sets and distinct picks."""
 
 from __future__ import annotations
 
+import itertools
+import math
 import warnings
 
 import moocore
@@ -21,6 +23,7 @@ from tradewise.choose import (
     asf,
     choose,
     describe_choice,
+    distinct_picks,
     find_knees,
     knee_agreement,
     knee_distance,
@@ -30,7 +33,10 @@ from tradewise.choose import (
     parse_limit,
     parse_values,
     pseudo_weights,
+    representatives,
+    representatives_table,
     scores,
+    separation,
     supported,
     topsis,
     tradeoff_measure,
@@ -693,3 +699,172 @@ def test_noisy_edges_of_a_three_objective_front_are_not_knees(n):
     # the centre x1 = x2 = 0.5 is F = (2, 2, 2 sqrt 2) (reference notes 3.3, X); the grid of 21 steps
     # by 0.05 in x, so the nearest design lies within about 0.3 of it
     assert np.allclose(row_values(front, knees[0]), (2, 2, 2 * np.sqrt(2)), atol=0.35)
+
+
+# ----------------------------------------------------------------- representative sets
+GREEDY_BOUND = 1 - 1 / math.e  # greedy on a monotone submodular function (Nemhauser et al. 1978)
+
+
+def zdt1_front(n: int = 40) -> Front:
+    """n points of the ZDT1 front f2 = 1 - sqrt(f1) (Zitzler, Deb and Thiele 2000)."""
+    f1 = np.linspace(0.0, 1.0, n)
+    return make_front(np.column_stack([f1, 1 - np.sqrt(f1)]))
+
+
+def dtlz2_front() -> Front:
+    """28 points of the DTLZ2 front, the unit sphere octant (Deb et al. 2002): a simplex lattice of
+    six divisions pushed out onto the sphere."""
+    lattice = np.array([(i, j, 6 - i - j) for i in range(7) for j in range(7 - i)], dtype=float)
+    return make_front(lattice / np.linalg.norm(lattice, axis=1, keepdims=True))
+
+
+def best_subset_2d(points: np.ndarray, k: int) -> tuple[float, tuple[int, ...]]:
+    """The largest hypervolume of any k of the points (two objectives, minimised, mutually
+    non-dominated) with reference 1.1, by trying every subset."""
+    order = np.argsort(points[:, 0])
+    points = points[order]
+    subsets = np.array(list(itertools.combinations(range(len(points)), k)))
+    x, y = points[subsets, 0], points[subsets, 1]  # sorted by f1, so f2 falls along each row
+    right = np.concatenate([x[:, 1:], np.full((len(x), 1), 1.1)], axis=1)
+    volume = ((right - x) * (1.1 - y)).sum(axis=1)
+    best = int(np.argmax(volume))
+    return float(volume[best]), tuple(order[subsets[best]].tolist())
+
+
+def set_hypervolume(front: Front, rows) -> float:
+    """moocore's hypervolume of designs ``rows`` in normalised objectives, reference 1.1."""
+    points = normalised(front)[np.asarray(rows)]
+    return float(moocore.hypervolume(points, ref=np.full(points.shape[1], 1.1)))
+
+
+@pytest.mark.parametrize("k", [4, 5])
+def test_representatives_on_zdt1_against_every_subset(k):
+    """On 40 points of ZDT1 the greedy set keeps at least 1 - 1/e of the best k-subset's hypervolume."""
+    front = zdt1_front(40)
+    best, subset = best_subset_2d(normalised(front), k)
+    # the brute force's own arithmetic agrees with moocore on the subset it found
+    assert set_hypervolume(front, subset) == pytest.approx(best, rel=1e-12)
+    greedy = set_hypervolume(front, representatives(front, k))
+    assert greedy >= GREEDY_BOUND * best  # proved bound (Nemhauser, Wolsey and Fisher 1978)
+    # Measured, not a published bound: 0.918 (k = 4) and 0.955 (k = 5). The set starts from both
+    # extremes, which add little beside reference 1.1, and the knee; the best subset skips them.
+    assert greedy >= 0.91 * best
+
+
+def test_representatives_on_zdt1_against_subsets_holding_the_start():
+    """Among the 5-subsets that hold the extremes and the knee, the greedy one is the best found by brute force."""
+    front = zdt1_front(40)
+    start = representatives(front, 3).tolist()
+    points = normalised(front)
+    rest = [r for r in range(len(front)) if r not in start]
+    best = max(
+        moocore.hypervolume(points[start + list(pair)], ref=[1.1, 1.1])
+        for pair in itertools.combinations(rest, 2)
+    )
+    # measured: the greedy pair is the best pair here (ratio 1.0); not a published bound
+    assert set_hypervolume(front, representatives(front, 5)) >= 0.999 * best
+
+
+def test_representatives_on_dtlz2_against_every_subset():
+    """On 28 points of the DTLZ2 octant the greedy 4-set keeps at least 1 - 1/e of the best 4-subset (moocore)."""
+    front = dtlz2_front()
+    points = normalised(front)
+    best = max(
+        moocore.hypervolume(points[list(c)], ref=[1.1] * 3)
+        for c in itertools.combinations(range(len(front)), 4)
+    )
+    greedy = set_hypervolume(front, representatives(front, 4))
+    assert greedy >= GREEDY_BOUND * best  # proved bound (Nemhauser, Wolsey and Fisher 1978)
+    assert greedy >= 0.95 * best  # measured 0.974, not a published bound
+
+
+def test_representatives_three_objectives_match_plain_greedy():
+    """The lazily measured greedy step picks the same designs as measuring every design at every step (moocore)."""
+    front = dtlz2_front()
+    points = normalised(front)
+    rows = representatives(front, 12).tolist()
+    chosen = rows[:3]  # the three extremes: the octant has no knee
+    assert not find_knees(front).has_knee
+    while len(chosen) < 12:
+        gains = [
+            -1.0
+            if r in chosen
+            else moocore.hv_contributions(points[chosen + [r]], ref=[1.1] * 3)[-1]
+            for r in range(len(front))
+        ]
+        chosen.append(int(np.argmax(gains)))
+    assert rows == chosen
+
+
+def test_representatives_hold_the_extremes_and_the_knee_of_deb2dk():
+    """On DEB2DK (K = 1, Branke et al. 2004) the set holds both extremes and the knee at (2 sqrt 2, 2 sqrt 2)."""
+    front = make_front(deb2dk(1))
+    table = representatives_table(front, 6)
+    rows = table["front_row"].to_numpy() - 1
+    points = front.points()
+    assert points[:, 0].argmin() in rows and points[:, 1].argmin() in rows
+    knee = table.loc[table["chosen_as"] == "knee", ["f1", "f2"]].to_numpy()
+    assert len(knee) == 1 and np.linalg.norm(knee[0] - 2 * np.sqrt(2)) < TOL
+    assert table["chosen_as"].tolist()[:3] == ["best f1", "best f2", "knee"]
+    assert set(table["chosen_as"].tolist()[3:]) == {"spread"}
+
+
+def test_representatives_of_a_small_front_are_all_of_it():
+    """A front of fewer designs than asked for is returned whole; a maximised objective is read with its sense."""
+    # EX3 of the reference notes with its mass read as a range to maximise (invented: range = -mass)
+    front = make_front(EX3[:, ::-1] * [-1, 1], goals=["max", "min"], names=["range", "cost"])
+    assert sorted(representatives(front, 20).tolist()) == list(range(len(front)))
+    assert representatives_table(front, 1)["chosen_as"].tolist() == ["knee"]
+    assert representatives_table(front, 2)["chosen_as"].tolist() == ["knee", "best range"]
+
+
+@pytest.mark.parametrize("n", [0, -1, 2.5, True, "3"])
+def test_representatives_refuse_a_bad_size(n):
+    """n must be a whole number of at least 1."""
+    with pytest.raises(DataError, match="representatives: expected a whole number of at least 1"):
+        representatives(zdt1_front(10), n)
+
+
+# ----------------------------------------------------------------- distinct picks
+def test_distinct_picks_on_a_dense_front_are_apart():
+    """On 2001 points of ZDT1 the three best knee picks differ by more than 5 % of a range in some objective."""
+    # ZDT1 front f2 = 1 - sqrt(f1) (Zitzler, Deb and Thiele 2000); both ranges are 1, so the
+    # default separation is 0.05 in each objective (our own rule of thumb).
+    front = zdt1_front(2001)
+    ranking = choose(front, "knee", top=len(front))
+    assert ranking[:3] != distinct_picks(front, ranking, top=3)  # the plain ranking is neighbours
+    rows = distinct_picks(front, ranking, top=3)
+    assert rows[0] == ranking[0] and len(rows) == 3
+    points = front.points()[rows]
+    for a, b in itertools.combinations(range(3), 2):
+        assert np.abs(points[a] - points[b]).max() > 0.05
+
+
+def test_distinct_picks_follow_tolerances_in_units():
+    """Tolerances in units replace the default share for the objectives they name."""
+    front = make_front(EX3 * [1000, 1], names=["cost", "mass"], units=["$", "kg"])
+    assert separation(front) == {"cost": 1000.0, "mass": 3.75}
+    assert separation(front, {"mass": 30}) == {"cost": 1000.0, "mass": 30.0}
+    rows = distinct_picks(front, [2, 1, 3, 0, 4], top=5, tolerance="cost=6000,mass=30")
+    assert rows == [2, 0, 4]  # 1 and 3 lie within 6000 $ and 30 kg of design 2; 0 is 60 kg off
+
+
+def test_distinct_picks_stop_when_the_front_runs_out():
+    """With a tolerance wider than the front, one design stands for all of it."""
+    front = zdt1_front(50)
+    assert distinct_picks(front, range(50), top=5, tolerance="f1=2,f2=2") == [0]
+    assert distinct_picks(front, range(50), top=5, tolerance="f1=0,f2=0") == [0, 1, 2, 3, 4]
+
+
+@pytest.mark.parametrize(
+    ("tolerance", "needle"),
+    [
+        ("weight=1", "tolerance: 'weight' is not an objective of this front; objectives: f1, f2"),
+        ("f1=-1", "tolerance: got -1 for 'f1', allowed: 0 or more"),
+        ("f1", "expected NAME=NUMBER pairs"),
+    ],
+)
+def test_separation_refuses_bad_tolerances(tolerance, needle):
+    """Unknown names, negative amounts and malformed text give the shaped one-sentence error."""
+    with pytest.raises(DataError, match=needle):
+        separation(zdt1_front(10), tolerance)

@@ -208,6 +208,8 @@ def test_pick_weighted_sum_notes_unreachable_designs(tmp_path):
         (["--weights", "cost2"], "expected NAME=NUMBER"),
         (["--target", "cost=900"], "takes no target"),
         (["--top", "0"], "top: expected a whole number of at least 1"),
+        (["--top", "2", "--tolerance", "weight=1"], "--tolerance: 'weight' is not an objective"),
+        (["--tolerance", "mass=-1"], "--tolerance: got -1 for 'mass', allowed: 0 or more"),
     ],
 )
 def test_pick_bad_options_exit_2_with_one_line(front_folder, args, needle):
@@ -264,3 +266,75 @@ def test_pick_says_plainly_when_a_front_has_no_knee(tmp_path):
     front = pd.read_csv(tmp_path / "front.csv")
     chosen = front.iloc[int(first) - 1][["f1", "f2", "f3"]].to_numpy(dtype=float)
     assert not np.allclose(np.sort(chosen), [0.0, 0.0, 6.5], atol=0.2)
+
+
+# ----------------------------------------------------------------- distinct picks
+@pytest.fixture
+def dense(tmp_path):
+    """2001 points of ZDT1 (Zitzler, Deb and Thiele 2000) as invented mass and stiffness: mass = 10 f1 kg,
+    stiffness = 100 sqrt(f1) kN/mm (to maximise), so every design has neighbours a hair away."""
+    f1 = np.linspace(0.0, 1.0, 2001)
+    path = tmp_path / "dense.csv"
+    pd.DataFrame({"mass [kg]": 10 * f1, "stiffness [kN/mm]": 100 * np.sqrt(f1)}).to_csv(
+        path, index=False
+    )
+    return path
+
+
+def shown_rows(output: str) -> list[int]:
+    """The 0-based rows of the `Choice k: row R` lines of pick's output."""
+    return [
+        int(line.split("row ")[1]) - 1 for line in output.splitlines() if line.startswith("Choice")
+    ]
+
+
+def assert_apart(path, rows, gaps):
+    """Every two of ``rows`` differ by more than ``gaps`` (mass, stiffness) in at least one objective."""
+    points = pd.read_csv(path).to_numpy()[rows]
+    for a in range(len(rows)):
+        for b in range(a + 1, len(rows)):
+            assert (np.abs(points[a] - points[b]) > gaps).any(), (rows[a], rows[b])
+
+
+def test_pick_top_shows_designs_apart_by_the_default_share(dense):
+    """pick --top 3 on a dense front shows three designs more than 5 % of a range apart, and says so once."""
+    result = run("pick", dense, "--min", "mass", "--max", "stiffness", "--top", "3")
+    assert result.exit_code == 0, result.output
+    rows = shown_rows(result.stdout)
+    assert len(rows) == 3 and rows[0] == 500  # the knee of ZDT1 at f1 = 1/4 stays first
+    assert_apart(dense, rows, np.array([0.5, 5.0]))  # 5 % of 10 kg and of 100 kN/mm
+    assert result.stdout.count("Separation:") == 1
+    assert "mass 0.5 kg or stiffness 5 kN/mm; 5 % of an objective's range" in result.stdout
+
+
+def test_pick_top_follows_tolerances_in_units(dense, tmp_path):
+    """--tolerance mass=0.1,stiffness=1 spaces the designs shown by those amounts and goes into the shortlist."""
+    out = tmp_path / "short.csv"
+    result = run(
+        *("pick", dense, "--min", "mass", "--max", "stiffness", "--top", "4"),
+        *("--tolerance", "mass=0.1,stiffness=1", "--out", out),
+    )
+    assert result.exit_code == 0, result.output
+    rows = shown_rows(result.stdout)
+    assert len(rows) == 4
+    assert_apart(dense, rows, np.array([0.1, 1.0]))
+    # the tighter tolerance lets closer designs through than the default 0.5 kg / 5 kN/mm would
+    masses = pd.read_csv(dense)["mass [kg]"].to_numpy()[rows]
+    assert np.abs(masses[1:] - masses[0]).min() < 0.5
+    assert "mass 0.1 kg (given) or stiffness 1 kN/mm (given)." in result.stdout
+    assert read_front(out).info.shortlist["separation"] == {"mass": 0.1, "stiffness": 1.0}
+
+
+def test_pick_single_choice_is_unchanged(dense):
+    """Without --top the method's one pick is shown as before, with no separation line."""
+    result = run("pick", dense, "--min", "mass", "--max", "stiffness", "--tolerance", "mass=3")
+    assert result.exit_code == 0
+    assert shown_rows(result.stdout) == [500] and "Separation" not in result.stdout
+
+
+def test_pick_top_says_when_fewer_designs_are_apart(front_folder):
+    """A tolerance wider than the front leaves one design, and the output says fewer were shown."""
+    result = run("pick", front_folder, "--top", "3", "--tolerance", "cost=100,mass=100")
+    assert result.exit_code == 0
+    assert shown_rows(result.stdout) == [2]
+    assert "Only 1 design stands apart, fewer than the 3 asked for." in result.stdout

@@ -410,3 +410,24 @@ def test_details_say_plainly_when_the_front_has_no_knee():
     lines = state.describe()
     assert "  knee methods: the front has no knee" in lines
     assert not any("meets the limits" in line for line in lines)
+
+
+def test_choices_are_apart_and_follow_tolerances():
+    """On a dense ZDT1 front the picker's top choices differ by more than the separation; the ranking keeps all."""
+    # ZDT1 front f2 = 1 - sqrt(f1) (Zitzler, Deb and Thiele 2000), 2001 points: both ranges are 1.
+    f1 = np.linspace(0.0, 1.0, 2001)
+    table = pd.DataFrame({"cost": f1, "mass": 1 - np.sqrt(f1)})
+    state = PickerState(Front.from_table(table, [Objective("cost"), Objective("mass")]))
+    assert len(state.ranking) == 2001
+    assert state.separation == pytest.approx({"cost": 0.05, "mass": 0.05})
+    for gaps in ({"cost": 0.05, "mass": 0.05}, {"cost": 0.01, "mass": 0.2}):
+        state.set_tolerance(gaps)
+        rows = state.choices(6)
+        assert rows[0] == state.pick and len(rows) == 6
+        points = state.front.points()[rows]
+        for a in range(6):
+            for b in range(a + 1, 6):
+                assert (np.abs(points[a] - points[b]) > list(gaps.values())).any()
+    with pytest.raises(DataError, match="tolerance: 'weight' is not an objective"):
+        state.set_tolerance({"weight": 1})
+    assert state.separation == {"cost": 0.01, "mass": 0.2}  # a refused change changes nothing

@@ -45,6 +45,10 @@ RESERVED_NAMES = frozenset(
         "cached",
         "rank",
         "seed",
+        # the columns of a shortlist and of the representative set
+        "pick_order",
+        "front_row",
+        "chosen_as",
     }
 )
 
@@ -88,6 +92,7 @@ _SEARCH_KEYS = (
     "time_limit",
     "stall_generations",
     "stall_tolerance",
+    "representatives",
 )
 
 
@@ -207,6 +212,9 @@ class SearchSettings:
     are free). ``stall_generations`` and ``stall_tolerance`` stop a run whose
     hypervolume gained less than that relative amount over that many
     generations; ``stall_generations = 0`` turns the rule off.
+
+    ``representatives`` is how many designs at most the run folder's
+    ``representatives.csv`` holds to stand for the whole front.
     """
 
     population: int | None = None
@@ -216,6 +224,7 @@ class SearchSettings:
     time_limit: float | None = None
     stall_generations: int = 40
     stall_tolerance: float = 1e-4
+    representatives: int = 20
 
     def as_dict(self) -> dict[str, Any]:
         return {
@@ -226,6 +235,7 @@ class SearchSettings:
             "time_limit": self.time_limit,
             "stall_generations": self.stall_generations,
             "stall_tolerance": self.stall_tolerance,
+            "representatives": self.representatives,
         }
 
 
@@ -749,7 +759,14 @@ def _constraint(name: str, entry: dict[str, Any], where: str) -> Constraint:
 def _search(table: dict[str, Any], where: str) -> SearchSettings:
     _check_keys(table, _SEARCH_KEYS, where)
     values: dict[str, Any] = {}
-    for key in ("population", "evaluations", "generations", "seed", "stall_generations"):
+    for key in (
+        "population",
+        "evaluations",
+        "generations",
+        "seed",
+        "stall_generations",
+        "representatives",
+    ):
         if key in table:
             values[key] = _number(table[key], f"{where} {key}", integer=True)
     for key in ("time_limit", "stall_tolerance"):
@@ -767,6 +784,7 @@ def _check_search_values(settings: SearchSettings, where: str) -> None:
         ("generations", settings.generations, 1, "at least 1"),
         ("seed", settings.seed, 0, "0 or more"),
         ("stall_generations", settings.stall_generations, 0, "0 (off) or more"),
+        ("representatives", settings.representatives, 1, "at least 1"),
     )
     for key, value, least, allowed in checks:
         if value is not None and value < least:

@@ -229,6 +229,13 @@ def _run_folder(case, out: str | None) -> str:
 @click.option(
     "--scheduler", metavar="ADDRESS", help="Join an existing Dask scheduler, e.g. tcp://host:8786."
 )
+@click.option(
+    "--representatives",
+    type=click.IntRange(min=1),
+    metavar="N",
+    help="How many designs at most stand for the front in representatives.csv (default from "
+    "the case, else 20).",
+)
 @click.option("--quiet", is_flag=True, help="No progress output.")
 def run_command(
     case,
@@ -243,13 +250,16 @@ def run_command(
     workers,
     dask,
     scheduler,
+    representatives,
     quiet,
 ) -> None:
     """Search CASE for its best compromises and write a run folder.
 
     CASE is a case folder, its case.toml, or the name of a bundled case
     (see `tradewise cases`). The run folder gets front.csv, front.json,
-    history.csv and the archive of every evaluation.
+    representatives.csv (a few designs spread over the front, with the
+    extremes and the knee, that stand for it in a review), history.csv and
+    the archive of every evaluation.
     """
     from pathlib import Path
 
@@ -257,7 +267,7 @@ def run_command(
     from tradewise.case import load_case
     from tradewise.runfolder import save_run
 
-    loaded = load_case(case)
+    loaded = load_case(case).with_search(representatives=representatives)
     folder = Path(_run_folder(loaded, out))
     store_path = Path(store) if store else folder / "archive.sqlite"
     budget = evaluations or loaded.search.evaluations
@@ -564,7 +574,19 @@ def front_command(table, minimise, maximise, keep, out) -> None:
     metavar="RULE",
     help='Keep designs with e.g. "mass<=12" (repeat for more).',
 )
-@click.option("--top", default=1, show_default=True, type=int, help="How many designs to show.")
+@click.option(
+    "--top",
+    default=1,
+    show_default=True,
+    type=int,
+    help="How many designs to show; they differ from each other by more than --tolerance.",
+)
+@click.option(
+    "--tolerance",
+    metavar="NAME=AMOUNT,...",
+    help="Designs closer than this in every objective count as one, in the objectives' units, "
+    "e.g. mass=0.1,stiffness=1 (default 5 % of each objective's range on the front).",
+)
 @click.option(
     "--min",
     "minimise",
@@ -584,17 +606,29 @@ def front_command(table, minimise, maximise, keep, out) -> None:
     type=click.Path(dir_okay=False),
     help="Write the chosen designs to this CSV (with .json).",
 )
-def pick_command(front_path, method, weights, target, limits, top, minimise, maximise, out) -> None:
+def pick_command(
+    front_path, method, weights, target, limits, top, tolerance, minimise, maximise, out
+) -> None:
     """Point at the designs of FRONT worth discussing and say what each costs.
 
     FRONT is a run folder, a front CSV with its .json beside it, or any CSV
     with --min/--max. Limits are applied first; then --method chooses among
     the designs left. Weights say how much each objective matters (larger
-    means more important); a target is the point asf aims at.
+    means more important); a target is the point asf aims at. With --top,
+    the next designs shown are the method's next favourites that differ
+    from those already shown by more than --tolerance in some objective,
+    never neighbours on the front.
     """
     import warnings
 
-    from tradewise.choose import NonConvexWarning, choose, describe_choice, parse_values
+    from tradewise.choose import (
+        NonConvexWarning,
+        choose,
+        describe_choice,
+        distinct_picks,
+        parse_values,
+        separation,
+    )
     from tradewise.front import front_from_csv, read_front
 
     _check_out(out, _front_inputs(front_path), with_json=True)
@@ -604,13 +638,27 @@ def pick_command(front_path, method, weights, target, limits, top, minimise, max
         front = read_front(front_path)
     weights = parse_values(weights, what="--weights") or None
     target = parse_values(target, what="--target") or None
+    given = parse_values(tolerance, what="--tolerance")
+    gaps = separation(front, given, what="--tolerance")
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", NonConvexWarning)
-        rows = choose(front, method, weights=weights, target=target, limits=limits, top=top)
+        # the whole ranking, so that --top can pass over designs too close to those shown
+        ranking = choose(
+            front,
+            method,
+            weights=weights,
+            target=target,
+            limits=limits,
+            top=top if top <= 1 else max(top, len(front)),
+        )
+    rows = distinct_picks(front, ranking, top=top, tolerance=gaps)
     for line in describe_choice(
         front, rows, method=method, weights=weights, target=target, limits=limits
     ):
         click.echo(line)
+    if top > 1:
+        click.echo("")
+        click.echo(_separation_line(front, gaps, given, top=top, shown=len(rows)))
     for warning in caught:
         if issubclass(warning.category, NonConvexWarning):
             click.echo(f"Note: {warning.message}", err=True)
@@ -629,8 +677,36 @@ def pick_command(front_path, method, weights, target, limits, top, minimise, max
             "target": target,
             "limits": [str(x) for x in limits],
         }
+        if top > 1:
+            settings["separation"] = gaps
         written = shortlist_front(front, rows, settings=settings).to_csv(out)
         click.echo(f"Wrote {written[0]} and {written[1].name}")
+
+
+def _separation_line(front, gaps: dict, given: dict, *, top: int, shown: int) -> str:
+    """One sentence saying how far apart the designs shown by ``pick --top`` are."""
+    from tradewise.choose import DISTINCT_SHARE
+
+    parts = []
+    for o in front.objectives:
+        amount = fmt.quantity(gaps[o.name], o.unit)
+        parts.append(f"{o.name} {amount}{' (given)' if o.name in given else ''}")
+    rule = (
+        ""
+        if len(given) == len(gaps)
+        else f"; {fmt.share(DISTINCT_SHARE, 0)} of an objective's range on the front where no "
+        "tolerance is given, a rule of thumb of our own"
+    )
+    fewer = (
+        f" Only {shown} {'design stands' if shown == 1 else 'designs are that far'} apart, "
+        f"fewer than the {top} asked for."
+        if shown < top
+        else ""
+    )
+    return (
+        f"Separation: each design shown differs from the others by more than "
+        f"{' or '.join(parts)}{rule}.{fewer}"
+    )
 
 
 def _run_inputs(run) -> list:

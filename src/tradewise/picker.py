@@ -28,9 +28,11 @@ from tradewise.choose import (
     NonConvexWarning,
     all_picks,
     choose,
+    distinct_picks,
     knee_agreement,
     objective_ranks,
     parse_values,
+    separation,
 )
 from tradewise.errors import DataError
 from tradewise.front import Front, read_front, tradeoff_rates
@@ -148,6 +150,7 @@ class PickerState:
         self._method = "knee"
         self._weights = {o.name: 1.0 for o in front.objectives}
         self._target: dict[str, float] | None = None
+        self._tolerance: dict[str, float] = {}
         self._selected: int | None = None
         self._shortlist: list[int] = []
         self._listeners: list[Callable[[PickerState], None]] = []
@@ -374,8 +377,59 @@ class PickerState:
 
     @property
     def ranking(self) -> list[int]:
-        """The designs that meet the limits, the method's favourite first."""
+        """The designs that meet the limits, the method's favourite first (every one of them).
+
+        Neighbours on the front follow each other here; :meth:`choices` is
+        the short list of designs that differ, for showing the top choices.
+        """
         return list(self._ranking)
+
+    def choices(self, n: int = 8) -> list[int]:
+        """The method's top ``n`` designs that differ from each other, favourite first.
+
+        The ranking is walked best first and a design is kept only when it
+        differs from every kept one by more than :attr:`separation` in at
+        least one objective (:func:`tradewise.choose.distinct_picks`), so
+        neighbours on the front are never listed side by side. The first is
+        always the method's pick.
+
+        Examples
+        --------
+        >>> from tradewise.case import Objective
+        >>> table = pd.DataFrame({"cost": [10.0, 12, 15, 20, 30], "mass": [100.0, 60, 40, 30, 25]})
+        >>> state = PickerState(Front.from_table(table, [Objective("cost"), Objective("mass")]))
+        >>> state.ranking[:3], state.choices(3)
+        ([2, 1, 3], [2, 1, 3])
+        >>> state.set_tolerance({"cost": 4, "mass": 25})
+        >>> state.choices(3)
+        [2, 3, 0]
+        """
+        if not self._ranking:
+            return []
+        return distinct_picks(self.front, self._ranking, top=n, tolerance=self.separation)
+
+    @property
+    def separation(self) -> dict[str, float]:
+        """How far apart (objective name to amount in its unit) two of :meth:`choices` must be.
+
+        The tolerances given with :meth:`set_tolerance`; for the other
+        objectives 5 % of their range over the whole front
+        (:data:`tradewise.choose.DISTINCT_SHARE`, our own rule of thumb).
+        """
+        return separation(self.front, self._tolerance)
+
+    def set_tolerance(self, tolerance: Mapping[str, float] | str | None) -> None:
+        """Set engineering tolerances per objective in its units (None goes back to the default share).
+
+        Raises
+        ------
+        DataError
+            For a name that is not an objective or an amount below 0.
+        """
+        values = parse_values(tolerance, what="tolerance")
+        separation(self.front, values)  # checks names and amounts before anything changes
+        self._tolerance = values
+        self._update()
 
     def select(self, row: int | None) -> None:
         """Make design ``row`` the current one; None goes back to the method's pick.

@@ -1,8 +1,8 @@
 """The run folder: every file in it is written and read here.
 
 ``front.csv`` and ``front.json`` (the front and what describes it),
-``history.csv`` (one row a generation), ``least_infeasible.csv`` when nothing
-was feasible, and for a set of seeds ``seeds.csv``, ``seeds/seed-N/``,
+``representatives.csv`` (a few designs that stand for the front), ``history.csv``
+(one row a generation), ``least_infeasible.csv`` when nothing was feasible, and for a set of seeds ``seeds.csv``, ``seeds/seed-N/``,
 ``attainment.csv`` and, for two objectives, ``disagreement.csv``. The
 archive (``archive.sqlite``) is the store's.
 """
@@ -18,9 +18,10 @@ from typing import Any
 import pandas as pd
 
 from tradewise._plain import write_json
+from tradewise.choose import REPRESENTATIVE_COLUMNS, representatives_table
 from tradewise.compare import attainment, read_seed_fronts, write_attainment
 from tradewise.errors import DataError
-from tradewise.front import Front, read_front, read_table
+from tradewise.front import Front, column_header, objective_matrix, read_front, read_table
 from tradewise.store import open_store
 
 __all__ = [
@@ -29,6 +30,8 @@ __all__ = [
     "seed_attainment",
     "read_run",
     "read_seeds",
+    "read_representatives",
+    "REPRESENTATIVES_FILE",
     "shortlist_front",
     "SHORTLIST_COLUMNS",
     "DATA_FILES",
@@ -110,15 +113,25 @@ def is_run_folder(folder: Path) -> bool:
     return isinstance(meta, dict) and bool(meta.get("case_hash"))
 
 
+#: The file of the designs that stand for the front (see :func:`tradewise.choose.representatives`).
+REPRESENTATIVES_FILE = "representatives.csv"
+#: How many designs it holds when the run's settings do not say.
+_DEFAULT_REPRESENTATIVES = 20
+
 #: The columns a shortlist file adds before the design's own.
 SHORTLIST_COLUMNS = ("pick_order", "front_row")
 
 
 def save_run(result: Any, folder: str | Path) -> dict[str, Path]:
-    """Write a run folder: ``front.csv``, ``front.json`` and ``history.csv``.
+    """Write a run folder: ``front.csv``, ``front.json``, ``representatives.csv`` and ``history.csv``.
 
-    When no feasible design was found, ``least_infeasible.csv`` is written
-    instead of an empty front, and ``front.json`` says so.
+    ``representatives.csv`` holds at most the run's ``representatives``
+    setting of designs standing for the front (greedy hypervolume subset
+    selection, :func:`tradewise.choose.representatives_table`), with the
+    headers of ``front.csv`` after two columns of its own: ``chosen_as`` and
+    ``front_row``. When no feasible design was found,
+    ``least_infeasible.csv`` is written instead of an empty front and its
+    representatives, and ``front.json`` says so.
     """
     folder = Path(folder)
     folder.mkdir(parents=True, exist_ok=True)
@@ -132,10 +145,14 @@ def save_run(result: Any, folder: str | Path) -> dict[str, Path]:
     front = replace(result.front, info=info)
     if len(front):
         written["front"], written["meta"] = front.to_csv(folder / "front.csv")
+        written["representatives"] = _write_representatives(
+            front, folder, _representative_count(result)
+        )
     else:
-        stale = folder / "front.csv"
-        if stale.exists():
-            stale.unlink()
+        for name in ("front.csv", REPRESENTATIVES_FILE):
+            stale = folder / name
+            if stale.exists():
+                stale.unlink()
         meta_path = folder / "front.json"
         write_json(meta_path, replace(front, info=info.but(feasible=False)).metadata())
         written["meta"] = meta_path
@@ -147,6 +164,53 @@ def save_run(result: Any, folder: str | Path) -> dict[str, Path]:
     result.history.to_csv(path, index=False)
     written["history"] = path
     return written
+
+
+def _representative_count(result: Any) -> int:
+    """The run's ``representatives`` setting (its case's, else its recorded settings', else 20)."""
+    search = getattr(getattr(result, "case", None), "search", None)
+    count = getattr(search, "representatives", None)
+    if count is None:
+        count = result.front.info.settings.get("representatives", _DEFAULT_REPRESENTATIVES)
+    return int(count)
+
+
+def _write_representatives(front: Front, folder: Path, n: int) -> Path:
+    """Write ``representatives.csv``: the designs standing for ``front``, with front.csv's headers."""
+    table = representatives_table(front, n)
+    path = folder / REPRESENTATIVES_FILE
+    table.rename(columns=lambda c: column_header(str(c), front.units.get(str(c), ""))).to_csv(
+        path, index=False
+    )
+    return path
+
+
+def read_representatives(run: str | Path, front: Front | None = None) -> Front | None:
+    """The designs of a run folder's ``representatives.csv`` as a front (None when it has none).
+
+    The front's description (objectives, units, reference point, run
+    information) is ``front``'s, or read from the folder's ``front.json``;
+    the table is the file's, ``chosen_as`` and ``front_row`` first, in the
+    order the designs were chosen. A folder of an earlier release has no
+    such file.
+
+    Raises
+    ------
+    DataError
+        When the file cannot be read, or lacks an objective of the front or
+        one of its own columns.
+    """
+    folder = Path(run)
+    path = folder / REPRESENTATIVES_FILE
+    if not path.is_file():
+        return None
+    front = front if front is not None else read_front(folder)
+    table, _ = read_table(path)
+    missing = [c for c in REPRESENTATIVE_COLUMNS if c not in table.columns]
+    if missing:
+        raise DataError(f"{path}: no column {missing[0]!r}; the file is written by `tradewise run`")
+    objective_matrix(table, front.objectives, where=str(path), source=path)
+    return front.with_table(table)
 
 
 def save_seeds(result: Any, folder: str | Path, *, spread: Any = None) -> dict[str, Path]:
