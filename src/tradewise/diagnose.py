@@ -198,7 +198,9 @@ def _bound_findings(
         at = np.abs(values - bound) <= tolerance
         part = float(np.mean(at))
         if part >= share and at.any():
-            within = f" (within {near:.0%} of its range)" if spec.kind == "real" else ""
+            within = (
+                f" (within {_format.share(near, 0)} of its range)" if spec.kind == "real" else ""
+            )
             text = (
                 f"{spec.name} sits at its {word} bound {_show(bound)}{unit} on {_share_text(part)}"
                 f"{within}: the range may be too tight, and widening it may extend the front."
@@ -227,7 +229,7 @@ def _limit_findings(front: Front, spec: LimitSpec, *, share: float, near: float)
             where = "the front" if part >= 1.0 else "that part of the front"
             text = (
                 f"{spec.name} is at its {word} {_show(limit)}{unit} on {_share_text(part)} "
-                f"(within {near:.0%}): this limit shapes {where}, and loosening it would move the "
+                f"(within {_format.share(near, 0)}): this limit shapes {where}, and loosening it would move the "
                 "front (a what-if on the archive shows by how much)."
             )
             found.append(Finding("limit", spec.name, part, text, side, limit))
@@ -269,7 +271,7 @@ def _constant_finding(front: Front, name: str, *, near: float) -> Finding | None
     low, high = float(values.min()), float(values.max())
     text = (
         f"{name} stays between {_show(low)} and {_show(high)}{unit} on every design of the front "
-        f"(within {near:.0%} of its range): every best compromise uses about this value."
+        f"(within {_format.share(near, 0)} of its range): every best compromise uses about this value."
     )
     return Finding("constant", name, 1.0, text, "", (low + high) / 2)
 

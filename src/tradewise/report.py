@@ -235,6 +235,7 @@ def build_report(
         "picks": _picks(front, marks),
         "binds": _binds(front, evaluations),
         "run": _run(front, history, spread),
+        "representatives": _representatives(front, marks, listed),
         "front_table": _front_table(front, marks, listed),
         "assumptions": _assumptions(front),
         "cautions": _cautions(front),
@@ -891,8 +892,35 @@ def _binds(front: Front, evaluations: pd.DataFrame | None) -> dict[str, Any]:
 _OPEN_FRONT_ROWS = 60
 
 
-def _front_table(
+def _representatives(
     front: Front, marks: dict[str, Any], listed: dict[str, Any] | None
+) -> dict[str, Any] | None:
+    """The few designs that stand for a long front (none when the front is short enough to read)."""
+    n = front.info.settings.get("representatives") or 20
+    if len(front) <= max(int(n), 1) or any(
+        c in front.table.columns for c in _choose.REPRESENTATIVE_COLUMNS
+    ):
+        return None
+    chosen = _choose.representatives_table(front, int(n))
+    order = np.argsort(front.points()[chosen["front_row"].to_numpy() - 1, 0], kind="stable")
+    if front.objectives[0].maximise:
+        order = order[::-1]
+    positions = (chosen["front_row"].to_numpy() - 1)[order]
+    reasons = chosen["chosen_as"].to_numpy()[order]
+    table = _front_table(front, marks, listed, positions=positions, brief=True)
+    for row, reason in zip(table["rows"], reasons, strict=True):
+        row["reason"] = str(reason)
+    table["n_front"] = _fmt(len(front))
+    return table
+
+
+def _front_table(
+    front: Front,
+    marks: dict[str, Any],
+    listed: dict[str, Any] | None,
+    *,
+    positions: Sequence[int] | None = None,
+    brief: bool = False,
 ) -> dict[str, Any]:
     """Every design of the front: the columns in page order, and a row a design with its tags.
 
@@ -911,12 +939,17 @@ def _front_table(
         for c in front.table.columns
         if c not in named and c not in trailing and c not in _BOOKKEEPING
     ]
-    columns = objectives + variables + constraints + others + trailing
+    # the representative set keeps to what a design is and does; its other outputs are in the CSV
+    columns = objectives + variables + constraints + ([] if brief else others + trailing)
     labels = _method_labels(marks)
     for number, row in (listed or {}).get("designs", []):
         labels.setdefault(int(row), []).insert(0, f"shortlist {number}")
     rows = []
-    for position, record in enumerate(front.table[columns].itertuples(index=False, name=None)):
+    shown = front.table[columns]
+    positions = range(len(front)) if positions is None else [int(p) for p in positions]
+    for position, record in zip(
+        positions, shown.iloc[list(positions)].itertuples(index=False, name=None), strict=True
+    ):
         cells = []
         for value in record:
             number = _number_or_none(value)
@@ -926,7 +959,7 @@ def _front_table(
         f"{o.name}: {'lower' if o.goal == 'min' else 'higher'} is better" for o in front.objectives
     )
     return {
-        "n": len(front),
+        "n": _fmt(len(front)),
         # a front that prints on a page or two is shown; a longer one folds away (front.csv has it)
         "open": len(front) <= _OPEN_FRONT_ROWS,
         "goals": goals,
