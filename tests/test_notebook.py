@@ -7,7 +7,9 @@ from __future__ import annotations
 
 import ast
 import json
+import re
 import sys
+from dataclasses import replace
 from pathlib import Path
 
 import numpy as np
@@ -391,3 +393,23 @@ def test_notebook_runs_top_to_bottom(path, kernel_name, tmp_path):
     assert shortlists, "the notebook wrote no shortlist"
     for csv_path in shortlists:
         assert len(read_front(csv_path)) >= 1
+
+
+def test_the_preferred_list_keeps_designs_apart_and_the_front_shows_its_representatives(zdt1):
+    """On the 21-point ZDT1 front (Zitzler, Deb and Thiele 2000) the method's list shows designs
+    that differ by more than the separation in some objective, and with representatives = 5 the
+    widgets carry the five designs that stand for the front, extremes included."""
+    from tradewise.notebook import Picker
+
+    front = zdt1.with_table(zdt1.table)
+    front = replace(front, info=front.info.but(settings={"representatives": 5}))
+    picker = Picker(front, clickable=False)
+    html = picker._ranking_html(6)
+    rows = [int(r) - 1 for r in re.findall(r"<td>row (\d+)", html)]
+    gap = picker.state.separation
+    points = front.table[["cost", "mass"]].to_numpy()
+    for i, a in enumerate(rows):
+        for b in rows[:i]:
+            assert np.any(np.abs(points[a] - points[b]) > [gap["cost"], gap["mass"]])
+    reps = picker._pins.value
+    assert "The front in 5 designs" in reps and "best cost" in reps and "best mass" in reps

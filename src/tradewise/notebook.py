@@ -19,7 +19,7 @@ from typing import Any
 import pandas as pd
 
 from tradewise import plots
-from tradewise.choose import METHODS, WEIGHTED_METHODS
+from tradewise.choose import METHODS, WEIGHTED_METHODS, representatives_table
 from tradewise.diagnose import pins_lines
 from tradewise.errors import DataError
 from tradewise.picker import (
@@ -337,6 +337,7 @@ class Picker:
         pins = "".join(f"<li>{escape(line)}</li>" for line in pins_lines(state.front))
         self._pins = w.HTML(
             f"<details><summary><b>What pins this front</b></summary><ul>{pins}</ul></details>"
+            + self._representatives_html()
         )
 
         self.widget = w.VBox(
@@ -557,13 +558,39 @@ class Picker:
             f"<div>{escape(knee_sentence(info)).capitalize()}.</div>{also}</div>"
         )
 
+    def _representatives_html(self) -> str:
+        """The few designs that stand for the front (greedy hypervolume subset selection)."""
+        front = self.state.front
+        n = int(front.info.settings.get("representatives") or 20)
+        if len(front) <= n:
+            return ""
+        try:
+            table = representatives_table(front, n)
+        except DataError:
+            return ""
+        names = [o.name for o in front.objectives]
+        head = "".join(f"<th>{escape(name)}</th>" for name in names)
+        body = "".join(
+            f"<tr><td>row {int(r['front_row'])}</td><td>{escape(str(r['chosen_as']))}</td>"
+            + "".join(
+                f"<td style='text-align:right'>{escape(show_value(r[name]))}</td>" for name in names
+            )
+            + "</tr>"
+            for r in table.sort_values(names[0]).to_dict("records")
+        )
+        return (
+            f"<details><summary><b>The front in {len(table)} designs</b></summary>"
+            f"<table><tr><th>row</th><th>chosen as</th>{head}</tr>{body}</table></details>"
+        )
+
     def _ranking_html(self, n_rows: int = 8) -> str:
         state, front = self.state, self.state.front
         if not state.ranking:
             return ""
         head = "".join(f"<th>{escape(o.name)}</th>" for o in front.objectives)
         body = []
-        for k, row in enumerate(state.ranking[:n_rows], start=1):
+        chosen = state.choices(n_rows)
+        for k, row in enumerate(chosen, start=1):
             record = front.table.iloc[row]
             style = " style='background:#fff1d6;font-weight:600'" if row == state.pick else ""
             marks = " *" if row in state.shortlist else ""
@@ -573,8 +600,10 @@ class Picker:
             )
             body.append(f"<tr{style}><td>{k}</td><td>row {row + 1}{marks}</td>{cells}</tr>")
         return (
-            f"<div><b>The {min(n_rows, len(state.ranking))} designs {escape(state.method)} prefers</b> "
-            f"<span style='color:#666'>(* on the shortlist; choose one in the list above)</span></div>"
+            f"<div><b>The {len(chosen)} designs {escape(state.method)} prefers that differ from each "
+            f"other</b> <span style='color:#666'>(by more than "
+            f"{escape(', '.join(f'{k} {show_value(v)}' for k, v in state.separation.items()))}; "
+            "* on the shortlist; choose one in the list above)</span></div>"
             f"<table><tr><th>#</th><th>row</th>{head}</tr>{''.join(body)}</table>"
         )
 
