@@ -346,3 +346,29 @@ def test_the_faces_say_what_pins_the_front(constr_run, tmp_path):
     section = page.split('<section id="binds">')[1].split("</section>")[0]
     assert "g1 is at its minimum 6" in section
     assert "What if g1 &gt;= " in section and "loosened" in section
+
+
+def test_a_variable_whose_best_value_lies_beyond_its_range_is_reported_at_that_bound(make_case):
+    """A case built so that every Pareto-optimal design wants y = -1.5 while y may only go down to
+    0 (worked out by hand: f2 grows with (y + 1.5)^2 and nothing else depends on y): a real search
+    ends with y at its lower bound on (nearly) the whole front, and what_pins says so first."""
+    toml = """
+    title = "beyond the range"
+    model = "model.py:evaluate"
+    [variables]
+    x = { type = "real", low = 0.0, high = 1.0 }
+    y = { type = "real", low = 0.0, high = 2.0, unit = "mm" }
+    [objectives]
+    f1 = { goal = "min" }
+    f2 = { goal = "min" }
+    """
+    model = """
+def evaluate(design):
+    x, y = design["x"], design["y"]
+    return {"f1": x, "f2": (1 - x) ** 2 + (y + 1.5) ** 2}
+"""
+    result = tradewise.run(make_case(toml, model), evaluations=1500, seed=3)
+    found = what_pins(result.front)
+    assert found[0].kind == "bound" and found[0].name == "y" and found[0].side == "low"
+    assert found[0].share >= 0.9
+    assert "x" not in {f.name for f in found}

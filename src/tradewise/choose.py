@@ -79,6 +79,11 @@ KNEE_METHODS = ("knee", "tradeoff", "kneedle")
 WEIGHTED_METHODS = ("pseudo-weights", "asf", "topsis", "weighted-sum")
 
 _ASF_RHO = 1e-6
+#: Columns of a run's tables that say how a design was evaluated or found, not what it is.
+_BOOKKEEPING = frozenset(
+    {"eval_id", "generation", "run_id", "status", "message", "duration", "worker", "cached",
+     "feasible", "violation", "design_key", "rank"}
+)  # fmt: skip
 
 #: How far (normalised objectives) a design must lie on the ideal side of the plane through
 #: the extreme designs to count as a knee. Our own choice: a bulge of 2 % of every range.
@@ -1180,7 +1185,12 @@ def describe_choice(
     total = front.hypervolume()
     objective_names = set(front.objective_names)
     variables = [v for v in front.variables if v in front.table.columns]
-    others = [c for c in front.table.columns if c not in objective_names and c not in variables]
+    # what a design is and does; how it was evaluated (time taken, worker, ...) is bookkeeping
+    others = [
+        c
+        for c in front.table.columns
+        if c not in objective_names and c not in variables and c not in _BOOKKEEPING
+    ]
     for choice, row in enumerate(rows, start=1):
         k = position[int(row)]
         record = front.table.iloc[int(row)]
@@ -1195,10 +1205,16 @@ def describe_choice(
         for title, columns in (("variables", variables), ("other columns", others)):
             if columns:
                 shown = ", ".join(
-                    f"{c} = {_format.value(record[c])}{' ' + front.units[c] if front.units.get(c) else ''}"
-                    for c in columns
+                    f"{c} = {_format.quantity(record[c], front.units.get(c))}" for c in columns
                 )
                 lines.append(f"  {title}: {shown}")
+        found = [
+            f"{label} {int(record[c])}"
+            for c, label in (("eval_id", "evaluation"), ("generation", "generation"))
+            if c in record.index and _format.value(record[c]) != _format.MISSING
+        ]
+        if found:
+            lines.append(f"  found as {' in '.join(found)} of the run")
         if len(sub) > 1:
             rates = tradeoff_rates(sub, k)
             for _, rate in rates.iterrows():
@@ -1211,9 +1227,10 @@ def describe_choice(
             if len(front.objectives) > 2:
                 lines.extend(_nearest_moves(sub, k, keep))
         if total > 0:
+            part = contributions[int(row)] / total
             lines.append(
-                f"  hypervolume contribution: {_format.share(contributions[int(row)] / total)} of the "
-                "front's, covered by this design alone"
+                f"  hypervolume contribution: {_format.share(part) if part >= 0.0005 else 'under 0.1 %'} "
+                "of the front's, covered by this design alone"
             )
         agree = [m for m, r in picks.items() if r == int(row) and m != method]
         lines.append(
