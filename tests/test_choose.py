@@ -516,7 +516,7 @@ def test_describe_choice_names_units_ranks_and_rates():
     assert "15 k$" in text and "rank 3 of 5" in text
     # From (15, 40) to (20, 30): 5 k$ for 10 kg; to (12, 60): 20 kg for 3 k$.
     assert "to row 4: 5 k$ more cost per 10 kg less mass" in text
-    assert "to row 2: 6.67 kg more mass per 1 k$ less cost" in text
+    assert "to row 2: 1.5 k$ less cost per 10 kg more mass" in text
     assert "Knee methods: knee, tradeoff, kneedle all point at row 3." in text
 
 

@@ -219,11 +219,15 @@ def test_two_objective_rates_by_hand():
     assert rates["per"].tolist() == [10.0] * 4
     assert rates["text"].tolist()[2] == "5 k$ more cost per 10 kg less mass"
     # From design 2 both ways: to (20, 30) as above; to (12, 60) 20 kg more for 3 k$ less,
-    # 6.667 kg per k$ (per 1 k$, the power of ten at or below the 3 k$ step).
+    # 6.667 kg per k$. Both sides read on the same step of mass (10 kg): 5 k$ more cost per
+    # 10 kg less mass one way, 3 / 20 * 10 = 1.5 k$ less cost per 10 kg more mass the other.
     at = tradeoff_rates(front, 2)
     assert at["neighbour"].tolist() == [3, 1]
     assert at["rate"].tolist() == pytest.approx([0.5, 20 / 3])
-    assert at["text"].tolist()[1] == "6.67 kg more mass per 1 k$ less cost"
+    assert at["text"].tolist() == [
+        "5 k$ more cost per 10 kg less mass",
+        "1.5 k$ less cost per 10 kg more mass",
+    ]
 
 
 def test_rates_on_zdt1_front_follow_the_secant():
@@ -264,12 +268,14 @@ def test_rates_on_the_two_bar_truss_scale_read_without_exponents():
         for amount in ["0.0005", "0.001", "0.002", "0.004", "0.008", "0.0125", "0.02", "0.032"]
     ]
     # From (0.016 m3, 25,000 kPa): to 20,000 kPa costs 0.004 m3 for 5,000 kPa (8e-7 m3 per kPa);
-    # to 0.01 m3 costs 15,000 kPa for 0.006 m3 (2.5e6 kPa per m3, i.e. 2,500 kPa per 0.001 m3).
+    # to 0.01 m3 costs 15,000 kPa for 0.006 m3 (2.5e6 kPa per m3). Both sides read per
+    # 10,000 kPa of stress: 0.008 m3 more volume one way, 0.006 / 15,000 * 10,000 = 0.004 m3 less
+    # the other.
     at = tradeoff_rates(front, 4)
     assert at["rate"].tolist() == pytest.approx([8e-7, 2.5e6])
     assert at["text"].tolist() == [
         "0.008 m3 more volume per 10,000 kPa less stress",
-        "2,500 kPa more stress per 0.001 m3 less volume",
+        "0.004 m3 less volume per 10,000 kPa more stress",
     ]
     every = rates["text"].tolist()
     every += [t for i in range(len(front)) for t in tradeoff_rates(front, i)["text"]]

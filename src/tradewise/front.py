@@ -792,6 +792,33 @@ def _rates_between_neighbours(front: Front, index: int | None) -> list[dict[str,
         else:
             row["per"] = _readable_per([row["rate"]], [row["gain_amount"]], spans[row["gain"]])
         row["text"] = _rate_text(front, row["give"], row["gain"], row["rate"], row["per"])
+    if index is not None and len(rows) == 2 and rows[1]["gain"] == rows[0]["give"]:
+        # The two sides of one design read on one step of the same objective, so that a reader
+        # compares like with like: "0.145 g more mass per 1 N/mm more stiffness" on one side,
+        # "0.11 g less mass per 1 N/mm less stiffness" on the other.
+        up, down = rows
+        inverse = 1.0 / down["rate"] if down["rate"] > 0 else math.nan
+        step = _readable_per(
+            [up["rate"], inverse], [up["gain_amount"], down["give_amount"]], spans[up["gain"]]
+        )
+        up["per"] = step
+        up["text"] = _rate_text(front, up["give"], up["gain"], up["rate"], step)
+        if math.isfinite(inverse):
+            goals = {o.name: o.goal for o in front.objectives}
+            saved = "less" if goals[down["gain"]] == "min" else "more"
+            lost = "more" if goals[down["give"]] == "min" else "less"
+            parts = [
+                _number(inverse * step),
+                front.units.get(down["gain"], ""),
+                saved,
+                down["gain"],
+                "per",
+                _number(step),
+                front.units.get(down["give"], ""),
+                lost,
+                down["give"],
+            ]
+            down["text"] = " ".join(p for p in parts if p)
     return rows
 
 
