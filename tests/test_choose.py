@@ -421,9 +421,9 @@ def test_parse_limit_forms():
 @pytest.mark.parametrize(
     ("text", "needle"),
     [
-        ("mass", "expected COLUMN OP NUMBER"),
-        ("mass <= heavy", "not a finite number"),
-        ("<= 3", "expected COLUMN OP NUMBER"),
+        ("mass", "expected COLUMN OP VALUE"),
+        ("mass <= heavy", "text goes with == or !="),
+        ("<= 3", "expected COLUMN OP VALUE"),
         ("mass <= nan", "not a finite number"),
     ],
 )
@@ -868,3 +868,42 @@ def test_separation_refuses_bad_tolerances(tolerance, needle):
     """Unknown names, negative amounts and malformed text give the shaped one-sentence error."""
     with pytest.raises(DataError, match=needle):
         separation(zdt1_front(10), tolerance)
+
+
+def test_limits_on_choices_flags_and_variables():
+    """A limit may name any column: text with == or != on a choice, true/false on a flag, a
+    number on a variable; an option written as a number matches its text."""
+    table = pd.DataFrame(
+        {
+            "cost": [1.0, 2.0, 3.0, 4.0],
+            "mass": [4.0, 3.0, 2.0, 1.0],
+            "material": ["stainless 302", "music wire", "stainless 302", "music wire"],
+            "alloy": ["6063", "1050", "6063", "1050"],
+            "coated": [True, False, True, False],
+            "turns": [3, 4, 5, 6],
+        }
+    )
+    front = Front.from_table(table, [Objective("cost"), Objective("mass")])
+    kept = lambda *limits: apply_limits(front, limits).table["cost"].tolist()  # noqa: E731
+    assert kept("material==stainless 302") == [1.0, 3.0]
+    assert kept("material != stainless 302") == [2.0, 4.0]
+    assert kept("alloy == 6063") == [1.0, 3.0]
+    assert kept("coated == true") == [1.0, 3.0]
+    assert kept("turns >= 5", "material == music wire") == [4.0]
+    with pytest.raises(DataError, match="text goes with == or !="):
+        apply_limits(front, ["material <= steel"])
+
+
+def test_no_design_meeting_the_limits_names_the_closest_and_its_miss():
+    """When nothing meets the limits, the error names the design that misses least (by the sum of
+    its misses as shares of each column's range) and how much it misses each limit by, in units."""
+    table = pd.DataFrame({"cost": [10.0, 12, 15, 20, 30], "mass": [100.0, 60, 40, 30, 25]})
+    front = Front.from_table(table, [Objective("cost", unit="k$"), Objective("mass", unit="kg")])
+    with pytest.raises(DataError) as caught:
+        choose(front, "knee", limits=["cost <= 14", "mass <= 35"])
+    text = str(caught.value)
+    # row 3 (15 k$, 40 kg) misses by 1 k$ (1/20 of the range) and 5 kg (5/75): 0.117 in all;
+    # row 2 (12, 60) misses by 25 kg (0.333); row 4 (20, 30) by 6 k$ (0.3).
+    assert "no design of 5 meets the limits cost <= 14 and mass <= 35" in text
+    assert "the closest is row 3 (cost 15 k$, mass 40 kg)" in text
+    assert "misses cost <= 14 by 1 k$ and mass <= 35 by 5 kg" in text

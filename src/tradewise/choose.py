@@ -29,6 +29,8 @@ __all__ = [
     "find_knees",
     "Limit",
     "parse_limit",
+    "closest_miss",
+    "limit_mask",
     "parse_values",
     "apply_limits",
     "normalised",
@@ -99,25 +101,59 @@ class NonConvexWarning(UserWarning):
 # --------------------------------------------------------------------------- limits
 @dataclass(frozen=True)
 class Limit:
-    """A bound on one column of a front, such as ``mass <= 12``.
+    """A bound on one column of a front, such as ``mass <= 12`` or ``material == stainless 302``.
 
-    ``op`` is one of ``<=``, ``>=``, ``<``, ``>`` and ``==``. A design whose
-    value is missing fails the limit.
+    ``op`` is one of ``<=``, ``>=``, ``<``, ``>``, ``==`` and ``!=``. A number
+    bounds a numeric column; text (with ``==`` or ``!=``) matches a choice's
+    option or a flag (``true``/``false``). A design whose value is missing
+    fails the limit.
     """
 
     column: str
     op: str
-    value: float
+    value: float | str
 
     def __str__(self) -> str:
-        return f"{self.column} {self.op} {self.value:g}"
+        shown = self.value if isinstance(self.value, str) else _format.number(self.value)
+        return f"{self.column} {self.op} {shown}"
+
+    @property
+    def is_text(self) -> bool:
+        return isinstance(self.value, str)
 
     def holds(self, values: np.ndarray) -> np.ndarray:
         """Boolean mask of the ``values`` that keep within the limit."""
+        if self.is_text:
+            wanted = _text_key(self.value)
+            same = np.array([_text_key(v) == wanted for v in np.asarray(values, dtype=object)])
+            same = same.astype(bool) if len(same) else np.zeros(0, dtype=bool)
+            return same if self.op == "==" else ~same
         with np.errstate(invalid="ignore"):
             return np.asarray(
                 _OPS[self.op](np.asarray(values, dtype=float), self.value), dtype=bool
             )
+
+    def miss(self, values: np.ndarray) -> np.ndarray:
+        """By how much each value misses a numeric limit (0 where it holds, in the column's unit)."""
+        values = np.asarray(values, dtype=float)
+        if self.op in ("<=", "<"):
+            gap = values - self.value
+        elif self.op in (">=", ">"):
+            gap = self.value - values
+        else:
+            gap = np.abs(values - self.value)
+        gap = np.where(self.holds(values), 0.0, np.maximum(gap, 0.0))
+        return np.where(np.isnan(values), np.inf, gap)
+
+
+def _text_key(value: object) -> str:
+    """Text as a limit compares it: flags as true/false, everything else as written."""
+    if isinstance(value, np.generic):
+        value = value.item()
+    if isinstance(value, bool):
+        return "true" if value else "false"
+    text = str(value).strip()
+    return text.lower() if text.lower() in ("true", "false") else text
 
 
 _OPS = {
@@ -126,42 +162,54 @@ _OPS = {
     "<": np.less,
     ">": np.greater,
     "==": np.equal,
+    "!=": np.not_equal,
 }
-_LIMIT = re.compile(r"^\s*(?P<column>[^<>=]+?)\s*(?P<op><=|>=|==|=|<|>)\s*(?P<value>[^<>=]*?)\s*$")
+_LIMIT = re.compile(
+    r"^\s*(?P<column>[^<>=!]+?)\s*(?P<op><=|>=|==|!=|=|<|>)\s*(?P<value>[^<>=]*?)\s*$"
+)
 _UNIT_SUFFIX = re.compile(r"\s*\[[^\[\]]*\]$")
 
 
 def parse_limit(text: str) -> Limit:
-    """Read a limit such as ``"mass <= 12"`` or ``"range>=40"``.
+    """Read a limit such as ``"mass <= 12"``, ``"range>=40"`` or ``"material==stainless 302"``.
 
-    A unit written after the column name (``"mass [g] <= 12"``) is dropped.
+    A unit written after the column name (``"mass [g] <= 12"``) is dropped. A
+    bound that is not a number is text, allowed with ``==`` and ``!=`` only.
 
     Raises
     ------
     DataError
-        When the text is not ``COLUMN OP NUMBER`` with ``OP`` one of
-        ``<=``, ``>=``, ``<``, ``>``, ``=``.
+        When the text is not ``COLUMN OP VALUE`` with ``OP`` one of
+        ``<=``, ``>=``, ``<``, ``>``, ``=``, ``==``, ``!=``.
 
     Examples
     --------
     >>> print(parse_limit("mass<=12"))
     mass <= 12
+    >>> print(parse_limit("material != stainless 302"))
+    material != stainless 302
     """
     if isinstance(text, Limit):
         return text
     match = _LIMIT.match(str(text))
-    if not match:
+    if not match or not match["value"]:
         raise DataError(
-            f"limit {text!r}: expected COLUMN OP NUMBER with OP one of <=, >=, <, >, = (for example 'mass <= 12')"
+            f"limit {text!r}: expected COLUMN OP VALUE with OP one of <=, >=, <, >, ==, != "
+            "(for example 'mass <= 12' or 'material == stainless 302')"
         )
     column = _UNIT_SUFFIX.sub("", match["column"]).strip()
-    try:
-        value = float(match["value"])
-    except ValueError:
-        value = math.nan
-    if not math.isfinite(value):
-        raise DataError(f"limit {text!r}: the bound {match['value']!r} is not a finite number")
     op = "==" if match["op"] == "=" else match["op"]
+    try:
+        value: float | str = float(match["value"])
+    except ValueError:
+        value = match["value"].strip()
+    if isinstance(value, float) and not math.isfinite(value):
+        raise DataError(f"limit {text!r}: the bound {match['value']!r} is not a finite number")
+    if isinstance(value, str) and op not in ("==", "!="):
+        raise DataError(
+            f"limit {text!r}: {value!r} is not a number; text goes with == or != (an option of a "
+            "choice, or true/false for a flag)"
+        )
     return Limit(column, op, value)
 
 
@@ -224,11 +272,12 @@ def apply_limits(front: Front, limits: Iterable[Limit | str]) -> Front:
     >>> len(apply_limits(front, ["mass <= 2"]))
     2
     """
-    mask = _limit_mask(front, limits)
+    mask = limit_mask(front, limits)
     return front.with_table(front.table.loc[mask])
 
 
-def _limit_mask(front: Front, limits: Iterable[Limit | str]) -> np.ndarray:
+def limit_mask(front: Front, limits: Iterable[Limit | str]) -> np.ndarray:
+    """Boolean mask of the designs of ``front`` that meet every limit (see :func:`apply_limits`)."""
     mask = np.ones(len(front), dtype=bool)
     for limit in limits:
         limit = parse_limit(limit)
@@ -242,15 +291,73 @@ def _limit_mask(front: Front, limits: Iterable[Limit | str]) -> np.ndarray:
                 f"columns: {', '.join(map(str, front.table.columns))}"
             )
         raw = front.table[limit.column]
+        if limit.is_text or raw.dtype == bool or raw.dtype == object and limit.op in ("==", "!="):
+            if not limit.is_text and raw.dtype != bool:
+                # an option written as a number ("alloy == 6063") matches its text
+                number = float(limit.value)
+                limit = Limit(
+                    limit.column,
+                    limit.op,
+                    str(int(number)) if number.is_integer() else repr(number),
+                )
+            mask &= limit.holds(raw.to_numpy(dtype=object))
+            continue
         values = pd.to_numeric(raw, errors="coerce")
         text = values.isna() & raw.notna()
         if text.any():
             row = int(np.flatnonzero(text.to_numpy())[0])
             raise DataError(
-                f"limit '{limit}': column {limit.column!r} holds {raw.iloc[row]!r} in row {row + 1}, not a number"
+                f"limit '{limit}': column {limit.column!r} holds {raw.iloc[row]!r} in row {row + 1}, "
+                "not a number; a limit on text takes == or != (for example "
+                f"'{limit.column} == {raw.iloc[row]}')"
             )
         mask &= limit.holds(values.to_numpy(dtype=float, na_value=np.nan))
     return mask
+
+
+def closest_miss(front: Front, limits: Iterable[Limit | str]) -> str:
+    """A sentence naming the design that comes closest to meeting ``limits`` and what it misses by.
+
+    Closeness is the sum over the limits of each miss as a share of its
+    column's range on the front (a text limit missed counts 1).
+
+    Examples
+    --------
+    >>> import pandas as pd
+    >>> from tradewise.case import Objective
+    >>> table = pd.DataFrame({"cost": [1.0, 2.0, 3.0], "mass": [3.0, 2.0, 1.0]})
+    >>> front = Front.from_table(table, [Objective("cost"), Objective("mass")])
+    >>> closest_miss(front, ["cost <= 1.5", "mass <= 1.8"])
+    'the closest is row 2 (cost 2, mass 2), which misses cost <= 1.5 by 0.5 and mass <= 1.8 by 0.2'
+    """
+    limits = [parse_limit(limit) for limit in limits]
+    total = np.zeros(len(front))
+    misses = []
+    for limit in limits:
+        raw = front.table[limit.column]
+        if limit.is_text or raw.dtype == bool or raw.dtype == object:
+            gap = (~limit.holds(raw.to_numpy(dtype=object))).astype(float)
+            total += gap
+            misses.append(gap)
+            continue
+        values = pd.to_numeric(raw, errors="coerce").to_numpy(dtype=float, na_value=np.nan)
+        gap = limit.miss(values)
+        span = float(np.nanmax(values) - np.nanmin(values)) if np.isfinite(values).any() else 0.0
+        total += gap / (span if span > 0 else max(abs(float(limit.value)), 1.0))
+        misses.append(gap)
+    best = int(np.argmin(total))
+    record = front.table.iloc[best]
+    shown = ", ".join(
+        f"{o.name} {_format.quantity(record[o.name], front.units.get(o.name, o.unit))}"
+        for o in front.objectives
+    )
+    missed = []
+    for limit, gap in zip(limits, misses, strict=True):
+        if gap[best] > 0:
+            unit = front.units.get(limit.column, "")
+            amount = "" if limit.is_text else f" by {_format.quantity(gap[best], unit)}"
+            missed.append(f"{limit}{amount}")
+    return f"the closest is row {best + 1} ({shown}), which misses {' and '.join(missed)}"
 
 
 # --------------------------------------------------------------------------- scaling
@@ -879,7 +986,7 @@ def find_knees(front: Front, *, limits: Iterable[Limit | str] = ()) -> KneeVerdi
     (False, 1)
     """
     limits = [parse_limit(limit) for limit in limits]
-    rows = np.flatnonzero(_limit_mask(front, limits))
+    rows = np.flatnonzero(limit_mask(front, limits))
     if len(rows) == 0:
         raise DataError("the front holds no designs to choose from")
     scaled = normalised(front.with_table(front.table.iloc[rows]))
@@ -986,11 +1093,12 @@ def choose(
     if isinstance(top, bool) or not isinstance(top, int | np.integer) or top < 1:
         raise DataError(f"top: expected a whole number of at least 1, got {top!r}")
     limits = [parse_limit(limit) for limit in limits]
-    rows = np.flatnonzero(_limit_mask(front, limits))
+    rows = np.flatnonzero(limit_mask(front, limits))
     if len(rows) == 0:
         if limits:
             raise DataError(
-                f"no design of {len(front)} meets the limits {' and '.join(map(str, limits))}"
+                f"no design of {len(front)} meets the limits {' and '.join(map(str, limits))}; "
+                f"{closest_miss(front, limits)}"
             )
         raise DataError("the front holds no designs to choose from")
     sub = front.with_table(front.table.iloc[rows]) if len(rows) < len(front) else front
@@ -1168,7 +1276,7 @@ def describe_choice(
     that meet the limits. Rows are shown 1-based, as in the front's CSV file.
     """
     limits = [parse_limit(limit) for limit in limits]
-    keep = np.flatnonzero(_limit_mask(front, limits))
+    keep = np.flatnonzero(limit_mask(front, limits))
     sub = front.with_table(front.table.iloc[keep])
     position = {int(row): k for k, row in enumerate(keep)}
     names = ", ".join(f"{column_header(o.name, o.unit)} ({o.goal})" for o in front.objectives)

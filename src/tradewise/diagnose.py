@@ -573,7 +573,8 @@ def _side(limit: Limit) -> str:
 def _meets(table: pd.DataFrame, limits: Iterable[Limit]) -> np.ndarray:
     mask = np.ones(len(table), dtype=bool)
     for limit in limits:
-        mask &= limit.holds(_numbers(table[limit.column]))
+        column = table[limit.column]
+        mask &= limit.holds(column.to_numpy(dtype=object) if limit.is_text else _numbers(column))
     return mask
 
 

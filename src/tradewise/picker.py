@@ -30,6 +30,7 @@ from tradewise.choose import (
     choose,
     distinct_picks,
     knee_agreement,
+    limit_mask,
     objective_ranks,
     parse_values,
     separation,
@@ -200,8 +201,8 @@ class PickerState:
 
     def _update(self, *, message: str = "") -> None:
         self._kept = np.ones(len(self.front), dtype=bool)
-        for limit in self.limits:
-            self._kept &= limit.holds(self.front.table[limit.column].to_numpy(dtype=float))
+        if self.limits:
+            self._kept &= limit_mask(self.front, self.limits)
         self.notes = []
         self._ranking = []
         if self._kept.any():

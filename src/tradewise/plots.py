@@ -848,7 +848,7 @@ def _shade_limits(ax, front: Front, i: int, j: int, narrowing: _Narrowing) -> No
         shade = ax.axvspan if which == "x" else ax.axhspan
         lo_view, hi_view = min(view), max(view)
         for limit in narrowing.limits:
-            if limit.column != name or not math.isfinite(limit.value):
+            if limit.column != name or limit.is_text or not math.isfinite(limit.value):
                 continue
             if limit.op in (">=", ">") and limit.value > lo_view:
                 shade(lo_view, limit.value, color=_SHADE, zorder=0, linewidth=0, gid="limit-shade")
