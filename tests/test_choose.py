@@ -94,7 +94,7 @@ def do2dk(k: int, s: int, n: int = 4001) -> np.ndarray:
 TOL = 0.02
 
 
-@pytest.mark.parametrize("method", ["knee", "tradeoff", "kneedle"])
+@pytest.mark.parametrize("method", ["knee", "trade-off", "kneedle"])
 @pytest.mark.parametrize(
     ("points", "knee"),
     [
@@ -153,7 +153,7 @@ def test_zdt1_knee_is_quarter_half():
     # f1 = 1/4 (reference notes 1.5).
     f1 = np.linspace(0, 1, 2001)
     front = make_front(np.column_stack([f1, 1 - np.sqrt(f1)]))
-    for method in ("knee", "tradeoff", "kneedle"):
+    for method in ("knee", "trade-off", "kneedle"):
         assert np.allclose(row_values(front, choose(front, method)[0]), (0.25, 0.5), atol=2e-3)
 
 
@@ -223,7 +223,7 @@ def test_ex2_knees_and_compromises_differ():
     # ASF, w = (0.5, 0.5): point 2: 0.15, point 3: max(0.2, 0.075) = 0.2.
     # Pseudo-weights of point 2: (0.7, 0.7)/1.4 = (0.5, 0.5), exactly the asked weights.
     front = make_front(EX2)
-    assert knee_agreement(front) == {"knee": 3, "tradeoff": 3, "kneedle": 3}
+    assert knee_agreement(front) == {"knee": 3, "trade-off": 3, "kneedle": 3}
     assert choose(front, "asf") == [2]
     assert choose(front, "pseudo-weights") == [2]
     assert tradeoff_measure(EX2) == pytest.approx([0.166667, 0.625, 0.666667, 1.5, 0.25], abs=1e-6)
@@ -273,7 +273,7 @@ def test_ex3_tradeoff_measure_depends_on_scaling():
     assert tradeoff_measure(EX3) == pytest.approx([0.05, 0.15, 0.5, 2.0, 0.5])
     front = make_front(EX3)
     assert tradeoff_measure(normalised(front))[2] == pytest.approx(1.777778, abs=1e-6)
-    assert choose(front, "tradeoff") == [2]
+    assert choose(front, "trade-off") == [2]
 
 
 def test_ex4_three_objectives():
@@ -287,7 +287,7 @@ def test_ex4_three_objectives():
     front = make_front(EX4)
     picked = row_values(front, choose(front, "knee")[0])
     assert picked == pytest.approx([0.2, 0.2, 0.2])
-    assert set(knee_agreement(front)) == {"knee", "tradeoff"}
+    assert set(knee_agreement(front)) == {"knee", "trade-off"}
 
 
 def test_max_objectives_are_flipped():
@@ -517,7 +517,7 @@ def test_describe_choice_names_units_ranks_and_rates():
     # From (15, 40) to (20, 30): 5 k$ for 10 kg; to (12, 60): 20 kg for 3 k$.
     assert "to row 4: 5 k$ more cost per 10 kg less mass" in text
     assert "to row 2: 1.5 k$ less cost per 10 kg more mass" in text
-    assert "Knee methods: knee, tradeoff, kneedle all point at row 3." in text
+    assert "Knee methods: knee, trade-off, kneedle all point at row 3." in text
 
 
 def test_describe_choice_three_objectives_lists_nearest_moves():
@@ -556,7 +556,7 @@ def test_deb3dk_k1_knee_is_the_centre():
     front = make_front(deb3dk(1))
     verdict = find_knees(front)
     assert verdict.has_knee and len(verdict.knees) == 1
-    for method in ("knee", "tradeoff"):
+    for method in ("knee", "trade-off"):
         found = row_values(front, choose(front, method)[0])
         assert np.allclose(found, (2, 2, 2 * np.sqrt(2)), atol=0.05), method
 
@@ -571,7 +571,7 @@ def test_deb3dk_corner_is_never_offered_as_a_knee(k):
     verdict = find_knees(front)
     assert not verdict.has_knee and "no knee" in verdict.message
     scaled = normalised(front)
-    for method in ("knee", "tradeoff"):
+    for method in ("knee", "trade-off"):
         row = choose(front, method)[0]
         assert row == verdict.instead, method
         assert (scaled[row] > 0.05).all()  # an inner design, not a corner or an edge
@@ -617,7 +617,7 @@ def test_deb3dk_k1_knee_survives_a_big_front():
     front = make_front(deb3dk(1, n=141))
     assert len(front) > 4000
     assert np.allclose(
-        row_values(front, choose(front, "tradeoff")[0]), (2, 2, 2 * np.sqrt(2)), atol=0.05
+        row_values(front, choose(front, "trade-off")[0]), (2, 2, 2 * np.sqrt(2)), atol=0.05
     )
 
 

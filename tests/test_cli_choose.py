@@ -153,7 +153,7 @@ def test_pick_shows_the_knee_with_everything(front_folder):
     assert "other columns: id = 3, fins = 8, alloy = a" in out
     assert "to row 4: 5 k$ more cost per 10 kg less mass" in out
     assert "hypervolume contribution" in out
-    assert "Knee methods: knee, tradeoff, kneedle all point at row 3." in out
+    assert "Knee methods: knee, trade-off, kneedle all point at row 3." in out
 
 
 def test_pick_plain_csv_with_limits_weights_and_shortlist(table, tmp_path):
@@ -338,3 +338,20 @@ def test_pick_top_says_when_fewer_designs_are_apart(front_folder):
     assert result.exit_code == 0
     assert shown_rows(result.stdout) == [2]
     assert "Only 1 design stands apart, fewer than the 3 asked for." in result.stdout
+
+
+def test_method_names_forgive_case_and_spelling(front_folder):
+    """--method Knee works, tradeoff is read as trade-off, a near miss gets a suggestion, the
+    methods are listed in --help, and a misspelt objective in --weights is named before the
+    method's complaint that it takes no weights."""
+    front = front_folder
+    ok = CliRunner().invoke(main, ["pick", str(front), "--method", "Knee"])
+    assert ok.exit_code == 0, ok.output
+    alias = CliRunner().invoke(main, ["pick", str(front), "--method", "tradeoff"])
+    assert alias.exit_code == 0 and "Method: trade-off" in alias.output
+    bad = CliRunner().invoke(main, ["pick", str(front), "--method", "topsys"])
+    assert bad.exit_code == 2 and "did you mean 'topsis'?" in bad.output
+    helped = CliRunner().invoke(main, ["pick", "--help"])
+    assert "knee|trade-off|kneedle|pseudo-weights|asf|topsis|weighted-sum" in helped.output
+    typo = CliRunner().invoke(main, ["pick", str(front), "--weights", "cots=2,mass=1"])
+    assert typo.exit_code == 2 and "'cots' is not an objective" in typo.output

@@ -263,7 +263,7 @@ def test_removing_from_the_shortlist_and_its_errors(zdt1, tmp_path):
         (lambda s: s.set_limit("cost", high=float("nan")), "not a finite number"),
         (lambda s: s.set_weights({"cost": 0, "mass": 0}), "not all 0"),
         (lambda s: s.set_weights({"cost": -1}), "at least 0"),
-        (lambda s: s.set_method("kneedle3"), "does not apply"),
+        (lambda s: s.set_method("kneedle3"), "not known .did you mean .kneedle"),
         (lambda s: s.select(99), "not a row position"),
     ],
 )

@@ -30,6 +30,7 @@ __all__ = [
     "Limit",
     "parse_limit",
     "closest_miss",
+    "method_name",
     "limit_mask",
     "parse_values",
     "apply_limits",
@@ -62,7 +63,7 @@ __all__ = [
 METHODS: dict[str, str] = {
     "knee": "the design farthest on the ideal side of the plane through the extreme designs "
     "(normalised objectives; Das 1999, Branke et al. 2004)",
-    "tradeoff": "the design that loses most per unit gained when moving to any other design "
+    "trade-off": "the design that loses most per unit gained when moving to any other design "
     "(trade-off measure of Rachmawati and Srinivasan 2009, normalised objectives)",
     "kneedle": "the confirmed peak of the Kneedle difference curve, two objectives only "
     "(Satopaa et al. 2011)",
@@ -76,7 +77,7 @@ METHODS: dict[str, str] = {
 }
 
 #: The methods that look for knees and need no preferences.
-KNEE_METHODS = ("knee", "tradeoff", "kneedle")
+KNEE_METHODS = ("knee", "trade-off", "kneedle")
 #: The methods that take weights (one per objective; weight = importance).
 WEIGHTED_METHODS = ("pseudo-weights", "asf", "topsis", "weighted-sum")
 
@@ -902,11 +903,12 @@ def scores(
     >>> int(np.argmax(scores(front, "knee")))
     2
     """
+    method = method_name(method)
     _check_method(method, front, weights=weights, target=target)
     scaled, ideal, nadir = _scaled(front)
     if method == "knee":
         return knee_distance(scaled)
-    if method == "tradeoff":
+    if method == "trade-off":
         return tradeoff_measure(scaled)
     if method == "kneedle":
         return kneedle(scaled)[0]
@@ -1057,7 +1059,7 @@ def choose(
 
     Limits are applied first; the method then sees only the designs that meet
     them (normalisation included). The knee methods rank knees first:
-    ``knee`` the knees of :func:`find_knees` by their bulge, ``tradeoff`` the
+    ``knee`` the knees of :func:`find_knees` by their bulge, ``trade-off`` the
     same knees by mu, ``kneedle`` its confirmed knees. On a front without a
     knee they put the design closest to the ideal point first instead (see
     :func:`find_knees`, which says so), never a corner. Ties keep table order.
@@ -1092,6 +1094,7 @@ def choose(
     """
     if isinstance(top, bool) or not isinstance(top, int | np.integer) or top < 1:
         raise DataError(f"top: expected a whole number of at least 1, got {top!r}")
+    method = method_name(method)
     limits = [parse_limit(limit) for limit in limits]
     rows = np.flatnonzero(limit_mask(front, limits))
     if len(rows) == 0:
@@ -1157,7 +1160,7 @@ def all_picks(
 def knee_agreement(front: Front, *, limits: Iterable[Limit | str] = ()) -> dict[str, int]:
     """The knee each knee method finds (method name to row position in ``front.table``).
 
-    Runs ``knee`` and ``tradeoff``, and ``kneedle`` on two objectives. Use
+    Runs ``knee`` and ``trade-off``, and ``kneedle`` on two objectives. Use
     :func:`agreeing_groups` to see where they agree. Empty when the front has
     no knee (:func:`find_knees` says what stands out instead).
 
@@ -1168,7 +1171,7 @@ def knee_agreement(front: Front, *, limits: Iterable[Limit | str] = ()) -> dict[
     >>> table = pd.DataFrame({"cost": [10, 12, 15, 20, 30], "mass": [100, 60, 40, 30, 25]})
     >>> front = Front.from_table(table, [Objective("cost"), Objective("mass")])
     >>> knee_agreement(front)
-    {'knee': 2, 'tradeoff': 2, 'kneedle': 2}
+    {'knee': 2, 'trade-off': 2, 'kneedle': 2}
     """
     limits = [parse_limit(limit) for limit in limits]
     if not find_knees(front, limits=limits).has_knee:
@@ -1182,8 +1185,8 @@ def agreeing_groups(picks: Mapping[str, int]) -> list[tuple[int, list[str]]]:
 
     Examples
     --------
-    >>> agreeing_groups({"knee": 4, "tradeoff": 7, "kneedle": 4})
-    [(4, ['knee', 'kneedle']), (7, ['tradeoff'])]
+    >>> agreeing_groups({"knee": 4, "trade-off": 7, "kneedle": 4})
+    [(4, ['knee', 'kneedle']), (7, ['trade-off'])]
     """
     groups: dict[int, list[str]] = {}
     for method, row in picks.items():
@@ -1205,6 +1208,31 @@ def objective_ranks(front: Front) -> pd.DataFrame:
 
 
 # --------------------------------------------------------------------------- checks
+def method_name(text: str) -> str:
+    """The method a user meant: case, spaces and underscores forgiven, ``tradeoff`` read as ``trade-off``.
+
+    Raises
+    ------
+    DataError
+        For a name that is none of :data:`METHODS`, with the closest one suggested.
+
+    Examples
+    --------
+    >>> method_name("Knee"), method_name("tradeoff"), method_name("Weighted_Sum")
+    ('knee', 'trade-off', 'weighted-sum')
+    """
+    key = re.sub(r"[\s_]+", "-", str(text).strip().lower())
+    key = _METHOD_ALIASES.get(key.replace("-", ""), key)
+    if key in METHODS:
+        return key
+    close = difflib.get_close_matches(key, list(METHODS), n=1, cutoff=0.6)
+    hint = f" (did you mean {close[0]!r}?)" if close else ""
+    raise DataError(f"method {text!r} is not known{hint}; choose one of {', '.join(METHODS)}")
+
+
+_METHOD_ALIASES = {m.replace("-", ""): m for m in ("trade-off", "pseudo-weights", "weighted-sum")}
+
+
 def _check_method(
     method: str,
     front: Front,
@@ -1213,7 +1241,12 @@ def _check_method(
     target: Mapping[str, float] | None,
 ) -> None:
     if method not in METHODS:
-        raise DataError(f"method {method!r} is not known; choose one of {', '.join(METHODS)}")
+        method_name(method)  # raises, naming the closest method
+    # a misspelt objective in the preferences is the likelier mistake: name it first
+    if weights:
+        _check_names(front, parse_values(weights, what="weights"), "weights")
+    if target:
+        _check_names(front, parse_values(target, what="target"), "target")
     if method == "kneedle" and len(front.objectives) != 2:
         raise DataError(
             f"method 'kneedle' works on two objectives; this front has {len(front.objectives)}"
@@ -1283,6 +1316,7 @@ def describe_choice(
     lines = [f"Front: {len(front)} designs; objectives {names}."]
     if limits:
         lines.append(f"{len(sub)} of them meet the limits {' and '.join(map(str, limits))}.")
+    method = method_name(method)
     lines.append(f"Method: {method}, {METHODS[method]}.")
     verdict = find_knees(front, limits=limits)
     if method in KNEE_METHODS:

@@ -561,7 +561,8 @@ def front_command(table, minimise, maximise, keep, out) -> None:
     "--method",
     default="knee",
     show_default=True,
-    help="knee, tradeoff, kneedle, pseudo-weights, asf, topsis or weighted-sum.",
+    metavar="[knee|trade-off|kneedle|pseudo-weights|asf|topsis|weighted-sum]",
+    help="How to choose (any case; see the list of methods in the output).",
 )
 @click.option(
     "--weights", metavar="NAME=W,...", help="Importance of each objective, e.g. cost=2,mass=1."
@@ -626,6 +627,7 @@ def pick_command(
         choose,
         describe_choice,
         distinct_picks,
+        method_name,
         parse_values,
         separation,
     )
@@ -636,6 +638,7 @@ def pick_command(
         front = front_from_csv(front_path, minimise=minimise, maximise=maximise)
     else:
         front = read_front(front_path)
+    method = method_name(method)
     weights = parse_values(weights, what="--weights") or None
     target = parse_values(target, what="--target") or None
     given = parse_values(tolerance, what="--tolerance")

@@ -31,6 +31,7 @@ from tradewise.choose import (
     distinct_picks,
     knee_agreement,
     limit_mask,
+    method_name,
     objective_ranks,
     parse_values,
     separation,
@@ -315,6 +316,7 @@ class PickerState:
 
     def set_method(self, method: str) -> None:
         """Choose with ``method``; a design picked by hand gives way to the method's pick."""
+        method = method_name(method)
         if method not in self.methods:
             raise DataError(
                 f"method {method!r} does not apply here; choose one of {', '.join(self.methods)}"
