@@ -15,28 +15,20 @@ import pytest
 from tradewise.case import Objective
 from tradewise.choose import (
     METHODS,
-    Limit,
     NonConvexWarning,
     agreeing_groups,
     all_picks,
-    apply_limits,
     asf,
     choose,
     describe_choice,
-    distinct_picks,
     find_knees,
     knee_agreement,
     knee_distance,
     kneedle,
     normalised,
     objective_ranks,
-    parse_limit,
-    parse_values,
     pseudo_weights,
-    representatives,
-    representatives_table,
     scores,
-    separation,
     supported,
     topsis,
     tradeoff_measure,
@@ -44,6 +36,8 @@ from tradewise.choose import (
 )
 from tradewise.errors import DataError
 from tradewise.front import Front
+from tradewise.limits import Limit, apply_limits, parse_limit, parse_values
+from tradewise.represent import distinct_picks, representatives, representatives_table, separation
 
 # Worked examples EX1-EX4 of the shared reference notes (values computed there and recomputed
 # by hand below). Indices are 0-based; objectives are minimised unless said otherwise.

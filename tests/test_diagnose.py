@@ -13,11 +13,11 @@ from click.testing import CliRunner
 import tradewise
 from support import CASES
 from tradewise.case import Objective
-from tradewise.choose import Limit
 from tradewise.cli import main
 from tradewise.diagnose import BOUND_SHARE, Finding, what_if, what_pins
 from tradewise.errors import DataError
 from tradewise.front import Front, front_from_csv
+from tradewise.limits import Limit
 from tradewise.runfolder import read_run
 from tradewise.runinfo import LimitSpec, RunInfo, VariableSpec
 

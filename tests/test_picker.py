@@ -13,15 +13,10 @@ import pytest
 
 import tradewise
 from tradewise.case import Objective
-from tradewise.choose import (
-    WEIGHTED_METHODS,
-    NonConvexWarning,
-    apply_limits,
-    choose,
-    knee_agreement,
-)
+from tradewise.choose import WEIGHTED_METHODS, NonConvexWarning, choose, knee_agreement
 from tradewise.errors import DataError
 from tradewise.front import Front, read_front, tradeoff_rates
+from tradewise.limits import apply_limits
 from tradewise.picker import SHORTLIST_COLUMNS, PickerState, load_picker_source, shortlist_front
 
 

@@ -1,10 +1,19 @@
-"""Choosing designs from a front: knee and compromise methods, limits applied before them,
-representative sets and distinct picks."""
+"""Choosing designs from a front: the knee and compromise methods, and the words that explain a pick.
+
+Limits are read and applied in :mod:`tradewise.limits`; representative sets
+and distinct picks live in :mod:`tradewise.represent`.
+
+Over 800 lines (about 1,100) because the seven published methods each carry
+their numpydoc, their citation and a worked example, and the front-level
+layer above them (limits in force, knee verdicts, agreement between methods,
+the plain-words description of a pick) is read together with them: splitting
+the methods from the layer that calls them would put every change to a
+method's behaviour in two files.
+"""
 
 from __future__ import annotations
 
 import difflib
-import math
 import re
 import warnings
 from collections.abc import Iterable, Mapping, Sequence
@@ -17,6 +26,14 @@ import pandas as pd
 from tradewise import format as _format
 from tradewise.errors import DataError
 from tradewise.front import Front, column_header, tradeoff_rates
+from tradewise.limits import (
+    Limit,
+    check_objective_names,
+    closest_miss,
+    limit_mask,
+    parse_limit,
+    parse_values,
+)
 
 __all__ = [
     "METHODS",
@@ -27,13 +44,7 @@ __all__ = [
     "KNEE_SEPARATION",
     "KneeVerdict",
     "find_knees",
-    "Limit",
-    "parse_limit",
-    "closest_miss",
     "method_name",
-    "limit_mask",
-    "parse_values",
-    "apply_limits",
     "normalised",
     "knee_distance",
     "tradeoff_measure",
@@ -50,13 +61,6 @@ __all__ = [
     "agreeing_groups",
     "objective_ranks",
     "describe_choice",
-    "REPRESENTATIVE_REFERENCE",
-    "representatives",
-    "representatives_table",
-    "REPRESENTATIVE_COLUMNS",
-    "DISTINCT_SHARE",
-    "separation",
-    "distinct_picks",
 ]
 
 #: Every method :func:`choose` knows, with a one-line description for users.
@@ -97,268 +101,6 @@ KNEE_SEPARATION = 0.2
 
 class NonConvexWarning(UserWarning):
     """A weighted sum was asked to choose on a front that it cannot fully reach."""
-
-
-# --------------------------------------------------------------------------- limits
-@dataclass(frozen=True)
-class Limit:
-    """A bound on one column of a front, such as ``mass <= 12`` or ``material == stainless 302``.
-
-    ``op`` is one of ``<=``, ``>=``, ``<``, ``>``, ``==`` and ``!=``. A number
-    bounds a numeric column; text (with ``==`` or ``!=``) matches a choice's
-    option or a flag (``true``/``false``). A design whose value is missing
-    fails the limit.
-    """
-
-    column: str
-    op: str
-    value: float | str
-
-    def __str__(self) -> str:
-        shown = self.value if isinstance(self.value, str) else _format.number(self.value)
-        return f"{self.column} {self.op} {shown}"
-
-    @property
-    def is_text(self) -> bool:
-        return isinstance(self.value, str)
-
-    def holds(self, values: np.ndarray) -> np.ndarray:
-        """Boolean mask of the ``values`` that keep within the limit."""
-        if self.is_text:
-            wanted = _text_key(self.value)
-            same = np.array([_text_key(v) == wanted for v in np.asarray(values, dtype=object)])
-            same = same.astype(bool) if len(same) else np.zeros(0, dtype=bool)
-            return same if self.op == "==" else ~same
-        with np.errstate(invalid="ignore"):
-            return np.asarray(
-                _OPS[self.op](np.asarray(values, dtype=float), self.value), dtype=bool
-            )
-
-    def miss(self, values: np.ndarray) -> np.ndarray:
-        """By how much each value misses a numeric limit (0 where it holds, in the column's unit)."""
-        values = np.asarray(values, dtype=float)
-        if self.op in ("<=", "<"):
-            gap = values - self.value
-        elif self.op in (">=", ">"):
-            gap = self.value - values
-        else:
-            gap = np.abs(values - self.value)
-        gap = np.where(self.holds(values), 0.0, np.maximum(gap, 0.0))
-        return np.where(np.isnan(values), np.inf, gap)
-
-
-def _text_key(value: object) -> str:
-    """Text as a limit compares it: flags as true/false, everything else as written."""
-    if isinstance(value, np.generic):
-        value = value.item()
-    if isinstance(value, bool):
-        return "true" if value else "false"
-    text = str(value).strip()
-    return text.lower() if text.lower() in ("true", "false") else text
-
-
-_OPS = {
-    "<=": np.less_equal,
-    ">=": np.greater_equal,
-    "<": np.less,
-    ">": np.greater,
-    "==": np.equal,
-    "!=": np.not_equal,
-}
-_LIMIT = re.compile(
-    r"^\s*(?P<column>[^<>=!]+?)\s*(?P<op><=|>=|==|!=|=|<|>)\s*(?P<value>[^<>=]*?)\s*$"
-)
-_UNIT_SUFFIX = re.compile(r"\s*\[[^\[\]]*\]$")
-
-
-def parse_limit(text: str) -> Limit:
-    """Read a limit such as ``"mass <= 12"``, ``"range>=40"`` or ``"material==stainless 302"``.
-
-    A unit written after the column name (``"mass [g] <= 12"``) is dropped. A
-    bound that is not a number is text, allowed with ``==`` and ``!=`` only.
-
-    Raises
-    ------
-    DataError
-        When the text is not ``COLUMN OP VALUE`` with ``OP`` one of
-        ``<=``, ``>=``, ``<``, ``>``, ``=``, ``==``, ``!=``.
-
-    Examples
-    --------
-    >>> print(parse_limit("mass<=12"))
-    mass <= 12
-    >>> print(parse_limit("material != stainless 302"))
-    material != stainless 302
-    """
-    if isinstance(text, Limit):
-        return text
-    match = _LIMIT.match(str(text))
-    if not match or not match["value"]:
-        raise DataError(
-            f"limit {text!r}: expected COLUMN OP VALUE with OP one of <=, >=, <, >, ==, != "
-            "(for example 'mass <= 12' or 'material == stainless 302')"
-        )
-    column = _UNIT_SUFFIX.sub("", match["column"]).strip()
-    op = "==" if match["op"] == "=" else match["op"]
-    try:
-        value: float | str = float(match["value"])
-    except ValueError:
-        value = match["value"].strip()
-    if isinstance(value, float) and not math.isfinite(value):
-        raise DataError(f"limit {text!r}: the bound {match['value']!r} is not a finite number")
-    if isinstance(value, str) and op not in ("==", "!="):
-        raise DataError(
-            f"limit {text!r}: {value!r} is not a number; text goes with == or != (an option of a "
-            "choice, or true/false for a flag)"
-        )
-    return Limit(column, op, value)
-
-
-def parse_values(text: str | Mapping[str, float] | None, *, what: str) -> dict[str, float]:
-    """Read ``"cost=2,mass=1"`` into ``{"cost": 2.0, "mass": 1.0}``.
-
-    ``what`` names the option in error messages (``"weights"``, ``"target"``).
-    A mapping is passed through after checking that its values are numbers.
-    """
-    if text is None:
-        return {}
-    if isinstance(text, Mapping):
-        items = list(text.items())
-    else:
-        items = []
-        for part in str(text).split(","):
-            if not part.strip():
-                continue
-            name, sep, value = part.partition("=")
-            if not sep or not name.strip():
-                raise DataError(
-                    f"{what} {text!r}: expected NAME=NUMBER pairs separated by commas, got {part.strip()!r}"
-                )
-            items.append((_UNIT_SUFFIX.sub("", name.strip()), value.strip()))
-    values: dict[str, float] = {}
-    for name, value in items:
-        try:
-            number = float(value)
-        except (TypeError, ValueError):
-            number = math.nan
-        if not math.isfinite(number):
-            raise DataError(f"{what}: the value {value!r} for {name!r} is not a finite number")
-        values[str(name)] = number
-    return values
-
-
-def apply_limits(front: Front, limits: Iterable[Limit | str]) -> Front:
-    """The designs of ``front`` that meet every limit, as a new front.
-
-    Parameters
-    ----------
-    front : Front
-        Any front; limits may name objectives, variables, constraints or other
-        numeric columns.
-    limits : iterable of Limit or str
-        Limits such as ``"mass <= 12"``.
-
-    Raises
-    ------
-    DataError
-        When a limit is malformed, names an unknown column, or names a column
-        that holds text.
-
-    Examples
-    --------
-    >>> import pandas as pd
-    >>> from tradewise.case import Objective
-    >>> table = pd.DataFrame({"cost": [1.0, 2.0, 3.0], "mass": [3.0, 2.0, 1.0]})
-    >>> front = Front.from_table(table, [Objective("cost"), Objective("mass")])
-    >>> len(apply_limits(front, ["mass <= 2"]))
-    2
-    """
-    mask = limit_mask(front, limits)
-    return front.with_table(front.table.loc[mask])
-
-
-def limit_mask(front: Front, limits: Iterable[Limit | str]) -> np.ndarray:
-    """Boolean mask of the designs of ``front`` that meet every limit (see :func:`apply_limits`)."""
-    mask = np.ones(len(front), dtype=bool)
-    for limit in limits:
-        limit = parse_limit(limit)
-        if limit.column not in front.table.columns:
-            close = difflib.get_close_matches(
-                limit.column, [str(c) for c in front.table.columns], n=1
-            )
-            hint = f" (did you mean {close[0]!r}?)" if close else ""
-            raise DataError(
-                f"limit '{limit}': no column {limit.column!r} in the front{hint}; "
-                f"columns: {', '.join(map(str, front.table.columns))}"
-            )
-        raw = front.table[limit.column]
-        if limit.is_text or raw.dtype == bool or raw.dtype == object and limit.op in ("==", "!="):
-            if not limit.is_text and raw.dtype != bool:
-                # an option written as a number ("alloy == 6063") matches its text
-                number = float(limit.value)
-                limit = Limit(
-                    limit.column,
-                    limit.op,
-                    str(int(number)) if number.is_integer() else repr(number),
-                )
-            mask &= limit.holds(raw.to_numpy(dtype=object))
-            continue
-        values = pd.to_numeric(raw, errors="coerce")
-        text = values.isna() & raw.notna()
-        if text.any():
-            row = int(np.flatnonzero(text.to_numpy())[0])
-            raise DataError(
-                f"limit '{limit}': column {limit.column!r} holds {raw.iloc[row]!r} in row {row + 1}, "
-                "not a number; a limit on text takes == or != (for example "
-                f"'{limit.column} == {raw.iloc[row]}')"
-            )
-        mask &= limit.holds(values.to_numpy(dtype=float, na_value=np.nan))
-    return mask
-
-
-def closest_miss(front: Front, limits: Iterable[Limit | str]) -> str:
-    """A sentence naming the design that comes closest to meeting ``limits`` and what it misses by.
-
-    Closeness is the sum over the limits of each miss as a share of its
-    column's range on the front (a text limit missed counts 1).
-
-    Examples
-    --------
-    >>> import pandas as pd
-    >>> from tradewise.case import Objective
-    >>> table = pd.DataFrame({"cost": [1.0, 2.0, 3.0], "mass": [3.0, 2.0, 1.0]})
-    >>> front = Front.from_table(table, [Objective("cost"), Objective("mass")])
-    >>> closest_miss(front, ["cost <= 1.5", "mass <= 1.8"])
-    'the closest is row 2 (cost 2, mass 2), which misses cost <= 1.5 by 0.5 and mass <= 1.8 by 0.2'
-    """
-    limits = [parse_limit(limit) for limit in limits]
-    total = np.zeros(len(front))
-    misses = []
-    for limit in limits:
-        raw = front.table[limit.column]
-        if limit.is_text or raw.dtype == bool or raw.dtype == object:
-            gap = (~limit.holds(raw.to_numpy(dtype=object))).astype(float)
-            total += gap
-            misses.append(gap)
-            continue
-        values = pd.to_numeric(raw, errors="coerce").to_numpy(dtype=float, na_value=np.nan)
-        gap = limit.miss(values)
-        span = float(np.nanmax(values) - np.nanmin(values)) if np.isfinite(values).any() else 0.0
-        total += gap / (span if span > 0 else max(abs(float(limit.value)), 1.0))
-        misses.append(gap)
-    best = int(np.argmin(total))
-    record = front.table.iloc[best]
-    shown = ", ".join(
-        f"{o.name} {_format.quantity(record[o.name], front.units.get(o.name, o.unit))}"
-        for o in front.objectives
-    )
-    missed = []
-    for limit, gap in zip(limits, misses, strict=True):
-        if gap[best] > 0:
-            unit = front.units.get(limit.column, "")
-            amount = "" if limit.is_text else f" by {_format.quantity(gap[best], unit)}"
-            missed.append(f"{limit}{amount}")
-    return f"the closest is row {best + 1} ({shown}), which misses {' and '.join(missed)}"
 
 
 # --------------------------------------------------------------------------- scaling
@@ -878,7 +620,7 @@ def scores(
     Parameters
     ----------
     front : Front
-        The designs to score (apply limits first, see :func:`apply_limits`).
+        The designs to score (apply limits first, see :func:`tradewise.limits.apply_limits`).
     method : str
         A key of :data:`METHODS`.
     weights : dict, optional
@@ -1244,9 +986,9 @@ def _check_method(
         method_name(method)  # raises, naming the closest method
     # a misspelt objective in the preferences is the likelier mistake: name it first
     if weights:
-        _check_names(front, parse_values(weights, what="weights"), "weights")
+        check_objective_names(front, parse_values(weights, what="weights"), "weights")
     if target:
-        _check_names(front, parse_values(target, what="target"), "target")
+        check_objective_names(front, parse_values(target, what="target"), "target")
     if method == "kneedle" and len(front.objectives) != 2:
         raise DataError(
             f"method 'kneedle' works on two objectives; this front has {len(front.objectives)}"
@@ -1263,7 +1005,7 @@ def _check_method(
 
 def _weight_vector(front: Front, weights: Mapping[str, float] | None) -> np.ndarray:
     weights = parse_values(weights, what="weights")
-    _check_names(front, weights, "weights")
+    check_objective_names(front, weights, "weights")
     w = np.array([weights.get(name, 1.0) for name in front.objective_names], dtype=float)
     if np.any(w < 0) or w.sum() <= 0:
         shown = ", ".join(f"{n}={v:g}" for n, v in zip(front.objective_names, w, strict=True))
@@ -1275,19 +1017,10 @@ def _target_vector(
     front: Front, target: Mapping[str, float] | None, ideal: np.ndarray
 ) -> np.ndarray:
     target = parse_values(target, what="target")
-    _check_names(front, target, "target")
+    check_objective_names(front, target, "target")
     return np.array(
         [target.get(name, ideal[j]) for j, name in enumerate(front.objective_names)], dtype=float
     )
-
-
-def _check_names(front: Front, values: Mapping[str, float], what: str) -> None:
-    for name in values:
-        if name not in front.objective_names:
-            raise DataError(
-                f"{what}: {name!r} is not an objective of this front; objectives: "
-                f"{', '.join(front.objective_names)}"
-            )
 
 
 # --------------------------------------------------------------------------- words
@@ -1410,337 +1143,3 @@ def _nearest_moves(front: Front, k: int, keep: np.ndarray, n_moves: int = 3) -> 
         )
         lines.append(f"  near row {int(keep[j]) + 1}: {changes}")
     return lines
-
-
-# --------------------------------------------------------------------------- representative sets
-#: The reference point of the representative set's hypervolume, in every normalised objective
-#: (0 best, 1 worst on the front): a little beyond the worst, so the extremes count too.
-REPRESENTATIVE_REFERENCE = 1.1
-#: With three or more objectives, the greedy step measures at most about this many candidates,
-#: one a cell of an even grid over the normalised front (our own choice). Measured on 20,000
-#: designs on a sphere octant and on a plane (n = 20): about 0.6 s instead of 4.5 to 6 s, and a set
-#: whose hypervolume is within 0.1 % of the one the greedy step finds among every design.
-_REPRESENTATIVE_CANDIDATES = 2000
-#: The columns :func:`representatives_table` adds before the design's own.
-REPRESENTATIVE_COLUMNS = ("chosen_as", "front_row")
-
-
-def representatives(front: Front, n: int = 20) -> np.ndarray:
-    """Row positions in ``front.table`` of at most ``n`` designs that stand for the whole front.
-
-    Greedy hypervolume subset selection in normalised objectives (each
-    objective scaled to [0, 1] over the front with its sense, see
-    :func:`normalised`; reference point :data:`REPRESENTATIVE_REFERENCE` in
-    every objective). The set starts from the extremes (the design best in
-    each objective) and the knees that :func:`find_knees` finds, then
-    repeatedly takes the design that adds most hypervolume to the designs
-    already chosen, until it holds ``n``. A front of ``n`` designs or fewer is
-    returned whole.
-
-    Greedy selection maximises a monotone submodular function to within a
-    factor ``1 - 1/e`` of the best subset of the same size (Nemhauser, Wolsey
-    and Fisher 1978), and the hypervolume of a subset is such a function
-    (Ulrich and Thiele 2012); Guerreiro, Fonseca and Paquete (2016) study
-    this greedy selection for hypervolume in two and three objectives. The
-    bound is proved for the greedy that starts from nothing; starting from
-    the extremes and the knees is our own choice (a review wants them), and
-    the tests measure how close the result stays to the best subset.
-
-    Two objectives: the gain of every design is worked out exactly at each
-    step from its neighbours among the chosen designs (a sort and a search).
-    Three or more: the gains come from moocore's hypervolume contributions,
-    taken lazily: a design's gain can only shrink as the set grows
-    (submodularity), so a design is re-measured only when its last known gain,
-    or the gain it would add beside any single chosen design, still leads,
-    which gives the same set as measuring every design at every step. On
-    fronts of more than 2,000 designs the candidates are first thinned to
-    one a cell of an even grid over the normalised front, which keeps a
-    20,000-design front under a second (see ``_REPRESENTATIVE_CANDIDATES``).
-
-    Parameters
-    ----------
-    front : Front
-        The front to stand for.
-    n : int
-        How many designs at most; a whole number of at least 1.
-
-    Returns
-    -------
-    numpy.ndarray
-        Row positions in the order chosen: the extremes in objective order,
-        the knees strongest first, then the designs by falling gain. When
-        ``n`` is smaller than that starting set, the strongest knee comes
-        first, then the extremes.
-
-    Raises
-    ------
-    DataError
-        When ``n`` is not a whole number of at least 1.
-
-    References
-    ----------
-    Guerreiro, A. P., Fonseca, C. M., Paquete, L. (2016). Greedy hypervolume
-    subset selection in low dimensions. Evolutionary Computation 24(3):521-544
-    (pages from memory).
-    Nemhauser, G. L., Wolsey, L. A., Fisher, M. L. (1978). An analysis of
-    approximations for maximizing submodular set functions - I. Mathematical
-    Programming 14:265-294 (from memory).
-    Ulrich, T., Thiele, L. (2012). Bounding the effectiveness of hypervolume-based
-    (mu + lambda)-archiving algorithms. Learning and Intelligent Optimization
-    (LION 6), LNCS 7219, pp. 235-249 (from memory).
-
-    Examples
-    --------
-    >>> import pandas as pd
-    >>> from tradewise.case import Objective
-    >>> f1 = np.linspace(0, 1, 101)
-    >>> table = pd.DataFrame({"cost": f1, "mass": 1 - np.sqrt(f1)})
-    >>> front = Front.from_table(table, [Objective("cost"), Objective("mass")])
-    >>> rows = representatives(front, 5)
-    >>> front.table["cost"].iloc[rows].round(2).tolist()
-    [0.0, 1.0, 0.25, 0.59, 0.08]
-    """
-    return _representatives(front, n)[0]
-
-
-def representatives_table(front: Front, n: int = 20) -> pd.DataFrame:
-    """The designs of :func:`representatives` as a table, with why and where each was chosen.
-
-    Two columns come first: ``chosen_as`` (``"best NAME"`` for an extreme,
-    ``"knee"``, or ``"spread"`` for a design taken for the hypervolume it
-    adds) and ``front_row`` (its row in the whole front, counting from 1, as
-    in ``front.csv``); then the design's own columns.
-
-    Raises
-    ------
-    DataError
-        When ``n`` is not a whole number of at least 1, or the front already
-        has a column named ``chosen_as`` or ``front_row``.
-
-    Examples
-    --------
-    >>> import pandas as pd
-    >>> from tradewise.case import Objective
-    >>> table = pd.DataFrame({"cost": [10.0, 12, 15, 20, 30], "mass": [100.0, 60, 40, 30, 25]})
-    >>> front = Front.from_table(table, [Objective("cost"), Objective("mass")])
-    >>> representatives_table(front, 3)[["chosen_as", "front_row", "cost"]].values.tolist()
-    [['best cost', 1, 10.0], ['best mass', 5, 30.0], ['knee', 3, 15.0]]
-    """
-    clash = [c for c in REPRESENTATIVE_COLUMNS if c in front.table.columns]
-    if clash:
-        raise DataError(
-            f"representatives: the front already has a column {clash[0]!r}, which the set writes"
-        )
-    rows, reasons = _representatives(front, n)
-    table = front.table.iloc[rows].copy()
-    table.insert(0, "front_row", rows + 1)
-    table.insert(0, "chosen_as", reasons)
-    return table.reset_index(drop=True)
-
-
-def _representatives(front: Front, n: int) -> tuple[np.ndarray, list[str]]:
-    """(rows, reasons) of the representative set; see :func:`representatives`."""
-    if isinstance(n, bool) or not isinstance(n, int | np.integer) or n < 1:
-        raise DataError(f"representatives: expected a whole number of at least 1, got {n!r}")
-    n = int(n)
-    scaled = normalised(front)
-    count, m = scaled.shape
-    if count == 0:
-        return np.zeros(0, dtype=int), []
-    reasons: dict[int, list[str]] = {}
-    others = scaled.sum(axis=1)
-    for j, objective in enumerate(front.objectives):
-        best = int(np.lexsort((others - scaled[:, j], scaled[:, j]))[0])
-        reasons.setdefault(best, []).append(f"best {objective.name}")
-    extremes = list(reasons)
-    knees = [int(k) for k in find_knees(front).knees] if count >= 3 else []
-    for k in knees:
-        reasons.setdefault(k, []).append("knee")
-    start = list(dict.fromkeys(extremes + knees))
-    if len(start) > n:
-        start = list(dict.fromkeys(knees[:1] + extremes + knees[1:]))[:n]
-    chosen = _greedy_hypervolume(scaled, start, n)
-    labels = [", ".join(reasons.get(r, ["spread"])) for r in chosen]
-    return np.asarray(chosen, dtype=int), labels
-
-
-def _greedy_hypervolume(points: np.ndarray, start: list[int], n: int) -> list[int]:
-    """Add to ``start`` the points of largest hypervolume gain (normalised, minimised) until ``n``."""
-    count, m = points.shape
-    chosen = list(start)
-    # Only the non-dominated points are candidates: a dominated one adds nothing (and a copy of
-    # a chosen point neither), and the two-objective gains below assume mutual non-dominance.
-    open_ = np.asarray(moocore.is_nondominated(points), dtype=bool)
-    open_[chosen] = False
-    reference = np.full(m, REPRESENTATIVE_REFERENCE)
-    if m > 2:
-        open_ = _thinned(points, open_, _REPRESENTATIVE_CANDIDATES)
-    if m == 2:
-        while len(chosen) < n and open_.any():
-            gain = np.where(open_, _gains_2d(points, points[chosen], reference), -np.inf)
-            best = int(np.argmax(gain))
-            chosen.append(best)
-            open_[best] = False
-        return chosen
-    # Upper bounds of each gain: what a point adds beside any single chosen point (its box less
-    # the overlap), and its last measured gain; both only shrink as the set grows.
-    box = np.prod(reference - points, axis=1)
-    bound = np.where(open_, box, -np.inf)
-    for c in chosen:
-        bound = np.minimum(bound, box - np.prod(reference - np.maximum(points, points[c]), axis=1))
-    fresh = np.zeros(count, dtype=bool)
-    while len(chosen) < n and np.isfinite(bound).any():
-        best = int(np.argmax(bound))
-        if not fresh[best]:
-            subset = np.vstack([points[chosen], points[best]])
-            bound[best] = float(moocore.hv_contributions(subset, ref=reference)[-1])
-            fresh[best] = True
-            continue
-        chosen.append(best)
-        bound[best] = -np.inf
-        fresh[:] = False
-        bound = np.minimum(
-            bound, box - np.prod(reference - np.maximum(points, points[best]), axis=1)
-        )
-    return chosen
-
-
-def _thinned(points: np.ndarray, open_: np.ndarray, limit: int) -> np.ndarray:
-    """At most about ``limit`` of the open points, one a cell of an even grid over [0, 1]^M.
-
-    In each cell the point nearest the ideal point (smallest sum) stands for the others.
-    """
-    rows = np.flatnonzero(open_)
-    if len(rows) <= limit:
-        return open_
-    rows = rows[np.argsort(points[rows].sum(axis=1), kind="stable")]
-    dimension = points.shape[1] - 1  # the front is a surface of one dimension less
-    cells = int(np.ceil(limit ** (1.0 / dimension))) + 1
-    while True:
-        index = np.minimum(np.floor(points[rows] * cells), cells).astype(np.int64)
-        key = index @ (cells + 1) ** np.arange(points.shape[1], dtype=np.int64)
-        _, first = np.unique(key, return_index=True)
-        if len(first) <= limit or cells <= 2:
-            break
-        cells = max(2, min(cells - 1, int(cells * (limit / len(first)) ** (1.0 / dimension))))
-    kept = np.zeros_like(open_)
-    kept[rows[first]] = True
-    return kept
-
-
-def _gains_2d(points: np.ndarray, chosen: np.ndarray, reference: np.ndarray) -> np.ndarray:
-    """The hypervolume each of ``points`` adds to ``chosen`` (two objectives, minimised).
-
-    A point not dominated by the chosen ones adds the rectangle between it, the first
-    objective of its right neighbour among them and the second of its left neighbour.
-    """
-    order = np.argsort(chosen[:, 0], kind="stable")
-    x, y = chosen[order, 0], chosen[order, 1]
-    at = np.searchsorted(x, points[:, 0], side="right")
-    right = np.append(x, reference[0])[at]
-    left = np.concatenate([[reference[1]], y])[at]
-    return np.maximum(right - points[:, 0], 0.0) * np.maximum(left - points[:, 1], 0.0)
-
-
-# --------------------------------------------------------------------------- distinct picks
-#: By default two designs count as one for a review when they differ by no more than this share
-#: of each objective's range over the front in every objective (our own rule of thumb).
-DISTINCT_SHARE = 0.05
-
-
-def separation(
-    front: Front, tolerance: str | Mapping[str, float] | None = None, *, what: str = "tolerance"
-) -> dict[str, float]:
-    """How far apart, in each objective's units, two designs must be to count as different.
-
-    Parameters
-    ----------
-    front : Front
-        The front the designs come from; its ranges set the default.
-    tolerance : str or dict, optional
-        Engineering tolerances per objective name in the objective's units,
-        as ``"mass=0.1,stiffness=1"`` or a mapping. Objectives left out take
-        :data:`DISTINCT_SHARE` of their range over the front.
-    what : str
-        The option's name in error messages.
-
-    Raises
-    ------
-    DataError
-        When a name is not an objective of the front, or a value is not a
-        finite number of at least 0.
-
-    Examples
-    --------
-    >>> import pandas as pd
-    >>> from tradewise.case import Objective
-    >>> table = pd.DataFrame({"cost": [10.0, 12, 15, 20, 30], "mass": [100.0, 60, 40, 30, 25]})
-    >>> front = Front.from_table(table, [Objective("cost"), Objective("mass")])
-    >>> separation(front, "mass=2")
-    {'cost': 1.0, 'mass': 2.0}
-    """
-    given = parse_values(tolerance, what=what)
-    _check_names(front, given, what)
-    negative = [name for name, value in given.items() if value < 0]
-    if negative:
-        raise DataError(
-            f"{what}: got {given[negative[0]]:g} for {negative[0]!r}, allowed: 0 or more "
-            "in the objective's units"
-        )
-    points = front.points()
-    spans = points.max(axis=0) - points.min(axis=0) if len(points) else np.zeros(points.shape[1])
-    return {
-        name: float(given.get(name, DISTINCT_SHARE * span))
-        for name, span in zip(front.objective_names, spans, strict=True)
-    }
-
-
-def distinct_picks(
-    front: Front,
-    ranking: Sequence[int],
-    *,
-    top: int,
-    tolerance: str | Mapping[str, float] | None = None,
-) -> list[int]:
-    """The first ``top`` designs of ``ranking`` that differ from each other by more than a tolerance.
-
-    The ranking is walked best first, and a design is kept only when it
-    differs from every design already kept by more than the tolerance in at
-    least one objective: two designs within it in every objective are one
-    design for a review, so neighbours on the front are never shown side by
-    side. The first design of the ranking is always kept.
-
-    Parameters
-    ----------
-    front : Front
-        The front that ``ranking`` indexes (row positions in ``front.table``).
-    ranking : sequence of int
-        Row positions, most preferred first (such as :func:`choose` with a
-        large ``top``).
-    top : int
-        How many designs at most.
-    tolerance : str or dict, optional
-        See :func:`separation`; default :data:`DISTINCT_SHARE` of each
-        objective's range over ``front``.
-
-    Examples
-    --------
-    >>> import pandas as pd
-    >>> from tradewise.case import Objective
-    >>> table = pd.DataFrame({"cost": [10.0, 12, 15, 20, 30], "mass": [100.0, 60, 40, 30, 25]})
-    >>> front = Front.from_table(table, [Objective("cost"), Objective("mass")])
-    >>> distinct_picks(front, [2, 1, 3, 0, 4], top=3, tolerance="cost=4,mass=25")
-    [2, 3, 0]
-    """
-    if isinstance(top, bool) or not isinstance(top, int | np.integer) or top < 1:
-        raise DataError(f"top: expected a whole number of at least 1, got {top!r}")
-    gaps = np.array(list(separation(front, tolerance).values()))
-    ranking = np.asarray(ranking, dtype=int)
-    points = front.points()[ranking]
-    alive = np.ones(len(ranking), dtype=bool)
-    kept: list[int] = []
-    while len(kept) < top and alive.any():
-        k = int(np.argmax(alive))  # the best design not within the tolerance of a kept one
-        kept.append(int(ranking[k]))
-        alive &= (np.abs(points - points[k]) > gaps).any(axis=1)
-    return kept

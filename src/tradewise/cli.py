@@ -622,16 +622,10 @@ def pick_command(
     """
     import warnings
 
-    from tradewise.choose import (
-        NonConvexWarning,
-        choose,
-        describe_choice,
-        distinct_picks,
-        method_name,
-        parse_values,
-        separation,
-    )
+    from tradewise.choose import NonConvexWarning, choose, describe_choice, method_name
     from tradewise.front import front_from_csv, read_front
+    from tradewise.limits import parse_values
+    from tradewise.represent import distinct_picks, separation
 
     _check_out(out, _front_inputs(front_path), with_json=True)
     if minimise or maximise:
@@ -688,7 +682,7 @@ def pick_command(
 
 def _separation_line(front, gaps: dict, given: dict, *, top: int, shown: int) -> str:
     """One sentence saying how far apart the designs shown by ``pick --top`` are."""
-    from tradewise.choose import DISTINCT_SHARE
+    from tradewise.represent import DISTINCT_SHARE
 
     parts = []
     for o in front.objectives:

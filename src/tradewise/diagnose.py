@@ -20,9 +20,10 @@ import numpy as np
 import pandas as pd
 
 from tradewise import format as _format
-from tradewise.choose import Limit, find_knees, parse_limit
+from tradewise.choose import find_knees
 from tradewise.errors import DataError
 from tradewise.front import Front, nondominated
+from tradewise.limits import Limit, parse_limit
 from tradewise.runinfo import LimitSpec, VariableSpec
 
 __all__ = [
@@ -413,7 +414,7 @@ def what_if(evaluations: pd.DataFrame, front: Front, limits: Iterable[Limit | st
         The run's front: its objectives, units, reference point and the case's
         constraint limits (``front.info.constraint_limits``).
     limits : iterable of Limit or str
-        Such as ``"index >= 3.5"`` or ``"mass <= 5"`` (see :func:`tradewise.choose.parse_limit`).
+        Such as ``"index >= 3.5"`` or ``"mass <= 5"`` (see :func:`tradewise.limits.parse_limit`).
 
     Returns
     -------

@@ -19,7 +19,7 @@ from typing import Any
 import pandas as pd
 
 from tradewise import plots
-from tradewise.choose import METHODS, WEIGHTED_METHODS, representatives_table
+from tradewise.choose import METHODS, WEIGHTED_METHODS
 from tradewise.diagnose import pins_lines
 from tradewise.errors import DataError
 from tradewise.picker import (
@@ -29,6 +29,7 @@ from tradewise.picker import (
     load_picker_source,
     show_value,
 )
+from tradewise.represent import representatives_table
 
 # PickerState, load_picker_source and SHORTLIST_COLUMNS are picker.py's; they stay importable from here as before
 __all__ = [

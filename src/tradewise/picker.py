@@ -24,20 +24,17 @@ from tradewise.choose import (
     KNEE_METHODS,
     METHODS,
     WEIGHTED_METHODS,
-    Limit,
     NonConvexWarning,
     all_picks,
     choose,
-    distinct_picks,
     knee_agreement,
-    limit_mask,
     method_name,
     objective_ranks,
-    parse_values,
-    separation,
 )
 from tradewise.errors import DataError
 from tradewise.front import Front, read_front, tradeoff_rates
+from tradewise.limits import Limit, limit_mask, parse_values
+from tradewise.represent import distinct_picks, separation
 from tradewise.runfolder import SHORTLIST_COLUMNS, shortlist_front
 
 __all__ = ["PickerState", "load_picker_source", "shortlist_front", "SHORTLIST_COLUMNS"]
@@ -277,7 +274,7 @@ class PickerState:
 
     @property
     def limits(self) -> list[Limit]:
-        """The limits in force, as :class:`tradewise.choose.Limit` objects (inclusive bounds)."""
+        """The limits in force, as :class:`tradewise.limits.Limit` objects (inclusive bounds)."""
         out = []
         for name, (low, high) in self._bounds.items():
             if low is not None:
@@ -392,7 +389,7 @@ class PickerState:
 
         The ranking is walked best first and a design is kept only when it
         differs from every kept one by more than :attr:`separation` in at
-        least one objective (:func:`tradewise.choose.distinct_picks`), so
+        least one objective (:func:`tradewise.represent.distinct_picks`), so
         neighbours on the front are never listed side by side. The first is
         always the method's pick.
 
@@ -417,7 +414,7 @@ class PickerState:
 
         The tolerances given with :meth:`set_tolerance`; for the other
         objectives 5 % of their range over the whole front
-        (:data:`tradewise.choose.DISTINCT_SHARE`, our own rule of thumb).
+        (:data:`tradewise.represent.DISTINCT_SHARE`, our own rule of thumb).
         """
         return separation(self.front, self._tolerance)
 

@@ -37,6 +37,7 @@ from matplotlib.patches import Patch, Polygon
 
 from tradewise import choose as _choose
 from tradewise import format as _format
+from tradewise import limits as _limits
 from tradewise.case import Objective
 from tradewise.errors import DataError
 from tradewise.front import Front, objective_matrix
@@ -550,7 +551,7 @@ class _Narrowing:
     """Designs to grey (a mask over the front's rows) and the limits whose excluded ranges are shaded."""
 
     greyed: np.ndarray
-    limits: tuple[_choose.Limit, ...]
+    limits: tuple[_limits.Limit, ...]
 
 
 def _front_figure(
@@ -733,7 +734,7 @@ def plot_narrowed_front(
     front: Front,
     *,
     greyed: Sequence[bool] | Sequence[int] | np.ndarray = (),
-    limits: Iterable[_choose.Limit | str] = (),
+    limits: Iterable[_limits.Limit | str] = (),
     evaluations: pd.DataFrame | None = None,
     knee: int | str | None = None,
     picks: Mapping[str, int] | Sequence[int] | None = None,
@@ -780,7 +781,7 @@ def plot_narrowed_front(
     [1]
     """
     mask = _row_mask(front, greyed)
-    parsed = tuple(_choose.parse_limit(limit) for limit in limits)
+    parsed = tuple(_limits.parse_limit(limit) for limit in limits)
     return _front_figure(
         front,
         evaluations=evaluations,

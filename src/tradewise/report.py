@@ -39,6 +39,7 @@ from markupsafe import Markup
 from tradewise import choose as _choose
 from tradewise import format as _format
 from tradewise import plots
+from tradewise import represent as _represent
 from tradewise.errors import DataError
 from tradewise.front import Front, hypervolume_box, objective_matrix, tradeoff_rates
 
@@ -898,10 +899,10 @@ def _representatives(
     """The few designs that stand for a long front (none when the front is short enough to read)."""
     n = front.info.settings.get("representatives") or 20
     if len(front) <= max(int(n), 1) or any(
-        c in front.table.columns for c in _choose.REPRESENTATIVE_COLUMNS
+        c in front.table.columns for c in _represent.REPRESENTATIVE_COLUMNS
     ):
         return None
-    chosen = _choose.representatives_table(front, int(n))
+    chosen = _represent.representatives_table(front, int(n))
     order = np.argsort(front.points()[chosen["front_row"].to_numpy() - 1, 0], kind="stable")
     if front.objectives[0].maximise:
         order = order[::-1]

@@ -18,10 +18,10 @@ from typing import Any
 import pandas as pd
 
 from tradewise._plain import write_json
-from tradewise.choose import REPRESENTATIVE_COLUMNS, representatives_table
 from tradewise.compare import attainment, read_seed_fronts, write_attainment
 from tradewise.errors import DataError
 from tradewise.front import Front, column_header, objective_matrix, read_front, read_table
+from tradewise.represent import REPRESENTATIVE_COLUMNS, representatives_table
 from tradewise.store import open_store
 
 __all__ = [
@@ -113,7 +113,7 @@ def is_run_folder(folder: Path) -> bool:
     return isinstance(meta, dict) and bool(meta.get("case_hash"))
 
 
-#: The file of the designs that stand for the front (see :func:`tradewise.choose.representatives`).
+#: The file of the designs that stand for the front (see :func:`tradewise.represent.representatives`).
 REPRESENTATIVES_FILE = "representatives.csv"
 #: How many designs it holds when the run's settings do not say.
 _DEFAULT_REPRESENTATIVES = 20
@@ -127,7 +127,7 @@ def save_run(result: Any, folder: str | Path) -> dict[str, Path]:
 
     ``representatives.csv`` holds at most the run's ``representatives``
     setting of designs standing for the front (greedy hypervolume subset
-    selection, :func:`tradewise.choose.representatives_table`), with the
+    selection, :func:`tradewise.represent.representatives_table`), with the
     headers of ``front.csv`` after two columns of its own: ``chosen_as`` and
     ``front_row``. When no feasible design was found,
     ``least_infeasible.csv`` is written instead of an empty front and its
