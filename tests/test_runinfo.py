@@ -129,3 +129,44 @@ def test_the_fixture_folders_of_earlier_releases_read_as_typed_records():
         ]
         if meta.get("seeds"):
             assert list(info.seeds.seeds) == meta["seeds"]
+
+
+def test_times_are_written_as_iso_8601_in_utc(tmp_path):
+    """started and finished go to front.json as ISO 8601 text in UTC with its offset, to the millisecond."""
+    # 2026-01-01T12:00:00Z counted by hand: 56 years of 365 days and 14 leap days (1972 to 2024)
+    # after 1970-01-01 are 20,454 days, times 86,400 s, plus 12 hours.
+    noon = (56 * 365 + 14) * 86_400 + 12 * 3600
+    assert noon == 1767268800
+    _front(RunInfo(started=noon, finished=noon + 61.5)).to_csv(tmp_path / "front.csv")
+    meta = json.loads((tmp_path / "front.json").read_text())
+    assert meta["started"] == "2026-01-01T12:00:00.000+00:00"
+    assert meta["finished"] == "2026-01-01T12:01:01.500+00:00"
+    back = read_front(tmp_path).info
+    assert (back.started, back.finished) == (noon, noon + 61.5)
+
+
+def test_times_with_another_offset_or_as_seconds_are_read(tmp_path):
+    """A time with another UTC offset is the same moment; seconds since the epoch (earlier releases) still read."""
+    _front(RunInfo()).to_csv(tmp_path / "front.csv")
+    meta = json.loads((tmp_path / "front.json").read_text())
+    meta["started"] = "2026-01-01T13:00:00+01:00"  # one hour east of UTC: noon UTC
+    meta["finished"] = 1767268860.0
+    (tmp_path / "front.json").write_text(json.dumps(meta))
+    info = read_front(tmp_path).info
+    assert (info.started, info.finished) == (1767268800.0, 1767268860.0)
+    for folder in sorted(p.parent for p in FIXTURES.glob("*/front.json")):
+        assert isinstance(json.loads((folder / "front.json").read_text())["started"], float)
+        assert read_front(folder).info.started == 1767268800.0  # as the fixture script set it
+
+
+@pytest.mark.parametrize("value", ["2026-01-01T12:00:00", "noon", True])
+def test_a_time_without_offset_or_not_a_time_is_refused(tmp_path, value):
+    """A time without a UTC offset is ambiguous, so it is refused by key, like any wrong value."""
+    _front(RunInfo()).to_csv(tmp_path / "front.csv")
+    meta = json.loads((tmp_path / "front.json").read_text())
+    meta["started"] = value
+    (tmp_path / "front.json").write_text(json.dumps(meta))
+    with pytest.raises(
+        DataError, match=r"key 'started' must be an ISO 8601 time with its UTC offset"
+    ):
+        read_front(tmp_path)

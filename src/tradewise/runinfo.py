@@ -19,6 +19,7 @@ trust the fields.
 
 from __future__ import annotations
 
+import datetime as _dt
 import math
 from collections.abc import Mapping
 from dataclasses import dataclass, field, fields, replace
@@ -35,6 +36,7 @@ __all__ = [
     "FRONT_FORMAT",
     "check_format",
     "check_front_keys",
+    "iso_time",
 ]
 
 #: The version of front.json this release writes (and the newest it reads).
@@ -195,8 +197,11 @@ class RunInfo:
     ``stall_generations``, ``stall_tolerance``, with the population resolved);
     ``versions`` the software versions; ``descriptions`` the case's
     description of each variable, objective and constraint. ``started`` and
-    ``finished`` are seconds since the epoch. ``hypervolume`` is the one
-    recorded in the file (a front works out its own from its points).
+    ``finished`` are seconds since the epoch here and ISO 8601 times in UTC
+    with their offset in the file (``"2026-01-01T12:00:00.000+00:00"``; files
+    of earlier releases held the seconds, which are still read).
+    ``hypervolume`` is the one recorded in the file (a front works out its
+    own from its points).
 
     Examples
     --------
@@ -266,6 +271,9 @@ class RunInfo:
                 if isinstance(value, tuple)
                 else value
             )
+        for name in _TIME_KEYS:
+            if name in data:
+                data[name] = iso_time(data[name])
         if self.design_space:
             data["design_space"] = [v.to_json() for v in self.design_space]
         if self.constraint_limits or self.design_space:
@@ -323,6 +331,7 @@ class RunInfo:
         texts = {name: get(name, _TEXT) for name in _TEXT_KEYS}
         counts = {name: get(name, _COUNT) for name in _COUNT_KEYS}
         floats = {name: get(name, _NUMBER) for name in _NUMBER_KEYS}
+        times = {name: _read_time(data.get(name), name, bad) for name in _TIME_KEYS}
         settings = get("settings", _TABLE) or {}
         _check_item(bad, "settings", settings, _SETTING_KINDS)
         for name, value in settings.items():
@@ -377,6 +386,7 @@ class RunInfo:
             **texts,
             **counts,
             **floats,
+            **times,
             settings=dict(settings),
             versions=tables["versions"],
             descriptions=tables["descriptions"],
@@ -406,7 +416,41 @@ _TEXT_KEYS = (
     "source",
 )
 _COUNT_KEYS = ("seed", "n_evals", "n_gen", "n_failed", "n_cached", "run_id", "n_rows")
-_NUMBER_KEYS = ("hypervolume", "started", "finished")
+_NUMBER_KEYS = ("hypervolume",)
+#: Moments, written as ISO 8601 text in UTC (read also as seconds since the epoch, as earlier
+#: releases wrote them).
+_TIME_KEYS = ("started", "finished")
+_ISO = "an ISO 8601 time with its UTC offset, such as '2026-01-01T12:00:00+00:00'"
+
+
+def iso_time(seconds: float) -> str:
+    """Seconds since the epoch as ISO 8601 text in UTC, to the millisecond.
+
+    Examples
+    --------
+    >>> iso_time(1767268800.25)
+    '2026-01-01T12:00:00.250+00:00'
+    """
+    moment = _dt.datetime.fromtimestamp(float(seconds), _dt.UTC)
+    return moment.isoformat(timespec="milliseconds")
+
+
+def _read_time(value: Any, key: str, bad) -> float | None:
+    """A moment of front.json as seconds since the epoch: ISO 8601 text with an offset, or a number."""
+    if value is None:
+        return None
+    if _is(value, _NUMBER) and math.isfinite(value):
+        return float(value)
+    if isinstance(value, str):
+        try:
+            moment = _dt.datetime.fromisoformat(value)
+        except ValueError:
+            moment = None
+        if moment is not None and moment.utcoffset() is not None:
+            return moment.timestamp()
+    raise bad(key, value, _ISO)
+
+
 _SETTING_KINDS = {
     "population": _COUNT,
     "evaluations": _COUNT,
