@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+from pathlib import Path
 
 import numpy as np
 import pandas as pd
@@ -14,6 +15,8 @@ from support import CASES, GOOD_MODEL, GOOD_TOML
 from tradewise.cli import main
 from tradewise.front import read_front
 from tradewise.runfolder import read_representatives
+
+FIXTURES = Path(__file__).parent / "fixtures" / "runs"
 
 
 def check_representatives(folder, n: int) -> pd.DataFrame:
@@ -111,3 +114,36 @@ def test_damaged_representatives_file_is_named(tmp_path):
     with pytest.raises(tradewise.DataError, match=r"representatives.csv: no column 'chosen_as'"):
         read_representatives(tmp_path)
     assert np.isfinite(read_front(tmp_path).points()).all()
+
+
+# ------------------------------------------------------------------ design tables and bookkeeping
+BOOKKEEPING = {"duration", "worker", "cached", "status", "message", "feasible", "violation"}
+
+
+def test_design_tables_of_a_run_hold_no_bookkeeping(tmp_path):
+    """front.csv, representatives.csv and a shortlist carry design columns with eval_id and generation, and
+    none of the columns about how an evaluation ran; the archive keeps those."""
+    result = tradewise.run(CASES / "zdt1", evaluations=200, seed=2)
+    tradewise.save_run(result, tmp_path)
+    for name in ("front.csv", "representatives.csv"):
+        columns = set(pd.read_csv(tmp_path / name).columns)
+        assert {"eval_id", "generation"} <= columns and not columns & BOOKKEEPING, name
+    assert {"duration", "worker", "status"} <= set(result.evaluations.columns)
+    out = tmp_path / "short.csv"
+    picked = CliRunner().invoke(main, ["pick", str(tmp_path), "--top", "2", "--out", str(out)])
+    assert picked.exit_code == 0, picked.output
+    assert not set(pd.read_csv(out).columns) & BOOKKEEPING
+
+
+def test_a_front_of_an_earlier_release_drops_its_duration_column(tmp_path):
+    """A folder of an earlier release kept the evaluation time in front.csv; read back, the front is the
+    design table alone, and a shortlist made from it too."""
+    folder = FIXTURES / "heat-sink"
+    assert "duration" in pd.read_csv(folder / "front.csv").columns
+    front = read_front(folder)
+    assert "duration" not in front.table.columns and "eval_id" in front.table.columns
+    assert len(front) == len(pd.read_csv(folder / "front.csv"))
+    out = tmp_path / "short.csv"
+    picked = CliRunner().invoke(main, ["pick", str(folder), "--out", str(out)])
+    assert picked.exit_code == 0, picked.output
+    assert "duration" not in pd.read_csv(out).columns

@@ -46,7 +46,30 @@ __all__ = [
     "read_table",
     "front_from_csv",
     "tradeoff_rates",
+    "BOOKKEEPING_COLUMNS",
+    "design_table",
 ]
+
+#: Columns about how a design was evaluated rather than what it is. The archive keeps them (and
+#: ``least_infeasible.csv`` keeps ``violation``, the file's subject); design tables (front.csv,
+#: representatives.csv, shortlists) leave them out, and a run's front read back drops them.
+BOOKKEEPING_COLUMNS = (
+    "feasible",
+    "violation",
+    "status",
+    "cached",
+    "duration",
+    "worker",
+    "message",
+    "design_key",
+    "run_id",
+)
+
+
+def design_table(table: pd.DataFrame) -> pd.DataFrame:
+    """``table`` without the bookkeeping columns (:data:`BOOKKEEPING_COLUMNS`)."""
+    return table.drop(columns=[c for c in BOOKKEEPING_COLUMNS if c in table.columns])
+
 
 _HEADER = re.compile(r"^(?P<name>.*?) \[(?P<unit>[^\[\]]*)\]$")
 
@@ -516,6 +539,9 @@ def read_front(path: str | Path) -> Front:
     except (OSError, ValueError) as exc:
         raise DataError(f"{path}: cannot be read as CSV ({exc})") from None
     table = table.rename(columns=_strip_unit)
+    if info.case_hash:
+        # a run's design table; folders of earlier releases carried the evaluation time in it
+        table = design_table(table)
     objectives = tuple(
         Objective(o["name"], o.get("goal", "min"), o.get("unit", "") or "", o.get("worst"))
         for o in meta["objectives"]

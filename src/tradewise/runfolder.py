@@ -20,7 +20,14 @@ import pandas as pd
 from tradewise._plain import write_json
 from tradewise.compare import attainment, read_seed_fronts, write_attainment
 from tradewise.errors import DataError
-from tradewise.front import Front, column_header, objective_matrix, read_front, read_table
+from tradewise.front import (
+    Front,
+    column_header,
+    design_table,
+    objective_matrix,
+    read_front,
+    read_table,
+)
 from tradewise.represent import REPRESENTATIVE_COLUMNS, representatives_table
 from tradewise.store import open_store
 
@@ -131,7 +138,9 @@ def save_run(result: Any, folder: str | Path) -> dict[str, Path]:
     headers of ``front.csv`` after two columns of its own: ``chosen_as`` and
     ``front_row``. When no feasible design was found,
     ``least_infeasible.csv`` is written instead of an empty front and its
-    representatives, and ``front.json`` says so.
+    representatives (front.csv's headers, then ``violation``: the sum over the
+    constraints of each excess divided by its limit, smallest first), and
+    ``front.json`` says so.
     """
     folder = Path(folder)
     folder.mkdir(parents=True, exist_ok=True)
@@ -158,7 +167,12 @@ def save_run(result: Any, folder: str | Path) -> dict[str, Path]:
         written["meta"] = meta_path
         if result.least_infeasible is not None:
             path = folder / "least_infeasible.csv"
-            result.least_infeasible.to_csv(path, index=False)
+            least = design_table(result.least_infeasible).assign(
+                violation=result.least_infeasible["violation"]
+            )
+            least.rename(
+                columns=lambda c: column_header(str(c), front.units.get(str(c), ""))
+            ).to_csv(path, index=False)
             written["least_infeasible"] = path
     path = folder / "history.csv"
     result.history.to_csv(path, index=False)
@@ -210,7 +224,7 @@ def read_representatives(run: str | Path, front: Front | None = None) -> Front |
     if missing:
         raise DataError(f"{path}: no column {missing[0]!r}; the file is written by `tradewise run`")
     objective_matrix(table, front.objectives, where=str(path), source=path)
-    return front.with_table(table)
+    return front.with_table(design_table(table) if front.info.case_hash else table)
 
 
 def save_seeds(result: Any, folder: str | Path, *, spread: Any = None) -> dict[str, Path]:
@@ -354,6 +368,8 @@ def shortlist_front(
             f"shortlist: the front already has a column {clash[0]!r}, which the export writes"
         )
     table = front.table.iloc[rows].copy()
+    if front.info.case_hash:
+        table = design_table(table)
     table.insert(0, "front_row", [r + 1 for r in rows])
     table.insert(0, "pick_order", range(1, len(rows) + 1))
     return replace(front.with_table(table), info=front.info.but(shortlist=dict(settings or {})))

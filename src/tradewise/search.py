@@ -35,7 +35,14 @@ from tradewise._pymoo import Searcher, Space, decode_state, default_population
 from tradewise.case import Case, load_case
 from tradewise.errors import ModelError, StoreError
 from tradewise.executors import InProcess, make_executor
-from tradewise.front import Front, hypervolume, hypervolume_share, nondominated, reference_point
+from tradewise.front import (
+    Front,
+    design_table,
+    hypervolume,
+    hypervolume_share,
+    nondominated,
+    reference_point,
+)
 from tradewise.models import Outcome, make_model
 from tradewise.runinfo import LimitSpec, RunInfo, VariableSpec
 from tradewise.store import Store, open_store
@@ -954,13 +961,7 @@ def _finish(run: _Run, status: str, algorithm_name: str, started: float) -> RunR
         if run.front_rows
         else records.iloc[0:0].reindex(columns=columns)
     )
-    front_table = front_table.drop(
-        columns=[
-            c
-            for c in ("cached", "message", "status", "feasible", "violation", "worker")
-            if c in front_table.columns
-        ]
-    )
+    front_table = design_table(front_table)
     units = case.units
     front = Front.from_table(
         front_table,
@@ -998,11 +999,9 @@ def _finish(run: _Run, status: str, algorithm_name: str, started: float) -> RunR
             )
         )
         if len(ok):
-            least = (
-                ok.sort_values("violation")
-                .drop_duplicates(subset=case.variable_names)
-                .head(20)[columns]
-            )
+            least = ok.sort_values("violation").drop_duplicates(subset=case.variable_names).head(20)
+            # a design table, with the one bookkeeping column that is its subject kept (last)
+            least = design_table(least[columns]).assign(violation=least["violation"])
     message = " ".join(parts)
     if run.store is not None:
         run.store.update_run(run.run_id, status=status, message=message, finished=time.time())
