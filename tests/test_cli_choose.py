@@ -45,8 +45,9 @@ def test_front_prints_the_nondominated_rows(table):
     result = run("front", table, "--min", "cost", "--min", "mass")
     assert result.exit_code == 0
     printed = pd.read_csv(io.StringIO(result.stdout))
-    assert list(printed.columns) == ["id", "fins", "alloy", "cost [k$]", "mass [kg]"]
+    assert list(printed.columns) == ["data_row", "id", "fins", "alloy", "cost [k$]", "mass [kg]"]
     assert printed["id"].tolist() == [1, 2, 3, 4, 5]
+    assert printed["data_row"].tolist() == [1, 2, 3, 4, 5]  # the rows of DESIGNS, counted by hand
     assert "5 of 6 rows are on the front" in result.stderr
 
 
@@ -60,7 +61,7 @@ def test_front_writes_csv_and_metadata(table, tmp_path):
     meta = json.loads(out.with_suffix(".json").read_text(encoding="utf-8"))
     assert [o["goal"] for o in meta["objectives"]] == ["min", "max"]
     front = read_front(out)
-    assert list(front.table.columns) == ["cost", "fins", "id"]
+    assert list(front.table.columns) == ["data_row", "cost", "fins", "id"]
     # With fins maximised: (10, 4), (12, 6), (15, 8), (16, 9), (20, 10), (30, 12) all trade off.
     assert len(front) == 6
 
@@ -148,12 +149,12 @@ def test_pick_shows_the_knee_with_everything(front_folder):
     result = run("pick", front_folder)
     assert result.exit_code == 0
     out = result.stdout
-    assert "Choice 1: row 3" in out
+    assert "Choice 1: data row 3" in out  # (15, 40) is the third data row of DESIGNS
     assert "cost  15 k$" in out and "rank 3 of 5" in out
     assert "other columns: id = 3, fins = 8, alloy = a" in out
-    assert "to row 4: 5 k$ more cost per 10 kg less mass" in out
+    assert "to data row 4: 5 k$ more cost per 10 kg less mass" in out
     assert "hypervolume contribution" in out
-    assert "Knee methods: knee, trade-off, kneedle all point at row 3." in out
+    assert "Knee methods: knee, trade-off, kneedle all point at data row 3." in out
 
 
 def test_pick_plain_csv_with_limits_weights_and_shortlist(table, tmp_path):
@@ -261,10 +262,10 @@ def test_pick_says_plainly_when_a_front_has_no_knee(tmp_path):
     assert "front has no knee" in picked.output
     # said before the first choice is shown, and the choice is the design the sentence offers
     assert picked.output.index("front has no knee") < picked.output.index("Choice 1")
-    first = picked.output.split("Choice 1: row ")[1].split()[0]
-    assert f"row {first}, the design closest to the ideal point" in picked.output
-    front = pd.read_csv(tmp_path / "front.csv")
-    chosen = front.iloc[int(first) - 1][["f1", "f2", "f3"]].to_numpy(dtype=float)
+    first = picked.output.split("Choice 1: data row ")[1].split()[0]
+    assert f"data row {first}, the design closest to the ideal point" in picked.output
+    # the design is named by its row in deb3dk.csv, whose data rows are the rows of points
+    chosen = points[int(first) - 1]
     assert not np.allclose(np.sort(chosen), [0.0, 0.0, 6.5], atol=0.2)
 
 
@@ -355,3 +356,70 @@ def test_method_names_forgive_case_and_spelling(front_folder):
     assert "knee|trade-off|kneedle|pseudo-weights|asf|topsis|weighted-sum" in helped.output
     typo = CliRunner().invoke(main, ["pick", str(front), "--weights", "cots=2,mass=1"])
     assert typo.exit_code == 2 and "'cots' is not an objective" in typo.output
+
+
+# ----------------------------------------------------------------- one name for a design
+# The five trade-off designs of DESIGNS with two dominated rows in between, so that the knee
+# (15 k$, 40 kg) is the sixth data row of the file but the third design of the front.
+SHUFFLED = (
+    "part,cost [k$],mass [kg]\n"
+    "P-1,10,100\n"
+    "P-2,16,70\n"
+    "P-3,12,60\n"
+    "P-4,18,80\n"
+    "P-5,20,30\n"
+    "P-6,15,40\n"
+    "P-7,30,25\n"
+)
+
+
+def test_a_design_of_a_users_csv_is_named_by_its_row_in_that_file(tmp_path):
+    """pick names the knee of a plain CSV by its data row in the user's file (6), not its place on the
+    filtered front (3), and the exported shortlist carries the same number in data_row."""
+    # The knee by hand: normalised, the front is (0, 1), (0.1, 0.467), (0.25, 0.2), (0.5, 0.067),
+    # (1, 0); 1 - (x + y), the bulge beyond the line through the ends, is largest (0.55) at (15, 40).
+    path = tmp_path / "designs.csv"
+    path.write_text(SHUFFLED, encoding="utf-8")
+    out = tmp_path / "short.csv"
+    result = run("pick", path, "--min", "cost", "--min", "mass", "--out", out)
+    assert result.exit_code == 0, result.output
+    assert "Choice 1: data row 6\n" in result.stdout
+    assert "other columns: part = P-6" in result.stdout
+    assert "to data row 5:" in result.stdout and "to data row 3:" in result.stdout
+    assert "all point at data row 6." in result.stdout
+    exported = pd.read_csv(out)
+    assert exported["data_row"].tolist() == [6] and exported["part"].tolist() == ["P-6"]
+    assert exported["front_row"].tolist() == [3]  # its place on the front, kept for read-back
+
+
+def test_a_key_column_names_the_designs_everywhere(tmp_path):
+    """With --id-column the designs are named by that column in pick's text, the front file and its JSON."""
+    path = tmp_path / "designs.csv"
+    path.write_text(SHUFFLED, encoding="utf-8")
+    result = run("pick", path, "--min", "cost", "--min", "mass", "--id-column", "part")
+    assert result.exit_code == 0, result.output
+    assert "Choice 1: part P-6\n" in result.stdout and "data row" not in result.stdout
+    made = run("front", path, "--min", "cost", "--min", "mass", "--id-column", "part", "--out",
+               tmp_path / "f.csv")  # fmt: skip
+    assert made.exit_code == 0, made.output
+    assert "data_row" not in pd.read_csv(tmp_path / "f.csv").columns
+    front = read_front(tmp_path / "f.csv")
+    assert front.info.id_column == "part"
+    assert front.design_ids() == ["P-1", "P-3", "P-6", "P-5", "P-7"]
+    again = run("pick", tmp_path / "f.csv")
+    assert "Choice 1: part P-6\n" in again.stdout
+
+
+@pytest.mark.parametrize(
+    ("rows", "needle"),
+    [
+        ("P-1,10,100\nP-1,12,60\n", "holds 'P-1' in data rows 1 and 2"),
+        ("P-1,10,100\n,12,60\n", "data row 2 has no value in the key column 'part'"),
+    ],
+)
+def test_a_key_column_must_name_each_design_once(tmp_path, rows, needle):
+    """A key column with a repeated or empty value is refused on one line naming the data rows."""
+    path = tmp_path / "designs.csv"
+    path.write_text("part,cost,mass\n" + rows, encoding="utf-8")
+    result = run("pick", path, "--min", "cost", "--min", "mass", "--id-column", "part")
+    assert result.exit_code == 2 and needle in result.output, result.output

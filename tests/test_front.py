@@ -145,7 +145,8 @@ def test_front_from_csv_accepts_bare_and_full_headers(tmp_path):
     assert sorted(front.table["id"].tolist()) == [1, 2, 4]
     assert front.reference is not None
     kept = front_from_csv(path, minimise=["cost"], maximise=["range"], keep=[])
-    assert list(kept.table.columns) == ["cost", "range"]
+    # the design's name (its data row in the file) always stays, whatever --keep says
+    assert list(kept.table.columns) == ["data_row", "cost", "range"]
 
 
 @pytest.mark.parametrize(
@@ -419,3 +420,22 @@ def test_hypervolume_problem_names_the_objective():
     text = hypervolume_problem(points, ref, names=["cost", "mass"])
     assert "cannot be computed" in text and "'cost'" in text
     assert hypervolume_problem([[1.0, 2.0], [2.0, 1.0]], [3.0, 3.0]) == ""
+
+
+def test_a_design_is_named_by_eval_id_then_data_row_then_its_place(tmp_path):
+    """design_name says "design N" for a run's eval_id, "data row N" for a user's CSV and "row N" (its place,
+    from 1) otherwise, and closest_miss uses the same name."""
+    from tradewise.limits import closest_miss
+
+    objectives = [Objective("cost"), Objective("mass")]
+    table = pd.DataFrame({"cost": [3.0, 1.0, 2.0], "mass": [1.0, 3.0, 2.0]})
+    plain = Front.from_table(table, objectives)  # sorted by cost: rows 2, 3, 1 of the table
+    assert [plain.design_name(k) for k in range(3)] == ["row 1", "row 2", "row 3"]
+    run = Front.from_table(table.assign(eval_id=[30, 10, 20]), objectives)
+    assert run.design_ids() == [10, 20, 30] and run.design_name(0) == "design 10"
+    # the middle design (2, 2) misses both limits by 0.5, less than either end misses one by 1.5
+    assert closest_miss(run, ["cost <= 1.5", "mass <= 1.5"]).startswith("the closest is design 20 ")
+    path = tmp_path / "t.csv"
+    table.to_csv(path, index=False)
+    user = front_from_csv(path, minimise=["cost", "mass"])
+    assert user.design_ids() == [2, 3, 1] and user.design_name(2) == "data row 1"

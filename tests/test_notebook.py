@@ -60,7 +60,10 @@ def test_the_review_page_shows_the_whole_front_with_the_shortlist(run, tmp_path)
     assert float(covered.rstrip(" %")) == pytest.approx(100 * expected, abs=0.05)
     assert "shortlist of" not in text
     listed = text.split('<section id="shortlist">')[1].split("</section>")[0]
-    assert re.findall(r"<h3>\d+\. row (\d+)</h3>", listed) == [str(first + 1), str(second + 1)]
+    # named by eval_id on the page, as the picker names them
+    ids = front.table["eval_id"]
+    assert re.findall(r"<h3>\d+\. design (\d+)</h3>", listed) == [str(ids[first]), str(ids[second])]
+    assert state.details(first)["name"] == f"design {ids[first]}"
     shown = re.findall(r"mass = <b>([^<]+)</b>", listed)
     # the page prints numbers with thousands separators (tradewise.format)
     assert [float(v.replace(",", "")) for v in shown] == pytest.approx(

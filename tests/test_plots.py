@@ -577,7 +577,8 @@ def test_roles_use_different_marker_shapes():
     assert len(set(markers)) == len(markers) == 5, markers
     assert handles[1].get_markersize() < handles[0].get_markersize()
     texts = [t.get_text() for t in legend.get_texts()]
-    assert texts[3:] == ["knee (row 4)", "topsis (row 21)", "asf (row 26)"]
+    # designs are named by their eval_id, which zdt1_front numbers 1, 2, ... along the front
+    assert texts[3:] == ["knee (design 4)", "topsis (design 21)", "asf (design 26)"]
 
 
 # ------------------------------------------------------------------------------- style safety and errors
@@ -638,7 +639,7 @@ def test_auto_knee_is_marked_only_on_a_front_with_a_knee():
     front = zdt1_front()
     knee = choose.find_knees(front).knees[0]
     texts = [t.get_text() for t in plots.plot_front(front).axes[0].get_legend().get_texts()]
-    assert f"knee (row {knee + 1})" in texts
+    assert f"knee (design {front.table['eval_id'].iloc[knee]})" in texts
     curve = sphere_front(2)
     assert not choose.find_knees(curve).has_knee
     legends = [

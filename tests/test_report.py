@@ -209,18 +209,22 @@ def test_report_and_plot_commands_on_a_run_folder(run_folder, tmp_path):
         assert result.exit_code == 0, result.output
         with Image.open(run_folder / f"{kind}.png") as image:
             assert image.size[0] > 600
+    second = int(read_front(run_folder).table["eval_id"].iloc[1])
     result = runner.invoke(
-        main, ["plot", str(run_folder), "--out", str(tmp_path / "f.svg"), "--row", "2"]
+        main, ["plot", str(run_folder), "--out", str(tmp_path / "f.svg"), "--design", str(second)]
     )
     assert result.exit_code == 0 and (tmp_path / "f.svg").read_text().count("<svg") == 1
+    assert f"design {second}" in (tmp_path / "f.svg").read_text()
     result = runner.invoke(main, ["plot", str(tmp_path / "nowhere")])
     assert (
         result.exit_code == 2
         and result.output.startswith("Error: ")
         and "not a run folder" in result.output
     )
-    result = runner.invoke(main, ["plot", str(run_folder), "--row", "99999"])
-    assert result.exit_code == 2 and "--row" in result.output
+    result = runner.invoke(main, ["plot", str(run_folder), "--design", "99999"])
+    assert (
+        result.exit_code == 2 and "--design: 99999 is not a design of this front" in result.output
+    )
 
 
 def test_a_front_without_a_knee_says_so_and_marks_none():
@@ -296,7 +300,8 @@ def test_shortlist_page_keeps_the_whole_front_and_lists_the_designs_in_pick_orde
     assert float(covered.rstrip(" %")) == pytest.approx(100 * expected_hv, abs=0.05)
     assert html.escape(HOSTILE_TITLE) in text and "shortlist of" not in text
     part = _section(text, "shortlist")
-    assert re.findall(r"<h3>(\d+)\. row (\d+)</h3>", part) == [("1", "6"), ("2", "2")]
+    ids = [str(front.table["eval_id"].iloc[row]) for row in chosen]
+    assert re.findall(r"<h3>(\d+)\. design (\d+)</h3>", part) == [("1", ids[0]), ("2", ids[1])]
     cards = part.split('<div class="cards">')[1]
     for row, card in zip(chosen, cards.split('<div class="pick listed">')[1:], strict=True):
         shown = re.search(r"resistance = <b>([^<]+)</b>", card).group(1)
@@ -760,3 +765,30 @@ def test_only_the_figures_are_marked_safe_in_the_templates():
     assert unsafe == {"macros.html.j2": ["{{ svg|safe }}"]}
     code = Path(tradewise.report.__file__).read_text(encoding="utf-8")
     assert code.count("Markup(") == 1 and "Markup(escape(str(value), quote=True))" in code
+
+
+def test_a_design_has_one_number_in_pick_the_shortlist_file_and_the_page(tmp_path):
+    """The design pick chooses on a run folder is named by its eval_id in pick's text, the exported
+    shortlist, the review page's shortlist and its table of the whole front."""
+    import shutil
+
+    folder = tmp_path / "run"
+    shutil.copytree(Path(__file__).parent / "fixtures" / "runs" / "mixed", folder)
+    runner = CliRunner()
+    picked = runner.invoke(main, ["pick", str(folder), "--out", str(tmp_path / "short.csv")])
+    assert picked.exit_code == 0, picked.output
+    number = re.search(r"^Choice 1: design (\d+)$", picked.output, re.M).group(1)
+    exported = pd.read_csv(tmp_path / "short.csv")
+    assert str(exported["eval_id"].iloc[0]) == number
+    page = runner.invoke(
+        main, ["report", str(folder), "--shortlist", str(tmp_path / "short.csv"),
+               "--out", str(tmp_path / "page.html")],
+    )  # fmt: skip
+    assert page.exit_code == 0, page.output
+    text = (tmp_path / "page.html").read_text(encoding="utf-8")
+    assert f"<h3>1. design {number}</h3>" in _section(text, "shortlist")
+    table = text.split('<table id="front-table">')[1].split("</table>")[0]
+    tagged = [
+        row for row in re.findall(r"<tr[^>]*>(.*?)</tr>", table, re.S) if "shortlist 1" in row
+    ]
+    assert len(tagged) == 1 and f'data-value="{number}">{number}</td>' in tagged[0]

@@ -42,6 +42,7 @@ RESERVED_NAMES = frozenset(
         "duration",
         "worker",
         "design_key",
+        "data_row",
         "cached",
         "rank",
         "seed",

@@ -89,7 +89,7 @@ _ASF_RHO = 1e-6
 #: Columns of a run's tables that say how a design was evaluated or found, not what it is.
 _BOOKKEEPING = frozenset(
     {"eval_id", "generation", "run_id", "status", "message", "duration", "worker", "cached",
-     "feasible", "violation", "design_key", "rank"}
+     "feasible", "violation", "design_key", "rank", "data_row"}
 )  # fmt: skip
 
 #: How far (normalised objectives) a design must lie on the ideal side of the plane through
@@ -737,7 +737,9 @@ def find_knees(front: Front, *, limits: Iterable[Limit | str] = ()) -> KneeVerdi
     knees = _knee_positions(scaled)
     if len(knees):
         found = tuple(int(rows[k]) for k in knees)
-        shown = ", ".join(f"row {r + 1}" for r in found[:5]) + (", ..." if len(found) > 5 else "")
+        shown = ", ".join(front.design_name(r) for r in found[:5]) + (
+            ", ..." if len(found) > 5 else ""
+        )
         word = "knee" if len(found) == 1 else "knees"
         return KneeVerdict(
             found,
@@ -751,7 +753,8 @@ def find_knees(front: Front, *, limits: Iterable[Limit | str] = ()) -> KneeVerdi
         instead,
         f"this front has no knee: no design other than its corners lies {KNEE_MARGIN:g} (normalised) "
         f"or more toward the ideal point beyond the plane through its extreme designs; "
-        f"row {instead + 1}, the design closest to the ideal point in normalised objectives, "
+        f"{front.design_name(instead)}, the design closest to the ideal point in normalised "
+        "objectives, "
         "is offered instead",
     )
 
@@ -1039,7 +1042,9 @@ def describe_choice(
     its variables and other columns, the trade-off rates to its neighbours,
     its hypervolume contribution and the other methods that pick it; then
     where the knee methods agree. Ranks and rates are taken among the designs
-    that meet the limits. Rows are shown 1-based, as in the front's CSV file.
+    that meet the limits. A design is named as every view names it
+    (:meth:`Front.design_name`): by its evaluation number in a run, by its
+    data row (or key) in a user's CSV.
     """
     limits = [parse_limit(limit) for limit in limits]
     keep = np.flatnonzero(limit_mask(front, limits))
@@ -1064,13 +1069,16 @@ def describe_choice(
     others = [
         c
         for c in front.table.columns
-        if c not in objective_names and c not in variables and c not in _BOOKKEEPING
+        if c not in objective_names
+        and c not in variables
+        and c not in _BOOKKEEPING
+        and c != front.identity_column()
     ]
     for choice, row in enumerate(rows, start=1):
         k = position[int(row)]
         record = front.table.iloc[int(row)]
         lines.append("")
-        lines.append(f"Choice {choice}: row {int(row) + 1}")
+        lines.append(f"Choice {choice}: {front.design_name(int(row))}")
         width = max(len(o.name) for o in front.objectives)
         for o in front.objectives:
             value = f"{_format.value(record[o.name])} {o.unit}".strip()
@@ -1083,24 +1091,19 @@ def describe_choice(
                     f"{c} = {_format.quantity(record[c], front.units.get(c))}" for c in columns
                 )
                 lines.append(f"  {title}: {shown}")
-        found = [
-            f"{label} {int(record[c])}"
-            for c, label in (("eval_id", "evaluation"), ("generation", "generation"))
-            if c in record.index and _format.value(record[c]) != _format.MISSING
-        ]
-        if found:
-            lines.append(f"  found as {' in '.join(found)} of the run")
+        if "generation" in record.index and _format.value(record["generation"]) != _format.MISSING:
+            lines.append(f"  found in generation {int(record['generation'])} of the run")
         if len(sub) > 1:
             rates = tradeoff_rates(sub, k)
             for _, rate in rates.iterrows():
                 if rate["neighbour"] >= 0:
                     lines.append(
-                        f"  to row {int(keep[int(rate['neighbour'])]) + 1}: {rate['text']}"
+                        f"  to {front.design_name(int(keep[int(rate['neighbour'])]))}: {rate['text']}"
                     )
                 else:
                     lines.append(f"  locally: {rate['text']}")
             if len(front.objectives) > 2:
-                lines.extend(_nearest_moves(sub, k, keep))
+                lines.extend(_nearest_moves(sub, k))
         if total > 0:
             part = contributions[int(row)] / total
             lines.append(
@@ -1116,20 +1119,20 @@ def describe_choice(
     lines.append("")
     if not verdict.has_knee:
         lines.append(
-            f"Knee methods: the front has no knee; row {verdict.instead + 1} is the design "
+            f"Knee methods: the front has no knee; {front.design_name(verdict.instead)} is the design "
             "closest to the ideal point."
         )
     elif len(groups) == 1:
         lines.append(
-            f"Knee methods: {', '.join(groups[0][1])} all point at row {groups[0][0] + 1}."
+            f"Knee methods: {', '.join(groups[0][1])} all point at {front.design_name(groups[0][0])}."
         )
     else:
-        parts = "; ".join(f"{', '.join(ms)} at row {r + 1}" for r, ms in groups)
+        parts = "; ".join(f"{', '.join(ms)} at {front.design_name(r)}" for r, ms in groups)
         lines.append(f"Knee methods differ: {parts}.")
     return lines
 
 
-def _nearest_moves(front: Front, k: int, keep: np.ndarray, n_moves: int = 3) -> list[str]:
+def _nearest_moves(front: Front, k: int, n_moves: int = 3) -> list[str]:
     """The changes in every objective from design ``k`` to its nearest designs (normalised distance)."""
     scaled = normalised(front)
     distance = np.linalg.norm(scaled - scaled[k], axis=1)
@@ -1141,5 +1144,5 @@ def _nearest_moves(front: Front, k: int, keep: np.ndarray, n_moves: int = 3) -> 
             f"{o.name} {points[j, m] - points[k, m]:+.3g}{' ' + o.unit if o.unit else ''}"
             for m, o in enumerate(front.objectives)
         )
-        lines.append(f"  near row {int(keep[j]) + 1}: {changes}")
+        lines.append(f"  near {front.design_name(int(j))}: {changes}")
     return lines

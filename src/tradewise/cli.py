@@ -528,21 +528,31 @@ def _front_inputs(path) -> list:
     "--keep", multiple=True, metavar="COL", help="Keep only these other columns (default: all)."
 )
 @click.option(
+    "--id-column",
+    metavar="COL",
+    help="A column that names each design (e.g. a part number); by default a design is named by "
+    "its data row, the first row below the header being 1.",
+)
+@click.option(
     "--out", type=click.Path(dir_okay=False), help="Write the front here, with its .json beside it."
 )
-def front_command(table, minimise, maximise, keep, out) -> None:
+def front_command(table, minimise, maximise, keep, id_column, out) -> None:
     """Keep the rows of TABLE.csv that no other row beats in every objective.
 
     Name the objectives with --min and --max (at least two in all; the --min
     ones come first); a header such as "mass [g]" can be named as mass. Every
     other column is kept
-    unless --keep lists the ones wanted. Without --out the front is printed
-    as CSV.
+    unless --keep lists the ones wanted, and a column data_row comes first:
+    each design's row in TABLE.csv, the first row below the header being 1
+    (unless --id-column names a column of your own). Without --out the front
+    is printed as CSV.
     """
     from tradewise.front import column_header, front_from_csv
 
     _check_out(out, [table], with_json=True)
-    front = front_from_csv(table, minimise=minimise, maximise=maximise, keep=keep or None)
+    front = front_from_csv(
+        table, minimise=minimise, maximise=maximise, keep=keep or None, key=id_column
+    )
     summary = f"{len(front)} of {front.info.n_rows} rows are on the front"
     if out:
         written = front.to_csv(out)
@@ -603,12 +613,18 @@ def front_command(table, minimise, maximise, keep, out) -> None:
     help="For a plain CSV: a column to make large.",
 )
 @click.option(
+    "--id-column",
+    metavar="COL",
+    help="For a plain CSV: a column that names each design (default: its data row, the first "
+    "row below the header being 1).",
+)
+@click.option(
     "--out",
     type=click.Path(dir_okay=False),
     help="Write the chosen designs to this CSV (with .json).",
 )
 def pick_command(
-    front_path, method, weights, target, limits, top, tolerance, minimise, maximise, out
+    front_path, method, weights, target, limits, top, tolerance, minimise, maximise, id_column, out
 ) -> None:
     """Point at the designs of FRONT worth discussing and say what each costs.
 
@@ -619,17 +635,24 @@ def pick_command(
     the next designs shown are the method's next favourites that differ
     from those already shown by more than --tolerance in some objective,
     never neighbours on the front.
+
+    A design of a run is named by its evaluation number (eval_id); a design
+    of a plain CSV by its data row there, the first row below the header
+    being 1, or by the column --id-column names.
     """
     import warnings
 
     from tradewise.choose import NonConvexWarning, choose, describe_choice, method_name
+    from tradewise.errors import DataError
     from tradewise.front import front_from_csv, read_front
     from tradewise.limits import parse_values
     from tradewise.represent import distinct_picks, separation
 
     _check_out(out, _front_inputs(front_path), with_json=True)
     if minimise or maximise:
-        front = front_from_csv(front_path, minimise=minimise, maximise=maximise)
+        front = front_from_csv(front_path, minimise=minimise, maximise=maximise, key=id_column)
+    elif id_column:
+        raise DataError("--id-column: give it with --min/--max, for a plain CSV")
     else:
         front = read_front(front_path)
     method = method_name(method)
@@ -736,16 +759,17 @@ def _run_inputs(run) -> list:
     help="PNG, SVG or PDF file to write (default RUN/KIND.png).",
 )
 @click.option(
-    "--row",
-    type=click.IntRange(min=1),
-    help="Mark this design (a row of front.csv, counting from 1).",
+    "--design",
+    type=int,
+    metavar="N",
+    help="Mark design N (its evaluation number, the eval_id column of front.csv).",
 )
 @click.option("--variables", is_flag=True, help="parallel: add an axis for each variable.")
-def plot_command(run, kind, out, row, variables) -> None:
+def plot_command(run, kind, out, design, variables) -> None:
     """Draw a figure of the run folder RUN.
 
-    The knee design is marked when the choosing methods find one; --row marks
-    another design. Axes carry each objective's unit and which way is better.
+    The knee design is marked when the choosing methods find one; --design
+    marks another. Axes carry each objective's unit and which way is better.
     """
     from pathlib import Path
 
@@ -755,8 +779,15 @@ def plot_command(run, kind, out, row, variables) -> None:
 
     _check_out(out, _run_inputs(run))
     front, history, evaluations = read_run(run, evaluations=kind == "front")
-    if row is not None and row > len(front):
-        raise DataError(f"--row: {row} is past the last design of the front ({len(front)} rows)")
+    row = None
+    if design is not None:
+        ids = front.design_ids()
+        if design not in ids:
+            shown = ", ".join(str(i) for i in sorted(ids)[:8]) + (", ..." if len(ids) > 8 else "")
+            raise DataError(
+                f"--design: {design} is not a design of this front; its designs: {shown}"
+            )
+        row = ids.index(design)
     if kind == "attainment":
         _, surfaces = read_seeds(run, front)
         if surfaces is None:
@@ -771,7 +802,7 @@ def plot_command(run, kind, out, row, variables) -> None:
             front,
             history=history,
             evaluations=evaluations,
-            highlight=row - 1 if row is not None else None,
+            highlight=row,
             variables=variables,
         )
     path = save_figure(fig, Path(out) if out else Path(run) / f"{kind}.png")

@@ -67,6 +67,7 @@ _BOOKKEEPING = frozenset(
         "feasible",
         "violation",
         "design_key",
+        "data_row",
         "rank",
         "seed",
         "pick_order",
@@ -710,17 +711,14 @@ def _knee_text(front: Front, row: int | None) -> str:
     values = ", ".join(
         f"{o.name} {_show(design[o.name])}{_unit(front, o.name, o.unit)}" for o in front.objectives
     )
-    label = (
-        f"design {int(design['eval_id'])}" if "eval_id" in front.table.columns else f"row {row + 1}"
-    )
-    return f"{label} ({values})"
+    return f"{front.design_name(row)} ({values})"
 
 
 def _ids(ids: Sequence[int], limit: int = 5) -> str:
     if not ids:
         return ""
     shown = ", ".join(str(i) for i in ids[:limit]) + (", ..." if len(ids) > limit else "")
-    return f" (eval_id {shown})"
+    return f" ({'design' if len(ids) == 1 else 'designs'} {shown})"
 
 
 # --------------------------------------------------------------------------- small helpers

@@ -47,6 +47,7 @@ __all__ = [
     "front_from_csv",
     "tradeoff_rates",
     "BOOKKEEPING_COLUMNS",
+    "ROW_COLUMN",
     "design_table",
 ]
 
@@ -64,6 +65,10 @@ BOOKKEEPING_COLUMNS = (
     "design_key",
     "run_id",
 )
+
+#: The column that names a design of a user's CSV: its data row in that file, the first row
+#: below the header counting as 1, carried through every filtering.
+ROW_COLUMN = "data_row"
 
 
 def design_table(table: pd.DataFrame) -> pd.DataFrame:
@@ -434,6 +439,48 @@ class Front:
     def objective_names(self) -> list[str]:
         return [o.name for o in self.objectives]
 
+    def design_ids(self) -> list[Any]:
+        """The identity of each design, row by row: what every human view calls it.
+
+        A run's design is its evaluation number (``eval_id``); a design of a
+        user's CSV is the value of the key column named when it was read
+        (``info.id_column``), else its data row in that file (``data_row``,
+        the first row below the header counting as 1). A table with none of
+        these falls back to the row's place in this front, counting from 1.
+
+        Examples
+        --------
+        >>> table = pd.DataFrame({"eval_id": [7, 3], "cost": [1.0, 2.0], "mass": [2.0, 1.0]})
+        >>> Front.from_table(table, [Objective("cost"), Objective("mass")]).design_ids()
+        [7, 3]
+        """
+        column = self.identity_column()
+        if column is None:
+            return list(range(1, len(self) + 1))
+        return [_plain_id(v) for v in self.table[column]]
+
+    def design_name(self, row: int) -> str:
+        """How a person is told about the design at row position ``row``: ``"design 1234"``
+        (its evaluation number), ``"data row 6"`` (its row in the user's CSV), ``"part_no A-17"``
+        (a key column), or ``"row 2"`` of this front when the table carries none of them."""
+        column = self.identity_column()
+        if column is None:
+            return f"row {int(row) + 1}"
+        value = _plain_id(self.table[column].iloc[int(row)])
+        if column == "eval_id":
+            return f"design {value}"
+        if column == ROW_COLUMN:
+            return f"data row {value}"
+        return f"{column} {value}"
+
+    def identity_column(self) -> str | None:
+        """The column that names the designs (see :meth:`design_ids`); None when there is none."""
+        key = self.info.id_column
+        for column in (key, "eval_id", ROW_COLUMN):
+            if column and column in self.table.columns:
+                return column
+        return None
+
     @property
     def maximise(self) -> list[bool]:
         return [o.maximise for o in self.objectives]
@@ -559,6 +606,15 @@ def read_front(path: str | Path) -> Front:
     )
 
 
+def _plain_id(value: Any) -> Any:
+    """A design's identity as plain data: a whole number without a decimal point, text as it is."""
+    if isinstance(value, np.generic):
+        value = value.item()
+    if isinstance(value, float) and value.is_integer():
+        return int(value)
+    return value
+
+
 def _strip_unit(header: str) -> str:
     match = _HEADER.match(str(header))
     return match.group("name") if match else str(header)
@@ -642,8 +698,15 @@ def front_from_csv(
     minimise: Sequence[str] = (),
     maximise: Sequence[str] = (),
     keep: Sequence[str] | None = None,
+    key: str | None = None,
 ) -> Front:
     """The non-dominated rows of any CSV table (moocore), every other column kept.
+
+    Each design keeps the name it has in the file: with ``key``, the value of
+    that column (which must hold a distinct value in every row); otherwise
+    its data row, the first row below the header counting as 1, added as the
+    first column ``data_row`` (a file that already has a ``data_row`` column,
+    such as a front written by ``tradewise front``, keeps its own).
 
     Parameters
     ----------
@@ -654,12 +717,16 @@ def front_from_csv(
         The objective columns, minimised and maximised; at least two in all.
     keep : sequence of str, optional
         The other columns to keep; by default all of them.
+    key : str, optional
+        A column that names each design (a part number, say); reports name
+        designs by it instead of by their data row.
 
     Raises
     ------
     DataError
         For a missing column, a non-numeric or missing objective value (naming
-        the row), fewer than two objectives, or a column named twice.
+        the row), fewer than two objectives, a column named twice, or a key
+        column with an empty or repeated value.
 
     Examples
     --------
@@ -668,8 +735,8 @@ def front_from_csv(
     >>> path = os.path.join(folder, "designs.csv")
     >>> _ = open(path, "w").write("id,cost [EUR],mass [g]\\n1,10,3\\n2,12,2\\n3,13,4\\n")
     >>> front = front_from_csv(path, minimise=["cost", "mass"])
-    >>> front.table["id"].tolist(), front.units["mass"]
-    ([1, 2], 'g')
+    >>> front.table["id"].tolist(), front.units["mass"], front.design_name(1)
+    ([1, 2], 'g', 'data row 2')
     """
     table, units = read_table(path)
     where = str(Path(path).name)
@@ -682,16 +749,25 @@ def front_from_csv(
         raise DataError(
             f"{where}: a front needs at least two objectives (--min/--max), got {len(names)}"
         )
-    for name in names + [_strip_unit(k) for k in keep or ()]:
+    key = _strip_unit(key) if key else None
+    for name in names + [_strip_unit(k) for k in keep or ()] + ([key] if key else []):
         if name not in table.columns:
             raise DataError(
                 f"{where}: no column {quote(name)}; columns: {_columns_text(table.columns)}"
             )
     if len(table) == 0:
         raise DataError(f"{where}: the table has a header but no rows")
+    if key:
+        _check_key(table, key, where, path)
+    elif ROW_COLUMN in table.columns:
+        _check_key(table, ROW_COLUMN, where, path)
+    else:
+        table.insert(0, ROW_COLUMN, np.arange(1, len(table) + 1))
     if keep is not None:
+        ident = key or ROW_COLUMN
         kept = [_strip_unit(k) for k in keep]
-        table = table[names + [c for c in table.columns if c in kept and c not in names]]
+        others = [c for c in table.columns if c in kept and c not in names and c != ident]
+        table = table[([ident] if ident not in names else []) + names + others]
     objectives = [
         Objective(n, goal, units.get(n, "")) for n, (_, goal) in zip(names, wanted, strict=True)
     ]
@@ -700,8 +776,28 @@ def front_from_csv(
     return replace(
         front,
         reference=tuple(front.reference_point()),
-        info=RunInfo(source=where, n_rows=len(table)),
+        info=RunInfo(source=where, n_rows=len(table), id_column=key),
     )
+
+
+def _check_key(table: pd.DataFrame, key: str, where: str, path: str | Path) -> None:
+    """Refuse a key column with an empty cell or a value that names two rows."""
+    column = table[key]
+    empty = column.isna()
+    if empty.any():
+        row = int(np.flatnonzero(empty.to_numpy())[0]) + 1
+        raise DataError(
+            f"{where}: data row {row} has no value in the key column {quote(key)}; "
+            "every design needs a name there"
+        )
+    repeated = column.duplicated()
+    if repeated.any():
+        row = int(np.flatnonzero(repeated.to_numpy())[0])
+        first = int(np.flatnonzero((column == column.iloc[row]).to_numpy())[0]) + 1
+        raise DataError(
+            f"{where}: the key column {quote(key)} holds {quote(column.iloc[row])} in data rows "
+            f"{first} and {row + 1}; a key names one design, so its values must differ"
+        )
 
 
 # ---------------------------------------------------------------- trade-off rates

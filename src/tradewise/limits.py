@@ -243,7 +243,7 @@ def limit_mask(front: Front, limits: Iterable[Limit | str]) -> np.ndarray:
         if text.any():
             row = int(np.flatnonzero(text.to_numpy())[0])
             raise DataError(
-                f"limit '{limit}': column {limit.column!r} holds {raw.iloc[row]!r} in row {row + 1}, "
+                f"limit '{limit}': column {limit.column!r} holds {raw.iloc[row]!r} in {front.design_name(row)}, "
                 "not a number; a limit on text takes == or != (for example "
                 f"'{limit.column} == {raw.iloc[row]}')"
             )
@@ -293,7 +293,9 @@ def closest_miss(front: Front, limits: Iterable[Limit | str]) -> str:
             unit = front.units.get(limit.column, "")
             amount = "" if limit.is_text else f" by {_format.quantity(gap[best], unit)}"
             missed.append(f"{limit}{amount}")
-    return f"the closest is row {best + 1} ({shown}), which misses {' and '.join(missed)}"
+    return (
+        f"the closest is {front.design_name(best)} ({shown}), which misses {' and '.join(missed)}"
+    )
 
 
 def check_objective_names(front: Front, values: Mapping[str, float], what: str) -> None:

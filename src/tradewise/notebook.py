@@ -522,7 +522,7 @@ class Picker:
             parts.append(
                 f"{o.name} {show_value(float(record[o.name]))}{' ' + unit if unit else ''}"
             )
-        return f"row {row + 1}: " + ", ".join(parts)
+        return f"{front.design_name(row)}: " + ", ".join(parts)
 
     def _details_html(self) -> str:
         state = self.state
@@ -550,7 +550,7 @@ class Picker:
         cell = "style='padding:2px 8px;vertical-align:top'"
         return (
             f"<div style='border:1px solid #d9d9df;padding:6px 10px;margin:6px 0'>"
-            f"<b>Row {info['row'] + 1}</b> ({how})"
+            f"<b>{escape(info['name'][0].upper() + info['name'][1:])}</b> ({how})"
             f"<table><tr><td {cell}><table><tr><th>objective</th><th>value</th><th>unit</th><th>goal</th>"
             f"<th>rank</th></tr>{rows}</table></td>"
             f"<td {cell}><table><tr><th>variable</th><th>value</th><th>unit</th></tr>{variables}</table></td>"
@@ -572,7 +572,8 @@ class Picker:
         names = [o.name for o in front.objectives]
         head = "".join(f"<th>{escape(name)}</th>" for name in names)
         body = "".join(
-            f"<tr><td>row {int(r['front_row'])}</td><td>{escape(str(r['chosen_as']))}</td>"
+            f"<tr><td>{escape(front.design_name(int(r['front_row']) - 1))}</td>"
+            f"<td>{escape(str(r['chosen_as']))}</td>"
             + "".join(
                 f"<td style='text-align:right'>{escape(show_value(r[name]))}</td>" for name in names
             )
@@ -581,7 +582,7 @@ class Picker:
         )
         return (
             f"<details><summary><b>The front in {len(table)} designs</b></summary>"
-            f"<table><tr><th>row</th><th>chosen as</th>{head}</tr>{body}</table></details>"
+            f"<table><tr><th>design</th><th>chosen as</th>{head}</tr>{body}</table></details>"
         )
 
     def _ranking_html(self, n_rows: int = 8) -> str:
@@ -599,13 +600,14 @@ class Picker:
                 f"<td style='text-align:right'>{escape(show_value(float(record[o.name])))}</td>"
                 for o in front.objectives
             )
-            body.append(f"<tr{style}><td>{k}</td><td>row {row + 1}{marks}</td>{cells}</tr>")
+            name = escape(front.design_name(row))
+            body.append(f"<tr{style}><td>{k}</td><td>{name}{marks}</td>{cells}</tr>")
         return (
             f"<div><b>The {len(chosen)} designs {escape(state.method)} prefers that differ from each "
             f"other</b> <span style='color:#666'>(by more than "
             f"{escape(', '.join(f'{k} {show_value(v)}' for k, v in state.separation.items()))}; "
             "* on the shortlist; choose one in the list above)</span></div>"
-            f"<table><tr><th>#</th><th>row</th>{head}</tr>{''.join(body)}</table>"
+            f"<table><tr><th>#</th><th>design</th>{head}</tr>{''.join(body)}</table>"
         )
 
 

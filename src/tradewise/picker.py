@@ -443,7 +443,7 @@ class PickerState:
             row = self._check_row(row, "select")
             if not self._kept[row]:
                 raise DataError(
-                    f"select: row {row + 1} is outside the limits {', '.join(map(str, self.limits))}; "
+                    f"select: {self.front.design_name(row)} is outside the limits {', '.join(map(str, self.limits))}; "
                     "widen them to pick it"
                 )
         self._selected = row
@@ -515,7 +515,7 @@ class PickerState:
             for _, rate in tradeoff_rates(sub, k).iterrows():
                 if int(rate["neighbour"]) >= 0:
                     rates.append(
-                        f"to row {int(sub_rows[int(rate['neighbour'])]) + 1}: {rate['text']}"
+                        f"to {front.design_name(int(sub_rows[int(rate['neighbour'])]))}: {rate['text']}"
                     )
                 else:
                     rates.append(f"nearby: {rate['text']}")
@@ -527,12 +527,14 @@ class PickerState:
             also = [m for m, r in picks.items() if r == row and m not in KNEE_METHODS]
         return {
             "row": int(row),
+            "name": front.design_name(row),
             "kept": kept,
             "objectives": objectives,
             "variables": variables,
             "rates": rates,
             "knees": knees,
             "knee_agree": [m for m, r in knees.items() if r == row],
+            "knee_names": {m: front.design_name(r) for m, r in knees.items()},
             "no_knee": bool(len(keep)) and not knees,
             "also": also,
         }
@@ -540,7 +542,8 @@ class PickerState:
     def describe(self, row: int | None = None) -> list[str]:
         """Plain lines about design ``row`` (default the current pick), as the details panel shows them."""
         info = self.details(row)
-        lines = [f"Row {info['row'] + 1}" + ("" if info["kept"] else " (outside the limits)")]
+        name = info["name"][0].upper() + info["name"][1:]
+        lines = [name + ("" if info["kept"] else " (outside the limits)")]
         for o in info["objectives"]:
             value = f"{show_value(o['value'])} {o['unit']}".strip()
             lines.append(f"  {o['name']}: {value}, rank {o['rank']} of {o['of']} ({o['goal']})")
@@ -569,7 +572,9 @@ class PickerState:
             raise DataError("shortlist: no design meets the limits, so there is nothing to add")
         if row not in self._shortlist:
             self._shortlist.append(int(row))
-        self._update(message=f"Row {row + 1} is on the shortlist ({len(self._shortlist)} in all).")
+        self._update(
+            message=f"{self._named(row)} is on the shortlist ({len(self._shortlist)} in all)."
+        )
 
     def remove(self, row: int) -> None:
         """Take design ``row`` off the shortlist.
@@ -581,10 +586,14 @@ class PickerState:
         """
         row = self._check_row(row, "shortlist")
         if row not in self._shortlist:
-            shown = ", ".join(str(r + 1) for r in self._shortlist) or "none"
-            raise DataError(f"shortlist: row {row + 1} is not on it; on it: {shown}")
+            shown = ", ".join(self.front.design_name(r) for r in self._shortlist) or "none"
+            raise DataError(
+                f"shortlist: {self.front.design_name(row)} is not on it; on it: {shown}"
+            )
         self._shortlist.remove(row)
-        self._update(message=f"Row {row + 1} is off the shortlist ({len(self._shortlist)} left).")
+        self._update(
+            message=f"{self._named(row)} is off the shortlist ({len(self._shortlist)} left)."
+        )
 
     def clear_shortlist(self) -> None:
         """Empty the shortlist."""
@@ -605,6 +614,7 @@ class PickerState:
         """
         settings = {
             "rows": [r + 1 for r in self._shortlist],
+            "designs": [self.front.design_name(r) for r in self._shortlist],
             "n_front": len(self.front),
             "limits": [str(limit) for limit in self.limits],
             "method": self._method,
@@ -640,6 +650,11 @@ class PickerState:
                 f"{what}: {name!r} is not an objective of this front; objectives: {', '.join(self._span)}"
             )
 
+    def _named(self, row: int) -> str:
+        """The design's name (:meth:`Front.design_name`) to open a sentence."""
+        name = self.front.design_name(row)
+        return name[0].upper() + name[1:]
+
     def _check_row(self, row: Any, what: str) -> int:
         if (
             isinstance(row, bool)
@@ -652,7 +667,7 @@ class PickerState:
         return int(row)
 
     def __repr__(self) -> str:
-        pick = "none" if self.pick is None else f"row {self.pick + 1}"
+        pick = "none" if self.pick is None else self.front.design_name(self.pick)
         return (
             f"PickerState({int(self._kept.sum())} of {len(self.front)} designs within the limits; "
             f"{self._method} picks {pick}; shortlist {len(self._shortlist)})"
@@ -683,7 +698,8 @@ def knee_sentence(info: Mapping[str, Any]) -> str:
         if info.get("no_knee"):
             return "knee methods: the front has no knee"
         return "knee methods: no design meets the limits"
-    others = [f"{m} row {r + 1}" for m, r in knees.items() if m not in agree]
+    names = info.get("knee_names", {})
+    others = [f"{m} {names.get(m, f'row {r + 1}')}" for m, r in knees.items() if m not in agree]
     if agree and not others:
         return f"every knee method ({', '.join(agree)}) finds this design"
     if agree:

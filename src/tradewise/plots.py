@@ -156,9 +156,9 @@ def axis_label(objective: Objective, *, unit: str | None = None, wrap: bool = Fa
     return _plain(f"{name}\n{sense}" if wrap else f"{name} {sense}")
 
 
-def _row_label(row: int) -> str:
-    # 1-based like the rows of front.csv and the pick command
-    return f"row {int(row) + 1}"
+def _row_label(front: Front, row: int) -> str:
+    # the design's one name, as pick, the page and the exported files give it
+    return front.design_name(int(row))
 
 
 # ------------------------------------------------------------------------------ helpers
@@ -253,7 +253,7 @@ def _marks(
             pick_index += 1
             colour = PALETTE[name]
             entry.update(marker=marker, color=colour, size=90, face="none", edge=colour, width=2.0)
-        entry["text"] = f"{', '.join(entry['labels'])} ({_row_label(entry['row'])})"
+        entry["text"] = f"{', '.join(entry['labels'])} ({_row_label(front, entry['row'])})"
     return out
 
 
@@ -995,7 +995,11 @@ def plot_parallel(
                 )
             )
         if highlight is not None:
-            text = f"knee ({_row_label(highlight)})" if highlight == knee else _row_label(highlight)
+            text = (
+                f"knee ({_row_label(front, highlight)})"
+                if highlight == knee
+                else _row_label(front, highlight)
+            )
             handles.append(
                 Line2D(
                     [],

@@ -41,7 +41,13 @@ from tradewise import format as _format
 from tradewise import plots
 from tradewise import represent as _represent
 from tradewise.errors import DataError
-from tradewise.front import Front, hypervolume_box, objective_matrix, tradeoff_rates
+from tradewise.front import (
+    ROW_COLUMN,
+    Front,
+    hypervolume_box,
+    objective_matrix,
+    tradeoff_rates,
+)
 
 __all__ = ["build_report", "write_report", "safety_domains"]
 
@@ -66,7 +72,18 @@ _DOMAIN_WORDS: dict[str, tuple[str, ...]] = {
 
 #: Columns of the archive that say how an evaluation ran, not what the design is.
 _BOOKKEEPING = frozenset(
-    {"duration", "worker", "cached", "message", "status", "run_id", "feasible", "violation"}
+    {
+        "duration",
+        "worker",
+        "cached",
+        "message",
+        "status",
+        "run_id",
+        "feasible",
+        "violation",
+        "design_key",
+        "data_row",
+    }
 )
 
 
@@ -286,8 +303,24 @@ def _heading(front: Front, name: str) -> dict[str, str]:
     return {"name": str(name), "unit": str(_unit(front, name))}
 
 
-def _row(row: int) -> str:
-    return f"row {int(row) + 1}"
+def _naming(front: Front) -> str:
+    """One sentence on how the page names a design, the same name pick, the notebook and the files use."""
+    column = front.identity_column()
+    if column == "eval_id":
+        return (
+            "A design is named by its evaluation number, the eval_id column of front.csv, as pick "
+            "and the notebook name it."
+        )
+    if column == ROW_COLUMN:
+        return "A design is named by its data row in the table it came from (the data_row column)."
+    if column is not None:
+        return f"A design is named by its {column}."
+    return "A design is named by its row in the front's file, counting from 1."
+
+
+def _fmt_id(value: Any) -> str:
+    # an identity is a name, not a quantity: whole, without thousands separators
+    return str(value)
 
 
 def _plain(value: Any) -> Any:
@@ -617,7 +650,7 @@ def _rates(front: Front, row: int) -> list[str]:
     lines = []
     for _, rate in rates.iterrows():
         if int(rate["neighbour"]) >= 0:
-            lines.append(f"to {_row(int(rate['neighbour']))}: {rate['text']}")
+            lines.append(f"to {front.design_name(int(rate['neighbour']))}: {rate['text']}")
         else:
             lines.append(f"locally: {rate['text']}")
     return lines
@@ -633,12 +666,14 @@ def _shortlist(
     made_from = settings.get("n_front")
     others = _method_labels(marks)
     rows = [
-        [str(number), _row(row), ", ".join(others.get(row, []))]
+        [str(number), front.design_name(row), ", ".join(others.get(row, []))]
         + [_fmt(front.table.iloc[row][o.name]) for o in front.objectives]
         for number, row in designs
     ]
     cards = [
-        _card(front, row, f"{number}. {_row(row)}", also=", ".join(others.get(row, [])))
+        _card(
+            front, row, f"{number}. {front.design_name(row)}", also=", ".join(others.get(row, []))
+        )
         for number, row in designs
     ]
     return {
@@ -696,13 +731,13 @@ def _picks(front: Front, marks: dict[str, Any]) -> dict[str, Any]:
     if marks["knees"]:
         groups = _grouped(marks["knees"])
         if len(groups) == 1:
-            agree = {"methods": ", ".join(groups[0][1]), "row": _row(groups[0][0])}
+            agree = {"methods": ", ".join(groups[0][1]), "row": front.design_name(groups[0][0])}
         else:
-            disagree = "; ".join(f"{', '.join(ms)} at {_row(r)}" for r, ms in groups)
+            disagree = "; ".join(f"{', '.join(ms)} at {front.design_name(r)}" for r, ms in groups)
     cards = []
     for k, (row, _methods) in enumerate(entries):
         knee = k == 0 and marks["knee"] is not None
-        heading = f"{'Knee design' if knee else 'Compromise design'}: {_row(row)}"
+        heading = f"{'Knee design' if knee else 'Compromise design'}: {front.design_name(row)}"
         cards.append(_card(front, row, heading, knee=knee))
     return {
         "error": marks.get("error"),
@@ -715,7 +750,7 @@ def _picks(front: Front, marks: dict[str, Any]) -> dict[str, Any]:
         "shape": _SHAPES.get(min(len(front.objectives), 4), ""),
         "heads": [_heading(front, o.name) for o in front.objectives],
         "rows": [
-            [_row(row), ", ".join(methods)]
+            [front.design_name(row), ", ".join(methods)]
             + [_fmt(front.table.iloc[int(row)][o.name]) for o in front.objectives]
             for row, methods in entries
         ],
@@ -934,11 +969,12 @@ def _front_table(
         c for c in front.constraints if c in front.table.columns and c not in objectives + variables
     ]
     named = set(objectives + variables + constraints)
-    trailing = [c for c in ("eval_id", "generation") if c in front.table.columns]
+    ident = front.identity_column()
+    trailing = [c for c in ("eval_id", "generation") if c in front.table.columns and c != ident]
     others = [
         c
         for c in front.table.columns
-        if c not in named and c not in trailing and c not in _BOOKKEEPING
+        if c not in named and c not in trailing and c not in _BOOKKEEPING and c != ident
     ]
     # the representative set keeps to what a design is and does; its other outputs are in the CSV
     columns = objectives + variables + constraints + ([] if brief else others + trailing)
@@ -946,6 +982,7 @@ def _front_table(
     for number, row in (listed or {}).get("designs", []):
         labels.setdefault(int(row), []).insert(0, f"shortlist {number}")
     rows = []
+    ids = front.design_ids()
     shown = front.table[columns]
     positions = range(len(front)) if positions is None else [int(p) for p in positions]
     for position, record in zip(
@@ -955,7 +992,16 @@ def _front_table(
         for value in record:
             number = _number_or_none(value)
             cells.append((_fmt(value), None if number is None else repr(number)))
-        rows.append({"number": position + 1, "tags": labels.get(position, []), "cells": cells})
+        name = _plain(ids[position])
+        number = _number_or_none(name)
+        rows.append(
+            {
+                "number": _fmt_id(name),
+                "sort": None if number is None else repr(name if isinstance(name, int) else number),
+                "tags": labels.get(position, []),
+                "cells": cells,
+            }
+        )
     goals = "; ".join(
         f"{o.name}: {'lower' if o.goal == 'min' else 'higher'} is better" for o in front.objectives
     )
@@ -966,6 +1012,7 @@ def _front_table(
         "goals": goals,
         "heads": [_heading(front, column) for column in columns],
         "rows": rows,
+        "naming": _naming(front),
     }
 
 

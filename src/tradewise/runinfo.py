@@ -200,8 +200,9 @@ class RunInfo:
     ``finished`` are seconds since the epoch here and ISO 8601 times in UTC
     with their offset in the file (``"2026-01-01T12:00:00.000+00:00"``; files
     of earlier releases held the seconds, which are still read).
-    ``hypervolume`` is the one recorded in the file (a front works out its
-    own from its points).
+    ``id_column`` is the key column that names the designs of a user's CSV,
+    when one was named. ``hypervolume`` is the one
+    recorded in the file (a front works out its own from its points).
 
     Examples
     --------
@@ -243,6 +244,7 @@ class RunInfo:
     run_id: int | None = None
     source: str | None = None
     n_rows: int | None = None
+    id_column: str | None = None
     extra: dict[str, Any] = field(default_factory=dict)
 
     def but(self, **changes: Any) -> RunInfo:
@@ -414,6 +416,7 @@ _TEXT_KEYS = (
     "reference_source",
     "store",
     "source",
+    "id_column",
 )
 _COUNT_KEYS = ("seed", "n_evals", "n_gen", "n_failed", "n_cached", "run_id", "n_rows")
 _NUMBER_KEYS = ("hypervolume",)
