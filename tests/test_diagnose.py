@@ -193,6 +193,10 @@ def test_relaxing_a_constraint_lets_designs_join(constr_run):
     assert lines[0] == "What if g1 >= 5 (the case has g1 >= 6: loosened)?"
     assert any(line.startswith("Caveat:") and "5 <= g1 < 6" in line for line in lines)
     assert any("tradewise run CASE" in line for line in lines)
+    # the designs that join are named by eval_id, as pick and the page name them
+    first = ", ".join(str(i) for i in answer.joined[:2])
+    word = "design" if len(answer.joined) == 1 else "designs"
+    assert any(f"join ({word} {first}" in line for line in lines), lines
 
 
 def test_tightening_a_constraint_removes_designs(constr_run):
