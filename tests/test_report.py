@@ -760,3 +760,13 @@ def test_only_the_figures_are_marked_safe_in_the_templates():
     assert unsafe == {"macros.html.j2": ["{{ svg|safe }}"]}
     code = Path(tradewise.report.__file__).read_text(encoding="utf-8")
     assert code.count("Markup(") == 1 and "Markup(escape(str(value), quote=True))" in code
+
+
+def test_a_two_objective_front_without_variables_has_no_parallel_figure():
+    """Two objectives and no variable: the page leaves parallel coordinates out (two axes alone say less
+    than the scatter) and keeps the front figure; with its variable the same front gets the figure."""
+    front = small_front()
+    bare = front.with_table(front.table[["cost", "mass"]])
+    page = build_report(bare)
+    assert 'id="front-' in page and 'id="parallel-' not in page
+    assert 'id="parallel-' in build_report(front)
