@@ -727,3 +727,20 @@ def test_parallel_of_two_objectives_alone_is_not_drawn_but_with_variables_is():
     with pytest.raises(DataError, match="two objectives and nothing else"):
         plots.plot_kind("parallel", bare)
     assert len(plots.plot_parallel(sphere_front(4)).axes[0].get_xticklabels()) == 4
+
+
+def test_history_legend_covers_no_point_and_not_the_note():
+    """Three seeds whose hypervolume rises fast fill the upper left (where the legend used to sit): the
+    legend covers no marker or line vertex of the upper panel and does not overlap the stop note."""
+    parts = []
+    for seed, rate in {1: 60, 2: 90, 3: 40}.items():
+        part = history_table(30).assign(seed=seed)
+        part["hypervolume"] = 0.8 * (1 - np.exp(-part["evaluations"] / rate))
+        parts.append(part)
+    fig = plots.plot_history(pd.concat(parts, ignore_index=True), stop_reason="budget used")
+    assert _covered_points(fig) == 0
+    top = fig.axes[0]
+    legend = top.get_legend().get_window_extent()
+    assert not any(legend.overlaps(t.get_window_extent()) for t in top.texts)
+    top.get_legend().set_loc("upper left")  # the old place, covered as meant
+    assert _covered_points(fig) > 0

@@ -458,23 +458,26 @@ _LEGEND_CORNERS = ("upper right", "upper left", "lower left", "lower right")
 _LEGEND_CLEARANCE = 7.0
 
 
-def _place_legend(ax, handles: Sequence[Any], points: np.ndarray, **options: Any):
-    """Put the legend in the corner of ``ax`` that covers the fewest of ``points`` (data coordinates).
+def _place_legend(
+    ax, handles: Sequence[Any], points: np.ndarray, *, avoid: Sequence[Any] = (), **options: Any
+):
+    """Put the legend in the first corner of ``ax`` that covers none of ``points`` (data coordinates)
+    and overlaps none of the artists ``avoid`` (such as a note in the plot area).
 
     The legend is measured where it is drawn, after the figure's layout is
-    settled (so a title must be set first); when every corner would cover a
-    point, it goes outside the plot area, on the right.
+    settled (so a title must be set first); when every corner would cover
+    something, it goes outside the plot area, on the right.
     """
     fig = ax.get_figure(root=True)
     legend = ax.legend(handles=handles, loc=_LEGEND_CORNERS[0], **options)
     xy = np.asarray(points, dtype=float).reshape(-1, 2)
     xy = xy[np.all(np.isfinite(xy), axis=1)]
     fig.draw_without_rendering()  # settles the layout; the legend's box follows its corner after
-    counts = []
+    boxes = [artist.get_window_extent() for artist in avoid]
     for corner in _LEGEND_CORNERS:
         legend.set_loc(corner)
-        counts.append(_covered(ax, legend, xy))
-        if counts[-1] == 0:
+        extent = legend.get_window_extent()
+        if _covered(ax, legend, xy) == 0 and not any(extent.overlaps(b) for b in boxes):
             return legend
     legend.remove()
     return ax.legend(
@@ -1237,8 +1240,6 @@ def plot_history(
                          label=_plain(label), **style)  # fmt: skip
                 bottom.plot(evals[rows], size[rows], markevery=every,
                             gid=f"front-size-seed-{seed}", **style)  # fmt: skip
-            if len(runs) <= _MAX_SHOWN_RUNS:
-                top.legend(loc="upper left", ncol=2 if len(runs) > 4 else 1, fontsize=8)
         top.set_ylabel(
             "hypervolume, % of the best\nreached (higher is better)" if best > 0 else "hypervolume"
         )
@@ -1270,7 +1271,7 @@ def plot_history(
         reason = _common_reason(stop_reason) if len(runs) > 1 else stop_reason
         if reason:
             text += f":\n{_short(reason, 60)}"
-        top.annotate(
+        note = top.annotate(
             _plain(text),
             (last_x, 0.06),
             xycoords=("data", "axes fraction"),
@@ -1307,6 +1308,15 @@ def plot_history(
         top.set_ylim(bottom=min(0.0, float(np.min(hv))))
         bottom.set_ylim(bottom=0)
         _title(fig, title)
+        if 1 < len(runs) <= _MAX_SHOWN_RUNS:
+            _place_legend(
+                top,
+                [line for line in top.lines if not line.get_label().startswith("_")],
+                np.column_stack([evals, hv]),
+                avoid=[note],
+                ncol=2 if len(runs) > 4 else 1,
+                fontsize=8,
+            )
     return fig
 
 
