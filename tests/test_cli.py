@@ -214,6 +214,9 @@ def test_plot_draws_a_front_csv_written_by_front_or_pick_or_named_by_min_max(tmp
     refused = runner.invoke(main, ["plot", str(raw)])
     assert refused.exit_code == 2 and refused.output.count("\n") == 1
     assert refused.output.startswith("Error: ") and "raw.json" in refused.output
+    missing = runner.invoke(main, ["plot", str(tmp_path / "gone.csv")])
+    assert missing.exit_code == 2 and missing.output.count("\n") == 1
+    assert "not a run folder or a front CSV" in missing.output
 
 
 def test_plot_kind_all_draws_what_applies_and_skips_the_rest_with_one_line_each(tmp_path):

@@ -683,6 +683,8 @@ def test_legend_takes_a_corner_that_covers_no_point():
     area = fig.axes[0].get_window_extent()
     box = fig.axes[0].get_legend().get_window_extent()
     assert area.x0 <= box.x0 and box.x1 <= area.x1 and area.y0 <= box.y0 and box.y1 <= area.y1
+    assert fig.axes[0].texts, "the knee's label is drawn"
+    assert not any(box.overlaps(t.get_window_extent()) for t in fig.axes[0].texts)
     legend = fig.axes[0].get_legend()
     for corner in ("upper right", "upper left", "lower right"):  # the filled corners, as meant
         legend.set_loc(corner)

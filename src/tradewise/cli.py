@@ -777,6 +777,11 @@ def plot_command(run, kind, out, row, variables, minimise, maximise) -> None:
 
     path = Path(run)
     is_csv = path.is_file()
+    if not is_csv and not path.is_dir():
+        raise DataError(
+            f"{run}: not a run folder or a front CSV; give the folder that `tradewise run` wrote, "
+            "or a CSV written by `front` or `pick`"
+        )
     kinds = _PLOT_KINDS if kind == "all" else (kind,)
     targets = {k: _figure_path(path, k, out, is_csv=is_csv, several=kind == "all") for k in kinds}
     for target in targets.values():

@@ -661,6 +661,7 @@ def _front_figure(
                 ax,
                 _legend_handles(front, cloud, marks, listed, narrowing),
                 np.vstack([front.points()[:, :2], *(part[:, :2] for part in cloud)]),
+                avoid=list(ax.texts),  # the labels of the knee, the picks and the shortlist
             )
         else:
             fig = _front_matrix(
