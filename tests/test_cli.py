@@ -1,11 +1,14 @@
-"""The command line: run, check and cases, through click's CliRunner."""
+"""The command line: run, check, cases and plot, through click's CliRunner."""
 
 from __future__ import annotations
 
 import json
+import shutil
+from pathlib import Path
 
 import pandas as pd
 from click.testing import CliRunner
+from PIL import Image
 
 from support import CASES
 from tradewise.cli import main
@@ -165,3 +168,100 @@ def test_resume_of_a_finished_run_says_it_has_nothing_to_do(tmp_path):
     assert again.exit_code == 0, again.output
     assert "nothing to do" in again.output and "--evaluations N with N above 200" in again.output
     assert (out / "front.json").stat().st_mtime_ns == before
+
+
+# ------------------------------------------------------------------------------ plot
+FIXTURE_RUNS = Path(__file__).parent / "fixtures" / "runs"
+
+
+def _copied(name: str, tmp_path) -> Path:
+    """A fixture run folder copied out, so that figures written beside it leave the fixture alone."""
+    folder = tmp_path / name
+    shutil.copytree(FIXTURE_RUNS / name, folder)
+    return folder
+
+
+def _is_png(path: Path) -> bool:
+    with Image.open(path) as image:
+        return image.format == "PNG" and image.size[0] > 600
+
+
+def test_plot_draws_a_front_csv_written_by_front_or_pick_or_named_by_min_max(tmp_path):
+    """`plot FILE.csv` draws a front from `front --out`, a shortlist from `pick --out` and a plain CSV
+    given --min/--max, beside the file as NAME-KIND.png; a plain CSV without them is one error line."""
+    run = _copied("mixed", tmp_path)
+    runner = CliRunner()
+    made = runner.invoke(
+        main, ["front", str(run / "front.csv"), "--min", "cost", "--max", "life",
+               "--out", str(tmp_path / "plain.csv")],
+    )  # fmt: skip
+    assert made.exit_code == 0, made.output
+    drawn = runner.invoke(main, ["plot", str(tmp_path / "plain.csv")])
+    assert drawn.exit_code == 0, drawn.output
+    assert _is_png(tmp_path / "plain-front.png")
+    picked = runner.invoke(
+        main, ["pick", str(run), "--top", "3", "--out", str(tmp_path / "short.csv")]
+    )
+    assert picked.exit_code == 0, picked.output
+    drawn = runner.invoke(main, ["plot", str(tmp_path / "short.csv"), "--kind", "parallel"])
+    assert drawn.exit_code == 0, drawn.output
+    assert _is_png(tmp_path / "short-parallel.png")
+    raw = tmp_path / "raw.csv"
+    shutil.copy(run / "front.csv", raw)
+    drawn = runner.invoke(main, ["plot", str(raw), "--min", "cost", "--max", "life"])
+    assert drawn.exit_code == 0, drawn.output
+    assert _is_png(tmp_path / "raw-front.png")
+    refused = runner.invoke(main, ["plot", str(raw)])
+    assert refused.exit_code == 2 and refused.output.count("\n") == 1
+    assert refused.output.startswith("Error: ") and "raw.json" in refused.output
+    missing = runner.invoke(main, ["plot", str(tmp_path / "gone.csv")])
+    assert missing.exit_code == 2 and missing.output.count("\n") == 1
+    assert "not a run folder or a front CSV" in missing.output
+
+
+def test_plot_kind_all_draws_what_applies_and_skips_the_rest_with_one_line_each(tmp_path):
+    """--kind all: a run of three seeds gets all four figures; three objectives skip attainment; a front
+    CSV of two objectives without variables gets the front alone and one line for each other kind."""
+    runner = CliRunner()
+    seeds = _copied("mixed-seeds", tmp_path)
+    result = runner.invoke(main, ["plot", str(seeds), "--kind", "all"])
+    assert result.exit_code == 0, result.output
+    assert "Skipped" not in result.output
+    assert all(_is_png(seeds / f"{k}.png") for k in ("front", "parallel", "history", "attainment"))
+    three = _copied("heat-sink", tmp_path)
+    result = runner.invoke(
+        main, ["plot", str(three), "--kind", "all", "--out", str(tmp_path / "f" / "hs.svg")]
+    )
+    assert result.exit_code == 0, result.output
+    assert [
+        line.split(":")[0] for line in result.output.splitlines() if line.startswith("Skipped")
+    ] == ["Skipped attainment"]
+    assert "two objectives, and this front has 3" in result.output
+    assert sorted(p.name for p in (tmp_path / "f").iterdir()) == [
+        "hs-front.svg", "hs-history.svg", "hs-parallel.svg"
+    ]  # fmt: skip
+    made = runner.invoke(
+        main, ["front", str(seeds / "front.csv"), "--min", "cost", "--max", "life",
+               "--out", str(tmp_path / "plain.csv")],
+    )  # fmt: skip
+    assert made.exit_code == 0, made.output
+    result = runner.invoke(main, ["plot", str(tmp_path / "plain.csv"), "--kind", "all"])
+    assert result.exit_code == 0, result.output
+    lines = result.output.splitlines()
+    assert lines[0] == f"Wrote {tmp_path / 'plain-front.png'}" and len(lines) == 4
+    skipped = [line.split(":")[0] for line in lines[1:]]
+    assert skipped == ["Skipped parallel", "Skipped history", "Skipped attainment"]
+    assert "two objectives and nothing else" in lines[1] and "history.csv" in lines[2]
+    assert not (tmp_path / "plain-parallel.png").exists()
+
+
+def test_plot_parallel_of_two_objectives_alone_is_one_error_line(tmp_path):
+    """Asked for parallel coordinates of two objectives with nothing else, plot draws nothing and says why."""
+    table = tmp_path / "t.csv"
+    table.write_text("cost,mass\n1,3\n2,2\n3,1\n", encoding="utf-8")
+    result = CliRunner().invoke(
+        main, ["plot", str(table), "--kind", "parallel", "--min", "cost", "--min", "mass"]
+    )
+    assert result.exit_code == 2 and result.output.count("\n") == 1, result.output
+    assert "two objectives and nothing else are not drawn" in result.output
+    assert not (tmp_path / "t-parallel.png").exists()

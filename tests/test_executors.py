@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import json
+import logging
 import os
 import signal
 import sqlite3
@@ -20,7 +21,13 @@ import tradewise
 from tradewise.case import load_case
 from tradewise.cli import main
 from tradewise.errors import TradewiseError
-from tradewise.executors import DaskCluster, InProcess, ProcessPool, make_executor
+from tradewise.executors import (
+    POOL_SLOWDOWN_TO_WARN,
+    DaskCluster,
+    InProcess,
+    ProcessPool,
+    make_executor,
+)
 from tradewise.models import make_model
 
 MODEL = """
@@ -300,6 +307,90 @@ def test_each_evaluation_is_reported_before_the_generation_ends(case, monkeypatc
     assert len(stamps) == 8 and len(rows) == 1
     # 8 designs of 0.1 s on 2 workers take about 0.4 s; the first result arrives after about 0.1 s.
     assert rows[0] - stamps[0] >= 0.2
+
+
+# ----------------------------------------------------------------- a pool that does not pay
+SLOWER = "Workers slow this model down"
+
+
+class _Notes(logging.Handler):
+    """Keeps the messages of the "tradewise" logger (the command line may have stopped propagation)."""
+
+    def __init__(self) -> None:
+        super().__init__(logging.INFO)
+        self.lines: list[str] = []
+
+    def emit(self, record: logging.LogRecord) -> None:
+        self.lines.append(record.getMessage())
+
+
+@pytest.fixture
+def notes():
+    handler = _Notes()
+    logger = logging.getLogger("tradewise")
+    logger.addHandler(handler)
+    try:
+        yield handler.lines
+    finally:
+        logger.removeHandler(handler)
+
+
+# No call into the operating system at all: even time.sleep(0) gives up the processor, which on a
+# busy machine can take as long as the hand-off itself.
+QUICK_MODEL = """
+def evaluate(design):
+    return {"cost": design["x"], "mass": (1 - design["x"]) ** 2 + 0.1}
+"""
+
+
+@pytest.fixture
+def quick(make_case):
+    """A case whose model answers in about a microsecond."""
+    return make_case(TOML.replace("MODES", '["ok", "heavy"]').replace("TIMEOUT", ""), QUICK_MODEL)
+
+
+def _batches(pool, model, *, sleep: float, n_batches: int = 3) -> None:
+    designs = [{"x": k / 20, "mode": "ok", "sleep": sleep} for k in range(1, 17)]
+    for _ in range(n_batches):
+        assert [s for s, _, _ in _outcomes(pool, model, designs)] == ["ok"] * len(designs)
+
+
+def test_a_pool_says_once_that_it_slows_a_quick_model_down(quick, notes):
+    """A model that answers in microseconds, in a pool of 2: one notice over four batches, naming the
+    model's time, the hand-off cost and the way out (a hand-off of a design to another process costs
+    far more than a few microseconds: common practice, and measured at about 0.5 ms here)."""
+    with ProcessPool(2) as pool:
+        _batches(pool, make_model(load_case(quick)), sleep=0.0, n_batches=4)
+    said = [line for line in notes if SLOWER in line]
+    assert len(said) == 1, notes
+    assert "a design (median)" in said[0] and "2 worker processes costs about" in said[0]
+    assert said[0].endswith("it runs faster without --workers.")
+
+
+def test_a_pool_says_nothing_for_a_model_that_takes_50_ms(case, notes):
+    """A model that sleeps 0.05 s a design: two workers halve the time per design, so no notice."""
+    with ProcessPool(2) as pool:
+        _batches(pool, make_model(case(("ok", "heavy"))), sleep=0.05)
+    assert not [line for line in notes if SLOWER in line]
+    assert POOL_SLOWDOWN_TO_WARN > 1  # the notice means slower than one process, never a close call
+
+
+def test_the_batch_that_starts_the_pool_is_not_judged(quick, notes):
+    """One batch of a quick model is all the pool's start-up; no notice comes from it alone."""
+    with ProcessPool(2) as pool:
+        _batches(pool, make_model(load_case(quick)), sleep=0.0, n_batches=1)
+    assert not [line for line in notes if SLOWER in line]
+
+
+def test_run_with_workers_on_a_quick_model_says_so_once_on_stderr(quick, tmp_path):
+    """`run --workers 2` on a model of microseconds: the notice is one line on standard error, once."""
+    result = CliRunner().invoke(
+        main,
+        ["run", str(quick), "--workers", "2", "--evaluations", "96", "--out", str(tmp_path / "r")],
+    )
+    assert result.exit_code == 0, result.output
+    said = [line for line in result.stderr.splitlines() if SLOWER in line]
+    assert len(said) == 1 and SLOWER not in result.stdout
 
 
 # -------------------------------------------------------------------------- dying workers

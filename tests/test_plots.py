@@ -262,13 +262,13 @@ def test_parallel_highlight_follows_the_design_with_better_up():
 
 def test_parallel_turns_maximised_objectives_so_better_is_still_up():
     """For a maximised objective the largest value is drawn at the top."""
-    table = pd.DataFrame({"cost": [1.0, 2.0, 4.0], "life": [2.0, 5.0, 9.0]})
+    table = pd.DataFrame({"cost": [1.0, 2.0, 4.0], "life": [2.0, 5.0, 9.0], "size": [1, 2, 3]})
     front = Front.from_table(
-        table, [Objective("cost", "min", "EUR"), Objective("life", "max", "h")]
+        table, [Objective("cost", "min", "EUR"), Objective("life", "max", "h")], variables=["size"]
     )
-    fig = plots.plot_parallel(front, highlight=2)
+    fig = plots.plot_parallel(front, highlight=2, variables=True)
     line = next(a for a in fig.axes[0].lines if a.get_gid() == "highlight-line")
-    assert list(line.get_ydata()) == pytest.approx([0.0, 1.0])
+    assert list(line.get_ydata())[:2] == pytest.approx([0.0, 1.0])
 
 
 def _as_drawn(history: pd.DataFrame) -> pd.DataFrame:
@@ -588,7 +588,7 @@ def test_figures_leave_the_callers_matplotlib_settings_alone(tmp_path):
     before = dict(matplotlib.rcParams)
     front = zdt1_front()
     plots.save_figure(plots.plot_front(front, knee=None), tmp_path / "a.svg")
-    plots.to_svg(plots.plot_parallel(front, highlight=None))
+    plots.to_svg(plots.plot_parallel(front, highlight=None, variables=True))
     assert matplotlib.get_backend() == before_backend
     after = dict(matplotlib.rcParams)
     changed = [k for k in before if str(before[k]) != str(after[k])]
@@ -621,7 +621,7 @@ def test_bad_rows_and_empty_inputs_raise_data_errors():
     with pytest.raises(DataError, match="knee: 99"):
         plots.plot_front(front, knee=99)
     with pytest.raises(DataError, match="highlight"):
-        plots.plot_parallel(front, highlight=-1)
+        plots.plot_parallel(front, highlight=-1, variables=True)
     with pytest.raises(DataError, match="no designs"):
         plots.plot_front(front.with_table(front.table.iloc[0:0]))
     with pytest.raises(DataError, match="history"):
@@ -644,9 +644,106 @@ def test_auto_knee_is_marked_only_on_a_front_with_a_knee():
     assert not choose.find_knees(curve).has_knee
     legends = [
         plots.plot_front(curve, knee="auto").axes[0].get_legend(),
-        plots.plot_parallel(curve, highlight="auto").axes[0].get_legend(),
+        plots.plot_parallel(curve, highlight="auto", variables=True).axes[0].get_legend(),
     ]
     for legend in legends:
         assert not any("knee" in t.get_text() for t in legend.get_texts())
-    assert 'id="highlight-line' not in plots.to_svg(plots.plot_parallel(curve, highlight="auto"))
+    drawn = plots.plot_parallel(curve, highlight="auto", variables=True)
+    assert 'id="highlight-line' not in plots.to_svg(drawn)
     assert 'id="mark-1' not in plots.to_svg(plots.plot_front(curve, knee="auto"))
+
+
+# ------------------------------------------------------------------------------- legend and parallel
+def _covered_points(fig) -> int:
+    """How many plotted points (scatter markers and line vertices, in display coordinates) lie inside the
+    legend's box, after the figure is laid out as it is drawn."""
+    fig.draw_without_rendering()
+    ax = fig.axes[0]
+    box = ax.get_legend().get_window_extent()
+    shown = [c.get_offset_transform().transform(c.get_offsets()) for c in ax.collections]
+    shown += [line.get_transform().transform(line.get_xydata()) for line in ax.lines]
+    xy = np.vstack([p for p in shown if len(p)])
+    inside = (
+        (xy[:, 0] >= box.x0) & (xy[:, 0] <= box.x1) & (xy[:, 1] >= box.y0) & (xy[:, 1] <= box.y1)
+    )
+    return int(inside.sum())
+
+
+def test_legend_takes_a_corner_that_covers_no_point():
+    """ZDT1's front (Zitzler, Deb and Thiele 2000) with dominated points behind it fills the upper left,
+    upper right and lower right of the view; the legend sits inside the plot area over none of them."""
+    front = zdt1_front()
+    rng = np.random.default_rng(1)
+    behind = pd.DataFrame(
+        {"mass": rng.uniform(500, 1300, 300), "cost": rng.uniform(35, 80, 300), "feasible": True}
+    )
+    fig = plots.plot_front(
+        front, evaluations=pd.concat([cloud_for(front, n=400), behind]), title="a title"
+    )
+    assert _covered_points(fig) == 0
+    area = fig.axes[0].get_window_extent()
+    box = fig.axes[0].get_legend().get_window_extent()
+    assert area.x0 <= box.x0 and box.x1 <= area.x1 and area.y0 <= box.y0 and box.y1 <= area.y1
+    assert fig.axes[0].texts, "the knee's label is drawn"
+    assert not any(box.overlaps(t.get_window_extent()) for t in fig.axes[0].texts)
+    legend = fig.axes[0].get_legend()
+    for corner in ("upper right", "upper left", "lower right"):  # the filled corners, as meant
+        legend.set_loc(corner)
+        assert _covered_points(fig) > 0, corner
+
+
+def test_legend_goes_outside_when_every_corner_holds_points():
+    """Infeasible designs scattered over the whole view leave no free corner: the legend moves to the
+    right of the plot area and still covers no point."""
+    front = zdt1_front()
+    grid = np.array([[m, c] for m in np.linspace(150, 1050, 12) for c in np.linspace(5, 65, 12)])
+    evaluations = pd.DataFrame(grid, columns=["mass", "cost"]).assign(feasible=False)
+    fig = plots.plot_front(front, evaluations=evaluations)
+    assert _covered_points(fig) == 0
+    assert fig.axes[0].get_legend().get_window_extent().x0 > fig.axes[0].get_window_extent().x1
+
+
+def test_attainment_legend_covers_no_corner_of_a_staircase():
+    """The attainment figure places its legend by the same rule: no staircase corner lies under it."""
+    surfaces = {
+        "best": [[0.0, 1.0], [0.3, 0.5], [0.6, 0.2], [1.0, 0.0]],
+        "median": [[0.1, 1.0], [0.4, 0.6], [0.7, 0.3], [1.0, 0.1]],
+        "worst": [[0.2, 1.0], [0.5, 0.7], [0.8, 0.4], [1.0, 0.2]],
+    }
+    fig = plots.plot_attainment(
+        surfaces, [Objective("cost"), Objective("mass")],
+        levels={"best": 1, "median": 2, "worst": 3}, n_runs=3,
+    )  # fmt: skip
+    assert _covered_points(fig) == 0
+
+
+def test_parallel_of_two_objectives_alone_is_not_drawn_but_with_variables_is():
+    """Two objective axes and nothing else raise DataError saying why; plot_kind adds the front's
+    variables to a two-objective parallel figure, and four objectives alone draw as before."""
+    front = zdt1_front()
+    with pytest.raises(DataError, match="two objectives and nothing else"):
+        plots.plot_parallel(front)
+    fig = plots.plot_kind("parallel", front)
+    labels = [t.get_text() for t in fig.axes[0].get_xticklabels()]
+    assert len(labels) == 4 and labels[2].startswith("width") and labels[3] == "grade"
+    bare = front.with_table(front.table[["mass", "cost"]])
+    with pytest.raises(DataError, match="two objectives and nothing else"):
+        plots.plot_kind("parallel", bare)
+    assert len(plots.plot_parallel(sphere_front(4)).axes[0].get_xticklabels()) == 4
+
+
+def test_history_legend_covers_no_point_and_not_the_note():
+    """Three seeds whose hypervolume rises fast fill the upper left (where the legend used to sit): the
+    legend covers no marker or line vertex of the upper panel and does not overlap the stop note."""
+    parts = []
+    for seed, rate in {1: 60, 2: 90, 3: 40}.items():
+        part = history_table(30).assign(seed=seed)
+        part["hypervolume"] = 0.8 * (1 - np.exp(-part["evaluations"] / rate))
+        parts.append(part)
+    fig = plots.plot_history(pd.concat(parts, ignore_index=True), stop_reason="budget used")
+    assert _covered_points(fig) == 0
+    top = fig.axes[0]
+    legend = top.get_legend().get_window_extent()
+    assert not any(legend.overlaps(t.get_window_extent()) for t in top.texts)
+    top.get_legend().set_loc("upper left")  # the old place, covered as meant
+    assert _covered_points(fig) > 0

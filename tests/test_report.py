@@ -792,3 +792,13 @@ def test_a_design_has_one_number_in_pick_the_shortlist_file_and_the_page(tmp_pat
         row for row in re.findall(r"<tr[^>]*>(.*?)</tr>", table, re.S) if "shortlist 1" in row
     ]
     assert len(tagged) == 1 and f'data-value="{number}">{number}</td>' in tagged[0]
+
+
+def test_a_two_objective_front_without_variables_has_no_parallel_figure():
+    """Two objectives and no variable: the page leaves parallel coordinates out (two axes alone say less
+    than the scatter) and keeps the front figure; with its variable the same front gets the figure."""
+    front = small_front()
+    bare = front.with_table(front.table[["cost", "mass"]])
+    page = build_report(bare)
+    assert 'id="front-' in page and 'id="parallel-' not in page
+    assert 'id="parallel-' in build_report(front)

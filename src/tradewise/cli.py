@@ -742,71 +742,154 @@ def _run_inputs(run) -> list:
     return [folder / name for folder in folders for name in sorted(DATA_FILES)]
 
 
+#: Every figure kind `plot --kind all` tries, in the order drawn.
+_PLOT_KINDS = ("front", "parallel", "history", "attainment")
+
+
 @main.command("plot")
 @click.argument("run", metavar="RUN")
 @click.option(
     "--kind",
-    type=click.Choice(["front", "parallel", "history", "attainment"]),
+    type=click.Choice([*_PLOT_KINDS, "all"]),
     default="front",
     show_default=True,
     help="front: the best designs over all the others; parallel: one line a design; "
     "history: hypervolume and front size as the search went (a line per seed); "
-    "attainment: what the best, median and worst of several seeds reached (run --seeds).",
+    "attainment: what the best, median and worst of several seeds reached (run --seeds); "
+    "all: every one of these that RUN has the data for.",
 )
 @click.option(
     "--out",
     type=click.Path(dir_okay=False),
-    help="PNG, SVG or PDF file to write (default RUN/KIND.png).",
+    help="PNG, SVG or PDF file to write (default RUN/KIND.png, or NAME-KIND.png beside a CSV); "
+    "with --kind all, each figure's kind is added to the name.",
 )
 @click.option(
     "--design",
-    type=int,
     metavar="N",
-    help="Mark design N (its evaluation number, the eval_id column of front.csv).",
+    help="Mark design N: its evaluation number (eval_id) in a run, its data row or key in a CSV.",
 )
 @click.option("--variables", is_flag=True, help="parallel: add an axis for each variable.")
-def plot_command(run, kind, out, design, variables) -> None:
-    """Draw a figure of the run folder RUN.
+@click.option(
+    "--min",
+    "minimise",
+    multiple=True,
+    metavar="COL",
+    help="For a plain CSV: a column to make small.",
+)
+@click.option(
+    "--max",
+    "maximise",
+    multiple=True,
+    metavar="COL",
+    help="For a plain CSV: a column to make large.",
+)
+def plot_command(run, kind, out, design, variables, minimise, maximise) -> None:
+    """Draw a figure of RUN: a run folder, or a front CSV written by `front` or `pick`.
 
-    The knee design is marked when the choosing methods find one; --design
-    marks another. Axes carry each objective's unit and which way is better.
+    A CSV needs its .json beside it, or --min/--max naming its objectives
+    (as for pick). The knee design is marked when the choosing methods find
+    one; --design marks another. Axes carry each objective's unit and which
+    way is better. With --kind all, a figure RUN has no data for is skipped
+    with one line saying why.
     """
     from pathlib import Path
 
     from tradewise.errors import DataError
-    from tradewise.plots import plot_attainment, plot_kind, save_figure
-    from tradewise.runfolder import read_run, read_seeds
+    from tradewise.plots import save_figure
 
-    _check_out(out, _run_inputs(run))
-    front, history, evaluations = read_run(run, evaluations=kind == "front")
+    path = Path(run)
+    is_csv = path.is_file()
+    if not is_csv and not path.is_dir():
+        raise DataError(
+            f"{run}: not a run folder or a front CSV; give the folder that `tradewise run` wrote, "
+            "or a CSV written by `front` or `pick`"
+        )
+    kinds = _PLOT_KINDS if kind == "all" else (kind,)
+    targets = {k: _figure_path(path, k, out, is_csv=is_csv, several=kind == "all") for k in kinds}
+    for target in targets.values():
+        _check_out(target, _run_inputs(run))
+    if is_csv:
+        from tradewise.front import front_from_csv, read_front
+
+        if minimise or maximise:
+            front = front_from_csv(path, minimise=minimise, maximise=maximise)
+        else:
+            front = read_front(path)
+        history = evaluations = None
+    else:
+        from tradewise.runfolder import read_run
+
+        front, history, evaluations = read_run(run, evaluations="front" in kinds)
     row = None
     if design is not None:
-        ids = front.design_ids()
-        if design not in ids:
-            shown = ", ".join(str(i) for i in sorted(ids)[:8]) + (", ..." if len(ids) > 8 else "")
+        ids = [str(i) for i in front.design_ids()]
+        if design.strip() not in ids:
+            shown = ", ".join(ids[:8]) + (", ..." if len(ids) > 8 else "")
             raise DataError(
                 f"--design: {design} is not a design of this front; its designs: {shown}"
             )
-        row = ids.index(design)
-    if kind == "attainment":
-        _, surfaces = read_seeds(run, front)
-        if surfaces is None:
-            raise DataError(
-                f"{run}: has no attainment.csv and no seeds/ folder; attainment surfaces come "
-                "from several seeds, made with `tradewise run CASE --seeds K`"
-            )
-        fig = plot_attainment(surfaces, front.objectives, title=front.info.title)
-    else:
-        fig = plot_kind(
-            kind,
-            front,
-            history=history,
-            evaluations=evaluations,
-            highlight=row,
-            variables=variables,
+        row = ids.index(design.strip())
+    for k in kinds:
+        drawn = _figure(
+            k, run, front, history, evaluations, is_csv=is_csv, row=row, variables=variables
         )
-    path = save_figure(fig, Path(out) if out else Path(run) / f"{kind}.png")
-    click.echo(f"Wrote {path}")
+        if isinstance(drawn, str):
+            if kind != "all":
+                raise DataError(drawn)
+            click.echo(f"Skipped {k}: {drawn}")
+            continue
+        click.echo(f"Wrote {save_figure(drawn, targets[k])}")
+
+
+def _figure_path(path, kind: str, out, *, is_csv: bool, several: bool):
+    """Where `plot` writes the figure of ``kind``: --out (its name plus the kind, for several), or beside RUN."""
+    from pathlib import Path
+
+    if out:
+        out = Path(out)
+        return out.with_name(f"{out.stem}-{kind}{out.suffix}") if several else out
+    return path.with_name(f"{path.stem}-{kind}.png") if is_csv else path / f"{kind}.png"
+
+
+def _figure(kind: str, run, front, history, evaluations, *, is_csv: bool, row, variables):
+    """The figure of ``kind``, or one sentence saying why RUN cannot give it."""
+    from tradewise.plots import TWO_AXES, plot_attainment, plot_kind
+
+    source = "a front CSV holds designs only" if is_csv else f"{run} has no history.csv"
+    if kind == "history" and history is None:
+        return f"convergence is drawn from a run folder's history.csv, and {source}"
+    if kind == "parallel" and len(front.objectives) == 2:
+        present = [v for v in front.variables if v in front.table.columns]
+        if not present:
+            return f"{TWO_AXES}; {run} has no variables to add"
+    if kind == "attainment":
+        if len(front.objectives) != 2:
+            return f"attainment surfaces are drawn for two objectives, and this front has {len(front.objectives)}"
+        surfaces = None
+        if not is_csv:
+            from tradewise.runfolder import read_seeds
+
+            _, surfaces = read_seeds(run, front)
+        if surfaces is None:
+            where = (
+                "a front CSV holds designs only"
+                if is_csv
+                else (f"{run} has no attainment.csv and no seeds/ folder")
+            )
+            return (
+                f"{where}; attainment surfaces come from several seeds, made with "
+                "`tradewise run CASE --seeds K`"
+            )
+        return plot_attainment(surfaces, front.objectives, title=front.info.title)
+    return plot_kind(
+        kind,
+        front,
+        history=history,
+        evaluations=evaluations,
+        highlight=row,
+        variables=variables,
+    )
 
 
 @main.command("report")

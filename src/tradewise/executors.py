@@ -10,6 +10,7 @@ only it can see: a worker process that died, a task the cluster lost.
 from __future__ import annotations
 
 import concurrent.futures as cf
+import logging
 import os
 import shutil
 import tempfile
@@ -21,10 +22,20 @@ from collections.abc import Callable, Iterator, Sequence
 from pathlib import Path
 from typing import Any
 
+from tradewise import format as fmt
 from tradewise.errors import CaseError, ModelError
 from tradewise.models import Outcome, stop_programs
 
-__all__ = ["InProcess", "ProcessPool", "DaskCluster", "make_executor"]
+__all__ = ["InProcess", "ProcessPool", "DaskCluster", "make_executor", "POOL_SLOWDOWN_TO_WARN"]
+
+#: A process pool is said to slow a model down when a design takes more than this many times the
+#: model's median time per design of the run's wall time (the time it would take in this process).
+#: Our own rule of thumb: at 2 the hand-off to a worker costs at least three times the model's work
+#: with two workers, so the note is never a close call.
+POOL_SLOWDOWN_TO_WARN = 2.0
+#: Designs measured (in batches that did not start the pool) before the pool is judged.
+_JUDGE_AFTER = 16
+_log = logging.getLogger("tradewise")
 
 Model = Callable[[dict[str, Any]], Outcome]
 
@@ -136,9 +147,11 @@ class ProcessPool(InProcess):
         self.workers = workers
         self._pool: cf.ProcessPoolExecutor | None = None
         self.n_restarts = 0
+        self._cost = _HandOff(workers)
 
     def _get_pool(self) -> cf.ProcessPoolExecutor:
         if self._pool is None:
+            self._cost.started_pool = True
             self._pool = cf.ProcessPoolExecutor(
                 max_workers=self.workers, initializer=_watch_parent, initargs=(os.getpid(),)
             )
@@ -151,12 +164,21 @@ class ProcessPool(InProcess):
             self.n_restarts += 1
 
     def run(self, model: Model, designs: Sequence[dict[str, Any]]) -> Iterator[tuple[int, Outcome]]:
-        """Yield ``(position, outcome)`` for each design as it completes."""
+        """Yield ``(position, outcome)`` for each design as it completes.
+
+        Once per pool, when a model proves quicker than handing it a design, a
+        notice on the "tradewise" logger says so (see :data:`POOL_SLOWDOWN_TO_WARN`).
+        """
         marks = _marks_folder()
+        self._cost.begin()
+        durations: list[float] = []
         try:
-            yield from self._run(model, designs, marks)
+            for i, outcome in self._run(model, designs, marks):
+                durations.append(outcome.duration)
+                yield i, outcome
         finally:
             shutil.rmtree(marks, ignore_errors=True)
+        self._cost.end(durations)
 
     def _run(
         self, model: Model, designs: Sequence[dict[str, Any]], marks: Path
@@ -238,6 +260,52 @@ class ProcessPool(InProcess):
         if self._pool is not None:
             self._pool.shutdown(wait=True, cancel_futures=True)
             self._pool = None
+
+
+class _HandOff:
+    """What a process pool costs per design against the model's own time, told once when it loses.
+
+    The wall time of a batch is taken from its start to its last result; a
+    batch in which the pool (re)started is left out, since starting the worker
+    processes is paid once and is not a cost per design.
+    """
+
+    def __init__(self, workers: int) -> None:
+        self.workers = workers
+        self.started_pool = False
+        self.told = False
+        self.wall = 0.0
+        self.durations: list[float] = []
+        self._start = 0.0
+
+    def begin(self) -> None:
+        self.started_pool = False
+        self._start = time.perf_counter()
+
+    def end(self, durations: list[float]) -> None:
+        if self.told or not durations or self.started_pool:
+            return
+        self.wall += time.perf_counter() - self._start
+        self.durations += durations
+        if len(self.durations) < _JUDGE_AFTER:
+            return
+        n = len(self.durations)
+        per_design = self.wall / n
+        model = float(sorted(self.durations)[n // 2])
+        if per_design > POOL_SLOWDOWN_TO_WARN * model:
+            self.told = True
+            # the worker time per design not spent in the model
+            handing = max(0.0, (self.wall * self.workers - sum(self.durations)) / n)
+            _log.warning(
+                "Workers slow this model down: it takes %s a design (median) and handing each "
+                "design to one of the %d worker processes costs about %s (the pool took %s of the "
+                "run's time a design); it runs faster without --workers.",
+                fmt.seconds(model),
+                self.workers,
+                fmt.seconds(handing),
+                fmt.seconds(per_design),
+            )
+        self.wall, self.durations = 0.0, []
 
 
 class DaskCluster(InProcess):

@@ -45,6 +45,7 @@ from tradewise.front import Front, objective_matrix
 __all__ = [
     "PALETTE",
     "FIGURE_KINDS",
+    "TWO_AXES",
     "axis_label",
     "plot_front",
     "plot_narrowed_front",
@@ -88,6 +89,12 @@ _SHADE = "#eeeef2"
 
 #: What ``plot_kind`` and the command line can draw from a run folder.
 FIGURE_KINDS = ("front", "parallel", "history")
+
+#: Why parallel coordinates of two objectives and nothing else are not drawn.
+TWO_AXES = (
+    "parallel coordinates of two objectives and nothing else are not drawn: two axes side by side "
+    "say less than the front's scatter of the same designs"
+)
 
 _STYLE = {
     "font.family": "DejaVu Sans",
@@ -444,6 +451,58 @@ def _key(label: str, **style: Any) -> Line2D:
     return Line2D([], [], linestyle="none", label=label, **style)
 
 
+#: Corners of the plot area a legend may take, in the order tried; the first that covers no point wins.
+_LEGEND_CORNERS = ("upper right", "upper left", "lower left", "lower right")
+#: Points (1/72 inch) of air a legend keeps around the centre of every plotted point: the radius of
+#: the largest mark (the shortlist ring, about 7 pt) so that no marker is even partly hidden.
+_LEGEND_CLEARANCE = 7.0
+
+
+def _place_legend(
+    ax, handles: Sequence[Any], points: np.ndarray, *, avoid: Sequence[Any] = (), **options: Any
+):
+    """Put the legend in the first corner of ``ax`` that covers none of ``points`` (data coordinates)
+    and overlaps none of the artists ``avoid`` (such as a note in the plot area).
+
+    The legend is measured where it is drawn, after the figure's layout is
+    settled (so a title must be set first); when every corner would cover
+    something, it goes outside the plot area, on the right.
+    """
+    fig = ax.get_figure(root=True)
+    legend = ax.legend(handles=handles, loc=_LEGEND_CORNERS[0], **options)
+    xy = np.asarray(points, dtype=float).reshape(-1, 2)
+    xy = xy[np.all(np.isfinite(xy), axis=1)]
+    fig.draw_without_rendering()  # settles the layout; the legend's box follows its corner after
+    boxes = [artist.get_window_extent() for artist in avoid]
+    for corner in _LEGEND_CORNERS:
+        legend.set_loc(corner)
+        extent = legend.get_window_extent()
+        if _covered(ax, legend, xy) == 0 and not any(extent.overlaps(b) for b in boxes):
+            return legend
+    legend.remove()
+    return ax.legend(
+        handles=handles, loc="upper left", bbox_to_anchor=(1.02, 1.0), borderaxespad=0.0, **options
+    )
+
+
+def _covered(ax, legend, xy: np.ndarray) -> int:
+    """How many of the points ``xy`` (data coordinates) inside the plot area lie under the legend."""
+    if not len(xy):
+        return 0
+    shown = ax.transData.transform(xy)
+    fraction = ax.transAxes.inverted().transform(shown)
+    in_view = np.all((fraction >= 0.0) & (fraction <= 1.0), axis=1)
+    box = legend.get_window_extent()
+    air = _LEGEND_CLEARANCE * ax.get_figure(root=True).dpi / 72.0
+    under = (
+        (shown[:, 0] >= box.x0 - air)
+        & (shown[:, 0] <= box.x1 + air)
+        & (shown[:, 1] >= box.y0 - air)
+        & (shown[:, 1] <= box.y1 + air)
+    )
+    return int(np.sum(under & in_view))
+
+
 def _legend_handles(
     front: Front,
     cloud: tuple[np.ndarray, np.ndarray],
@@ -597,12 +656,18 @@ def _front_figure(
             )
             if narrowing is not None:
                 _shade_limits(ax, front, 0, 1, narrowing)
-            ax.legend(handles=_legend_handles(front, cloud, marks, listed, narrowing), loc="best")
+            _title(fig, title)
+            _place_legend(
+                ax,
+                _legend_handles(front, cloud, marks, listed, narrowing),
+                np.vstack([front.points()[:, :2], *(part[:, :2] for part in cloud)]),
+                avoid=list(ax.texts),  # the labels of the knee, the picks and the shortlist
+            )
         else:
             fig = _front_matrix(
                 front, objectives, cloud, marks, rasterize, listed, narrowing, figure
             )
-        _title(fig, title)
+            _title(fig, title)
     return fig
 
 
@@ -888,6 +953,12 @@ def plot_parallel(
     Returns
     -------
     matplotlib.figure.Figure
+
+    Raises
+    ------
+    DataError
+        When the front is empty, or when the axes would be two objectives
+        and nothing else (:data:`TWO_AXES`).
     """
     if len(front) == 0:
         raise DataError("front: holds no designs, so there is nothing to draw")
@@ -903,6 +974,8 @@ def plot_parallel(
                 )
     else:
         extra = []
+    if len(objectives) == 2 and not extra:
+        raise DataError(f"{TWO_AXES}; name variables to add their axes")
     knee = None
     if isinstance(highlight, str):
         if highlight != "auto":
@@ -1172,8 +1245,6 @@ def plot_history(
                          label=_plain(label), **style)  # fmt: skip
                 bottom.plot(evals[rows], size[rows], markevery=every,
                             gid=f"front-size-seed-{seed}", **style)  # fmt: skip
-            if len(runs) <= _MAX_SHOWN_RUNS:
-                top.legend(loc="upper left", ncol=2 if len(runs) > 4 else 1, fontsize=8)
         top.set_ylabel(
             "hypervolume, % of the best\nreached (higher is better)" if best > 0 else "hypervolume"
         )
@@ -1205,7 +1276,7 @@ def plot_history(
         reason = _common_reason(stop_reason) if len(runs) > 1 else stop_reason
         if reason:
             text += f":\n{_short(reason, 60)}"
-        top.annotate(
+        note = top.annotate(
             _plain(text),
             (last_x, 0.06),
             xycoords=("data", "axes fraction"),
@@ -1242,6 +1313,15 @@ def plot_history(
         top.set_ylim(bottom=min(0.0, float(np.min(hv))))
         bottom.set_ylim(bottom=0)
         _title(fig, title)
+        if 1 < len(runs) <= _MAX_SHOWN_RUNS:
+            _place_legend(
+                top,
+                [line for line in top.lines if not line.get_label().startswith("_")],
+                np.column_stack([evals, hv]),
+                avoid=[note],
+                ncol=2 if len(runs) > 4 else 1,
+                fontsize=8,
+            )
     return fig
 
 
@@ -1391,8 +1471,11 @@ def plot_attainment(
         ax.set_ylabel(axis_label(objectives[1]))
         # the lines were drawn worst first so that the best lies on top; the legend lists best first
         handles = list(ax.patches) + list(reversed(ax.lines))
-        ax.legend(handles=handles, loc="best")
         _title(fig, title)
+        shown = [stairs[name] * sign for name in drawn]
+        if runs is not None:
+            shown += [np.asarray(run, dtype=float)[:, :2] for run in list(runs)[:_MAX_SHOWN_RUNS]]
+        _place_legend(ax, handles, np.vstack(shown))
     return fig
 
 
@@ -1513,6 +1596,8 @@ def plot_kind(
 
     ``highlight`` (a row position) is marked as a pick on the front and drawn
     boldly in parallel coordinates; the knee is found when it is not given.
+    Parallel coordinates of two objectives take the front's variables as well,
+    since two axes alone are not drawn (:data:`TWO_AXES`).
     """
     if kind not in FIGURE_KINDS:
         raise DataError(
@@ -1523,6 +1608,9 @@ def plot_kind(
         picks = {"chosen": highlight} if highlight is not None else None
         return plot_front(front, evaluations=evaluations, picks=picks, title=title)
     if kind == "parallel":
+        if len(front.objectives) == 2 and not variables:
+            # two axes alone say nothing the scatter does not; the variables make the figure worth it
+            variables = [v for v in front.variables if v in front.table.columns]
         return plot_parallel(
             front,
             highlight="auto" if highlight is None else highlight,
