@@ -18,6 +18,7 @@ from typing import Any
 
 import pandas as pd
 
+from tradewise import format as _format
 from tradewise import plots
 from tradewise.choose import METHODS, WEIGHTED_METHODS
 from tradewise.diagnose import pins_lines
@@ -115,7 +116,15 @@ def _png(fig, dpi: float = 96) -> bytes:
 
 # ----------------------------------------------------------------------------------- widgets
 class Picker:
-    """The widgets around a :class:`PickerState`: limits, preferences, figure, details, shortlist.
+    """The widgets around a :class:`PickerState`: rules, figure, moves, details, preferences, shortlist.
+
+    From the top: a box where limits are typed as rules (the syntax of
+    ``--limit``), each rule in force shown as an item that drops it; the
+    figure, with the representative set and what pins the front beside it;
+    the current design and the table of moves from it (what going to each
+    design next to it on the front, and to each shortlisted design, gains and
+    gives up, in units); its details and the method's list beside the
+    preferences; the shortlist and its export.
 
     Parameters
     ----------
@@ -186,43 +195,35 @@ class Picker:
         title = str(front.info.title or (f"Front of {source}" if source else "Front"))
         self._heading = w.HTML()
         self._title = title
-        self._sliders: dict[str, Any] = {}
-        limit_rows = []
-        for o in front.objectives:
-            low, high = state.span(o.name)
-            unit = front.units.get(o.name, o.unit) or ""
-            label = f"{o.name} [{unit}]" if unit else o.name
-            if high > low:
-                slider = w.FloatRangeSlider(
-                    value=(low, high),
-                    min=low,
-                    max=high,
-                    step=(high - low) / 200.0,
-                    readout_format=".4g",
-                    continuous_update=False,
-                    description=label,
-                    style={"description_width": "150px"},
-                    layout=w.Layout(width="460px"),
-                )
-                slider.observe(self._limit_moved(o.name), names="value")
-                self._sliders[o.name] = slider
-                limit_rows.append(slider)
-            else:
-                limit_rows.append(
-                    w.HTML(f"<i>{escape(label)}: every design has {show_value(low)}</i>")
-                )
-        reset = w.Button(description="Clear limits", icon="undo", layout=w.Layout(width="140px"))
+        names = ", ".join(o.name for o in front.objectives)
+        self._rule_text = w.Text(
+            placeholder="a rule such as " + _example_rule(state),
+            continuous_update=False,
+            layout=w.Layout(width="340px"),
+        )
+        self._rule_text.observe(self._rule_typed, names="value")
+        add_rule = w.Button(description="Add rule", icon="check", layout=w.Layout(width="120px"))
+        add_rule.on_click(lambda _b: self._add_rule(self._rule_text.value))
+        reset = w.Button(description="Drop all", icon="undo", layout=w.Layout(width="110px"))
         reset.on_click(lambda _b: self._act(state.clear_limits))
-        self.buttons = {"clear limits": reset}
+        self.buttons = {"add rule": add_rule, "clear limits": reset}
+        self._rule_error = w.HTML(layout=w.Layout(margin="0 0 0 8px"))
+        self._rules = w.Box(layout=w.Layout(flex_flow="row wrap", margin="4px 0"))
         self._count = w.HTML()
         limits_box = w.VBox(
             [
                 w.HTML(
-                    "<b>Limits</b> <span style='color:#666'>(designs outside are greyed)</span>"
+                    "<b>Rules</b> <span style='color:#5b6470'>on any column, as <code>--limit</code> "
+                    f"takes them ({escape(names)}, the variables, ...); designs that break one "
+                    "are greyed</span>"
                 ),
-                *limit_rows,
-                w.HBox([reset, self._count]),
-            ]
+                w.HBox([self._rule_text, add_rule, reset, self._rule_error]),
+                self._rules,
+                self._count,
+            ],
+            layout=w.Layout(
+                border="1px solid #c9d3cf", padding="6px 10px", margin="4px 0", width="100%"
+            ),
         )
 
         self._method = w.Dropdown(
@@ -282,7 +283,7 @@ class Picker:
             ]
         )
 
-        self._figure_box = w.Box(layout=w.Layout(width="100%", overflow="auto"))
+        self._figure_box = w.Box(layout=w.Layout(flex="1 1 560px", overflow="auto"))
         self._image = w.Image(format="png", layout=w.Layout(max_width="100%", height="auto"))
 
         self._designs = w.Dropdown(
@@ -337,21 +338,34 @@ class Picker:
         self._status = w.HTML()
         pins = "".join(f"<li>{escape(line)}</li>" for line in pins_lines(state.front))
         self._pins = w.HTML(
-            f"<details><summary><b>What pins this front</b></summary><ul>{pins}</ul></details>"
-            + self._representatives_html()
+            "<div style='font-weight:600;margin-top:8px'>What pins this front</div>"
+            f"<ul style='margin:2px 0;padding-left:18px'>{pins}</ul>"
         )
+        self._reps = w.HTML(self._representatives_html())
+        side = w.VBox(
+            [self._reps, self._pins],
+            layout=w.Layout(
+                flex="0 1 380px", padding="0 0 0 12px", border_left="3px solid #c9d3cf"
+            ),
+        )
+        self._moves = w.HTML(layout=w.Layout(width="100%", overflow="auto"))
+        self._move_to = w.Box(layout=w.Layout(flex_flow="row wrap"))
 
         self.widget = w.VBox(
             [
                 self._heading,
-                w.HBox(
-                    [limits_box, prefs_box], layout=w.Layout(flex_flow="row wrap", grid_gap="24px")
-                ),
-                self._figure_box,
-                self._pins,
+                limits_box,
+                w.HBox([self._figure_box, side], layout=w.Layout(flex_flow="row wrap")),
                 w.HBox([self._designs, follow, add]),
-                self._details,
-                self._ranking,
+                self._moves,
+                self._move_to,
+                w.HBox(
+                    [
+                        w.VBox([self._details, self._ranking], layout=w.Layout(flex="1 1 520px")),
+                        prefs_box,
+                    ],
+                    layout=w.Layout(flex_flow="row wrap", grid_gap="16px"),
+                ),
                 w.HTML("<b>Shortlist</b>"),
                 w.HBox([self._shortlist, drop]),
                 w.HBox([self._path, export, review]),
@@ -374,10 +388,6 @@ class Picker:
         state, front = self.state, self.state.front
         self._syncing = True
         try:
-            for name, slider in self._sliders.items():
-                low, high = state.bounds(name)
-                if tuple(slider.value) != (low, high):
-                    slider.value = (max(low, slider.min), min(high, slider.max))
             self._method.value = state.method
             weighted = state.method in WEIGHTED_METHODS
             for name, slider in self._weights.items():
@@ -395,7 +405,12 @@ class Picker:
         finally:
             self._syncing = False
         n_kept = int(state.kept.sum())
-        self._count.value = f"&nbsp; {n_kept} of {len(front)} designs within the limits"
+        self._count.value = (
+            f"<span style='color:#5b6470'>{n_kept} of {len(front)} designs keep every rule</span>"
+        )
+        self._rules.children = [self._rule_item(k, limit) for k, limit in enumerate(state.limits)]
+        self._moves.value = self._moves_html()
+        self._move_to.children = [self._move_button(m) for m in state.moves() if m["kept"]]
         self._heading.value = (
             f"<h3 style='margin:4px 0'>{escape(self._title)}</h3>"
             f"<div style='color:#555'>{len(front)} designs on the front; objectives "
@@ -460,13 +475,57 @@ class Picker:
         self.refresh()
         self._status.value = message
 
-    def _limit_moved(self, name: str) -> Callable[[dict], None]:
-        def moved(change: dict) -> None:
-            if not self._syncing:
-                low, high = change["new"]
-                self._act(self.state.set_limit, name, low, high)
+    def _rule_typed(self, change: dict) -> None:
+        if not self._syncing and change["new"].strip():
+            self._add_rule(change["new"])
 
-        return moved
+    def _add_rule(self, text: str) -> None:
+        """Add the typed rule; a rule that cannot be used stays in the box with one sentence beside it."""
+        if not text.strip():
+            self._rule_error.value = _error(
+                "Type a rule first, such as " + _example_rule(self.state) + "."
+            )
+            return
+        try:
+            self.state.add_limit(text)
+        except DataError as exc:
+            self._rule_error.value = _error(str(exc))
+            return
+        self._rule_error.value = ""
+        self._syncing = True
+        try:
+            self._rule_text.value = ""
+        finally:
+            self._syncing = False
+
+    def _rule_item(self, position: int, limit: Any):
+        """One rule in force: its text and a control that drops it."""
+        w = self._w
+        drop = w.Button(
+            icon="times",
+            tooltip=f"drop {limit}",
+            layout=w.Layout(width="28px", height="24px", padding="0"),
+        )
+        drop.on_click(lambda _b: self._act(self.state.remove_limit, position))
+        return w.HBox(
+            [w.HTML(f"<code style='background:none'>{escape(str(limit))}</code>"), drop],
+            layout=w.Layout(
+                border="1px solid #8fa8a0",
+                padding="0 0 0 8px",
+                margin="2px 6px 2px 0",
+                align_items="center",
+            ),
+        )
+
+    def _move_button(self, move: Mapping[str, Any]):
+        w = self._w
+        go = w.Button(
+            description=f"go to row {move['row'] + 1}",
+            tooltip=move["summary"],
+            layout=w.Layout(width="auto", margin="2px 6px 2px 0"),
+        )
+        go.on_click(lambda _b: self._act(self.state.select, move["row"]))
+        return go
 
     def _weight_moved(self, name: str) -> Callable[[dict], None]:
         def moved(change: dict) -> None:
@@ -563,25 +622,84 @@ class Picker:
         """The few designs that stand for the front (greedy hypervolume subset selection)."""
         front = self.state.front
         n = int(front.info.settings.get("representatives") or 20)
+        heading = "<div style='font-weight:600'>{}</div>"
         if len(front) <= n:
-            return ""
+            return heading.format(f"The front in {len(front)} designs: each stands for itself")
         try:
             table = representatives_table(front, n)
-        except DataError:
-            return ""
+        except DataError as exc:
+            return heading.format("The front in a few designs") + f"<div>{escape(str(exc))}</div>"
         names = [o.name for o in front.objectives]
-        head = "".join(f"<th>{escape(name)}</th>" for name in names)
+        head = "".join(f"<th style='text-align:right'>{escape(name)}</th>" for name in names)
         body = "".join(
-            f"<tr><td>row {int(r['front_row'])}</td><td>{escape(str(r['chosen_as']))}</td>"
+            f"<tr><td>row {int(r['front_row'])}</td><td style='color:#5b6470'>"
+            f"{escape(str(r['chosen_as']))}</td>"
             + "".join(
                 f"<td style='text-align:right'>{escape(show_value(r[name]))}</td>" for name in names
             )
             + "</tr>"
             for r in table.sort_values(names[0]).to_dict("records")
         )
+        return heading.format(f"The front in {len(table)} designs") + (
+            "<div style='max-height:320px;overflow:auto'><table style='font-size:92%'>"
+            f"<tr><th>row</th><th>chosen as</th>{head}</tr>{body}</table></div>"
+        )
+
+    def _moves_html(self) -> str:
+        """The table of moves from the current pick (see :meth:`PickerState.moves`)."""
+        state, front = self.state, self.state.front
+        if state.pick is None:
+            return ""
+        here = front.table.iloc[state.pick]
+        at = ", ".join(
+            f"{o.name} {_format.quantity(float(here[o.name]), front.units.get(o.name, o.unit))}"
+            for o in front.objectives
+        )
+        title = (
+            f"<div style='margin-top:6px'><b>Moves from row {state.pick + 1}</b> "
+            f"<span style='color:#5b6470'>({escape(at)}): what each move gains and gives up</span></div>"
+        )
+        moves = state.moves()
+        if not moves:
+            return title + "<div><i>It is the only design that keeps every rule.</i></div>"
+        shades = {
+            "gain": ("#1d6b4f", "#e4f1ea", "gains"),
+            "give": ("#8a3c12", "#f7e9df", "gives up"),
+            "same": ("#5b6470", "transparent", "same"),
+        }
+        head = "".join(
+            f"<th style='text-align:right;padding:2px 10px'>{escape(o.name)}</th>"
+            for o in front.objectives
+        )
+        body = []
+        for move in moves:
+            cells = []
+            for c in move["changes"]:
+                ink, paper, word = shades[c["effect"]]
+                share = (
+                    f" · {_format.share(c['share'], 0)} of its span"
+                    if c["effect"] != "same"
+                    else ""
+                )
+                cells.append(
+                    f"<td style='text-align:right;padding:2px 10px;color:{ink};background:{paper}'>"
+                    f"<b>{escape(c['text'])}</b><br><small>{word}{share}</small></td>"
+                )
+            outside = "" if move["kept"] else " <small>(breaks a rule)</small>"
+            body.append(
+                f"<tr style='border-top:1px solid #dde3e0'><td style='padding:2px 10px'>"
+                f"row {move['row'] + 1}{outside}</td>"
+                f"<td style='padding:2px 10px;color:#5b6470'>{escape(move['why'])}</td>"
+                + "".join(cells)
+                + "</tr>"
+            )
         return (
-            f"<details><summary><b>The front in {len(table)} designs</b></summary>"
-            f"<table><tr><th>row</th><th>chosen as</th>{head}</tr>{body}</table></details>"
+            title
+            + "<table style='border-collapse:collapse;margin:4px 0'>"
+            + "<tr><th style='text-align:left;padding:2px 10px'>to</th>"
+            + f"<th style='text-align:left;padding:2px 10px'>listed as</th>{head}</tr>"
+            + "".join(body)
+            + "</table>"
         )
 
     def _ranking_html(self, n_rows: int = 8) -> str:
@@ -607,6 +725,18 @@ class Picker:
             "* on the shortlist; choose one in the list above)</span></div>"
             f"<table><tr><th>#</th><th>row</th>{head}</tr>{''.join(body)}</table>"
         )
+
+
+def _error(text: str) -> str:
+    return f"<span style='color:#a00'>{escape(text)}</span>"
+
+
+def _example_rule(state: PickerState) -> str:
+    """A rule on the first objective at the middle of its span, to show what may be typed."""
+    objective = state.front.objectives[0]
+    low, high = state.span(objective.name)
+    op = ">=" if objective.maximise else "<="
+    return f"{objective.name} {op} {_format.number((low + high) / 2, 2)}"
 
 
 def open_picker(source: Any, **options: Any) -> Picker:
