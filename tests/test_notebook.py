@@ -301,8 +301,9 @@ def test_the_widgets_edit_the_state(zdt1, tmp_path, monkeypatch):
     assert read_front(tmp_path / "shortlist.csv").table["front_row"].tolist() == [
         state.shortlist[0] + 1
     ]
-    picker._shortlist.value = state.shortlist[0]
-    picker.buttons["remove"].click()
+    item = picker._shortlist.children[0]
+    assert item.children[0].value.startswith(f"1. row {state.shortlist[0] + 1}: ")
+    item.children[2].click()  # its cross takes it off
     assert state.shortlist == []
     picker.buttons["export"].click()
     assert "empty" in picker._status.value
@@ -468,3 +469,26 @@ def test_the_moves_table_shows_the_state_s_moves_in_units(zdt1):
     target = moves[-1]["row"]
     picker._move_to.children[-1].click()
     assert state.pick == target and state.by_hand
+
+
+def test_each_shortlisted_design_is_an_item_that_goes_to_it_or_takes_it_off(zdt1):
+    """A shortlist item makes its design current; one that breaks a rule cannot be gone to; its cross takes it off."""
+    pytest.importorskip("ipywidgets")
+    from tradewise.notebook import Picker
+
+    picker = Picker(zdt1, clickable=False)
+    state = picker.state
+    state.add(2)
+    state.add(18)
+    first, second = picker._shortlist.children
+    second.children[1].click()
+    assert state.pick == 18 and state.by_hand
+    state.add_limit(
+        "cost <= 50"
+    )  # row 19 has cost 90: outside, and the pick goes back to the method
+    first, second = picker._shortlist.children
+    assert "breaks a rule" in second.children[0].value and second.children[1].disabled
+    assert not first.children[1].disabled
+    second.children[2].click()
+    assert state.shortlist == [2]
+    assert len(picker._shortlist.children) == 1

@@ -308,17 +308,7 @@ class Picker:
         self._details = w.HTML(layout=w.Layout(width="100%"))
         self._ranking = w.HTML(layout=w.Layout(width="100%", overflow="auto"))
 
-        self._shortlist = w.Select(
-            options=[],
-            rows=5,
-            description="shortlist",
-            style={"description_width": "60px"},
-            layout=w.Layout(width="620px"),
-        )
-        self._shortlist.observe(self._shortlisted_chosen, names="value")
-        drop = w.Button(description="Remove", icon="minus", layout=w.Layout(width="120px"))
-        drop.on_click(lambda _b: self._remove_selected())
-        self.buttons["remove"] = drop
+        self._shortlist = w.VBox()
         self._path = w.Text(
             value="shortlist.csv",
             description="file",
@@ -367,7 +357,7 @@ class Picker:
                     layout=w.Layout(flex_flow="row wrap", grid_gap="16px"),
                 ),
                 w.HTML("<b>Shortlist</b>"),
-                w.HBox([self._shortlist, drop]),
+                self._shortlist,
                 w.HBox([self._path, export, review]),
                 self._status,
             ],
@@ -401,7 +391,6 @@ class Picker:
                 ("no design meets the limits", -1)
             ]
             self._designs.value = state.pick if state.pick is not None else -1
-            self._shortlist.options = [(self._design_label(r), r) for r in state.shortlist]
         finally:
             self._syncing = False
         n_kept = int(state.kept.sum())
@@ -410,6 +399,9 @@ class Picker:
         )
         self._rules.children = [self._rule_item(k, limit) for k, limit in enumerate(state.limits)]
         self._moves.value = self._moves_html()
+        self._shortlist.children = [
+            self._shortlist_item(k, row) for k, row in enumerate(state.shortlist, start=1)
+        ] or [self._w.HTML("<i style='color:#5b6470'>Nothing on the shortlist yet.</i>")]
         self._move_to.children = [self._move_button(m) for m in state.moves() if m["kept"]]
         self._heading.value = (
             f"<h3 style='margin:4px 0'>{escape(self._title)}</h3>"
@@ -517,6 +509,33 @@ class Picker:
             ),
         )
 
+    def _shortlist_item(self, order: int, row: int):
+        """One shortlisted design: its place and values, a button to make it current and one to take it off."""
+        w, state = self._w, self.state
+        kept = bool(state.kept[row])
+        here = " <b>(current)</b>" if row == state.pick else ""
+        outside = "" if kept else " <i>(breaks a rule)</i>"
+        go = w.Button(
+            description="go to",
+            disabled=not kept or row == state.pick,
+            layout=w.Layout(width="70px", margin="0 4px"),
+        )
+        go.on_click(lambda _b: self._act(state.select, row))
+        drop = w.Button(
+            icon="times",
+            tooltip=f"take row {row + 1} off the shortlist",
+            layout=w.Layout(width="28px", height="24px", padding="0"),
+        )
+        drop.on_click(lambda _b: self._act(state.remove, row))
+        return w.HBox(
+            [
+                w.HTML(f"{order}. {escape(self._design_label(row))}{here}{outside}"),
+                go,
+                drop,
+            ],
+            layout=w.Layout(align_items="center", border_bottom="1px solid #dde3e0"),
+        )
+
     def _move_button(self, move: Mapping[str, Any]):
         w = self._w
         go = w.Button(
@@ -551,20 +570,6 @@ class Picker:
     def _design_chosen(self, change: dict) -> None:
         if not self._syncing and change["new"] is not None and change["new"] >= 0:
             self._act(self.state.select, int(change["new"]))
-
-    def _shortlisted_chosen(self, change: dict) -> None:
-        row = change["new"]
-        if not self._syncing and row is not None and self.state.kept[row]:
-            self._act(self.state.select, int(row))
-
-    def _remove_selected(self) -> None:
-        row = self._shortlist.value
-        if row is None:
-            self._status.value = (
-                "<div style='color:#a00'>Choose a design in the shortlist first.</div>"
-            )
-            return
-        self._act(self.state.remove, int(row))
 
     def _clicked(self, event) -> None:
         row = plots.clicked_row(event, prefer=self.state.kept)
