@@ -419,6 +419,10 @@ def test_the_preferred_list_keeps_designs_apart_and_the_front_shows_its_represen
             assert np.any(np.abs(points[a] - points[b]) > [gap["cost"], gap["mass"]])
     reps = picker._reps.value
     assert "The front in 5 designs" in reps and "best cost" in reps and "best mass" in reps
+    listed = [int(r) - 1 for r in re.findall(r"<td>row (\d+)", reps)]
+    assert len(listed) == 5
+    picker.state.select(listed[1])  # the current design is marked in the set
+    assert f"<td>row {listed[1] + 1} \u25cf</td>" in picker._reps.value
     assert "What pins this front" in picker._pins.value
 
 

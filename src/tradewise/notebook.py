@@ -331,7 +331,8 @@ class Picker:
             "<div style='font-weight:600;margin-top:8px'>What pins this front</div>"
             f"<ul style='margin:2px 0;padding-left:18px'>{pins}</ul>"
         )
-        self._reps = w.HTML(self._representatives_html())
+        self._representatives = self._representatives_table()
+        self._reps = w.HTML()
         side = w.VBox(
             [self._reps, self._pins],
             layout=w.Layout(
@@ -399,6 +400,7 @@ class Picker:
         )
         self._rules.children = [self._rule_item(k, limit) for k, limit in enumerate(state.limits)]
         self._moves.value = self._moves_html()
+        self._reps.value = self._representatives_html()
         self._shortlist.children = [
             self._shortlist_item(k, row) for k, row in enumerate(state.shortlist, start=1)
         ] or [self._w.HTML("<i style='color:#5b6470'>Nothing on the shortlist yet.</i>")]
@@ -623,31 +625,47 @@ class Picker:
             f"<div>{escape(knee_sentence(info)).capitalize()}.</div>{also}</div>"
         )
 
-    def _representatives_html(self) -> str:
-        """The few designs that stand for the front (greedy hypervolume subset selection)."""
+    def _representatives_table(self) -> pd.DataFrame | str | None:
+        """The few designs that stand for the front (greedy hypervolume subset selection), worked
+        out once; None when the front is no larger than the set, the reason when it cannot be made."""
         front = self.state.front
         n = int(front.info.settings.get("representatives") or 20)
-        heading = "<div style='font-weight:600'>{}</div>"
         if len(front) <= n:
-            return heading.format(f"The front in {len(front)} designs: each stands for itself")
+            return None
         try:
-            table = representatives_table(front, n)
+            return representatives_table(front, n)
         except DataError as exc:
-            return heading.format("The front in a few designs") + f"<div>{escape(str(exc))}</div>"
+            return str(exc)
+
+    def _representatives_html(self) -> str:
+        """The representative set, the current pick and shortlisted designs among them marked."""
+        state, front, table = self.state, self.state.front, self._representatives
+        heading = "<div style='font-weight:600'>{}</div>"
+        if table is None:
+            return heading.format(f"The front in {len(front)} designs: each stands for itself")
+        if isinstance(table, str):
+            return heading.format("The front in a few designs") + f"<div>{escape(table)}</div>"
         names = [o.name for o in front.objectives]
         head = "".join(f"<th style='text-align:right'>{escape(name)}</th>" for name in names)
-        body = "".join(
-            f"<tr><td>row {int(r['front_row'])}</td><td style='color:#5b6470'>"
-            f"{escape(str(r['chosen_as']))}</td>"
-            + "".join(
-                f"<td style='text-align:right'>{escape(show_value(r[name]))}</td>" for name in names
+        body = []
+        for r in table.sort_values(names[0]).to_dict("records"):
+            row = int(r["front_row"]) - 1
+            mark = " \u25cf" if row == state.pick else ""
+            mark += " *" if row in state.shortlist else ""
+            style = " style='background:#e4f1ea'" if row == state.pick else ""
+            body.append(
+                f"<tr{style}><td>row {row + 1}{mark}</td><td style='color:#5b6470'>"
+                f"{escape(str(r['chosen_as']))}</td>"
+                + "".join(
+                    f"<td style='text-align:right'>{escape(show_value(r[name]))}</td>"
+                    for name in names
+                )
+                + "</tr>"
             )
-            + "</tr>"
-            for r in table.sort_values(names[0]).to_dict("records")
-        )
         return heading.format(f"The front in {len(table)} designs") + (
+            "<div style='color:#5b6470'>\u25cf the current design, * on the shortlist</div>"
             "<div style='max-height:320px;overflow:auto'><table style='font-size:92%'>"
-            f"<tr><th>row</th><th>chosen as</th>{head}</tr>{body}</table></div>"
+            f"<tr><th>row</th><th>chosen as</th>{head}</tr>{''.join(body)}</table></div>"
         )
 
     def _moves_html(self) -> str:
