@@ -6,6 +6,7 @@ The picker's state is tested without widgets in test_picker.py.
 from __future__ import annotations
 
 import ast
+import html
 import json
 import re
 import sys
@@ -278,17 +279,17 @@ def test_clicking_a_point_selects_that_design(zdt1):
 
 
 def test_the_widgets_edit_the_state(zdt1, tmp_path, monkeypatch):
-    """Moving a slider, a weight, the method, the design list and pressing the buttons change the state alike."""
+    """Typing a rule, a weight, the method, the design list and pressing the buttons change the state alike."""
     pytest.importorskip("ipywidgets")
     from tradewise.notebook import Picker
 
     monkeypatch.chdir(tmp_path)
     picker = Picker(zdt1, clickable=False)
     state = picker.state
-    slider = picker._sliders["cost"]
-    slider.value = (slider.min, 50.0)
+    picker._rule_text.value = "cost <= 50"  # what Enter in the box sends
     assert [str(x) for x in state.limits] == ["cost <= 50"]
-    assert picker._count.value.strip().startswith("&nbsp; 11 of 21")
+    assert picker._rule_text.value == ""
+    assert ">11 of 21 designs keep every rule<" in picker._count.value
     picker._method.value = "asf"
     assert not picker._weights["cost"].disabled
     picker._weights["mass"].value = 4.0
@@ -303,13 +304,18 @@ def test_the_widgets_edit_the_state(zdt1, tmp_path, monkeypatch):
     assert read_front(tmp_path / "shortlist.csv").table["front_row"].tolist() == [
         state.shortlist[0] + 1
     ]
-    picker._shortlist.value = state.shortlist[0]
-    picker.buttons["remove"].click()
+    item = picker._shortlist.children[0]
+    assert item.children[0].value.startswith(f"1. row {state.shortlist[0] + 1}: ")
+    item.children[2].click()  # its cross takes it off
     assert state.shortlist == []
     picker.buttons["export"].click()
     assert "empty" in picker._status.value
     state.set_limit("mass", high=3.0)  # a change from code shows in the widgets
-    assert picker._sliders["mass"].value[1] == pytest.approx(3.0)
+    shown = [item.children[0].value for item in picker._rules.children]
+    assert [html.unescape(re.sub("<[^>]+>", "", text)) for text in shown] == [
+        "cost <= 50",
+        "mass <= 3",
+    ]
     assert picker._image.value[:4] == b"\x89PNG"
 
 
@@ -414,5 +420,82 @@ def test_the_preferred_list_keeps_designs_apart_and_the_front_shows_its_represen
     for i, a in enumerate(rows):
         for b in rows[:i]:
             assert np.any(np.abs(points[a] - points[b]) > [gap["cost"], gap["mass"]])
-    reps = picker._pins.value
+    reps = picker._reps.value
     assert "The front in 5 designs" in reps and "best cost" in reps and "best mass" in reps
+    listed = [int(r) - 1 for r in re.findall(r"<td>row (\d+)", reps)]
+    assert len(listed) == 5
+    picker.state.select(listed[1])  # the current design is marked in the set
+    assert f"<td>row {listed[1] + 1} \u25cf</td>" in picker._reps.value
+    assert "What pins this front" in picker._pins.value
+
+
+def test_rules_are_typed_shown_as_items_and_dropped_one_by_one(zdt1):
+    """A typed rule becomes an item with its text and a drop control; a bad rule stays in the box with
+    one sentence beside it; the Add button takes the box's text; dropping an item drops that rule only."""
+    pytest.importorskip("ipywidgets")
+    from tradewise.notebook import Picker
+
+    picker = Picker(zdt1, clickable=False)
+    state = picker.state
+    picker._rule_text.value = "weight <= 3"
+    assert state.limits == [] and picker._rule_text.value == "weight <= 3"
+    error = html.unescape(re.sub("<[^>]+>", "", picker._rule_error.value))
+    assert "no column 'weight'" in error and error.count(". ") == 0
+    picker._syncing = True  # typing without Enter: the box holds the text, nothing is sent
+    picker._rule_text.value = "x >= 0.2"
+    picker._syncing = False
+    picker.buttons["add rule"].click()
+    picker._rule_text.value = "mass<=6"
+    assert [str(x) for x in state.limits] == ["x >= 0.2", "mass <= 6"]
+    assert picker._rule_error.value == ""
+    first = picker._rules.children[0]
+    assert "x &gt;= 0.2" in first.children[0].value
+    first.children[1].click()
+    assert [str(x) for x in state.limits] == ["mass <= 6"]
+    assert len(picker._rules.children) == 1
+
+
+def test_the_moves_table_shows_the_state_s_moves_in_units(zdt1):
+    """The moves table lists each move of PickerState.moves with its amounts as text, and its buttons go there."""
+    pytest.importorskip("ipywidgets")
+    from tradewise.notebook import Picker
+
+    picker = Picker(zdt1, clickable=False)
+    state = picker.state
+    state.add(0)
+    moves = state.moves()
+    page = picker._moves.value
+    assert f"Moves from row {state.pick + 1}" in page
+    assert re.findall(r"<td style='padding:2px 10px'>row (\d+)", page) == [
+        str(m["row"] + 1) for m in moves
+    ]
+    for move in moves:
+        for change in move["changes"]:
+            assert f"<b>{change['text']}</b>" in page
+    assert "shortlist 1" in page
+    target = moves[-1]["row"]
+    picker._move_to.children[-1].click()
+    assert state.pick == target and state.by_hand
+
+
+def test_each_shortlisted_design_is_an_item_that_goes_to_it_or_takes_it_off(zdt1):
+    """A shortlist item makes its design current; one that breaks a rule cannot be gone to; its cross takes it off."""
+    pytest.importorskip("ipywidgets")
+    from tradewise.notebook import Picker
+
+    picker = Picker(zdt1, clickable=False)
+    state = picker.state
+    state.add(2)
+    state.add(18)
+    first, second = picker._shortlist.children
+    second.children[1].click()
+    assert state.pick == 18 and state.by_hand
+    state.add_limit(
+        "cost <= 50"
+    )  # row 19 has cost 90: outside, and the pick goes back to the method
+    first, second = picker._shortlist.children
+    assert "breaks a rule" in second.children[0].value and second.children[1].disabled
+    assert not first.children[1].disabled
+    second.children[2].click()
+    assert state.shortlist == [2]
+    assert len(picker._shortlist.children) == 1

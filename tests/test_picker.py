@@ -426,3 +426,178 @@ def test_choices_are_apart_and_follow_tolerances():
     with pytest.raises(DataError, match="tolerance: 'weight' is not an objective"):
         state.set_tolerance({"weight": 1})
     assert state.separation == {"cost": 0.01, "mass": 0.2}  # a refused change changes nothing
+
+
+# ------------------------------------------------------------------------ limits as rules
+def test_rules_limit_any_column_and_come_off_one_by_one(run):
+    """add_limit takes the --limit syntax on objectives, variables and choices; each rule keeps what
+    a plain pandas filter keeps, and removing one (by position or by its text) restores the rest."""
+    front = run.front
+    table = front.table
+    state = PickerState(front)
+    mass_cap = float(table["mass"].median())
+    state.add_limit(f"mass <= {mass_cap!r}")
+    option = str(table["alloy"].iloc[0])
+    state.add_limit(f"alloy == {option}")
+    state.add_limit("fins >= 10")
+    expected = (table["mass"] <= mass_cap) & (table["alloy"].astype(str) == option)
+    expected &= table["fins"] >= 10
+    assert state.kept_rows == np.flatnonzero(expected.to_numpy()).tolist()
+    assert [x.column for x in state.limits] == ["mass", "alloy", "fins"]
+    assert state.message.startswith("Added fins >= 10: ")
+    state.remove_limit(f"alloy == {option}")
+    state.remove_limit(0)
+    assert [str(x) for x in state.limits] == ["fins >= 10"]
+    assert state.kept_rows == np.flatnonzero((table["fins"] >= 10).to_numpy()).tolist()
+    assert (
+        state.message
+        == f"Dropped mass <= {mass_cap:.4g}: {len(state.kept_rows)} of {len(front)} designs meet the limits."
+    )
+
+
+def test_a_rule_given_twice_counts_once_and_set_limit_replaces_only_its_bounds(zdt1):
+    """The same rule twice is one limit; set_limit swaps the <= and >= limits of its objective in place
+    and leaves a rule on another column and an == rule alone; bounds() reads the tightest of them."""
+    state = PickerState(zdt1)
+    state.add_limit("cost <= 80")
+    state.add_limit("x >= 0.1")
+    state.add_limit("cost<=80")
+    assert [str(x) for x in state.limits] == ["cost <= 80", "x >= 0.1"]
+    assert "already in force" in state.message
+    state.set_limit("cost", low=20.0, high=60.0)
+    assert [str(x) for x in state.limits] == ["cost >= 20", "cost <= 60", "x >= 0.1"]
+    assert state.bounds("cost") == (20.0, 60.0)
+    state.add_limit("cost < 50")
+    assert state.bounds("cost") == (20.0, 50.0)
+    # rows with 20 <= cost < 50 and x >= 0.1: cost = 5 * row, so rows 4 to 9
+    assert state.kept_rows == [4, 5, 6, 7, 8, 9]
+
+
+@pytest.mark.parametrize(
+    ("rule", "message"),
+    [
+        ("mass", "expected COLUMN OP VALUE"),
+        ("weight <= 3", "no column 'weight'"),
+        ("cost <= cheap", "is not a number"),
+        ("mass <= inf", "not a finite number"),
+    ],
+)
+def test_a_bad_rule_is_refused_with_one_sentence(zdt1, rule, message):
+    """A rule that cannot be read or names no column raises one DataError sentence and changes nothing."""
+    state = PickerState(zdt1)
+    state.add_limit("cost <= 90")
+    with pytest.raises(DataError, match=message) as caught:
+        state.add_limit(rule)
+    assert "\n" not in str(caught.value)
+    assert [str(x) for x in state.limits] == ["cost <= 90"]
+
+
+def test_removing_a_rule_that_is_not_in_force_is_refused(zdt1):
+    """remove_limit names what is in force when the position or the rule is not there."""
+    state = PickerState(zdt1)
+    state.add_limit("cost <= 90")
+    with pytest.raises(DataError, match="no limit at position 3; in force: cost <= 90"):
+        state.remove_limit(3)
+    with pytest.raises(DataError, match="'mass <= 2' is not in force"):
+        state.remove_limit("mass <= 2")
+
+
+# ------------------------------------------------------------------------------------ moves
+def _small_front():
+    """Five designs by hand: cost [EUR] rises as mass [kg] falls."""
+    table = pd.DataFrame(
+        {
+            "cost": [10.0, 12.0, 15.0, 20.0, 30.0],
+            "mass": [100.0, 60.0, 40.0, 30.0, 25.0],
+        }
+    )
+    return Front.from_table(table, [Objective("cost", unit="EUR"), Objective("mass", unit="kg")])
+
+
+def test_moves_to_the_neighbours_and_the_shortlist_match_the_hand_calculation():
+    """From row 3 (cost 15 EUR, mass 40 kg), by hand: to row 2 (12, 60) cost changes 12 - 15 = -3 EUR
+    (a gain, cost is minimised) and mass 60 - 40 = +20 kg (given up); to row 4 (20, 30) cost +5 EUR
+    (given up) and mass -10 kg (a gain); to shortlisted row 5 (30, 25) cost +15 EUR and mass -15 kg.
+    Shares are of the front's spans, 20 EUR and 75 kg: 3/20 = 0.15, 20/75, 5/20, 10/75, 15/20, 15/75."""
+    state = PickerState(_small_front())
+    state.select(2)
+    state.add(4)
+    moves = state.moves()
+    assert [m["row"] for m in moves] == [1, 3, 4]
+    assert [m["why"] for m in moves] == ["next on the front", "next on the front", "shortlist 1"]
+    by_hand = {
+        1: [(-3.0, 3 / 20, "gain", "3 EUR less"), (20.0, 20 / 75, "give", "20 kg more")],
+        3: [(5.0, 5 / 20, "give", "5 EUR more"), (-10.0, 10 / 75, "gain", "10 kg less")],
+        4: [(15.0, 15 / 20, "give", "15 EUR more"), (-15.0, 15 / 75, "gain", "15 kg less")],
+    }
+    for move in moves:
+        got = [(c["change"], c["share"], c["effect"], c["text"]) for c in move["changes"]]
+        expected = by_hand[move["row"]]
+        assert [g[0] for g in got] == pytest.approx([e[0] for e in expected])
+        assert [g[1] for g in got] == pytest.approx([e[1] for e in expected])
+        assert [g[2:] for g in got] == [e[2:] for e in expected]
+    assert moves[2]["summary"] == "gains 15 kg less mass; gives up 15 EUR more cost"
+    assert state.describe_moves()[0] == (
+        "row 3 to row 2 (next on the front): gains 3 EUR less cost; gives up 20 kg more mass"
+    )
+
+
+def test_moves_follow_the_goal_the_limits_and_say_when_a_neighbour_is_shortlisted():
+    """A maximised objective gains when it rises; a neighbour on the shortlist is listed once with both
+    reasons; a neighbour outside the limits is skipped for the next one within them."""
+    table = pd.DataFrame({"cost": [10.0, 12.0, 15.0, 20.0], "range": [100.0, 140.0, 150.0, 180.0]})
+    front = Front.from_table(
+        table, [Objective("cost", unit="EUR"), Objective("range", goal="max", unit="km")]
+    )
+    state = PickerState(front)
+    state.select(1)
+    state.add(2)
+    up = next(m for m in state.moves() if m["row"] == 2)
+    # by hand: 12 -> 15 EUR is 3 EUR more cost (given up); 140 -> 150 km is 10 km more range (gained)
+    assert up["why"] == "next on the front, shortlist 1"
+    assert [(c["effect"], c["text"]) for c in up["changes"]] == [
+        ("give", "3 EUR more"),
+        ("gain", "10 km more"),
+    ]
+    state.add_limit("cost != 15")
+    assert [m["row"] for m in state.moves()] == [0, 3, 2]
+    assert [m["kept"] for m in state.moves()] == [True, True, False]
+
+
+def test_moves_on_three_objectives_go_to_the_nearest_designs_on_the_scaled_front():
+    """With three objectives the neighbours are the nearest on the front scaled by its spans.
+
+    Seven designs on the plane a + b + c = 3 (none dominates another); every span is 3. From
+    (1, 1, 1), by hand: (1.1, 0.9, 1) is sqrt(0.02) / 3 = 0.047 away, (1.3, 1, 0.7) is
+    sqrt(0.18) / 3 = 0.141, (1, 1.5, 0.5) is sqrt(0.5) / 3 = 0.236 and the three corners
+    sqrt(6) / 3 = 0.816 each, so the three nearest are rows 2, 3 and 4 in that order.
+    """
+    table = pd.DataFrame(
+        {
+            "a": [1.0, 1.1, 1.3, 1.0, 3.0, 0.0, 0.0],
+            "b": [1.0, 0.9, 1.0, 1.5, 0.0, 3.0, 0.0],
+            "c": [1.0, 1.0, 0.7, 0.5, 0.0, 0.0, 3.0],
+        }
+    )
+    front = Front.from_table(table, [Objective(n) for n in "abc"])
+    assert len(front) == 7
+    # the front keeps its rows sorted; find each design by its values
+    at = {tuple(r): k for k, r in enumerate(front.points().tolist())}
+    centre, near = (
+        at[(1.0, 1.0, 1.0)],
+        [at[(1.1, 0.9, 1.0)], at[(1.3, 1.0, 0.7)], at[(1.0, 1.5, 0.5)]],
+    )
+    state = PickerState(front)
+    assert state.neighbours(centre) == near
+    assert state.neighbours(centre, n_neighbours=4)[:3] == near
+    state.add_limit("c >= 0.6")  # the third is outside: a corner takes its place
+    assert state.neighbours(centre)[:2] == near[:2] and near[2] not in state.neighbours(centre)
+
+
+def test_moves_name_a_run_s_designs_by_their_evaluation_number():
+    """On a run's front a move names both designs as everything else does: 'design N' (its eval_id)."""
+    front = _small_front()
+    table = front.table.assign(eval_id=[41, 7, 19, 3, 88])
+    state = PickerState(front.with_table(table))
+    state.select(2)
+    assert state.describe_moves()[0].startswith("design 19 to design 7 (next on the front)")

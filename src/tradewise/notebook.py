@@ -18,6 +18,7 @@ from typing import Any
 
 import pandas as pd
 
+from tradewise import format as _format
 from tradewise import plots
 from tradewise.choose import METHODS, WEIGHTED_METHODS
 from tradewise.diagnose import pins_lines
@@ -115,7 +116,15 @@ def _png(fig, dpi: float = 96) -> bytes:
 
 # ----------------------------------------------------------------------------------- widgets
 class Picker:
-    """The widgets around a :class:`PickerState`: limits, preferences, figure, details, shortlist.
+    """The widgets around a :class:`PickerState`: rules, figure, moves, details, preferences, shortlist.
+
+    From the top: a box where limits are typed as rules (the syntax of
+    ``--limit``), each rule in force shown as an item that drops it; the
+    figure, with the representative set and what pins the front beside it;
+    the current design and the table of moves from it (what going to each
+    design next to it on the front, and to each shortlisted design, gains and
+    gives up, in units); its details and the method's list beside the
+    preferences; the shortlist and its export.
 
     Parameters
     ----------
@@ -186,43 +195,35 @@ class Picker:
         title = str(front.info.title or (f"Front of {source}" if source else "Front"))
         self._heading = w.HTML()
         self._title = title
-        self._sliders: dict[str, Any] = {}
-        limit_rows = []
-        for o in front.objectives:
-            low, high = state.span(o.name)
-            unit = front.units.get(o.name, o.unit) or ""
-            label = f"{o.name} [{unit}]" if unit else o.name
-            if high > low:
-                slider = w.FloatRangeSlider(
-                    value=(low, high),
-                    min=low,
-                    max=high,
-                    step=(high - low) / 200.0,
-                    readout_format=".4g",
-                    continuous_update=False,
-                    description=label,
-                    style={"description_width": "150px"},
-                    layout=w.Layout(width="460px"),
-                )
-                slider.observe(self._limit_moved(o.name), names="value")
-                self._sliders[o.name] = slider
-                limit_rows.append(slider)
-            else:
-                limit_rows.append(
-                    w.HTML(f"<i>{escape(label)}: every design has {show_value(low)}</i>")
-                )
-        reset = w.Button(description="Clear limits", icon="undo", layout=w.Layout(width="140px"))
+        names = ", ".join(o.name for o in front.objectives)
+        self._rule_text = w.Text(
+            placeholder="a rule such as " + _example_rule(state),
+            continuous_update=False,
+            layout=w.Layout(width="340px"),
+        )
+        self._rule_text.observe(self._rule_typed, names="value")
+        add_rule = w.Button(description="Add rule", icon="check", layout=w.Layout(width="120px"))
+        add_rule.on_click(lambda _b: self._add_rule(self._rule_text.value))
+        reset = w.Button(description="Drop all", icon="undo", layout=w.Layout(width="110px"))
         reset.on_click(lambda _b: self._act(state.clear_limits))
-        self.buttons = {"clear limits": reset}
+        self.buttons = {"add rule": add_rule, "clear limits": reset}
+        self._rule_error = w.HTML(layout=w.Layout(margin="0 0 0 8px"))
+        self._rules = w.Box(layout=w.Layout(flex_flow="row wrap", margin="4px 0"))
         self._count = w.HTML()
         limits_box = w.VBox(
             [
                 w.HTML(
-                    "<b>Limits</b> <span style='color:#666'>(designs outside are greyed)</span>"
+                    "<b>Rules</b> <span style='color:#5b6470'>on any column, as <code>--limit</code> "
+                    f"takes them ({escape(names)}, the variables, ...); designs that break one "
+                    "are greyed</span>"
                 ),
-                *limit_rows,
-                w.HBox([reset, self._count]),
-            ]
+                w.HBox([self._rule_text, add_rule, reset, self._rule_error]),
+                self._rules,
+                self._count,
+            ],
+            layout=w.Layout(
+                border="1px solid #c9d3cf", padding="6px 10px", margin="4px 0", width="100%"
+            ),
         )
 
         self._method = w.Dropdown(
@@ -282,7 +283,7 @@ class Picker:
             ]
         )
 
-        self._figure_box = w.Box(layout=w.Layout(width="100%", overflow="auto"))
+        self._figure_box = w.Box(layout=w.Layout(flex="1 1 560px", overflow="auto"))
         self._image = w.Image(format="png", layout=w.Layout(max_width="100%", height="auto"))
 
         self._designs = w.Dropdown(
@@ -307,17 +308,7 @@ class Picker:
         self._details = w.HTML(layout=w.Layout(width="100%"))
         self._ranking = w.HTML(layout=w.Layout(width="100%", overflow="auto"))
 
-        self._shortlist = w.Select(
-            options=[],
-            rows=5,
-            description="shortlist",
-            style={"description_width": "60px"},
-            layout=w.Layout(width="620px"),
-        )
-        self._shortlist.observe(self._shortlisted_chosen, names="value")
-        drop = w.Button(description="Remove", icon="minus", layout=w.Layout(width="120px"))
-        drop.on_click(lambda _b: self._remove_selected())
-        self.buttons["remove"] = drop
+        self._shortlist = w.VBox()
         self._path = w.Text(
             value="shortlist.csv",
             description="file",
@@ -337,23 +328,37 @@ class Picker:
         self._status = w.HTML()
         pins = "".join(f"<li>{escape(line)}</li>" for line in pins_lines(state.front))
         self._pins = w.HTML(
-            f"<details><summary><b>What pins this front</b></summary><ul>{pins}</ul></details>"
-            + self._representatives_html()
+            "<div style='font-weight:600;margin-top:8px'>What pins this front</div>"
+            f"<ul style='margin:2px 0;padding-left:18px'>{pins}</ul>"
         )
+        self._representatives = self._representatives_table()
+        self._reps = w.HTML()
+        side = w.VBox(
+            [self._reps, self._pins],
+            layout=w.Layout(
+                flex="0 1 380px", padding="0 0 0 12px", border_left="3px solid #c9d3cf"
+            ),
+        )
+        self._moves = w.HTML(layout=w.Layout(width="100%", overflow="auto"))
+        self._move_to = w.Box(layout=w.Layout(flex_flow="row wrap"))
 
         self.widget = w.VBox(
             [
                 self._heading,
-                w.HBox(
-                    [limits_box, prefs_box], layout=w.Layout(flex_flow="row wrap", grid_gap="24px")
-                ),
-                self._figure_box,
-                self._pins,
+                limits_box,
+                w.HBox([self._figure_box, side], layout=w.Layout(flex_flow="row wrap")),
                 w.HBox([self._designs, follow, add]),
-                self._details,
-                self._ranking,
+                self._moves,
+                self._move_to,
+                w.HBox(
+                    [
+                        w.VBox([self._details, self._ranking], layout=w.Layout(flex="1 1 520px")),
+                        prefs_box,
+                    ],
+                    layout=w.Layout(flex_flow="row wrap", grid_gap="16px"),
+                ),
                 w.HTML("<b>Shortlist</b>"),
-                w.HBox([self._shortlist, drop]),
+                self._shortlist,
                 w.HBox([self._path, export, review]),
                 self._status,
             ],
@@ -374,10 +379,6 @@ class Picker:
         state, front = self.state, self.state.front
         self._syncing = True
         try:
-            for name, slider in self._sliders.items():
-                low, high = state.bounds(name)
-                if tuple(slider.value) != (low, high):
-                    slider.value = (max(low, slider.min), min(high, slider.max))
             self._method.value = state.method
             weighted = state.method in WEIGHTED_METHODS
             for name, slider in self._weights.items():
@@ -391,11 +392,19 @@ class Picker:
                 ("no design meets the limits", -1)
             ]
             self._designs.value = state.pick if state.pick is not None else -1
-            self._shortlist.options = [(self._design_label(r), r) for r in state.shortlist]
         finally:
             self._syncing = False
         n_kept = int(state.kept.sum())
-        self._count.value = f"&nbsp; {n_kept} of {len(front)} designs within the limits"
+        self._count.value = (
+            f"<span style='color:#5b6470'>{n_kept} of {len(front)} designs keep every rule</span>"
+        )
+        self._rules.children = [self._rule_item(k, limit) for k, limit in enumerate(state.limits)]
+        self._moves.value = self._moves_html()
+        self._reps.value = self._representatives_html()
+        self._shortlist.children = [
+            self._shortlist_item(k, row) for k, row in enumerate(state.shortlist, start=1)
+        ] or [self._w.HTML("<i style='color:#5b6470'>Nothing on the shortlist yet.</i>")]
+        self._move_to.children = [self._move_button(m) for m in state.moves() if m["kept"]]
         self._heading.value = (
             f"<h3 style='margin:4px 0'>{escape(self._title)}</h3>"
             f"<div style='color:#555'>{len(front)} designs on the front; objectives "
@@ -460,13 +469,84 @@ class Picker:
         self.refresh()
         self._status.value = message
 
-    def _limit_moved(self, name: str) -> Callable[[dict], None]:
-        def moved(change: dict) -> None:
-            if not self._syncing:
-                low, high = change["new"]
-                self._act(self.state.set_limit, name, low, high)
+    def _rule_typed(self, change: dict) -> None:
+        if not self._syncing and change["new"].strip():
+            self._add_rule(change["new"])
 
-        return moved
+    def _add_rule(self, text: str) -> None:
+        """Add the typed rule; a rule that cannot be used stays in the box with one sentence beside it."""
+        if not text.strip():
+            self._rule_error.value = _error(
+                "Type a rule first, such as " + _example_rule(self.state) + "."
+            )
+            return
+        try:
+            self.state.add_limit(text)
+        except DataError as exc:
+            self._rule_error.value = _error(str(exc))
+            return
+        self._rule_error.value = ""
+        self._syncing = True
+        try:
+            self._rule_text.value = ""
+        finally:
+            self._syncing = False
+
+    def _rule_item(self, position: int, limit: Any):
+        """One rule in force: its text and a control that drops it."""
+        w = self._w
+        drop = w.Button(
+            icon="times",
+            tooltip=f"drop {limit}",
+            layout=w.Layout(width="28px", height="24px", padding="0"),
+        )
+        drop.on_click(lambda _b: self._act(self.state.remove_limit, position))
+        return w.HBox(
+            [w.HTML(f"<code style='background:none'>{escape(str(limit))}</code>"), drop],
+            layout=w.Layout(
+                border="1px solid #8fa8a0",
+                padding="0 0 0 8px",
+                margin="2px 6px 2px 0",
+                align_items="center",
+            ),
+        )
+
+    def _shortlist_item(self, order: int, row: int):
+        """One shortlisted design: its place and values, a button to make it current and one to take it off."""
+        w, state = self._w, self.state
+        kept = bool(state.kept[row])
+        here = " <b>(current)</b>" if row == state.pick else ""
+        outside = "" if kept else " <i>(breaks a rule)</i>"
+        go = w.Button(
+            description="go to",
+            disabled=not kept or row == state.pick,
+            layout=w.Layout(width="70px", margin="0 4px"),
+        )
+        go.on_click(lambda _b: self._act(state.select, row))
+        drop = w.Button(
+            icon="times",
+            tooltip=f"take {self.state.front.design_name(row)} off the shortlist",
+            layout=w.Layout(width="28px", height="24px", padding="0"),
+        )
+        drop.on_click(lambda _b: self._act(state.remove, row))
+        return w.HBox(
+            [
+                w.HTML(f"{order}. {escape(self._design_label(row))}{here}{outside}"),
+                go,
+                drop,
+            ],
+            layout=w.Layout(align_items="center", border_bottom="1px solid #dde3e0"),
+        )
+
+    def _move_button(self, move: Mapping[str, Any]):
+        w = self._w
+        go = w.Button(
+            description=f"go to {self.state.front.design_name(move['row'])}",
+            tooltip=move["summary"],
+            layout=w.Layout(width="auto", margin="2px 6px 2px 0"),
+        )
+        go.on_click(lambda _b: self._act(self.state.select, move["row"]))
+        return go
 
     def _weight_moved(self, name: str) -> Callable[[dict], None]:
         def moved(change: dict) -> None:
@@ -492,20 +572,6 @@ class Picker:
     def _design_chosen(self, change: dict) -> None:
         if not self._syncing and change["new"] is not None and change["new"] >= 0:
             self._act(self.state.select, int(change["new"]))
-
-    def _shortlisted_chosen(self, change: dict) -> None:
-        row = change["new"]
-        if not self._syncing and row is not None and self.state.kept[row]:
-            self._act(self.state.select, int(row))
-
-    def _remove_selected(self) -> None:
-        row = self._shortlist.value
-        if row is None:
-            self._status.value = (
-                "<div style='color:#a00'>Choose a design in the shortlist first.</div>"
-            )
-            return
-        self._act(self.state.remove, int(row))
 
     def _clicked(self, event) -> None:
         row = plots.clicked_row(event, prefer=self.state.kept)
@@ -559,30 +625,104 @@ class Picker:
             f"<div>{escape(knee_sentence(info)).capitalize()}.</div>{also}</div>"
         )
 
-    def _representatives_html(self) -> str:
-        """The few designs that stand for the front (greedy hypervolume subset selection)."""
+    def _representatives_table(self) -> pd.DataFrame | str | None:
+        """The few designs that stand for the front (greedy hypervolume subset selection), worked
+        out once; None when the front is no larger than the set, the reason when it cannot be made."""
         front = self.state.front
         n = int(front.info.settings.get("representatives") or 20)
         if len(front) <= n:
-            return ""
+            return None
         try:
-            table = representatives_table(front, n)
-        except DataError:
-            return ""
+            return representatives_table(front, n)
+        except DataError as exc:
+            return str(exc)
+
+    def _representatives_html(self) -> str:
+        """The representative set, the current pick and shortlisted designs among them marked."""
+        state, front, table = self.state, self.state.front, self._representatives
+        heading = "<div style='font-weight:600'>{}</div>"
+        if table is None:
+            return heading.format(f"The front in {len(front)} designs: each stands for itself")
+        if isinstance(table, str):
+            return heading.format("The front in a few designs") + f"<div>{escape(table)}</div>"
         names = [o.name for o in front.objectives]
-        head = "".join(f"<th>{escape(name)}</th>" for name in names)
-        body = "".join(
-            f"<tr><td>{escape(front.design_name(int(r['front_row']) - 1))}</td>"
-            f"<td>{escape(str(r['chosen_as']))}</td>"
-            + "".join(
-                f"<td style='text-align:right'>{escape(show_value(r[name]))}</td>" for name in names
+        head = "".join(f"<th style='text-align:right'>{escape(name)}</th>" for name in names)
+        body = []
+        for r in table.sort_values(names[0]).to_dict("records"):
+            row = int(r["front_row"]) - 1
+            mark = " \u25cf" if row == state.pick else ""
+            mark += " *" if row in state.shortlist else ""
+            style = " style='background:#e4f1ea'" if row == state.pick else ""
+            body.append(
+                f"<tr{style}><td>{escape(front.design_name(row))}{mark}</td><td style='color:#5b6470'>"
+                f"{escape(str(r['chosen_as']))}</td>"
+                + "".join(
+                    f"<td style='text-align:right'>{escape(show_value(r[name]))}</td>"
+                    for name in names
+                )
+                + "</tr>"
             )
-            + "</tr>"
-            for r in table.sort_values(names[0]).to_dict("records")
+        return heading.format(f"The front in {len(table)} designs") + (
+            "<div style='color:#5b6470'>\u25cf the current design, * on the shortlist</div>"
+            "<div style='max-height:320px;overflow:auto'><table style='font-size:92%'>"
+            f"<tr><th>design</th><th>chosen as</th>{head}</tr>{''.join(body)}</table></div>"
         )
+
+    def _moves_html(self) -> str:
+        """The table of moves from the current pick (see :meth:`PickerState.moves`)."""
+        state, front = self.state, self.state.front
+        if state.pick is None:
+            return ""
+        here = front.table.iloc[state.pick]
+        at = ", ".join(
+            f"{o.name} {_format.quantity(float(here[o.name]), front.units.get(o.name, o.unit))}"
+            for o in front.objectives
+        )
+        title = (
+            f"<div style='margin-top:6px'><b>Moves from {escape(front.design_name(state.pick))}</b> "
+            f"<span style='color:#5b6470'>({escape(at)}): what each move gains and gives up</span></div>"
+        )
+        moves = state.moves()
+        if not moves:
+            return title + "<div><i>It is the only design that keeps every rule.</i></div>"
+        shades = {
+            "gain": ("#1d6b4f", "#e4f1ea", "gains"),
+            "give": ("#8a3c12", "#f7e9df", "gives up"),
+            "same": ("#5b6470", "transparent", "same"),
+        }
+        head = "".join(
+            f"<th style='text-align:right;padding:2px 10px'>{escape(o.name)}</th>"
+            for o in front.objectives
+        )
+        body = []
+        for move in moves:
+            cells = []
+            for c in move["changes"]:
+                ink, paper, word = shades[c["effect"]]
+                share = (
+                    f" · {_format.share(c['share'], 0)} of its span"
+                    if c["effect"] != "same"
+                    else ""
+                )
+                cells.append(
+                    f"<td style='text-align:right;padding:2px 10px;color:{ink};background:{paper}'>"
+                    f"<b>{escape(c['text'])}</b><br><small>{word}{share}</small></td>"
+                )
+            outside = "" if move["kept"] else " <small>(breaks a rule)</small>"
+            body.append(
+                f"<tr style='border-top:1px solid #dde3e0'><td style='padding:2px 10px'>"
+                f"{escape(front.design_name(move['row']))}{outside}</td>"
+                f"<td style='padding:2px 10px;color:#5b6470'>{escape(move['why'])}</td>"
+                + "".join(cells)
+                + "</tr>"
+            )
         return (
-            f"<details><summary><b>The front in {len(table)} designs</b></summary>"
-            f"<table><tr><th>design</th><th>chosen as</th>{head}</tr>{body}</table></details>"
+            title
+            + "<table style='border-collapse:collapse;margin:4px 0'>"
+            + "<tr><th style='text-align:left;padding:2px 10px'>to</th>"
+            + f"<th style='text-align:left;padding:2px 10px'>listed as</th>{head}</tr>"
+            + "".join(body)
+            + "</table>"
         )
 
     def _ranking_html(self, n_rows: int = 8) -> str:
@@ -609,6 +749,18 @@ class Picker:
             "* on the shortlist; choose one in the list above)</span></div>"
             f"<table><tr><th>#</th><th>design</th>{head}</tr>{''.join(body)}</table>"
         )
+
+
+def _error(text: str) -> str:
+    return f"<span style='color:#a00'>{escape(text)}</span>"
+
+
+def _example_rule(state: PickerState) -> str:
+    """A rule on the first objective at the middle of its span, to show what may be typed."""
+    objective = state.front.objectives[0]
+    low, high = state.span(objective.name)
+    op = ">=" if objective.maximise else "<="
+    return f"{objective.name} {op} {_format.number((low + high) / 2, 2)}"
 
 
 def open_picker(source: Any, **options: Any) -> Picker:

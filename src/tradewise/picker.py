@@ -33,7 +33,7 @@ from tradewise.choose import (
 )
 from tradewise.errors import DataError
 from tradewise.front import Front, read_front, tradeoff_rates
-from tradewise.limits import Limit, limit_mask, parse_values
+from tradewise.limits import Limit, limit_mask, parse_limit, parse_values
 from tradewise.represent import distinct_picks, separation
 from tradewise.runfolder import SHORTLIST_COLUMNS, shortlist_front
 
@@ -143,9 +143,7 @@ class PickerState:
             o.name: (float(points[:, j].min()), float(points[:, j].max()))
             for j, o in enumerate(front.objectives)
         }
-        self._bounds: dict[str, tuple[float | None, float | None]] = {
-            o.name: (None, None) for o in front.objectives
-        }
+        self._limits: list[Limit] = []
         self._method = "knee"
         self._weights = {o.name: 1.0 for o in front.objectives}
         self._target: dict[str, float] | None = None
@@ -235,17 +233,24 @@ class PickerState:
         return self._span[name]
 
     def bounds(self, name: str) -> tuple[float, float]:
-        """The current lower and upper limit of objective ``name`` (the front's span where unset)."""
+        """The tightest lower and upper limit on objective ``name`` (the front's span where unset)."""
         self._check_objective(name, "bounds")
-        low, high = self._bounds[name]
-        span = self._span[name]
-        return (span[0] if low is None else low, span[1] if high is None else high)
+        low, high = self._span[name]
+        for limit in self._limits:
+            if limit.column != name or limit.is_text:
+                continue
+            if limit.op in (">=", ">", "=="):
+                low = max(low, float(limit.value))
+            if limit.op in ("<=", "<", "=="):
+                high = min(high, float(limit.value))
+        return (low, high)
 
     def set_limit(self, name: str, low: float | None = None, high: float | None = None) -> None:
         """Keep only the designs with ``low <= name <= high``; None leaves that end open.
 
-        A bound at or beyond the front's own extreme value is the same as no
-        bound, so that a slider pushed to its end limits nothing.
+        The bounds replace every earlier ``>=``, ``>``, ``<=`` and ``<`` limit on
+        ``name`` (the others stay). A bound at or beyond the front's own
+        extreme value is the same as no bound.
 
         Raises
         ------
@@ -261,27 +266,86 @@ class PickerState:
                 f"limit on {name!r}: the lower bound {low:g} is above the upper bound {high:g}"
             )
         span_low, span_high = self._span[name]
-        self._bounds[name] = (
-            None if low is None or low <= span_low else low,
-            None if high is None or high >= span_high else high,
-        )
+        new = []
+        if low is not None and low > span_low:
+            new.append(Limit(name, ">=", low))
+        if high is not None and high < span_high:
+            new.append(Limit(name, "<=", high))
+        ranged = (">=", ">", "<=", "<")
+        old = [i for i, x in enumerate(self._limits) if x.column == name and x.op in ranged]
+        at = old[0] if old else len(self._limits)
+        kept = [x for i, x in enumerate(self._limits) if i not in old]
+        self._limits = kept[:at] + new + kept[at:]
         self._update()
+
+    def add_limit(self, rule: str | Limit) -> None:
+        """Add a limit written as a rule, as ``--limit`` takes it: ``"mass <= 5"``, ``"material == stainless 302"``.
+
+        Any column of the front may be limited (an objective, a variable, a
+        constraint, an output, a choice's option or a flag). A rule already in
+        force is not added twice.
+
+        Raises
+        ------
+        DataError
+            When the rule cannot be read (:func:`tradewise.limits.parse_limit`)
+            or names a column the front does not have, or text for a column of
+            numbers; the state is left as it was.
+
+        Examples
+        --------
+        >>> from tradewise.case import Objective
+        >>> table = pd.DataFrame({"cost": [10.0, 12, 15, 20, 30], "mass": [100.0, 60, 40, 30, 25]})
+        >>> state = PickerState(Front.from_table(table, [Objective("cost"), Objective("mass")]))
+        >>> state.add_limit("mass <= 50")
+        >>> [str(x) for x in state.limits], state.kept_rows
+        (['mass <= 50'], [2, 3, 4])
+        """
+        limit = parse_limit(rule)
+        limit_mask(self.front, [limit])  # an unknown column or text in numbers: one sentence here
+        if str(limit) in {str(x) for x in self._limits}:
+            self._update(message=f"The limit {limit} is already in force.")
+            return
+        self._limits.append(limit)
+        self._update(message=f"Added {limit}: {self._kept_sentence(self._limits)}.")
+
+    def remove_limit(self, rule: int | str | Limit) -> None:
+        """Drop one limit, given by its position in :attr:`limits` or by its rule.
+
+        Raises
+        ------
+        DataError
+            When no limit in force is at that position or reads that way.
+        """
+        shown = ", ".join(str(x) for x in self._limits) or "none"
+        if isinstance(rule, int | np.integer) and not isinstance(rule, bool):
+            if not 0 <= int(rule) < len(self._limits):
+                raise DataError(
+                    f"limit: there is no limit at position {int(rule)}; in force: {shown}"
+                )
+            at = int(rule)
+        else:
+            text = str(parse_limit(rule))
+            found = [i for i, x in enumerate(self._limits) if str(x) == text]
+            if not found:
+                raise DataError(f"limit: {text!r} is not in force; in force: {shown}")
+            at = found[0]
+        limit = self._limits.pop(at)
+        self._update(message=f"Dropped {limit}: {self._kept_sentence(self._limits)}.")
 
     def clear_limits(self) -> None:
         """Drop every limit."""
-        self._bounds = {name: (None, None) for name in self._bounds}
+        self._limits = []
         self._update()
 
     @property
     def limits(self) -> list[Limit]:
-        """The limits in force, as :class:`tradewise.limits.Limit` objects (inclusive bounds)."""
-        out = []
-        for name, (low, high) in self._bounds.items():
-            if low is not None:
-                out.append(Limit(name, ">=", low))
-            if high is not None:
-                out.append(Limit(name, "<=", high))
-        return out
+        """The limits in force, in the order they were set, as :class:`tradewise.limits.Limit` objects."""
+        return list(self._limits)
+
+    def _kept_sentence(self, limits: list[Limit]) -> str:
+        n_kept = int(limit_mask(self.front, limits).sum()) if limits else len(self.front)
+        return f"{n_kept} of {len(self.front)} designs meet the limits"
 
     @property
     def kept(self) -> np.ndarray:
@@ -559,6 +623,140 @@ class PickerState:
             lines.append(f"  first choice of: {', '.join(info['also'])}")
         return lines
 
+    # ------------------------------------------------------------------------- moves
+    def neighbours(self, row: int | None = None, *, n_neighbours: int | None = None) -> list[int]:
+        """The designs next to design ``row`` (default the current pick) on the front, nearest first.
+
+        Only designs that meet the limits count (all designs when ``row``
+        itself is outside them). Two objectives: the design on each side of
+        ``row`` along the front, ordered as :func:`tradewise.front.tradeoff_rates`
+        orders it (the one better in the first objective first). Three or
+        more: the ``n_neighbours`` nearest (default one per objective) by
+        straight-line distance with each objective divided by its span on the
+        whole front.
+        """
+        row = self.pick if row is None else self._check_row(row, "neighbours")
+        if row is None:
+            return []
+        pool = np.flatnonzero(self._kept) if self._kept[row] else np.arange(len(self.front))
+        front = self.front
+        sign = np.where(front.maximise, -1.0, 1.0)
+        signed = front.points()[pool] * sign  # smaller is better in every column
+        k = int(np.flatnonzero(pool == row)[0])
+        if len(front.objectives) == 2:
+            order = np.lexsort((signed[:, 1], signed[:, 0]))
+            at = int(np.flatnonzero(order == k)[0])
+            return [int(pool[order[p]]) for p in (at - 1, at + 1) if 0 <= p < len(order)]
+        spans = np.array([hi - lo for lo, hi in self._span.values()])
+        scaled = signed / np.where(spans > 0, spans, 1.0)
+        distance = np.hypot.reduce(scaled - scaled[k], axis=1)
+        distance[k] = np.inf
+        n = len(front.objectives) if n_neighbours is None else int(n_neighbours)
+        nearest = np.argsort(distance, kind="stable")[: max(0, min(n, len(pool) - 1))]
+        return [int(pool[j]) for j in nearest]
+
+    def moves(self, row: int | None = None, *, n_neighbours: int | None = None) -> list[dict]:
+        """What moving from design ``row`` (default the current pick) to each design near it
+        and to each shortlisted design gains and gives up, objective by objective, in units.
+
+        Parameters
+        ----------
+        row : int, optional
+            The design to move from (a row position of the front).
+        n_neighbours : int, optional
+            Three or more objectives: how many nearby designs (see :meth:`neighbours`).
+
+        Returns
+        -------
+        list of dict
+            One dict a design moved to, its neighbours first and then the
+            shortlist in the order it was added (a design both near and
+            shortlisted comes once): ``row``; ``why`` (``"next on the
+            front"``, ``"shortlist 2"``, or both, joined by ``", "``);
+            ``kept`` (meets the limits); ``changes``: one dict per objective
+            with ``name``, ``unit``, ``goal``, ``start`` and ``end`` (the
+            values before and after the move), ``change`` (``end - start``),
+            ``share`` (the size of the change as a share of the objective's
+            span on the whole front), ``effect`` (``"gain"``, ``"give"`` or
+            ``"same"``, judged by the objective's goal) and ``text`` (such as
+            ``"3.2 kg less"``); ``summary``: the move in one line.
+
+        Examples
+        --------
+        >>> from tradewise.case import Objective
+        >>> table = pd.DataFrame({"cost": [10.0, 12, 15, 20, 30], "mass": [100.0, 60, 40, 30, 25]})
+        >>> front = Front.from_table(table, [Objective("cost", unit="EUR"), Objective("mass", unit="kg")])
+        >>> state = PickerState(front)
+        >>> [m["summary"] for m in state.moves()]
+        ['gains 3 EUR less cost; gives up 20 kg more mass', 'gains 10 kg less mass; gives up 5 EUR more cost']
+        """
+        start = self.pick if row is None else self._check_row(row, "moves")
+        if start is None:
+            return []
+        why: dict[int, list[str]] = {}
+        for r in self.neighbours(start, n_neighbours=n_neighbours):
+            why.setdefault(r, []).append("next on the front")
+        for k, r in enumerate(self._shortlist, start=1):
+            if r != start:
+                why.setdefault(r, []).append(f"shortlist {k}")
+        front = self.front
+        here = front.table.iloc[start]
+        out = []
+        for r, reasons in why.items():
+            there = front.table.iloc[r]
+            changes = []
+            for o in front.objectives:
+                a, b = float(here[o.name]), float(there[o.name])
+                low, high = self._span[o.name]
+                change = b - a
+                if abs(change) <= 1e-12 * max(abs(a), abs(b), high - low):
+                    change = 0.0
+                better = change < 0 if o.goal == "min" else change > 0
+                effect = "same" if change == 0 else ("gain" if better else "give")
+                unit = front.units.get(o.name, o.unit) or ""
+                text = (
+                    "no change"
+                    if change == 0
+                    else f"{_format.quantity(abs(change), unit)} {'more' if change > 0 else 'less'}"
+                )
+                changes.append(
+                    {
+                        "name": o.name,
+                        "unit": unit,
+                        "goal": o.goal,
+                        "start": a,
+                        "end": b,
+                        "change": change,
+                        "share": abs(change) / (high - low) if high > low else 0.0,
+                        "effect": effect,
+                        "text": text,
+                    }
+                )
+            out.append(
+                {
+                    "row": r,
+                    "why": ", ".join(reasons),
+                    "kept": bool(self._kept[r]),
+                    "changes": changes,
+                    "summary": _move_summary(changes),
+                }
+            )
+        return out
+
+    def describe_moves(self, row: int | None = None) -> list[str]:
+        """The moves of :meth:`moves` as plain lines, one a design moved to."""
+        start = self.pick if row is None else self._check_row(row, "moves")
+        if start is None:
+            return ["No design meets the limits; widen them."]
+        lines = []
+        for move in self.moves(start):
+            outside = "" if move["kept"] else ", outside the limits"
+            lines.append(
+                f"{self.front.design_name(start)} to {self.front.design_name(move['row'])} "
+                f"({move['why']}{outside}): {move['summary']}"
+            )
+        return lines or [f"{self._named(start)} is the only design within the limits."]
+
     # --------------------------------------------------------------------- shortlist
     @property
     def shortlist(self) -> list[int]:
@@ -684,6 +882,18 @@ def _finite_or_none(value: Any, what: str) -> float | None:
     if not math.isfinite(number):
         raise DataError(f"{what} {value!r} is not a finite number")
     return number
+
+
+def _move_summary(changes: list[dict]) -> str:
+    """One line for a move: what it gains, then what it gives up."""
+    gains = [f"{c['text']} {c['name']}" for c in changes if c["effect"] == "gain"]
+    gives = [f"{c['text']} {c['name']}" for c in changes if c["effect"] == "give"]
+    parts = []
+    if gains:
+        parts.append("gains " + ", ".join(gains))
+    if gives:
+        parts.append("gives up " + ", ".join(gives))
+    return "; ".join(parts) or "the same in every objective"
 
 
 def show_value(value: Any) -> str:
