@@ -20,6 +20,51 @@ from tradewise.search import design_key
 # --------------------------------------------------------------------------- published fronts
 
 
+def test_zdt1_as_a_batch_model_finds_the_front_of_the_one_design_model():
+    """ZDT1 (Zitzler, Deb, Thiele 2000) as a batch model and as a one-design model: the same seed proposes
+    the same designs, so both runs give the same front; none of it beats f2 = 1 - sqrt(f1)."""
+    batch = tradewise.run(CASES / "zdt1-batch", evaluations=3000, seed=3)
+    single = tradewise.run(CASES / "zdt1", evaluations=3000, seed=3)
+    assert batch.case.batch and not single.case.batch
+    assert (batch.n_evals, batch.n_failed, len(batch.front)) == (3000, 0, len(single.front))
+    np.testing.assert_allclose(batch.front.points(), single.front.points(), rtol=1e-12)
+    assert batch.hypervolume == pytest.approx(single.hypervolume, rel=1e-12)
+    points = batch.front.points()
+    assert (points[:, 1] >= 1 - np.sqrt(points[:, 0]) - 1e-12).all()  # nothing beats the true front
+
+
+def test_a_batch_model_that_raises_fails_its_designs_and_the_run_goes_on(make_case):
+    """A batch call that raises records every design of that call as failed with the message; calls
+    that succeed later still build a front (the model raises on its second call only)."""
+    toml = """
+    title = "flaky batch"
+    model = "model.py:evaluate"
+    batch = true
+    [variables]
+    x = { type = "real", low = 0.0, high = 1.0 }
+    [objectives]
+    cost = { goal = "min" }
+    mass = { goal = "min" }
+    [search]
+    population = 10
+    evaluations = 40
+    """
+    model = """
+    CALLS = []
+    def evaluate(designs):
+        CALLS.append(len(designs))
+        if len(CALLS) == 2:
+            raise RuntimeError("solver licence busy")
+        return {"cost": designs["x"], "mass": (1 - designs["x"]) ** 2}
+    """
+    result = tradewise.run(make_case(toml, model, name="flaky-batch"), seed=1)
+    failed = result.evaluations[result.evaluations["status"] == "failed"]
+    assert result.n_evals == 40 and result.n_failed == len(failed) == 10
+    assert set(failed["generation"]) == {2}
+    assert failed["message"].str.contains("RuntimeError: solver licence busy").all()
+    assert len(result.front) > 3
+
+
 @pytest.mark.slow
 def test_zdt1_front_and_hypervolume():
     """ZDT1 (Zitzler, Deb, Thiele 2000): front f2 = 1 - sqrt(f1); exact HV for ref (1, 1) is 2/3.

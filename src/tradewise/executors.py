@@ -18,13 +18,14 @@ import time
 import uuid
 from collections import deque
 from collections.abc import Callable, Iterator, Sequence
+from dataclasses import replace
 from pathlib import Path
 from typing import Any
 
 from tradewise.errors import CaseError, ModelError
 from tradewise.models import Outcome, stop_programs
 
-__all__ = ["InProcess", "ProcessPool", "DaskCluster", "make_executor"]
+__all__ = ["InProcess", "ProcessPool", "DaskCluster", "make_executor", "run_designs"]
 
 Model = Callable[[dict[str, Any]], Outcome]
 
@@ -375,6 +376,33 @@ class DaskCluster(InProcess):
 def _import_models() -> None:
     """Run on each Dask worker: load the modules that evaluating a design needs."""
     import tradewise.models  # noqa: F401
+
+
+def run_designs(
+    executor: InProcess, model: Model, designs: Sequence[dict[str, Any]]
+) -> Iterator[tuple[int, Outcome]]:
+    """Yield ``(position, outcome)`` for each design, whatever kind of model.
+
+    A model that evaluates one design per call goes to ``executor.run`` as it
+    is. A batch model (``model.batch``) gets the designs in one share per
+    worker (one share in this process), each share one call; a failure the
+    executor sees for a share (a worker that died twice, a lost task) is
+    given to every design of that share.
+    """
+    if not getattr(model, "batch", False):
+        yield from executor.run(model, designs)
+        return
+    n_shares = max(1, min(executor.workers, len(designs)))
+    bounds = [round(k * len(designs) / n_shares) for k in range(n_shares + 1)]
+    shares = [list(designs[a:b]) for a, b in zip(bounds, bounds[1:], strict=False)]
+    for s, answer in executor.run(model, shares):
+        first = bounds[s]
+        if isinstance(answer, Outcome):
+            for i in range(len(shares[s])):
+                yield first + i, replace(answer)
+            continue
+        for i, outcome in enumerate(answer):
+            yield first + i, outcome
 
 
 def make_executor(

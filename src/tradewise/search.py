@@ -34,7 +34,7 @@ from tradewise._plain import plain
 from tradewise._pymoo import Searcher, Space, decode_state, default_population
 from tradewise.case import Case, load_case
 from tradewise.errors import ModelError, StoreError
-from tradewise.executors import InProcess, make_executor
+from tradewise.executors import InProcess, make_executor, run_designs
 from tradewise.front import Front, hypervolume, hypervolume_share, nondominated, reference_point
 from tradewise.models import Outcome, make_model
 from tradewise.runinfo import LimitSpec, RunInfo, VariableSpec
@@ -793,7 +793,7 @@ def _evaluate(
         outcomes[key] = run.memo[key]
     to_run = [k for k in proposal.fresh if k not in outcomes]
     batch = [designs[positions[k]] for k in to_run]
-    for i, outcome in executor.run(_model_for(run), batch) if batch else ():
+    for i, outcome in run_designs(executor, _model_for(run), batch) if batch else ():
         key = to_run[i]
         row = run.record(batch[i], key, outcome, generation, cached=False)
         outcomes[key] = run.memo[key]
