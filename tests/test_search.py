@@ -373,9 +373,9 @@ def _run_with_snapshots(fronts, *, maximise=(False, False)):
     case = load_case(CASES / "zdt1")
     run = _Run(case, None, None)
     run.maximise = list(maximise)
-    for front in fronts:
+    for generation, front in enumerate(fronts, 1):
         run.front_pts = np.asarray(front, dtype=float)
-        run.snapshot()
+        run.snapshot(generation)
     return run
 
 
@@ -404,6 +404,39 @@ def test_front_gain_is_nil_for_a_front_that_stands_still():
     assert _run_with_snapshots([front, front]).front_gain(1) == 0.0
     grown = np.column_stack([t, t])  # maximise the second: (t, t) spans best (0, 1)...(1, 0)
     assert _run_with_snapshots([grown, grown], maximise=(False, True)).front_gain(1) == 0.0
+
+
+def test_a_large_fronts_gain_is_judged_every_tenth_generation():
+    """Above 2,000 designs the gain over the settling window is judged on every 10th generation and
+    carried over in between; a front of up to 2,000 designs is judged after every generation."""
+    for size in (2001, 2000):
+        t = np.linspace(0, 1, size)
+        fronts = [np.column_stack([t, 1 - t]) * (1 + 0.1 * (21 - g)) for g in range(1, 22)]
+        at_twenty = _run_with_snapshots(fronts[:20]).front_gain(10)
+        run = _run_with_snapshots(fronts)  # generation 21: the front moved on once more
+        assert at_twenty > 0.01 and run._gain(10) > 0.01 and run._gain(10) != at_twenty
+        assert run.front_gain(10) == (at_twenty if size > 2000 else run._gain(10))
+
+
+def test_the_history_hypervolume_of_a_large_front_is_exact_every_tenth_generation():
+    """Above 2,000 designs a history row's hypervolume is computed (moocore) on every 10th generation and
+    repeated in between, marked inexact; the run's own hypervolume is always exact."""
+    from tradewise.front import hypervolume
+    from tradewise.search import _Run
+
+    run = _Run(load_case(CASES / "zdt1"), None, None)
+    run.reference = np.array([1.0, 1.0])
+    t = np.linspace(0, 1, 2001)
+    for generation, shift in ((10, 0.2), (11, 0.1)):
+        run.front_pts = np.column_stack([t, 1 - np.sqrt(t)]) * 0.9 + shift * 0.1
+        run.front_rows, run._exact_hv = np.arange(2001), None
+        exact = hypervolume(run.front_pts, [1.0, 1.0])
+        value, is_exact = run.progress_hypervolume(generation)
+        if generation == 10:
+            assert is_exact and value == exact
+            at_ten = exact
+        else:
+            assert not is_exact and value == at_ten < exact == run.hypervolume()
 
 
 @pytest.mark.slow
