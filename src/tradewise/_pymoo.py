@@ -35,6 +35,7 @@ from pymoo.operators.mutation.pm import PM
 from pymoo.operators.sampling.rnd import FloatRandomSampling
 from pymoo.problems.static import StaticProblem
 from pymoo.util.ref_dirs import get_reference_directions
+from pymoo.util.ref_dirs.reduction import ReductionBasedReferenceDirectionFactory
 
 from tradewise._plain import plain
 from tradewise.case import Case
@@ -229,7 +230,17 @@ def make_algorithm(case: Case, space: Space, population: int | None, seed: int):
     )
     if n_obj <= 3:
         return NSGA2(pop_size=population, **common), algorithm_name(n_obj)
-    directions = get_reference_directions("energy", n_obj, population, seed=seed)
+    # pymoo's energy method starts from 10,000 points on the simplex and their full distance matrix
+    # (about 800 MB whatever the population); a start sized to the population gives equally spread
+    # directions (measured: closest two of 120 in 4 objectives 0.193 apart, against 0.194) in ~25 MB.
+    start = ReductionBasedReferenceDirectionFactory(
+        n_obj,
+        population,
+        kmeans=True,
+        lexsort=False,
+        n_sample_points=min(2000, max(1000, 10 * population)),
+    ).do(random_state=np.random.default_rng(seed))
+    directions = get_reference_directions("energy", n_obj, population, seed=seed, X=start)
     return NSGA3(directions, pop_size=population, **common), algorithm_name(n_obj)
 
 
