@@ -137,6 +137,35 @@ class Space:
                 design[name] = bool(round(value))
         return design
 
+    def decode_columns(self, X: np.ndarray) -> list[list[Any]]:
+        """The values of many (repaired) rows, one list a variable: what :meth:`decode` gives, a column at a time."""
+        X = np.asarray(X, dtype=float).reshape(-1, len(self._names))
+        columns: list[list[Any]] = []
+        for j, (kind, options, grid) in enumerate(
+            zip(self._kinds, self._options, self._grids, strict=True)
+        ):
+            column = X[:, j]
+            if kind == "real" and not grid:
+                columns.append(column.tolist())
+                continue
+            index = np.rint(column).astype(np.int64).tolist()
+            if grid:
+                columns.append([grid[i] for i in index])
+            elif kind == "integer":
+                columns.append(index)
+            elif kind == "choice":
+                columns.append([options[i] for i in index])
+            else:
+                columns.append([bool(i) for i in index])
+        return columns
+
+    def decode_all(self, X: np.ndarray) -> list[dict[str, Any]]:
+        """The designs of many (repaired) rows, as :meth:`decode` gives each."""
+        names = self._names
+        return [
+            dict(zip(names, row, strict=True)) for row in zip(*self.decode_columns(X), strict=True)
+        ]
+
     def encode(self, design: dict[str, Any]) -> np.ndarray:
         x = []
         for v in self.variables:

@@ -47,7 +47,15 @@ from tradewise.models import Outcome, make_model
 from tradewise.runinfo import LimitSpec, RunInfo, VariableSpec
 from tradewise.store import Store, open_store
 
-__all__ = ["RunResult", "run", "middle_design", "resume", "design_key", "STATUS_TEXT"]
+__all__ = [
+    "RunResult",
+    "run",
+    "middle_design",
+    "resume",
+    "design_key",
+    "design_keys",
+    "STATUS_TEXT",
+]
 
 #: Why a run stopped, in words for the summary.
 STATUS_TEXT = {
@@ -111,6 +119,24 @@ def design_key(design: dict[str, Any]) -> str:
             for name, value in design.items()
         ]
     )
+
+
+def design_keys(names: list[str], columns: list[list[Any]]) -> list[str]:
+    """:func:`design_key` of many designs given a column a variable (``Space.decode_columns``).
+
+    Examples
+    --------
+    >>> design_keys(["t", "n"], [[0.1 + 0.2, 1.5], [3, 4]])
+    ['t=0.3|n=3', 't=1.5|n=4']
+    """
+    texts = [
+        [
+            f"{name}={value:.12g}" if type(value) is float else f"{name}={_key_text(value)}"
+            for value in column
+        ]
+        for name, column in zip(names, columns, strict=True)
+    ]
+    return ["|".join(parts) for parts in zip(*texts, strict=True)]
 
 
 # ----------------------------------------------------------------------------------------- result
@@ -786,8 +812,11 @@ def _propose(run: _Run, searcher: Searcher, number: int) -> _Proposal | None:
     if X is None:
         return None
     case = run.case
-    designs = [searcher.space.decode(x) for x in X.tolist()]
-    keys = [design_key(d) for d in designs]
+    columns = searcher.space.decode_columns(X)
+    designs = [
+        dict(zip(case.variable_names, row, strict=True)) for row in zip(*columns, strict=True)
+    ]
+    keys = design_keys(case.variable_names, columns)
     known = {k for k in keys if k in run.memo}
     unknown = [k for k in dict.fromkeys(keys) if k not in known]
     look_up = [k for k in unknown if k not in run.adopt]
@@ -932,10 +961,8 @@ def _update(run: _Run, proposal: _Proposal, clock: float) -> dict[str, Any]:
 
 def _saved_state(run: _Run, searcher: Searcher, generation: int) -> bytes:
     """The search state after ``generation`` as plain data (JSON), with the survivors' evaluation ids."""
-    ids = [
-        getattr(run.memo.get(design_key(searcher.space.decode(x))), "eval_id", None)
-        for x in searcher.survivors().tolist()
-    ]
+    keys = design_keys(run.case.variable_names, searcher.space.decode_columns(searcher.survivors()))
+    ids = [getattr(run.memo.get(key), "eval_id", None) for key in keys]
     return searcher.state(generation=generation, eval_ids=ids)
 
 
