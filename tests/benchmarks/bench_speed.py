@@ -9,6 +9,8 @@ slows both):
 - in a 50,000-evaluation DTLZ2 run (3 objectives; Deb, Thiele, Laumanns, Zitzler 2002), the wall
   time of a generation in the last tenth of the run against one between 10 % and 20 % of it
   (median of each, and the same with means); target <= 1.3x;
+- the wall time of `tradewise --help` and `tradewise cases` in a fresh interpreter, beside that of
+  `python -c pass`; target well under a second;
 - the peak memory (resident set size) of a 30,000-evaluation run with 4 objectives (DTLZ2, M = 4),
   in a fresh process, beside that of a process that only imports tradewise and pymoo; target
   under 300 MB.
@@ -208,6 +210,27 @@ def peak_memory(repeats: int, folder: Path) -> tuple[list[float], list[float], f
     return runs, writers, base
 
 
+def start_up(repeats: int) -> dict[str, list[float]]:
+    """Wall time of `tradewise --help` and `tradewise cases` in a fresh interpreter, and of a bare one."""
+    commands = {
+        "python -c pass": [sys.executable, "-c", "pass"],
+        "tradewise --help": [sys.executable, "-c", _CLI, "--help"],
+        "tradewise cases": [sys.executable, "-c", _CLI, "cases"],
+    }
+    times: dict[str, list[float]] = {name: [] for name in commands}
+    for _ in range(repeats + 2):
+        for name, command in commands.items():
+            times[name].append(
+                _timed(
+                    lambda command=command: subprocess.run(command, check=True, capture_output=True)
+                )
+            )
+    return times
+
+
+_CLI = "import sys; from tradewise.cli import main; sys.argv[0] = 'tradewise'; main()"
+
+
 def main() -> None:
     parser = argparse.ArgumentParser()
     parser.add_argument("--repeats", type=int, default=3)
@@ -216,6 +239,12 @@ def main() -> None:
     with tempfile.TemporaryDirectory() as tmp:
         folder = Path(tmp)
         lines = []
+        times = start_up(args.repeats)
+        for name, took in times.items():
+            lines.append(
+                f"start-up, {name}: median {statistics.median(took):.2f} s "
+                f"(range {min(took):.2f}-{max(took):.2f})"
+            )
         ratios = trivial(args.repeats, folder)
         lines.append(
             f"trivial model, 10,000 evaluations with archive: {_summary(ratios)} (target <= 1.1x)"
