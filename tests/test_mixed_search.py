@@ -105,3 +105,18 @@ def test_decoding_and_keys_a_generation_at_a_time_agree_with_one_design_at_a_tim
     keys = design_keys(case.variable_names, space.decode_columns(X))
     assert keys == [design_key(d) for d in one_by_one]
     assert len(set(keys)) > 250  # distinct designs give distinct keys
+
+
+def test_keys_of_a_space_of_reals_formatted_a_design_at_a_time_agree():
+    """ZDT1's 30 real variables: the one-call formatting of a float-only space gives design_key's keys."""
+    from tradewise.search import design_key, design_keys
+
+    case = load_case(CASES / "zdt1")
+    space = Space(case)
+    assert space.all_real
+    X = np.random.default_rng(8).random((200, 30)) ** 7  # small values too: 'e' notation
+    X[0, :] = 0.0
+    columns = space.decode_columns(X)
+    keys = design_keys(case.variable_names, columns, floats=True)
+    assert keys == [design_key(space.decode(x)) for x in X.tolist()]
+    assert keys == design_keys(case.variable_names, columns)

@@ -95,7 +95,8 @@ class Space:
         self._kinds = [v.kind for v in case.variables]
         self._options = [v.options for v in case.variables]
         self._grids = [v.grid for v in case.variables]
-        self._all_real = all(v.kind == "real" and not v.grid for v in case.variables)
+        #: Every variable is a real without a step: every decoded value is a float.
+        self.all_real = all(v.kind == "real" and not v.grid for v in case.variables)
         #: (column, number of options) of every choice and flag
         self.categorical = [
             (i, len(v.options) if v.kind == "choice" else 2)
@@ -119,7 +120,7 @@ class Space:
 
     def decode(self, x: Any) -> dict[str, Any]:
         """The design of one (repaired) row: floats, ints, options and booleans under their names."""
-        if self._all_real:
+        if self.all_real:
             return dict(zip(self._names, map(float, x), strict=True))
         design: dict[str, Any] = {}
         for name, kind, options, grid, value in zip(

@@ -21,7 +21,7 @@ import platform
 import time
 from collections import deque
 from collections.abc import Callable
-from dataclasses import dataclass, replace
+from dataclasses import dataclass
 from importlib import metadata
 from pathlib import Path
 from typing import Any
@@ -121,14 +121,22 @@ def design_key(design: dict[str, Any]) -> str:
     )
 
 
-def design_keys(names: list[str], columns: list[list[Any]]) -> list[str]:
+def design_keys(names: list[str], columns: list[list[Any]], *, floats: bool = False) -> list[str]:
     """:func:`design_key` of many designs given a column a variable (``Space.decode_columns``).
+
+    ``floats`` says that every value is a float (a space of real variables
+    only); the keys are then formatted a design at a time in one call.
 
     Examples
     --------
     >>> design_keys(["t", "n"], [[0.1 + 0.2, 1.5], [3, 4]])
     ['t=0.3|n=3', 't=1.5|n=4']
+    >>> design_keys(["t", "w"], [[0.1 + 0.2], [2.0]], floats=True)
+    ['t=0.3|w=2']
     """
+    if floats:
+        template = "|".join(f"{name}={{:.12g}}" for name in names)
+        return [template.format(*row) for row in zip(*columns, strict=True)]
     texts = [
         [
             f"{name}={value:.12g}" if type(value) is float else f"{name}={_key_text(value)}"
@@ -296,7 +304,9 @@ class _Run:
         self.records.append(row)
         if not cached:
             self.n_evals += 1
-            self.memo[key] = replace(outcome, eval_id=eval_id)
+            # Each evaluation's outcome is its own object (executors and models make one a design).
+            outcome.eval_id = eval_id
+            self.memo[key] = outcome
             if status != "ok":
                 self.n_failed += 1
                 self.first_failure = self.first_failure or message
@@ -812,11 +822,10 @@ def _propose(run: _Run, searcher: Searcher, number: int) -> _Proposal | None:
     if X is None:
         return None
     case = run.case
+    names = case.variable_names
     columns = searcher.space.decode_columns(X)
-    designs = [
-        dict(zip(case.variable_names, row, strict=True)) for row in zip(*columns, strict=True)
-    ]
-    keys = design_keys(case.variable_names, columns)
+    designs = [dict(zip(names, row, strict=True)) for row in zip(*columns, strict=True)]
+    keys = design_keys(names, columns, floats=searcher.space.all_real)
     known = {k for k in keys if k in run.memo}
     unknown = [k for k in dict.fromkeys(keys) if k not in known]
     look_up = [k for k in unknown if k not in run.adopt]
@@ -961,7 +970,11 @@ def _update(run: _Run, proposal: _Proposal, clock: float) -> dict[str, Any]:
 
 def _saved_state(run: _Run, searcher: Searcher, generation: int) -> bytes:
     """The search state after ``generation`` as plain data (JSON), with the survivors' evaluation ids."""
-    keys = design_keys(run.case.variable_names, searcher.space.decode_columns(searcher.survivors()))
+    keys = design_keys(
+        run.case.variable_names,
+        searcher.space.decode_columns(searcher.survivors()),
+        floats=searcher.space.all_real,
+    )
     ids = [getattr(run.memo.get(key), "eval_id", None) for key in keys]
     return searcher.state(generation=generation, eval_ids=ids)
 
