@@ -83,6 +83,16 @@ BAD = [
         "case.toml",
         "did you mean 'evaluate'",
     ),
+    (
+        GOOD_TOML.replace('title = "tiny"', 'title = "tiny"\nbatch = "yes"'),
+        "batch",
+        "true or false",
+    ),
+    (
+        GOOD_TOML.replace('title = "tiny"', 'title = "tiny"\nbatch = true\ntimeout = 5'),
+        "batch",
+        "without 'timeout'",
+    ),
     (GOOD_TOML + "\n[search]\npopulation = 2\n", "[search] population", "at least 4"),
     (GOOD_TOML + "\n[search]\nrepresentatives = 0\n", "[search] representatives", "at least 1"),
     (

@@ -265,3 +265,26 @@ def test_plot_parallel_of_two_objectives_alone_is_one_error_line(tmp_path):
     assert result.exit_code == 2 and result.output.count("\n") == 1, result.output
     assert "two objectives and nothing else are not drawn" in result.output
     assert not (tmp_path / "t-parallel.png").exists()
+
+
+def test_the_command_line_starts_without_numpy_pandas_or_pymoo():
+    """Importing the command line and printing --help or listing the cases loads neither numpy, pandas
+    nor pymoo (they are imported by the commands that need them), which keeps start-up quick."""
+    import subprocess
+    import sys
+
+    probe = (
+        "import sys\n"
+        "from click.testing import CliRunner\n"
+        "from tradewise.cli import main\n"
+        "assert CliRunner().invoke(main, ['--help']).exit_code == 0\n"
+        "heavy = sorted(m for m in ('numpy', 'pandas', 'pymoo') if m in sys.modules)\n"
+        "result = CliRunner().invoke(main, ['cases'])\n"
+        "assert result.exit_code == 0 and 'heat-sink' in result.output, result.output\n"
+        "heavy += sorted(m for m in ('pandas', 'pymoo') if m in sys.modules)\n"
+        "print(heavy)\n"
+    )
+    out = subprocess.run(
+        [sys.executable, "-c", probe], capture_output=True, text=True, check=True
+    ).stdout
+    assert out.strip() == "[]"

@@ -27,6 +27,7 @@ from tradewise.executors import (
     InProcess,
     ProcessPool,
     make_executor,
+    run_designs,
 )
 from tradewise.models import make_model
 
@@ -165,6 +166,82 @@ def test_a_whole_run_is_identical_on_every_backend(case, dask_cluster):
         pd.testing.assert_frame_equal(_front_table(result), _front_table(reference), obj=name)
         assert result.hypervolume == reference.hypervolume
         assert (result.n_evals, result.n_failed) == (reference.n_evals, reference.n_failed)
+
+
+BATCH_MODEL = """
+import numpy as np
+
+def evaluate(designs):
+    if (designs["mode"] == "raise").any():
+        raise ValueError(f"cannot size a table of {len(designs)}")
+    x = designs["x"].to_numpy()
+    mass = (1 - x) ** 2 + 0.1
+    mass[(designs["mode"] == "nan").to_numpy()] = np.nan
+    return {
+        "cost": x + np.where(designs["mode"] == "heavy", 0.5, 0.0),
+        "mass": mass,
+        "label": [f"x{v:.2f}" for v in x],
+    }
+"""
+
+
+@pytest.fixture
+def batch_case(make_case):
+    toml = TOML.replace("MODES", json.dumps(["ok", "heavy", "raise", "nan"]))
+    return load_case(
+        make_case(toml.replace("TIMEOUT", "batch = true"), BATCH_MODEL, name="batch-case")
+    )
+
+
+def _shared(executor, model, designs):
+    """(status, results, message) per position through run_designs; exactly one outcome per design."""
+    pairs = list(run_designs(executor, model, designs))
+    assert sorted(i for i, _ in pairs) == list(range(len(designs)))
+    got = dict(pairs)
+    return [(got[i].status, got[i].results, got[i].message) for i in range(len(designs))]
+
+
+def test_a_batch_model_gives_the_one_design_results_on_every_local_backend(case, batch_case):
+    """Contract: a batch model gives, in-process and in a pool of 2 (a share each), the outcomes the
+    one-design model gives for the same designs (numpy and Python arithmetic agree to the bit here); a NaN row fails that design alone."""
+    designs = [d for d in BATCH if d["mode"] != "raise"]
+    expected = _outcomes(InProcess(), make_model(case()), designs)
+    model = make_model(batch_case)
+    assert model.batch
+    assert _shared(InProcess(), model, designs) == expected
+    assert [s for s, _, _ in expected].count("failed") == 1
+    with ProcessPool(2) as pool:
+        assert _shared(pool, model, designs) == expected
+        workers = {o.worker for _, o in run_designs(pool, model, designs)}
+    assert len(workers) == 2
+
+
+def test_an_exception_in_a_batch_call_fails_every_design_of_that_call_only(batch_case):
+    """In-process the one call fails all 8 designs; in a pool of 2 only the share holding the design
+    that makes the model raise fails, with the exception's message, and the other share completes."""
+    model = make_model(batch_case)
+    alone = _shared(InProcess(), model, BATCH)
+    assert {s for s, _, _ in alone} == {"failed"}
+    assert all(
+        "the batch call failed: ValueError: cannot size a table of 8" in m for _, _, m in alone
+    )
+    with ProcessPool(2) as pool:
+        shared = _shared(pool, model, BATCH)
+    assert [s for s, _, _ in shared[:4]] == ["failed"] * 4
+    assert all("cannot size a table of 4" in m for _, _, m in shared[:4])
+    assert [s for s, _, _ in shared[4:]] == ["failed", "ok", "ok", "ok"]  # x=0.5 returned NaN
+    assert "'mass' is nan, expected a finite number" in shared[4][2]
+
+
+@pytest.mark.cluster
+def test_a_batch_model_gives_the_in_process_results_on_dask(case, batch_case, dask_cluster):
+    """Contract: the batch model on a 2-worker Dask LocalCluster gives the in-process outcomes."""
+    designs = [d for d in BATCH if d["mode"] != "raise"]
+    model = make_model(batch_case)
+    assert _shared(dask_cluster, model, designs) == _shared(InProcess(), model, designs)
+    assert _shared(dask_cluster, model, designs) == _outcomes(
+        InProcess(), make_model(case()), designs
+    )
 
 
 def _pid(outcome) -> int:

@@ -1,13 +1,21 @@
 """tradewise: find, judge and communicate the trade-offs between competing design goals."""
 
-from tradewise.case import Case, Constraint, Objective, SearchSettings, Variable, load_case
 from tradewise.errors import CaseError, DataError, ModelError, StoreError, TradewiseError
-from tradewise.front import Front, hypervolume, nondominated, read_front
-from tradewise.runinfo import RunInfo
 
 __version__ = "0.1.0"
 
 _LAZY = {
+    "Case": "case",
+    "Constraint": "case",
+    "Objective": "case",
+    "SearchSettings": "case",
+    "Variable": "case",
+    "load_case": "case",
+    "Front": "front",
+    "hypervolume": "front",
+    "nondominated": "front",
+    "read_front": "front",
+    "RunInfo": "runinfo",
     "run": "search",
     "resume": "search",
     "RunResult": "search",
@@ -20,7 +28,8 @@ _LAZY = {
 
 
 def __getattr__(name: str):
-    # The search pulls in pymoo; it is imported on first use so that `tradewise --help` stays quick.
+    # Everything but the errors is imported on first use (the search pulls in pymoo, the front pandas),
+    # so that `tradewise --help` and `tradewise cases` start quickly.
     if name in _LAZY:
         import importlib
 

@@ -35,6 +35,7 @@ from pymoo.operators.mutation.pm import PM
 from pymoo.operators.sampling.rnd import FloatRandomSampling
 from pymoo.problems.static import StaticProblem
 from pymoo.util.ref_dirs import get_reference_directions
+from pymoo.util.ref_dirs.reduction import ReductionBasedReferenceDirectionFactory
 
 from tradewise._plain import plain
 from tradewise.case import Case
@@ -94,7 +95,8 @@ class Space:
         self._kinds = [v.kind for v in case.variables]
         self._options = [v.options for v in case.variables]
         self._grids = [v.grid for v in case.variables]
-        self._all_real = all(v.kind == "real" and not v.grid for v in case.variables)
+        #: Every variable is a real without a step: every decoded value is a float.
+        self.all_real = all(v.kind == "real" and not v.grid for v in case.variables)
         #: (column, number of options) of every choice and flag
         self.categorical = [
             (i, len(v.options) if v.kind == "choice" else 2)
@@ -118,7 +120,7 @@ class Space:
 
     def decode(self, x: Any) -> dict[str, Any]:
         """The design of one (repaired) row: floats, ints, options and booleans under their names."""
-        if self._all_real:
+        if self.all_real:
             return dict(zip(self._names, map(float, x), strict=True))
         design: dict[str, Any] = {}
         for name, kind, options, grid, value in zip(
@@ -135,6 +137,35 @@ class Space:
             else:
                 design[name] = bool(round(value))
         return design
+
+    def decode_columns(self, X: np.ndarray) -> list[list[Any]]:
+        """The values of many (repaired) rows, one list a variable: what :meth:`decode` gives, a column at a time."""
+        X = np.asarray(X, dtype=float).reshape(-1, len(self._names))
+        columns: list[list[Any]] = []
+        for j, (kind, options, grid) in enumerate(
+            zip(self._kinds, self._options, self._grids, strict=True)
+        ):
+            column = X[:, j]
+            if kind == "real" and not grid:
+                columns.append(column.tolist())
+                continue
+            index = np.rint(column).astype(np.int64).tolist()
+            if grid:
+                columns.append([grid[i] for i in index])
+            elif kind == "integer":
+                columns.append(index)
+            elif kind == "choice":
+                columns.append([options[i] for i in index])
+            else:
+                columns.append([bool(i) for i in index])
+        return columns
+
+    def decode_all(self, X: np.ndarray) -> list[dict[str, Any]]:
+        """The designs of many (repaired) rows, as :meth:`decode` gives each."""
+        names = self._names
+        return [
+            dict(zip(names, row, strict=True)) for row in zip(*self.decode_columns(X), strict=True)
+        ]
 
     def encode(self, design: dict[str, Any]) -> np.ndarray:
         x = []
@@ -229,7 +260,17 @@ def make_algorithm(case: Case, space: Space, population: int | None, seed: int):
     )
     if n_obj <= 3:
         return NSGA2(pop_size=population, **common), algorithm_name(n_obj)
-    directions = get_reference_directions("energy", n_obj, population, seed=seed)
+    # pymoo's energy method starts from 10,000 points on the simplex and their full distance matrix
+    # (about 800 MB whatever the population); a start sized to the population gives equally spread
+    # directions (measured: closest two of 120 in 4 objectives 0.193 apart, against 0.194) in ~25 MB.
+    start = ReductionBasedReferenceDirectionFactory(
+        n_obj,
+        population,
+        kmeans=True,
+        lexsort=False,
+        n_sample_points=min(2000, max(1000, 10 * population)),
+    ).do(random_state=np.random.default_rng(seed))
+    directions = get_reference_directions("energy", n_obj, population, seed=seed, X=start)
     return NSGA3(directions, pop_size=population, **common), algorithm_name(n_obj)
 
 

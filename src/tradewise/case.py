@@ -69,6 +69,7 @@ _TOP_KEYS = (
     "model",
     "command",
     "timeout",
+    "batch",
     "variables",
     "objectives",
     "constraints",
@@ -252,6 +253,8 @@ class Case:
     model: str | None = None
     command: tuple[str, ...] | None = None
     timeout: float | None = None
+    #: The model takes a DataFrame of designs and returns one row of results per design.
+    batch: bool = False
     outputs: dict[str, str] = field(default_factory=dict)
     search: SearchSettings = field(default_factory=SearchSettings)
     description: str = ""
@@ -323,7 +326,10 @@ class Case:
         """
         lines = [self.title]
         if self.model:
-            lines.append(f"Model: the Python function {self.model}")
+            lines.append(
+                f"Model: the Python function {self.model}"
+                + (", called with a table of designs" if self.batch else "")
+            )
         elif self.command:
             lines.append(f"Model: the program {' '.join(self.command)}")
         if self.timeout:
@@ -571,6 +577,7 @@ def _build_case(data: dict[str, Any], file: Path, text: str) -> Case:
 
     search = _search(_table(data, "search", str(file)), f"{file}: [search]")
     model, command, timeout = _model(data, file)
+    batch = _batch(data, file, command, timeout)
 
     digest = hashlib.sha256(text.encode("utf-8"))
     for extra in _model_files(file.parent, model, command):
@@ -584,6 +591,7 @@ def _build_case(data: dict[str, Any], file: Path, text: str) -> Case:
         model=model,
         command=command,
         timeout=timeout,
+        batch=batch,
         outputs=outputs,
         search=search,
         description=description,
@@ -798,6 +806,22 @@ def _check_search_values(settings: SearchSettings, where: str) -> None:
         raise CaseError(
             f"{where} stall_tolerance: got {settings.stall_tolerance:g}, allowed: 0 or more"
         )
+
+
+def _batch(data: dict[str, Any], file: Path, command: Any, timeout: float | None) -> bool:
+    batch = data.get("batch", False)
+    if not isinstance(batch, bool):
+        raise CaseError(f"{file}: batch: got {batch!r}, allowed: true or false")
+    if batch and command is not None:
+        raise CaseError(
+            f"{file}: batch: got true with a 'command'; allowed: true only with a Python 'model'"
+        )
+    if batch and timeout is not None:
+        raise CaseError(
+            f"{file}: batch: got true with a timeout of {timeout:g} s; allowed: a batch model "
+            "without 'timeout' (a timeout stops one design, and a batch call holds many)"
+        )
+    return batch
 
 
 def _model(

@@ -439,7 +439,8 @@ def check_command(case) -> None:
     for line in loaded.plain_lines():
         click.echo(f"  {line}")
     design = middle_design(loaded)
-    outcome = make_model(loaded)(design)
+    model = make_model(loaded)
+    outcome = model([design])[0] if loaded.batch else model(design)
     units = loaded.units
     click.echo("A design in the middle of every range:")
     for name, value in design.items():

@@ -19,6 +19,7 @@ import time
 import uuid
 from collections import deque
 from collections.abc import Callable, Iterator, Sequence
+from dataclasses import replace
 from pathlib import Path
 from typing import Any
 
@@ -26,7 +27,14 @@ from tradewise import format as fmt
 from tradewise.errors import CaseError, ModelError
 from tradewise.models import Outcome, stop_programs
 
-__all__ = ["InProcess", "ProcessPool", "DaskCluster", "make_executor", "POOL_SLOWDOWN_TO_WARN"]
+__all__ = [
+    "InProcess",
+    "ProcessPool",
+    "DaskCluster",
+    "make_executor",
+    "run_designs",
+    "POOL_SLOWDOWN_TO_WARN",
+]
 
 #: A process pool is said to slow a model down when a design takes more than this many times the
 #: model's median time per design of the run's wall time (the time it would take in this process).
@@ -168,13 +176,16 @@ class ProcessPool(InProcess):
 
         Once per pool, when a model proves quicker than handing it a design, a
         notice on the "tradewise" logger says so (see :data:`POOL_SLOWDOWN_TO_WARN`).
+        A batch model's shares are not judged: a share's hand-off is paid once
+        for all its designs.
         """
         marks = _marks_folder()
         self._cost.begin()
         durations: list[float] = []
         try:
             for i, outcome in self._run(model, designs, marks):
-                durations.append(outcome.duration)
+                if isinstance(outcome, Outcome):  # a batch model's share (a list) is not judged
+                    durations.append(outcome.duration)
                 yield i, outcome
         finally:
             shutil.rmtree(marks, ignore_errors=True)
@@ -443,6 +454,33 @@ class DaskCluster(InProcess):
 def _import_models() -> None:
     """Run on each Dask worker: load the modules that evaluating a design needs."""
     import tradewise.models  # noqa: F401
+
+
+def run_designs(
+    executor: InProcess, model: Model, designs: Sequence[dict[str, Any]]
+) -> Iterator[tuple[int, Outcome]]:
+    """Yield ``(position, outcome)`` for each design, whatever kind of model.
+
+    A model that evaluates one design per call goes to ``executor.run`` as it
+    is. A batch model (``model.batch``) gets the designs in one share per
+    worker (one share in this process), each share one call; a failure the
+    executor sees for a share (a worker that died twice, a lost task) is
+    given to every design of that share.
+    """
+    if not getattr(model, "batch", False):
+        yield from executor.run(model, designs)
+        return
+    n_shares = max(1, min(executor.workers, len(designs)))
+    bounds = [round(k * len(designs) / n_shares) for k in range(n_shares + 1)]
+    shares = [list(designs[a:b]) for a, b in zip(bounds, bounds[1:], strict=False)]
+    for s, answer in executor.run(model, shares):
+        first = bounds[s]
+        if isinstance(answer, Outcome):
+            for i in range(len(shares[s])):
+                yield first + i, replace(answer)
+            continue
+        for i, outcome in enumerate(answer):
+            yield first + i, outcome
 
 
 def make_executor(

@@ -25,9 +25,8 @@ Examples
 from __future__ import annotations
 
 import math
+import sys
 from typing import Any
-
-import numpy as np
 
 __all__ = ["DIGITS", "MISSING", "number", "quantity", "share", "value", "seconds"]
 
@@ -54,11 +53,12 @@ def number(x: Any, digits: int = DIGITS) -> str:
     """
     if x is None:
         return MISSING
-    if isinstance(x, str | np.str_):
+    x = _item(x)
+    if isinstance(x, str):
         return str(x)
-    if isinstance(x, bool | np.bool_):
+    if isinstance(x, bool):
         return "yes" if x else "no"
-    if isinstance(x, int | np.integer):
+    if isinstance(x, int):
         return f"{int(x):,}"
     x = float(x)
     if math.isnan(x):
@@ -88,8 +88,7 @@ def quantity(x: Any, unit: str | None = None, digits: int = DIGITS) -> str:
     >>> quantity(0.12345, "K/W"), quantity(12, None)
     ('0.1235 K/W', '12')
     """
-    if isinstance(x, np.generic):
-        x = x.item()
+    x = _item(x)
     text = number(x, digits) if x is None or isinstance(x, int | float) else str(x)
     return f"{text} {unit}" if unit and text != MISSING else text
 
@@ -130,11 +129,20 @@ def value(x: Any) -> str:
 
     Examples
     --------
+    >>> import numpy as np
     >>> value(2.0), value("6063"), value(np.int64(7)), value(np.float64(0.25))
     ('2', '6063', '7', '0.25')
     """
-    if isinstance(x, np.generic):
-        x = x.item()
+    x = _item(x)
     if x is None or isinstance(x, bool | int | float):
         return number(x)
     return str(x)
+
+
+def _item(x: Any) -> Any:
+    """A numpy scalar as the Python value it holds; numpy is not imported here, so that the command
+    line starts quickly (a numpy value exists only once numpy is imported)."""
+    numpy = sys.modules.get("numpy")
+    if numpy is not None and isinstance(x, numpy.generic):
+        return x.item()
+    return x

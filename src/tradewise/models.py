@@ -26,7 +26,14 @@ from tradewise._model_host import check_results
 from tradewise.case import Case
 from tradewise.errors import CaseError, ModelError
 
-__all__ = ["Outcome", "PythonModel", "CommandModel", "make_model", "check_results"]
+__all__ = [
+    "Outcome",
+    "PythonModel",
+    "BatchModel",
+    "CommandModel",
+    "make_model",
+    "check_results",
+]
 
 _STDERR_TAIL = 400
 
@@ -97,6 +104,126 @@ class PythonModel:
         if self.timeout is not None:
             return _evaluate_guarded(self.file, self.function, self.required, self.timeout, design)
         return Outcome(**_host.evaluate(self.load(), design, self.required))
+
+
+class BatchModel:
+    """A model given as ``evaluate(designs: DataFrame)`` that evaluates many designs in one call.
+
+    The function receives one row per design, with the case's variable names
+    as columns, and returns a DataFrame or a mapping of arrays with one row
+    per design, in the same order. A row whose objectives or constraints are
+    missing, NaN or infinite fails that design alone; an exception in the
+    call fails every design of the call, each with the exception's message.
+    Calling the object with a list of designs gives one :class:`Outcome` per
+    design; the executors hand each worker a share of a generation.
+    """
+
+    #: Executors split a generation into shares for a batch model instead of sending designs one by one.
+    batch = True
+
+    def __init__(self, case: Case) -> None:
+        module, function = case.model.split(":")
+        self.file = os.path.abspath(case.folder / module)
+        self.function = function
+        self.columns = case.variable_names
+        self.required = case.objective_names + case.constraint_names
+        self._callable = None
+
+    def __getstate__(self) -> dict[str, Any]:
+        state = dict(self.__dict__)
+        state["_callable"] = None
+        return state
+
+    load = PythonModel.load
+
+    def __call__(self, designs: list[dict[str, Any]]) -> list[Outcome]:
+        import pandas as pd
+
+        function = self.load()
+        worker = _host.worker_name()
+        n = len(designs)
+        if not n:
+            return []
+        table = pd.DataFrame.from_records(designs, columns=self.columns)
+        start = time.perf_counter()
+        try:
+            raw = function(table)
+        except (Exception, SystemExit) as exc:  # the designer's model may raise; every design fails
+            message = (
+                f"the batch call failed: {type(exc).__name__}: {exc}{_host._innermost_frame(exc)}"
+            )
+            share = (time.perf_counter() - start) / n
+            return [Outcome("failed", {}, message, share, worker) for _ in range(n)]
+        share = (time.perf_counter() - start) / n
+        return [
+            Outcome("failed" if problem else "ok", results, problem, share, worker)
+            for results, problem in check_table(raw, n, self.required)
+        ]
+
+
+def check_table(raw: Any, n: int, required: list[str]) -> list[tuple[dict[str, Any], str]]:
+    """Check a batch model's answer for ``n`` designs: (results, '' or an error message) per design.
+
+    The same rules as :func:`check_results`, applied a column at a time.
+    """
+    import pandas as pd
+
+    def every(problem: str) -> list[tuple[dict[str, Any], str]]:
+        return [({}, problem) for _ in range(n)]
+
+    if isinstance(raw, pd.DataFrame):
+        table = raw.reset_index(drop=True)
+    elif isinstance(raw, dict) or hasattr(raw, "keys"):
+        try:
+            table = pd.DataFrame({str(k): np.asarray(raw[k]).reshape(-1) for k in raw})
+        except ValueError as exc:
+            return every(f"batch model returned arrays that do not form a table: {exc}")
+    else:
+        return every(
+            f"batch model returned {type(raw).__name__}, expected a DataFrame or a mapping of arrays"
+        )
+    if len(table) != n:
+        return every(f"batch model returned {len(table)} rows for {n} designs")
+    table.columns = [str(c) for c in table.columns]
+    missing = [name for name in required if name not in table.columns]
+    if missing:
+        return every(
+            f"model result has no {missing[0]!r} (got columns: {', '.join(table.columns) or 'none'})"
+        )
+    values = np.empty((n, len(required)))
+    for j, name in enumerate(required):
+        column = table[name]
+        if column.dtype == bool or not (
+            pd.api.types.is_numeric_dtype(column) or column.dtype == object
+        ):
+            return every(f"model result {name!r} is of type {column.dtype}, expected numbers")
+        values[:, j] = pd.to_numeric(column, errors="coerce").to_numpy(dtype=float, na_value=np.nan)
+    good = np.isfinite(values).all(axis=1)
+    extra = [c for c in table.columns if c not in set(required)]
+    others = (
+        table[extra].astype(object).where(table[extra].notna(), None).to_dict("records")
+        if extra
+        else [{}] * n
+    )
+    checked: list[tuple[dict[str, Any], str]] = []
+    for i, row in enumerate(values.tolist()):
+        if not good[i]:
+            j = int(np.flatnonzero(~np.isfinite(values[i]))[0])
+            given = table[required[j]].iloc[i]
+            given = given.item() if isinstance(given, np.generic) else given
+            checked.append(
+                ({}, f"model result {required[j]!r} is {given!r}, expected a finite number")
+            )
+            continue
+        results = dict(zip(required, row, strict=True))
+        for key, value in others[i].items():
+            value = value.item() if isinstance(value, np.generic) else value
+            if isinstance(value, float) and not np.isfinite(value):
+                value = None
+            if value is None or isinstance(value, bool | int | float | str):
+                results[key] = value
+        checked.append((results, ""))
+    return checked
 
 
 # ------------------------------------------------------------------ Python models under a timeout
@@ -521,8 +648,11 @@ def _plain(value: Any) -> Any:
     raise TypeError(f"cannot write {type(value).__name__} as JSON")
 
 
-def make_model(case: Case) -> PythonModel | CommandModel:
-    """The callable model of ``case``: ``model(design) -> Outcome``."""
+def make_model(case: Case) -> PythonModel | BatchModel | CommandModel:
+    """The callable model of ``case``: ``model(design) -> Outcome``, or for a batch model
+    ``model(designs) -> [Outcome, ...]``."""
+    if case.model is not None and case.batch:
+        return BatchModel(case)
     if case.model is not None:
         return PythonModel(case)
     if case.command is not None:

@@ -21,7 +21,7 @@ import platform
 import time
 from collections import deque
 from collections.abc import Callable
-from dataclasses import dataclass, replace
+from dataclasses import dataclass
 from importlib import metadata
 from pathlib import Path
 from typing import Any
@@ -34,11 +34,12 @@ from tradewise._plain import plain
 from tradewise._pymoo import Searcher, Space, decode_state, default_population
 from tradewise.case import Case, load_case
 from tradewise.errors import ModelError, StoreError
-from tradewise.executors import InProcess, make_executor
+from tradewise.executors import InProcess, make_executor, run_designs
 from tradewise.front import (
     Front,
     design_table,
     hypervolume,
+    hypervolume_box,
     hypervolume_share,
     nondominated,
     reference_point,
@@ -47,7 +48,15 @@ from tradewise.models import Outcome, make_model
 from tradewise.runinfo import LimitSpec, RunInfo, VariableSpec
 from tradewise.store import Store, open_store
 
-__all__ = ["RunResult", "run", "middle_design", "resume", "design_key", "STATUS_TEXT"]
+__all__ = [
+    "RunResult",
+    "run",
+    "middle_design",
+    "resume",
+    "design_key",
+    "design_keys",
+    "STATUS_TEXT",
+]
 
 #: Why a run stopped, in words for the summary.
 STATUS_TEXT = {
@@ -69,6 +78,11 @@ _EXHAUSTED_AFTER = 25  # generations in a row without a new design before giving
 _SETTLE_WINDOW = 10
 _SETTLE_GAIN = 1e-3
 _SETTLE_SPAN = 150
+# Above this many designs a front of four or more objectives is thinned evenly for the settling measure
+# and the stall rule, and the history's hypervolume of any front is computed exactly every
+# _EXACT_EVERY generations only (and at the end), so that a generation's cost hardly grows with the front.
+_GAIN_POINTS = 2000
+_EXACT_EVERY = 10
 # The search state (plain data: the surviving population, the random generator, ~50 kB) is saved after a generation when this many seconds
 # have passed since the last save, and at the end. Resuming from an older state costs nothing but
 # pymoo time: the generations after it are replayed with results taken from the archive.
@@ -106,6 +120,32 @@ def design_key(design: dict[str, Any]) -> str:
             for name, value in design.items()
         ]
     )
+
+
+def design_keys(names: list[str], columns: list[list[Any]], *, floats: bool = False) -> list[str]:
+    """:func:`design_key` of many designs given a column a variable (``Space.decode_columns``).
+
+    ``floats`` says that every value is a float (a space of real variables
+    only); the keys are then formatted a design at a time in one call.
+
+    Examples
+    --------
+    >>> design_keys(["t", "n"], [[0.1 + 0.2, 1.5], [3, 4]])
+    ['t=0.3|n=3', 't=1.5|n=4']
+    >>> design_keys(["t", "w"], [[0.1 + 0.2], [2.0]], floats=True)
+    ['t=0.3|w=2']
+    """
+    if floats:
+        template = "|".join(f"{name}={{:.12g}}" for name in names)
+        return [template.format(*row) for row in zip(*columns, strict=True)]
+    texts = [
+        [
+            f"{name}={value:.12g}" if type(value) is float else f"{name}={_key_text(value)}"
+            for value in column
+        ]
+        for name, column in zip(names, columns, strict=True)
+    ]
+    return ["|".join(parts) for parts in zip(*texts, strict=True)]
 
 
 # ----------------------------------------------------------------------------------------- result
@@ -185,18 +225,23 @@ class _Run:
         self.n_failed = 0
         self.n_cached = 0
         self.first_failure = ""
-        self.front_rows: list[int] = []  # positions in self.records
+        self.front_rows = np.empty(0, dtype=np.int64)  # positions in self.records
         self.front_pts = np.empty((0, len(case.objectives)))
+        self.front_ties = np.empty((0, len(case.objectives)))  # rounded on the run's scale
+        self._exact_hv: float | None = None
+        self._last_hv = 0.0
         self.reference: np.ndarray | None = None
         self.reference_source = ""
         self.scale: np.ndarray | None = None
         self.history: list[dict[str, Any]] = []
         # The front after each of the last generations, for judging how much it still moves.
-        self.snapshots: deque[np.ndarray] = deque(
+        self.snapshots: deque[tuple[np.ndarray, dict[bytes, float]]] = deque(
             maxlen=max(case.search.stall_generations, _SETTLE_WINDOW) + 1
         )
         self.settled = 0  # generations so far after which the front had settled (see _refinement)
-        self._gains: dict[int, float] = {}  # front_gain by window, for the latest snapshot
+        self._gains: dict[int, float] = {}  # front_gain by window, as last judged (see snapshot)
+        # The windows the run watches: the settling measure's and the stall rule's.
+        self._windows = {_SETTLE_WINDOW, case.search.stall_generations} - {0}
         self.next_id = 1
         # Designs this run evaluated after its last saved state, by key; a resumed search takes
         # each over when it proposes it again instead of evaluating it twice.
@@ -260,7 +305,9 @@ class _Run:
         self.records.append(row)
         if not cached:
             self.n_evals += 1
-            self.memo[key] = replace(outcome, eval_id=eval_id)
+            # Each evaluation's outcome is its own object (executors and models make one a design).
+            outcome.eval_id = eval_id
+            self.memo[key] = outcome
             if status != "ok":
                 self.n_failed += 1
                 self.first_failure = self.first_failure or message
@@ -270,16 +317,15 @@ class _Run:
 
     # -- one generation ---------------------------------------------------------------------
     def update_front(self, new_rows: list[int]) -> None:
+        """Merge the feasible designs of ``new_rows`` into the front: old front plus new designs only."""
         fresh = [i for i in new_rows if self.records[i]["feasible"]]
         if not fresh:
             return
         names = [o.name for o in self.objectives]
         new_points = np.array([[self.records[i][n] for n in names] for i in fresh], dtype=float)
-        candidates = self.front_rows + fresh
-        points = np.vstack([self.front_pts, new_points]) if self.front_rows else new_points
         if self.reference is None:
             self.reference = reference_point(
-                points, self.maximise, worst=[o.worst for o in self.objectives]
+                new_points, self.maximise, worst=[o.worst for o in self.objectives]
             )
             given = [o.name for o in self.objectives if o.worst is not None]
             self.reference_source = (
@@ -289,22 +335,38 @@ class _Run:
                 + (f"; case values for {', '.join(given)}" if given else "")
             )
         if self.scale is None:
-            best = np.where(self.maximise, points.max(axis=0), points.min(axis=0))
+            best = np.where(self.maximise, new_points.max(axis=0), new_points.min(axis=0))
             scale = np.abs(self.reference - best)
             self.scale = np.where(scale > 0, scale, 1.0)
         # Values equal to 1e-9 of the objective's scale count as ties, so floating-point noise
-        # (cos(pi/2) is 6e-17, not 0) cannot keep an unconverged design on the front.
-        mask = nondominated(np.round(points / self.scale, 9), self.maximise)
-        self.front_rows = [i for i, keep in zip(candidates, mask, strict=True) if keep]
-        self.front_pts = points[mask]
+        # (cos(pi/2) is 6e-17, not 0) cannot keep an unconverged design on the front. The front's
+        # rounded values are kept, so only the new designs are rounded.
+        new_ties = np.round(new_points / self.scale, 9)
+        ties = np.vstack([self.front_ties, new_ties])
+        mask = nondominated(ties, self.maximise)
+        self.front_rows = np.concatenate([self.front_rows, np.asarray(fresh, dtype=np.int64)])[mask]
+        self.front_pts = np.vstack([self.front_pts, new_points])[mask]
+        self.front_ties = ties[mask]
+        self._exact_hv = None
 
     def front_points(self) -> np.ndarray:
         return self.front_pts
 
-    def snapshot(self) -> None:
-        """Keep the front as it stands after a generation."""
-        self.snapshots.append(self.front_pts)
-        self._gains.clear()
+    def snapshot(self, generation: int) -> None:
+        """Keep the front as it stands after ``generation``; judge its gain when that is due.
+
+        The gains over the windows the run watches are computed now while
+        the front has at most ``_GAIN_POINTS`` designs, and on every
+        ``_EXACT_EVERY``-th generation beyond that; in between they are
+        carried over. Computing them here, from the generation number, gives
+        a resumed run the values the uninterrupted run had.
+        """
+        points = self.front_pts * np.where(self.maximise, -1.0, 1.0)
+        if points.shape[1] >= 4:
+            points = _thin(points, _GAIN_POINTS)
+        self.snapshots.append((points, {}))
+        if len(self.front_pts) <= _GAIN_POINTS or generation % _EXACT_EVERY == 0:
+            self._gains = {window: self._gain(window) for window in self._windows}
 
     def front_gain(self, window: int) -> float:
         """How much the front gained over the last ``window`` generations, judged on its own scale.
@@ -314,9 +376,12 @@ class _Run:
         (reference 1.1 in each normalised objective) that the older front did
         not have. Judged so, a front that still moves toward the ideal shows a
         large gain however large the box of the first random designs was.
-        ``inf`` until ``window`` generations have passed. Exact for two and
-        three objectives; with four or more, fronts above 2,000 designs are
-        thinned evenly first (an approximation, for speed).
+        ``inf`` until ``window`` generations have passed. Exact, and judged
+        after every generation, while the front has at most 2,000 designs;
+        beyond that it is judged every 10th generation and carried over in
+        between, so that a generation's cost does not grow with the front
+        (see :meth:`snapshot`); with four or more objectives such a front is
+        also thinned evenly first (an approximation, for speed).
         """
         if window not in self._gains:
             self._gains[window] = self._gain(window)
@@ -326,31 +391,54 @@ class _Run:
         if window <= 0 or len(self.snapshots) <= window:
             return math.inf
         new, old = self.snapshots[-1], self.snapshots[-1 - window]
-        if not len(new):
+        if not len(new[0]):
             return math.inf
-        flip = np.where(self.maximise, -1.0, 1.0)
-        new, old = new * flip, old * flip
-        if new.shape[1] >= 4:
-            new, old = _thin(new), _thin(old)
-        low, high = new.min(axis=0), new.max(axis=0)
-        span = np.where(high > low, high - low, 1.0)
-        ref = np.full(new.shape[1], 1.1)
-        hv_new = hypervolume((new - low) / span, ref, False)
+        low, high = new[0].min(axis=0), new[0].max(axis=0)
+        hv_new = _normalised_hypervolume(new, low, high)
         if hv_new <= 0:
             return math.inf
-        hv_old = hypervolume((old - low) / span, ref, False) if len(old) else 0.0
+        hv_old = _normalised_hypervolume(old, low, high) if len(old[0]) else 0.0
         return max(0.0, (hv_new - hv_old) / hv_new)
 
     def hypervolume(self) -> float:
-        if self.reference is None or not self.front_rows:
+        """The exact hypervolume of the front on the run's reference point."""
+        if self.reference is None or not len(self.front_rows):
             return 0.0
-        return hypervolume(self.front_points(), self.reference, self.maximise)
+        if self._exact_hv is None:
+            self._exact_hv = hypervolume(self.front_points(), self.reference, self.maximise)
+        return self._exact_hv
+
+    def progress_hypervolume(self, generation: int) -> tuple[float, bool]:
+        """The hypervolume for a generation's history row, and whether it is exact.
+
+        Exact while the front has at most ``_GAIN_POINTS`` designs and on every
+        ``_EXACT_EVERY``-th generation; in between, a larger front's row repeats
+        the last exact value (the front only grows, so it is a lower bound).
+        """
+        if len(self.front_rows) <= _GAIN_POINTS or generation % _EXACT_EVERY == 0:
+            self._last_hv = self.hypervolume()
+            return self._last_hv, True
+        return self._last_hv, False
 
 
-def _thin(points: np.ndarray, most: int = 2000) -> np.ndarray:
+def _normalised_hypervolume(
+    snapshot: tuple[np.ndarray, dict[bytes, float]], low: np.ndarray, high: np.ndarray
+) -> float:
+    """Hypervolume of a kept front normalised by ``low`` and ``high`` (reference 1.1), computed once."""
+    points, known = snapshot
+    key = low.tobytes() + high.tobytes()
+    if key not in known:
+        span = np.where(high > low, high - low, 1.0)
+        known.clear()  # only the latest normalisation is kept; another is computed afresh
+        known[key] = hypervolume((points - low) / span, np.full(points.shape[1], 1.1), False)
+    return known[key]
+
+
+def _thin(points: np.ndarray, most: int) -> np.ndarray:
+    """At most ``most`` of ``points``, evenly spaced in the order of the first objective."""
     if len(points) <= most:
         return points
-    order = np.lexsort(points.T[::-1])
+    order = np.argsort(points[:, 0], kind="stable")
     return points[order[np.linspace(0, len(points) - 1, most).astype(int)]]
 
 
@@ -613,7 +701,7 @@ def _restore(run: _Run, archive: Store, run_id: int, record: dict[str, Any], *, 
         if row["generation"] != current:
             if current is not None:
                 run.update_front(list(range(start, len(run.records))))
-                run.snapshot()
+                run.snapshot(current)
             start, current = len(run.records), row["generation"]
         run.record(
             design,
@@ -625,7 +713,7 @@ def _restore(run: _Run, archive: Store, run_id: int, record: dict[str, Any], *, 
         )
     if current is not None:
         run.update_front(list(range(start, len(run.records))))
-        run.snapshot()
+        run.snapshot(current)
     history = archive.history(run_id)
     run.history = history.to_dict("records") if len(history) else []
     if run.history:
@@ -735,8 +823,10 @@ def _propose(run: _Run, searcher: Searcher, number: int) -> _Proposal | None:
     if X is None:
         return None
     case = run.case
-    designs = [searcher.space.decode(x) for x in X.tolist()]
-    keys = [design_key(d) for d in designs]
+    names = case.variable_names
+    columns = searcher.space.decode_columns(X)
+    designs = [dict(zip(names, row, strict=True)) for row in zip(*columns, strict=True)]
+    keys = design_keys(names, columns, floats=searcher.space.all_real)
     known = {k for k in keys if k in run.memo}
     unknown = [k for k in dict.fromkeys(keys) if k not in known]
     look_up = [k for k in unknown if k not in run.adopt]
@@ -800,7 +890,7 @@ def _evaluate(
         outcomes[key] = run.memo[key]
     to_run = [k for k in proposal.fresh if k not in outcomes]
     batch = [designs[positions[k]] for k in to_run]
-    for i, outcome in executor.run(_model_for(run), batch) if batch else ():
+    for i, outcome in run_designs(executor, _model_for(run), batch) if batch else ():
         key = to_run[i]
         row = run.record(batch[i], key, outcome, generation, cached=False)
         outcomes[key] = run.memo[key]
@@ -848,7 +938,7 @@ def _update(run: _Run, proposal: _Proposal, clock: float) -> dict[str, Any]:
         raise ModelError(message)
     had_reference = run.reference is not None
     run.update_front(new_rows)
-    run.snapshot()
+    run.snapshot(proposal.number)
     if run.front_gain(_SETTLE_WINDOW) < _SETTLE_GAIN:
         run.settled += 1
     if run.store is not None and run.reference is not None and not had_reference:
@@ -856,6 +946,7 @@ def _update(run: _Run, proposal: _Proposal, clock: float) -> dict[str, Any]:
             run.run_id, reference={"point": run.reference.tolist(), "source": run.reference_source}
         )
     n_feasible = sum(1 for i in new_rows if run.records[i]["feasible"])
+    hv, _ = run.progress_hypervolume(proposal.number)
     row = {
         "generation": proposal.number,
         "evaluations": run.n_evals,
@@ -864,10 +955,10 @@ def _update(run: _Run, proposal: _Proposal, clock: float) -> dict[str, Any]:
         "failed": run.n_failed,
         "feasible_share": n_feasible / len(new_rows) if new_rows else 0.0,
         "front_size": len(run.front_rows),
-        "hypervolume": run.hypervolume(),
+        "hypervolume": hv,
         "hypervolume_share": _finite(
-            hypervolume_share(run.front_points(), run.reference, run.maximise)
-            if run.reference is not None and run.front_rows
+            min(1.0, hv / hypervolume_box(run.front_points(), run.reference, run.maximise))
+            if run.reference is not None and len(run.front_rows)
             else math.nan
         ),
         "elapsed_s": round(time.monotonic() - clock, 3),
@@ -880,10 +971,12 @@ def _update(run: _Run, proposal: _Proposal, clock: float) -> dict[str, Any]:
 
 def _saved_state(run: _Run, searcher: Searcher, generation: int) -> bytes:
     """The search state after ``generation`` as plain data (JSON), with the survivors' evaluation ids."""
-    ids = [
-        getattr(run.memo.get(design_key(searcher.space.decode(x))), "eval_id", None)
-        for x in searcher.survivors().tolist()
-    ]
+    keys = design_keys(
+        run.case.variable_names,
+        searcher.space.decode_columns(searcher.survivors()),
+        floats=searcher.space.all_real,
+    )
+    ids = [getattr(run.memo.get(key), "eval_id", None) for key in keys]
     return searcher.state(generation=generation, eval_ids=ids)
 
 
@@ -957,8 +1050,8 @@ def _finish(run: _Run, status: str, algorithm_name: str, started: float) -> RunR
         constraint_limits=tuple(LimitSpec(c.name, c.min, c.max, c.unit) for c in case.constraints),
     )
     front_table = (
-        records.iloc[run.front_rows][columns]
-        if run.front_rows
+        records.iloc[np.sort(run.front_rows)][columns]
+        if len(run.front_rows)
         else records.iloc[0:0].reindex(columns=columns)
     )
     front_table = design_table(front_table)

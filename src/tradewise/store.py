@@ -671,8 +671,11 @@ class Store:
         seen = self._others.get((case_hash, run_id))
         if seen is not None and time.monotonic() - seen < _OTHERS_TTL:
             return False
+        # Through the runs of the case and the index by run: asking the evaluations by case would read
+        # every row of this run, a cost that grows with the run.
         (others,) = self._db.execute(
-            "SELECT EXISTS (SELECT 1 FROM evaluations WHERE case_hash = ? AND source_id IS NULL AND run_id <> ?)",
+            "SELECT EXISTS (SELECT 1 FROM evaluations WHERE run_id IN"
+            " (SELECT run_id FROM runs WHERE case_hash = ? AND run_id <> ?) AND source_id IS NULL)",
             (case_hash, run_id),
         ).fetchone()
         if others:
