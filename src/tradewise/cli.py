@@ -236,6 +236,12 @@ def _run_folder(case, out: str | None) -> str:
     help="How many designs at most stand for the front in representatives.csv (default from "
     "the case, else 20).",
 )
+@click.option(
+    "--surrogate",
+    is_flag=True,
+    help="For slow models: fit Gaussian-process models to the evaluations and let them propose "
+    "each round's designs (as many as workers), for a good front in a few hundred evaluations.",
+)
 @click.option("--quiet", is_flag=True, help="No progress output.")
 def run_command(
     case,
@@ -251,6 +257,7 @@ def run_command(
     dask,
     scheduler,
     representatives,
+    surrogate,
     quiet,
 ) -> None:
     """Search CASE for its best compromises and write a run folder.
@@ -267,7 +274,9 @@ def run_command(
     from tradewise.case import load_case
     from tradewise.runfolder import save_run
 
-    loaded = load_case(case).with_search(representatives=representatives)
+    loaded = load_case(case).with_search(
+        representatives=representatives, surrogate=True if surrogate else None
+    )
     folder = Path(_run_folder(loaded, out))
     store_path = Path(store) if store else folder / "archive.sqlite"
     budget = evaluations or loaded.search.evaluations

@@ -375,6 +375,7 @@ def run(
     progress: Callable[[dict[str, Any]], None] | None = None,
     on_evaluation: Callable[[dict[str, Any]], None] | None = None,
     seed_set: dict[str, Any] | None = None,
+    surrogate: bool | None = None,
 ) -> RunResult:
     """Search a case for its Pareto front.
 
@@ -400,6 +401,10 @@ def run(
         Set by :func:`run_seeds`: the set of seeds this run is one of
         (``{"id": ..., "seeds": [...]}``), recorded with the run so that
         resuming any of them resumes them all.
+    surrogate : bool, optional
+        Search Gaussian-process models of the model instead of the model
+        itself, for slow models (:mod:`tradewise.surrogate`); ``None`` keeps
+        the case's ``[search] surrogate``.
 
     Returns
     -------
@@ -425,6 +430,7 @@ def run(
         generations=generations,
         population=population,
         time_limit=time_limit,
+        surrogate=surrogate,
     )
     # The archive first: a bad file fails before any worker or cluster is started.
     archive = open_store(store) if store is not None else None
@@ -448,9 +454,7 @@ def run(
                 versions=_versions(),
             )
         run = _Run(case, archive, run_id)
-        searcher = Searcher(
-            case, Space(case), population=case.search.population, seed=case.search.seed
-        )
+        searcher = _searcher(case)
         return _loop(run, searcher, executor, progress, on_evaluation, started=time.time())
     finally:
         if own_executor:
@@ -505,9 +509,7 @@ def resume(
         if evaluations is not None:
             settings["evaluations"] = evaluations
         case = case.with_search(**{k: v for k, v in settings.items() if v is not None})
-        searcher = Searcher(
-            case, Space(case), population=case.search.population, seed=case.search.seed
-        )
+        searcher = _searcher(case)
         saved = archive.state(run_id)
         state = decode_state(saved[1]) if saved is not None else None
         if state is None:
@@ -543,6 +545,17 @@ def resume(
                 executor.close()
     finally:
         archive.close()
+
+
+def _searcher(case: Case):
+    """The case's searcher: NSGA-II (or NSGA-III), or the Gaussian-process models of a surrogate run."""
+    if case.search.surrogate:
+        from tradewise.surrogate import SurrogateSearcher
+
+        return SurrogateSearcher(
+            case, Space(case), population=case.search.population, seed=case.search.seed
+        )
+    return Searcher(case, Space(case), population=case.search.population, seed=case.search.seed)
 
 
 def _recorded_settings(case: Case, seed_set: dict[str, Any] | None) -> dict[str, Any]:
@@ -676,6 +689,8 @@ def _loop(
         run.history[-1]["elapsed_s"] if run.history else time.time() - started
     )
     saved_generation = generation
+    if hasattr(searcher, "watch"):
+        searcher.watch(run, executor)  # a surrogate searcher learns from the run's records
     try:
         while not (
             status := _stop_status(
@@ -698,6 +713,8 @@ def _loop(
             outcomes = _evaluate(run, proposal, executor, on_evaluation)
             searcher.tell(*_values(run.case, proposal.keys, outcomes, searcher.n_con))
             row = _update(run, proposal, clock)
+            if hasattr(searcher, "notes"):
+                row.update(searcher.notes())
             idle = idle + 1 if not proposal.fresh else 0
             if run.store is not None:
                 state = None
@@ -714,7 +731,7 @@ def _loop(
         # Designs evaluated in the interrupted generation count too: they are in the archive.
         run.update_front(list(range(fronted, len(run.records))))
     _take_over_leftovers(run)
-    return _finish(run, status, searcher.name, started)
+    return _finish(run, status, searcher.name, started, getattr(searcher, "summary", lambda: "")())
 
 
 def _propose(run: _Run, searcher: Searcher, number: int) -> _Proposal | None:
@@ -910,7 +927,9 @@ def _finite(value: float) -> float | None:
     return value if math.isfinite(value) else None
 
 
-def _finish(run: _Run, status: str, algorithm_name: str, started: float) -> RunResult:
+def _finish(
+    run: _Run, status: str, algorithm_name: str, started: float, more: str = ""
+) -> RunResult:
     case = run.case
     records = pd.DataFrame.from_records(run.records)
     columns = _ordered_columns(case, records)
@@ -1003,6 +1022,8 @@ def _finish(run: _Run, status: str, algorithm_name: str, started: float) -> RunR
                 .drop_duplicates(subset=case.variable_names)
                 .head(20)[columns]
             )
+    if more:
+        parts.append(more)
     message = " ".join(parts)
     if run.store is not None:
         run.store.update_run(run.run_id, status=status, message=message, finished=time.time())
