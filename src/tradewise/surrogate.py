@@ -556,6 +556,14 @@ class SurrogateSearcher:
         ideal, nadir = front.min(axis=0), front.max(axis=0)
         if len(front) < 2:
             ideal, nadir = base.min(axis=0), base.max(axis=0)
+        reference = getattr(self.run, "reference", None)
+        if reference is not None:
+            # The run's own reference point (the case's worst values, or fixed from the first
+            # feasible designs) maps to 1.1: the criterion then values what the run's hypervolume
+            # values. A reference taken from the current front alone gives nothing for designs
+            # beyond its ends, so the front would never grow sideways.
+            flip = np.where(self.case.maximise, -1.0, 1.0)
+            nadir = np.maximum(nadir, ideal + (flip * np.asarray(reference) - ideal) / 1.1)
         span = np.where(nadir > ideal, nadir - ideal, 1.0)
         return (front - ideal) / span if feasible.any() else np.empty((0, self.n_obj)), ideal, span
 
