@@ -35,8 +35,9 @@ Choices made here, and why:
   round) on at most :data:`FIT_CAP` designs, chosen as the best half by
   non-dominated rank (feasible first) and the rest at random; the model then
   conditions, with those hyperparameters fixed, on at most :data:`USE_CAP`
-  designs chosen the same way. Above :data:`FIT_CAP` designs the
-  hyperparameters are refitted only when the data grew by a tenth.
+  designs chosen the same way. From 30 designs on, the hyperparameters are
+  refitted only when the data grew by a tenth since the last fit (every
+  round before that); in between the models condition on the new designs.
 - The criterion is exact for two objectives (a sum over the strips of the
   region the front does not dominate; the two predictions are independent)
   and a Monte Carlo estimate for three or more.
@@ -98,6 +99,7 @@ _DRAWS = 48  # Monte Carlo draws of the criterion for three or more objectives
 _MC_CANDIDATES = 40
 _CONFIDENCE = 1.0  # lower confidence bound mu - k sigma searched for candidates
 _SEARCH_POPULATION = 40
+_TUNE_ALWAYS = 30  # below this many designs the hyperparameters are refitted every round
 _SEARCH_GENERATIONS = 20
 _FAILED_PENALTY = 1e6  # as in the search: a failed design's extra constraint column
 _FAILED_OBJECTIVE = 1e30
@@ -543,8 +545,12 @@ class SurrogateSearcher:
             chosen = self._subset(order, FIT_CAP)
             fit_rows = np.array([ranks[int(r)] for r in chosen if int(r) in ranks])
         for j, model in enumerate(self._models):
-            tune = model.regressor is None or len(X) <= FIT_CAP or len(X) >= 1.1 * model.n_fitted
+            tune = (
+                model.regressor is None or len(X) < _TUNE_ALWAYS or len(X) >= 1.1 * model.n_fitted
+            )
             model.fit(Z, Y[use, j], tune=tune, fit_on=fit_rows)
+            if tune:
+                model.n_fitted = len(X)  # every design so far, not only those the model uses
         return X, Y
 
     def _scale(self, Y: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
