@@ -221,3 +221,40 @@ def test_cli_run_surrogate(tmp_path):
     assert result.exit_code == 0, result.output
     history = pd.read_csv(out / "history.csv")
     assert "model_error_f1" in history.columns and "The models predicted" in result.output
+
+
+def test_check_suggests_the_surrogate_for_a_slow_model(make_case):
+    """`tradewise check` on a model taking over a second an evaluation mentions --surrogate; a quick one does not."""
+    toml = """
+        title = "slow"
+        model = "model.py:evaluate"
+        [variables]
+        a = { type = "real", low = 0.0, high = 1.0 }
+        [objectives]
+        f1 = { goal = "min" }
+        f2 = { goal = "max" }
+        """
+    slow = make_case(
+        toml,
+        "import time\ndef evaluate(d):\n    time.sleep(1.05)\n    return {'f1': d['a'], 'f2': d['a']}\n",
+        name="slow",
+    )
+    quick = make_case(
+        toml, "def evaluate(d):\n    return {'f1': d['a'], 'f2': d['a']}\n", name="quick"
+    )
+    said = CliRunner().invoke(main, ["check", str(slow)])
+    assert said.exit_code == 0, said.output
+    assert "--surrogate" in said.output
+    assert "--surrogate" not in CliRunner().invoke(main, ["check", str(quick)]).output
+
+
+def test_older_archive_has_no_predictions(tmp_path):
+    """An archive written before the predictions table existed opens and reports no predictions."""
+    import shutil
+    from pathlib import Path
+
+    copy = tmp_path / "archive.sqlite"
+    shutil.copy(Path(__file__).parent / "fixtures" / "runs" / "mixed" / "archive.sqlite", copy)
+    with open_store(copy, create=False) as archive:
+        table = archive.predictions(archive.latest_run())
+    assert len(table) == 0 and list(table.columns)[:3] == ["generation", "eval_id", "name"]

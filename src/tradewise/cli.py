@@ -463,6 +463,19 @@ def check_command(case) -> None:
             c = limits[name]
             text += f"  (must be {c.plain()}: {'met' if c.met_by(float(value)) else 'NOT met'})"
         click.echo(text)
+    from tradewise.surrogate import MOST_VARIABLES, SLOW_EVALUATION
+
+    if (
+        outcome.duration >= SLOW_EVALUATION
+        and len(loaded.variables) <= MOST_VARIABLES
+        and not loaded.search.surrogate
+    ):
+        click.echo(
+            f"At {fmt.seconds(outcome.duration)} an evaluation, {loaded.search.evaluations} "
+            f"evaluations take about {fmt.seconds(outcome.duration * loaded.search.evaluations)}; "
+            "`tradewise run CASE --surrogate` fits models to the evaluations and usually finds a "
+            "good front in a few hundred."
+        )
 
 
 def _same_file(a, b) -> bool:

@@ -85,6 +85,7 @@ __all__ = [
     "FIT_CAP",
     "USE_CAP",
     "MOST_VARIABLES",
+    "SLOW_EVALUATION",
 ]
 
 #: At most this many designs fit the hyperparameters.
@@ -93,6 +94,8 @@ FIT_CAP = 120
 USE_CAP = 300
 #: Above this many variables the run goes on as NSGA-II.
 MOST_VARIABLES = 15
+#: Seconds an evaluation from which `tradewise check` suggests the surrogate search.
+SLOW_EVALUATION = 1.0
 #: Designs over which the models are judged against predicting the mean.
 JUDGE_OVER = 10
 _DRAWS = 48  # Monte Carlo draws of the criterion for three or more objectives
