@@ -258,3 +258,12 @@ def test_older_archive_has_no_predictions(tmp_path):
     with open_store(copy, create=False) as archive:
         table = archive.predictions(archive.latest_run())
     assert len(table) == 0 and list(table.columns)[:3] == ["generation", "eval_id", "name"]
+
+
+def test_rounds_propose_as_many_designs_as_workers(tmp_path):
+    """With two workers each round after the start proposes two distinct designs (kriging believer)."""
+    case = write_problem(tmp_path / "zdt1", "zdt1", 2)
+    result = tradewise.run(case, surrogate=True, evaluations=16, seed=4, workers=2)
+    rounds = result.history.iloc[1:]
+    assert rounds["new"].tolist() == [2] * len(rounds) and len(rounds) == 4
+    assert not result.evaluations[["x1", "x2"]].duplicated().any()
