@@ -52,6 +52,8 @@ __all__ = [
     "decode_state",
     "search_state",
     "restore_state",
+    "seed_population",
+    "minimise_function",
 ]
 
 
@@ -521,3 +523,83 @@ def _count(state: dict[str, Any], key: str, where: str) -> int:
     if isinstance(value, bool) or not isinstance(value, int) or value < 0:
         raise StoreError(f"{where}: the saved search state's {key} is not a count")
     return value
+
+
+def seed_population(searcher: Searcher, X: np.ndarray, F: np.ndarray, G: np.ndarray | None) -> None:
+    """Start ``searcher`` from designs already evaluated (encoded ``X`` with their values).
+
+    The survival step picks the population from them (rank and crowding), so
+    the next :meth:`Searcher.propose` mates designs the archive holds instead
+    of drawing a random first generation.
+    """
+    algorithm = searcher.algorithm
+    problem = algorithm.problem
+    values = {"F": F} if G is None else {"F": F, "G": G}
+    pop = Population.new(X=np.asarray(X, dtype=float))
+    algorithm.evaluator.eval(StaticProblem(problem, **values), pop)
+    pop = algorithm.survival.do(
+        problem,
+        pop,
+        n_survive=min(len(pop), algorithm.pop_size),
+        algorithm=algorithm,
+        random_state=algorithm.random_state,
+    )
+    algorithm.pop = pop
+    algorithm.off = pop
+    algorithm.is_initialized = True
+    algorithm.n_iter = 1
+    algorithm._set_optimum()
+
+
+class _Function(Problem):
+    """A vectorised problem over the encoded space, evaluated by a plain function of the rows."""
+
+    def __init__(self, space: Space, function, n_obj: int, n_con: int) -> None:
+        super().__init__(
+            n_var=len(space.xl), n_obj=n_obj, n_ieq_constr=n_con, xl=space.xl, xu=space.xu
+        )
+        self.function = function
+        self.rows = space.repair
+
+    def _evaluate(self, X, out, *args, **kwargs):
+        F, G = self.function(self.rows(X))
+        out["F"] = F
+        if G is not None:
+            out["G"] = G
+
+
+def minimise_function(
+    space: Space,
+    function,
+    *,
+    n_obj: int,
+    n_con: int,
+    population: int,
+    generations: int,
+    seed: int,
+    start: np.ndarray | None = None,
+) -> np.ndarray:
+    """NSGA-II on a cheap function of encoded rows: the final population's designs, repaired.
+
+    ``function(X)`` returns ``(F, G)`` for the rows of ``X`` (``G`` is None
+    without constraints). ``start`` (encoded rows) seeds the first generation;
+    random rows fill it up to ``population``. Every row stays on the legal
+    values of its variable (the same repair and mutation as a run's search).
+    """
+    from pymoo.optimize import minimize
+
+    rng = np.random.default_rng(seed)
+    first = rng.uniform(space.xl, space.xu, size=(population, len(space.xl)))
+    if start is not None and len(start):
+        first[: min(len(start), population)] = np.asarray(start, dtype=float)[:population]
+    problem = _Function(space, function, n_obj, n_con)
+    algorithm = NSGA2(
+        pop_size=population,
+        sampling=space.repair(first),
+        crossover=SBX(prob=0.9, eta=15),
+        mutation=MixedMutation(space, eta=20),
+        repair=Rounding(space),
+        eliminate_duplicates=False,  # the caller drops repeats; the pairwise check costs more than it saves
+    )
+    result = minimize(problem, algorithm, ("n_gen", generations), seed=seed, verbose=False)
+    return space.repair(result.pop.get("X"))

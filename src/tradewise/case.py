@@ -95,6 +95,7 @@ _SEARCH_KEYS = (
     "stall_generations",
     "stall_tolerance",
     "representatives",
+    "surrogate",
 )
 
 
@@ -227,6 +228,7 @@ class SearchSettings:
     stall_generations: int = 40
     stall_tolerance: float = 1e-4
     representatives: int = 20
+    surrogate: bool = False
 
     def as_dict(self) -> dict[str, Any]:
         return {
@@ -238,6 +240,7 @@ class SearchSettings:
             "stall_generations": self.stall_generations,
             "stall_tolerance": self.stall_tolerance,
             "representatives": self.representatives,
+            "surrogate": self.surrogate,
         }
 
 
@@ -781,6 +784,12 @@ def _search(table: dict[str, Any], where: str) -> SearchSettings:
     for key in ("time_limit", "stall_tolerance"):
         if key in table:
             values[key] = float(_number(table[key], f"{where} {key}"))
+    if "surrogate" in table:
+        if not isinstance(table["surrogate"], bool):
+            raise CaseError(
+                f"{where} surrogate: got {table['surrogate']!r}, allowed: true or false"
+            )
+        values["surrogate"] = table["surrogate"]
     settings = SearchSettings(**values)
     _check_search_values(settings, where)
     return settings

@@ -236,6 +236,12 @@ def _run_folder(case, out: str | None) -> str:
     help="How many designs at most stand for the front in representatives.csv (default from "
     "the case, else 20).",
 )
+@click.option(
+    "--surrogate",
+    is_flag=True,
+    help="For slow models: fit Gaussian-process models to the evaluations and let them propose "
+    "each round's designs (as many as workers), for a good front in a few hundred evaluations.",
+)
 @click.option("--quiet", is_flag=True, help="No progress output.")
 def run_command(
     case,
@@ -251,6 +257,7 @@ def run_command(
     dask,
     scheduler,
     representatives,
+    surrogate,
     quiet,
 ) -> None:
     """Search CASE for its best compromises and write a run folder.
@@ -267,7 +274,9 @@ def run_command(
     from tradewise.case import load_case
     from tradewise.runfolder import save_run
 
-    loaded = load_case(case).with_search(representatives=representatives)
+    loaded = load_case(case).with_search(
+        representatives=representatives, surrogate=True if surrogate else None
+    )
     folder = Path(_run_folder(loaded, out))
     store_path = Path(store) if store else folder / "archive.sqlite"
     budget = evaluations or loaded.search.evaluations
@@ -455,6 +464,19 @@ def check_command(case) -> None:
             c = limits[name]
             text += f"  (must be {c.plain()}: {'met' if c.met_by(float(value)) else 'NOT met'})"
         click.echo(text)
+    from tradewise.surrogate import MOST_VARIABLES, SLOW_EVALUATION
+
+    if (
+        outcome.duration >= SLOW_EVALUATION
+        and len(loaded.variables) <= MOST_VARIABLES
+        and not loaded.search.surrogate
+    ):
+        click.echo(
+            f"At {fmt.seconds(outcome.duration)} an evaluation, {loaded.search.evaluations} "
+            f"evaluations take about {fmt.seconds(outcome.duration * loaded.search.evaluations)}; "
+            "`tradewise run CASE --surrogate` fits models to the evaluations and usually finds a "
+            "good front in a few hundred."
+        )
 
 
 def _same_file(a, b) -> bool:

@@ -470,6 +470,7 @@ def run(
     progress: Callable[[dict[str, Any]], None] | None = None,
     on_evaluation: Callable[[dict[str, Any]], None] | None = None,
     seed_set: dict[str, Any] | None = None,
+    surrogate: bool | None = None,
 ) -> RunResult:
     """Search a case for its Pareto front.
 
@@ -495,6 +496,10 @@ def run(
         Set by :func:`run_seeds`: the set of seeds this run is one of
         (``{"id": ..., "seeds": [...]}``), recorded with the run so that
         resuming any of them resumes them all.
+    surrogate : bool, optional
+        Search Gaussian-process models of the model instead of the model
+        itself, for slow models (:mod:`tradewise.surrogate`); ``None`` keeps
+        the case's ``[search] surrogate``.
 
     Returns
     -------
@@ -520,6 +525,7 @@ def run(
         generations=generations,
         population=population,
         time_limit=time_limit,
+        surrogate=surrogate,
     )
     # The archive first: a bad file fails before any worker or cluster is started.
     archive = open_store(store) if store is not None else None
@@ -543,9 +549,7 @@ def run(
                 versions=_versions(),
             )
         run = _Run(case, archive, run_id)
-        searcher = Searcher(
-            case, Space(case), population=case.search.population, seed=case.search.seed
-        )
+        searcher = _searcher(case)
         return _loop(run, searcher, executor, progress, on_evaluation, started=time.time())
     finally:
         if own_executor:
@@ -600,9 +604,7 @@ def resume(
         if evaluations is not None:
             settings["evaluations"] = evaluations
         case = case.with_search(**{k: v for k, v in settings.items() if v is not None})
-        searcher = Searcher(
-            case, Space(case), population=case.search.population, seed=case.search.seed
-        )
+        searcher = _searcher(case)
         saved = archive.state(run_id)
         state = decode_state(saved[1]) if saved is not None else None
         if state is None:
@@ -638,6 +640,17 @@ def resume(
                 executor.close()
     finally:
         archive.close()
+
+
+def _searcher(case: Case):
+    """The case's searcher: NSGA-II (or NSGA-III), or the Gaussian-process models of a surrogate run."""
+    if case.search.surrogate:
+        from tradewise.surrogate import SurrogateSearcher
+
+        return SurrogateSearcher(
+            case, Space(case), population=case.search.population, seed=case.search.seed
+        )
+    return Searcher(case, Space(case), population=case.search.population, seed=case.search.seed)
 
 
 def _recorded_settings(case: Case, seed_set: dict[str, Any] | None) -> dict[str, Any]:
@@ -771,6 +784,8 @@ def _loop(
         run.history[-1]["elapsed_s"] if run.history else time.time() - started
     )
     saved_generation = generation
+    if hasattr(searcher, "watch"):
+        searcher.watch(run, executor)  # a surrogate searcher learns from the run's records
     try:
         while not (
             status := _stop_status(
@@ -793,6 +808,8 @@ def _loop(
             outcomes = _evaluate(run, proposal, executor, on_evaluation)
             searcher.tell(*_values(run.case, proposal.keys, outcomes, searcher.n_con))
             row = _update(run, proposal, clock)
+            if hasattr(searcher, "notes"):
+                row.update(searcher.notes())
             idle = idle + 1 if not proposal.fresh else 0
             if run.store is not None:
                 state = None
@@ -809,7 +826,7 @@ def _loop(
         # Designs evaluated in the interrupted generation count too: they are in the archive.
         run.update_front(list(range(fronted, len(run.records))))
     _take_over_leftovers(run)
-    return _finish(run, status, searcher.name, started)
+    return _finish(run, status, searcher.name, started, getattr(searcher, "summary", lambda: "")())
 
 
 def _propose(run: _Run, searcher: Searcher, number: int) -> _Proposal | None:
@@ -1010,7 +1027,9 @@ def _finite(value: float) -> float | None:
     return value if math.isfinite(value) else None
 
 
-def _finish(run: _Run, status: str, algorithm_name: str, started: float) -> RunResult:
+def _finish(
+    run: _Run, status: str, algorithm_name: str, started: float, more: str = ""
+) -> RunResult:
     case = run.case
     records = pd.DataFrame.from_records(run.records)
     columns = _ordered_columns(case, records)
@@ -1095,6 +1114,8 @@ def _finish(run: _Run, status: str, algorithm_name: str, started: float) -> RunR
             least = ok.sort_values("violation").drop_duplicates(subset=case.variable_names).head(20)
             # a design table, with the one bookkeeping column that is its subject kept (last)
             least = design_table(least[columns]).assign(violation=least["violation"])
+    if more:
+        parts.append(more)
     message = " ".join(parts)
     if run.store is not None:
         run.store.update_run(run.run_id, status=status, message=message, finished=time.time())

@@ -102,6 +102,10 @@ CREATE TABLE IF NOT EXISTS states (
     blob BLOB NOT NULL
 );
 """
+# Made on first use by a surrogate run (archives of earlier releases lack it and stay readable).
+_PREDICTIONS_TABLE = """CREATE TABLE IF NOT EXISTS predictions (
+    run_id INTEGER NOT NULL, generation INTEGER, eval_id INTEGER, name TEXT,
+    predicted REAL, sd REAL, actual REAL)"""
 _TABLES = frozenset({"meta", "runs", "evaluations", "generations", "states"})
 
 # The archive writer (tradewise/_archive_writer.py): standard library only, run in a process of its
@@ -798,6 +802,46 @@ class Store:
                 )
             )
 
+    def add_predictions(self, run_id: int, generation: int, rows: list[tuple]) -> None:
+        """Record what a surrogate run's models predicted for designs it then evaluated.
+
+        ``rows`` are ``(eval_id, name, predicted, sd, actual)``, one an
+        objective or constraint a design. The table is made on first use, so
+        archives written before it existed stay readable (and say nothing).
+        """
+        messages = [("sql", _PREDICTIONS_TABLE, ())]
+        messages += [
+            (
+                "sql",
+                "INSERT INTO predictions (run_id, generation, eval_id, name, predicted, sd, actual)"
+                " VALUES (?, ?, ?, ?, ?, ?, ?)",
+                (run_id, generation, *row),
+            )
+            for row in rows
+        ]
+        with self._lock:
+            self._hand_over()
+            link = self._writer()
+            self._call(lambda: link.send(("many", messages)))
+
+    def predictions(self, run_id: int):
+        """What a surrogate run's models predicted beside the real results, one row a design and name."""
+        import pandas as pd
+
+        columns = ["generation", "eval_id", "name", "predicted", "sd", "actual"]
+        exists = self._query(
+            "SELECT 1 FROM sqlite_master WHERE type = 'table' AND name = 'predictions'"
+        )
+        rows = (
+            self._query(
+                f"SELECT {', '.join(columns)} FROM predictions WHERE run_id = ? ORDER BY rowid",
+                (run_id,),
+            )
+            if exists
+            else []
+        )
+        return pd.DataFrame.from_records(rows, columns=columns)
+
     def history(self, run_id: int):
         """One row a recorded generation of the run, in order, as a pandas DataFrame."""
         import pandas as pd
@@ -830,6 +874,13 @@ class Store:
             self._write_now(
                 "DELETE FROM states WHERE run_id = ? AND generation > ?", (run_id, generation)
             )
+            if self._db.execute(
+                "SELECT 1 FROM sqlite_master WHERE type = 'table' AND name = 'predictions'"
+            ).fetchone():
+                self._write_now(
+                    "DELETE FROM predictions WHERE run_id = ? AND generation > ?",
+                    (run_id, generation),
+                )
 
 
 def open_store(path: str | Path, *, create: bool = True) -> Store:

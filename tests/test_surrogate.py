@@ -1,0 +1,269 @@
+"""The surrogate search: its Gaussian-process models, its criterion, and short runs on published problems."""
+
+from __future__ import annotations
+
+import math
+
+import moocore
+import numpy as np
+import pandas as pd
+import pytest
+from click.testing import CliRunner
+
+import tradewise
+from problems import PROBLEMS, write_problem
+from support import CASES
+from tradewise.cli import main
+from tradewise.search import design_key
+from tradewise.store import open_store
+from tradewise.surrogate import (
+    GaussianProcess,
+    expected_improvement_2d,
+    expected_improvement_mc,
+    probability_of_feasibility,
+    start_size,
+)
+
+
+def _matern52(A, B, scale, lengths):
+    """Matern 5/2 covariance (Rasmussen and Williams 2006, eq. 4.17, from memory)."""
+    r = np.sqrt((((A[:, None, :] - B[None, :, :]) / lengths) ** 2).sum(axis=2))
+    s = math.sqrt(5.0) * r
+    return scale * (1.0 + s + s * s / 3.0) * np.exp(-s)
+
+
+def test_model_agrees_with_a_kriging_solve_by_hand():
+    """Mean and deviation on 5 points equal the kriging equations solved with numpy, same hyperparameters."""
+    rng = np.random.default_rng(4)
+    X = rng.random((5, 2))
+    y = np.sin(6 * X[:, 0]) + X[:, 1] ** 2
+    model = GaussianProcess(2, seed=0)
+    model.fit(X, y)
+    kernel = model.regressor.kernel_
+    scale, lengths = kernel.k1.k1.constant_value, kernel.k1.k2.length_scale
+    noise = kernel.k2.noise_level
+    mean, spread = y.mean(), y.std()
+    t = (y - mean) / spread
+    K = _matern52(X, X, scale, lengths) + (noise + 1e-10) * np.eye(5)
+    Xs = rng.random((7, 2))
+    Ks = _matern52(Xs, X, scale, lengths)
+    mu = mean + spread * Ks @ np.linalg.solve(K, t)
+    var = scale + noise - np.einsum("ij,ji->i", Ks, np.linalg.solve(K, Ks.T))
+    got_mu, got_sd = model.predict(Xs)
+    assert np.allclose(got_mu, mu, rtol=1e-7, atol=1e-9)
+    assert np.allclose(got_sd, spread * np.sqrt(var), rtol=1e-6, atol=1e-9)
+    # and at a training point the model all but reproduces the data
+    assert np.allclose(model.predict(X)[0], y, atol=1e-2 * spread)
+
+
+def test_believed_point_pins_the_model_there():
+    """After the kriging believer takes a value at a point, the model predicts it there with little doubt."""
+    rng = np.random.default_rng(1)
+    X = rng.random((8, 3))
+    model = GaussianProcess(3)
+    model.fit(X, X.sum(axis=1))
+    z = np.array([0.5, 0.1, 0.9])
+    before = model.predict(z[None])[1][0]
+    model.believe(z, 7.0)
+    mu, sd = model.predict(z[None])
+    assert abs(mu[0] - 7.0) < 0.05 and sd[0] < before / 5
+
+
+def test_two_objective_criterion_agrees_with_monte_carlo():
+    """The exact two-objective expected hypervolume improvement equals a 200,000-draw Monte Carlo mean."""
+    front = np.array([[0.1, 0.9], [0.3, 0.5], [0.6, 0.3], [0.9, 0.05]])
+    ref = np.array([1.1, 1.1])
+    mu = np.array([[0.35, 0.35], [0.05, 1.0], [0.8, 0.8], [1.2, 0.2]])
+    sd = np.array([[0.1, 0.2], [0.05, 0.05], [0.3, 0.1], [0.2, 0.2]])
+    exact = expected_improvement_2d(mu, sd, front, ref)
+    rng = np.random.default_rng(0)
+    noise = rng.standard_normal((200_000, 2))
+    base = moocore.hypervolume(front, ref=ref)
+    for i in range(len(mu)):
+        y = mu[i] + sd[i] * noise
+        # improvement of each draw, by moocore on the front with the draw added (vectorised in strips)
+        sample = [moocore.hypervolume(np.vstack([front, p]), ref=ref) - base for p in y[:2000]]
+        small = np.mean(sample)
+        assert exact[i] == pytest.approx(small, abs=4 * np.std(sample) / math.sqrt(2000) + 1e-9)
+    mc = expected_improvement_mc(mu, sd, front, ref, draws=4000, rng=np.random.default_rng(5))
+    assert np.allclose(mc, exact, rtol=0.1, atol=2e-3)
+
+
+def test_criterion_without_doubt_is_the_hypervolume_improvement():
+    """With a vanishing deviation the criterion is the improvement moocore measures."""
+    front = np.array([[0.2, 0.7], [0.5, 0.4], [0.8, 0.1]])
+    ref = np.array([1.1, 1.1])
+    points = np.array([[0.3, 0.3], [0.9, 0.9], [0.0, 1.0]])
+    got = expected_improvement_2d(points, np.full_like(points, 1e-9), front, ref)
+    base = moocore.hypervolume(front, ref=ref)
+    want = [moocore.hypervolume(np.vstack([front, p]), ref=ref) - base for p in points]
+    assert np.allclose(got, want, atol=1e-8)
+
+
+def test_probability_of_feasibility_is_the_normal_mass_inside_the_limits():
+    """Probability of feasibility equals the normal distribution's mass within the limits (scipy)."""
+    from scipy.stats import norm
+
+    mu, sd = np.array([1.0, 3.0]), np.array([0.5, 2.0])
+    got = probability_of_feasibility(mu, sd, 0.5, 2.0)
+    assert np.allclose(got, norm.cdf(2.0, mu, sd) - norm.cdf(0.5, mu, sd))
+    assert np.allclose(probability_of_feasibility(mu, sd, None, 2.0), norm.cdf(2.0, mu, sd))
+
+
+def test_start_size_follows_the_stated_rule():
+    """The start is 3 d + 2 designs, at least 5, at most 11 d - 1."""
+    assert [start_size(d) for d in (1, 2, 6, 30)] == [5, 8, 20, 92]
+
+
+@pytest.mark.slow
+def test_zdt1_front_after_60_evaluations(tmp_path):
+    """On ZDT1 with 6 variables 60 evaluations reach 85 % of the exact front's hypervolume (ours: about 0.9)."""
+    case = write_problem(tmp_path / "zdt1", "zdt1", 6)
+    result = tradewise.run(case, surrogate=True, evaluations=60, seed=1)
+    assert result.n_evals == 60
+    assert PROBLEMS["zdt1"].ratio(result.front.points()) >= 0.85
+    assert "The models predicted f1 within" in result.message
+    history = result.history
+    assert (history["surrogate"].iloc[1:] == "models").all()
+    assert history["model_error_f2"].iloc[1:].notna().all()
+
+
+@pytest.mark.slow
+def test_bnh_front_is_feasible_and_close(tmp_path):
+    """On BNH (constrained, Binh and Korn 1997) 50 evaluations reach 90 % of the front's hypervolume."""
+    case = write_problem(tmp_path / "bnh", "bnh")
+    result = tradewise.run(case, surrogate=True, evaluations=50, seed=2)
+    front = result.front.table
+    assert ((front["c1"] <= 25.0) & (front["c2"] >= 7.7)).all()
+    assert PROBLEMS["bnh"].ratio(result.front.points()) >= 0.9
+
+
+@pytest.mark.slow
+def test_mixed_designs_stay_on_their_sets_and_predictions_are_archived(tmp_path):
+    """Integers, choices and flags are proposed only on their values; each proposal's prediction is archived."""
+    store = tmp_path / "a.sqlite"
+    result = tradewise.run(CASES / "mixed", surrogate=True, evaluations=30, seed=3, store=store)
+    table = result.evaluations
+    assert set(table["finish"]) <= {"bare", "anodised", "painted"}
+    assert set(table["fast"]) <= {True, False}
+    assert all(float(c).is_integer() and -3 <= c <= 7 for c in table["count"])
+    assert table["width"].between(0.5, 4.0).all()
+    keys = [design_key(r) for r in table[["width", "count", "finish", "fast"]].to_dict("records")]
+    assert len(set(keys)) == len(keys)  # no design evaluated twice
+    with open_store(store, create=False) as archive:
+        predicted = archive.predictions(result.run_id)
+    assert len(predicted) > 0 and set(predicted["name"]) == {"cost", "life", "load"}
+    assert predicted["eval_id"].isin(table["eval_id"]).all()
+    # life is maximised: predictions are stored in the model's own sense, beside its real value
+    rows = predicted[predicted["name"] == "life"].merge(table, on="eval_id")
+    assert np.allclose(rows["actual"], rows["life"])
+    assert (rows["sd"] > 0).all()
+
+
+@pytest.mark.slow
+def test_resume_rebuilds_the_models_from_the_archive(tmp_path):
+    """A resumed surrogate run learns from the archive and evaluates no design twice."""
+    store = tmp_path / "a.sqlite"
+    case = write_problem(tmp_path / "zdt1", "zdt1", 3)
+    first = tradewise.run(case, surrogate=True, evaluations=16, seed=1, store=store)
+    second = tradewise.resume(store, evaluations=22)
+    assert second.n_evals == 22 and second.status == "budget"
+    with open_store(store, create=False) as archive:
+        table = archive.evaluations(first.run_id)
+        history = archive.history(first.run_id)
+    real = table[~table["cached"]]
+    assert len(real) == 22
+    assert not real[["x1", "x2", "x3"]].duplicated().any()
+    assert (history["surrogate"].iloc[-3:] == "models").all()
+
+
+def test_many_variables_go_on_as_nsga2(tmp_path):
+    """Above 15 variables the run says it goes on as NSGA-II, and does."""
+    case = write_problem(tmp_path / "zdt1", "zdt1", 16)
+    result = tradewise.run(case, surrogate=True, evaluations=120, seed=1, population=20)
+    assert "Went on as plain NSGA-II because the case has 16 variables" in result.message
+    assert result.n_evals == 120 and (result.history["surrogate"] == "NSGA-II").all()
+
+
+def test_models_no_better_than_the_mean_hand_over_to_nsga2(make_case):
+    """A model of pure noise predicts no better than the mean; the run says so and goes on as NSGA-II."""
+    folder = make_case(
+        """
+        title = "noise"
+        model = "model.py:evaluate"
+        [variables]
+        a = { type = "real", low = 0.0, high = 1.0 }
+        b = { type = "real", low = 0.0, high = 1.0 }
+        [objectives]
+        f1 = { goal = "min" }
+        f2 = { goal = "min" }
+        """,
+        """
+        import random
+        def evaluate(d):
+            r = random.Random(repr(d))
+            return {"f1": d["a"], "f2": r.random()}
+        """,
+    )
+    result = tradewise.run(folder, surrogate=True, evaluations=60, seed=1)
+    assert "predicted f2 no better than the mean" in result.message
+    assert (result.history["surrogate"] == "NSGA-II").any()
+    assert result.n_evals == 60
+
+
+def test_cli_run_surrogate(tmp_path):
+    """`tradewise run CASE --surrogate` runs the surrogate search and writes its columns to history.csv."""
+    case = write_problem(tmp_path / "zdt1", "zdt1", 2)
+    out = tmp_path / "run"
+    result = CliRunner().invoke(
+        main, ["run", str(case), "--surrogate", "--evaluations", "12", "--out", str(out), "--quiet"]
+    )
+    assert result.exit_code == 0, result.output
+    history = pd.read_csv(out / "history.csv")
+    assert "model_error_f1" in history.columns and "The models predicted" in result.output
+
+
+def test_check_suggests_the_surrogate_for_a_slow_model(make_case):
+    """`tradewise check` on a model taking over a second an evaluation mentions --surrogate; a quick one does not."""
+    toml = """
+        title = "slow"
+        model = "model.py:evaluate"
+        [variables]
+        a = { type = "real", low = 0.0, high = 1.0 }
+        [objectives]
+        f1 = { goal = "min" }
+        f2 = { goal = "max" }
+        """
+    slow = make_case(
+        toml,
+        "import time\ndef evaluate(d):\n    time.sleep(1.05)\n    return {'f1': d['a'], 'f2': d['a']}\n",
+        name="slow",
+    )
+    quick = make_case(
+        toml, "def evaluate(d):\n    return {'f1': d['a'], 'f2': d['a']}\n", name="quick"
+    )
+    said = CliRunner().invoke(main, ["check", str(slow)])
+    assert said.exit_code == 0, said.output
+    assert "--surrogate" in said.output
+    assert "--surrogate" not in CliRunner().invoke(main, ["check", str(quick)]).output
+
+
+def test_older_archive_has_no_predictions(tmp_path):
+    """An archive written before the predictions table existed opens and reports no predictions."""
+    import shutil
+    from pathlib import Path
+
+    copy = tmp_path / "archive.sqlite"
+    shutil.copy(Path(__file__).parent / "fixtures" / "runs" / "mixed" / "archive.sqlite", copy)
+    with open_store(copy, create=False) as archive:
+        table = archive.predictions(archive.latest_run())
+    assert len(table) == 0 and list(table.columns)[:3] == ["generation", "eval_id", "name"]
+
+
+def test_rounds_propose_as_many_designs_as_workers(tmp_path):
+    """With two workers each round after the start proposes two distinct designs (kriging believer)."""
+    case = write_problem(tmp_path / "zdt1", "zdt1", 2)
+    result = tradewise.run(case, surrogate=True, evaluations=16, seed=4, workers=2)
+    rounds = result.history.iloc[1:]
+    assert rounds["new"].tolist() == [2] * len(rounds) and len(rounds) == 4
+    assert not result.evaluations[["x1", "x2"]].duplicated().any()
