@@ -109,6 +109,7 @@ _TUNE_ALWAYS = FIT_CAP  # up to this many designs the hyperparameters are refitt
 _SEARCH_GENERATIONS = 20
 _FAILED_PENALTY = 1e6  # as in the search: a failed design's extra constraint column
 _FAILED_OBJECTIVE = 1e30
+_WORKS_SHORTEST = 0.1  # shortest length scale of the model of where evaluations fail (unit inputs)
 
 
 def start_size(n_variables: int) -> int:
@@ -149,11 +150,11 @@ class GaussianProcess:
     with one length scale per input column, plus a small white-noise term.
     """
 
-    def __init__(self, n_inputs: int, *, seed: int = 0) -> None:
+    def __init__(self, n_inputs: int, *, seed: int = 0, shortest: float = 1e-2) -> None:
         from sklearn.gaussian_process.kernels import ConstantKernel, Matern, WhiteKernel
 
         self.kernel = ConstantKernel(1.0, (1e-3, 1e3)) * Matern(
-            length_scale=np.full(n_inputs, 0.5), length_scale_bounds=(1e-2, 1e2), nu=2.5
+            length_scale=np.full(n_inputs, 0.5), length_scale_bounds=(shortest, 1e2), nu=2.5
         ) + WhiteKernel(1e-6, (1e-10, 1e-2))
         self.seed = seed
         self.regressor = None
@@ -327,6 +328,7 @@ class SurrogateSearcher:
         self._Y: list[np.ndarray] = []  # objectives (minimised) then constraint values, per design
         self._ok: list[bool] = []
         self._models: list[GaussianProcess] | None = None
+        self._works: GaussianProcess | None = None  # where evaluations succeed (+1) or fail (-1)
         self._pending: dict[str, Any] | None = None
         self._log: list[dict[str, Any]] = []  # predicted against actual, a design each
         self._notes: dict[str, Any] = {}
@@ -350,9 +352,18 @@ class SurrogateSearcher:
             self.fallback.tune(refine)
 
     def survivors(self) -> np.ndarray:
-        if self.fallback is not None:
+        if self._fallback_running():
             return self.fallback.survivors()
         return np.empty((0, len(self.space.xl)))
+
+    def _fallback_running(self) -> bool:
+        """Whether the NSGA-II that took over has a population yet (it has none between the
+        round that gave up on the models and its first proposal)."""
+        return (
+            self.fallback is not None
+            and self.fallback_seeded
+            and getattr(self.fallback.algorithm, "pop", None) is not None
+        )
 
     # -- propose and tell ---------------------------------------------------------------
     def propose(self) -> np.ndarray | None:
@@ -444,7 +455,7 @@ class SurrogateSearcher:
             "fallback": search_state(
                 self.fallback.algorithm, generation=generation, eval_ids=eval_ids
             )
-            if self.fallback is not None and self.fallback_seeded
+            if self._fallback_running()
             else None,
         }
         return json.dumps(state, separators=(",", ":")).encode("utf-8")
@@ -557,7 +568,47 @@ class SurrogateSearcher:
             model.fit(Z, Y[use, j], tune=tune, fit_on=fit_rows)
             if tune:
                 model.n_fitted = len(X)  # every design so far, not only those the model uses
+        self._fit_works()
         return X, Y
+
+    def _fit_works(self) -> None:
+        """Model where the user's model runs at all, once some evaluation has failed.
+
+        A failed evaluation (an exception, NaN, a timeout) has no results to model, yet its place
+        matters: proposing next to it again wastes a slow evaluation. The label +1 (worked) or -1
+        (failed) of every evaluated design is fitted by a Gaussian process as a regression, the
+        least-squares classification of Rasmussen and Williams (2006, section 6.5, from memory), and
+        its probability of being above zero multiplies the criterion like the probability of
+        feasibility: the hidden-constraint treatment of Lee, Gramacy, Linkletter and Gray (2011,
+        from memory), with a regression in place of their classifier.
+        """
+        ok = np.asarray(self._ok)
+        if ok.all():
+            self._works = None
+            return
+        X = np.asarray(self._X)
+        rows = np.arange(len(X))
+        if len(rows) > USE_CAP:
+            failed, worked = rows[~ok], rows[ok]
+            keep_failed = self.rng.permutation(failed)[: USE_CAP // 2]
+            keep_worked = self.rng.permutation(worked)[: USE_CAP - len(keep_failed)]
+            rows = np.sort(np.concatenate([keep_failed, keep_worked]))
+        if self._works is None:
+            # A length scale of at least a tenth of a range: a failure speaks for its neighbourhood.
+            # Left free, the fit shrinks it to the spacing of the designs (a step is its best
+            # explanation), and between two failed designs the model knows nothing again.
+            self._works = GaussianProcess(
+                len(features(self.space, X[:1])[0]), seed=self.seed, shortest=_WORKS_SHORTEST
+            )
+        tune = self._works.regressor is None or len(X) < _TUNE_ALWAYS
+        self._works.fit(features(self.space, X[rows]), np.where(ok[rows], 1.0, -1.0), tune=tune)
+
+    def _works_probability(self, Z: np.ndarray) -> np.ndarray:
+        """The probability that an evaluation at each row of features ``Z`` gives results."""
+        if self._works is None:
+            return np.ones(len(Z))
+        mu, sd = self._works.predict(Z)
+        return ndtr(mu / np.maximum(sd, 1e-12))
 
     def _scale(self, Y: np.ndarray) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
         """The current front of real designs, normalised, with the ideal and span used."""
@@ -598,11 +649,16 @@ class SurrogateSearcher:
         ref = np.full(self.n_obj, 1.1)
         n_obj, n_cons = self.n_obj, len(self.case.constraints)
 
+        guarded = bool(n_cons) or self._works is not None
+
         def on_models(rows: np.ndarray):
-            mu, sd = self._predict(features(self.space, rows))
+            Z = features(self.space, rows)
+            mu, sd = self._predict(Z)
             F = (mu[:, :n_obj] - _CONFIDENCE * sd[:, :n_obj] - ideal) / span
-            G = (0.2 - self._feasibility(mu, sd))[:, None] if n_cons else None
-            return F, G
+            if not guarded:
+                return F, None
+            chance = self._feasibility(mu, sd) * self._works_probability(Z)
+            return F, (0.2 - chance)[:, None]
 
         order = self._order(Y)
         start = X[order[: _SEARCH_POPULATION // 2]]
@@ -612,7 +668,7 @@ class SurrogateSearcher:
             self.space,
             on_models,
             n_obj=n_obj,
-            n_con=1 if n_cons else 0,
+            n_con=1 if guarded else 0,
             population=_SEARCH_POPULATION,
             generations=_SEARCH_GENERATIONS,
             seed=int(self.rng.integers(2**31)),
@@ -625,6 +681,7 @@ class SurrogateSearcher:
             pool = self._start()
         Z = features(self.space, pool)
         mu, sd = self._predict(Z)
+        works = self._works_probability(Z)
         picked: list[int] = []
         models = [_copy(m) for m in self._models]
         believed = list(front)
@@ -633,6 +690,7 @@ class SurrogateSearcher:
             score = self._score(
                 mu_b, sd_b, np.asarray(believed).reshape(-1, n_obj), ideal, span, ref
             )
+            score = score * works
             score[picked] = -np.inf
             best = int(np.argmax(score))
             picked.append(best)
@@ -680,14 +738,16 @@ class SurrogateSearcher:
             actual = Y[i] if ok[i] else np.full(len(names), math.nan)
             span = np.where(spread > 0, spread, 1.0) if spread is not None else 1.0
             error = np.abs(actual - mu) / span
-            self._log.append(
-                {
-                    "error": error,
-                    "model": (actual - mu) ** 2,
-                    "mean": (actual - pending["baseline"]) ** 2,
-                }
-            )
-            errors.append(error)
+            if ok[i]:
+                # Only real results judge the models: a failed design says nothing of their accuracy.
+                self._log.append(
+                    {
+                        "error": error,
+                        "model": (actual - mu) ** 2,
+                        "mean": (actual - pending["baseline"]) ** 2,
+                    }
+                )
+                errors.append(error)
             eval_id = self._eval_ids.get(_rows_key(x))
             for j, name in enumerate(names):
                 sign = -1.0 if j < self.n_obj and self.case.objectives[j].maximise else 1.0
@@ -704,10 +764,11 @@ class SurrogateSearcher:
         if rows and run is not None and run.store is not None:
             run.store.add_predictions(run.run_id, self.round, rows)
         if errors:
-            mean_error = np.nanmean(np.asarray(errors), axis=0)
+            errors = np.asarray(errors)
             for j, name in enumerate(names):
-                if np.isfinite(mean_error[j]):
-                    self._notes[f"model_error_{name}"] = round(float(mean_error[j]), 5)
+                column = errors[:, j][np.isfinite(errors[:, j])]
+                if len(column):
+                    self._notes[f"model_error_{name}"] = round(float(column.mean()), 5)
 
     def _judge(self) -> None:
         """Go on as NSGA-II when a model predicts an objective no better than the training mean."""
