@@ -168,6 +168,18 @@ def test_resume_of_a_finished_run_says_it_has_nothing_to_do(tmp_path):
     assert again.exit_code == 0, again.output
     assert "nothing to do" in again.output and "--evaluations N with N above 200" in again.output
     assert (out / "front.json").stat().st_mtime_ns == before
+    # the run folder itself names the archive, as it does for plot, pick and whatif
+    by_folder = CliRunner().invoke(main, ["resume", str(out)])
+    assert by_folder.exit_code == 0 and "nothing to do" in by_folder.output, by_folder.output
+
+
+def test_resume_of_a_folder_without_an_archive_names_the_folder(tmp_path):
+    said = CliRunner().invoke(main, ["resume", str(tmp_path)])
+    assert said.exit_code == 2
+    assert said.output.strip().splitlines() == [
+        f"Error: {tmp_path}: this folder holds no archive.sqlite; give the archive file the run "
+        "wrote (run --store), or the run folder it was written into"
+    ]
 
 
 # ------------------------------------------------------------------------------ plot

@@ -326,7 +326,7 @@ def run_command(
 
 
 @main.command("resume")
-@click.argument("store", metavar="STORE", type=click.Path(dir_okay=False))
+@click.argument("store", metavar="STORE")
 @click.option(
     "--run", "run_id", type=click.IntRange(min=1), help="Which run in STORE (default the newest)."
 )
@@ -353,17 +353,25 @@ def run_command(
 def resume_command(store, run_id, evaluations, out, case, workers, dask, scheduler, quiet) -> None:
     """Continue an interrupted run from its archive, or extend a finished one.
 
-    STORE is the archive file of the run (archive.sqlite in its run folder).
-    Nothing already evaluated is evaluated again, and a run stopped part-way
+    STORE is the run folder, or the archive file of the run (archive.sqlite
+    in its run folder, or the file given to `run --store`). Nothing already evaluated is evaluated again, and a run stopped part-way
     ends with the front it would have had without the stop. The run folder
     is written again.
     """
     from pathlib import Path
 
     from tradewise import search
+    from tradewise.errors import DataError
     from tradewise.runfolder import save_run
     from tradewise.store import open_store
 
+    if Path(store).is_dir():
+        if not (Path(store) / "archive.sqlite").is_file():
+            raise DataError(
+                f"{store}: this folder holds no archive.sqlite; give the archive file the run "
+                "wrote (run --store), or the run folder it was written into"
+            )
+        store = str(Path(store) / "archive.sqlite")
     with open_store(store, create=False) as archive:
         run_id = run_id or archive.latest_run()
         record = archive.run(run_id)
