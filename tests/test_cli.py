@@ -156,6 +156,27 @@ def test_a_reused_out_folder_keeps_no_files_of_the_earlier_run(tmp_path):
     assert "Removed " in second.output and "review.html" in second.output
 
 
+def test_a_case_declaring_hazards_without_cautions_still_gets_the_reminder(make_case, tmp_path):
+    """A run's closing summary carries the review page's reminder for a declared hazard, also when
+    the case wrote no cautions of its own; a case declaring none gets no reminder (common practice:
+    screening results of structures, packs and heat go to a licensed professional)."""
+    from support import GOOD_TOML
+
+    declared = make_case(
+        GOOD_TOML.replace('title = "tiny"', 'title = "tiny"\nhazards = ["structures"]')
+    )
+    said = CliRunner().invoke(
+        main, ["run", str(declared), "--evaluations", "40", "--out", str(tmp_path / "a"), "--quiet"]
+    )
+    assert said.exit_code == 0, said.output
+    assert "This case touches structures" in said.output and "licensed professional" in said.output
+    plain = make_case(GOOD_TOML, name="plain")
+    said = CliRunner().invoke(
+        main, ["run", str(plain), "--evaluations", "40", "--out", str(tmp_path / "b"), "--quiet"]
+    )
+    assert said.exit_code == 0 and "licensed" not in said.output, said.output
+
+
 def test_resume_of_a_finished_run_says_it_has_nothing_to_do(tmp_path):
     """resume on a run that used its budget leaves the folder alone and says how to extend it."""
     out = tmp_path / "run"

@@ -183,8 +183,25 @@ def _summary(result) -> None:
 
     if advice := convergence_advice(result.history):
         click.echo(advice)
-    if result.case.cautions:
-        click.echo(f"Caution: {result.case.cautions.strip()}")
+    for line in _caution_lines(result.case):
+        click.echo(line)
+
+
+def _caution_lines(case) -> list[str]:
+    """The case's own cautions, and for a case that declares what it touches (hazards) the plain
+    reminder the review page gives, so that a terminal reader sees it too."""
+    lines = []
+    if case.cautions:
+        lines.append(f"Caution: {case.cautions.strip()}")
+    if case.hazards:
+        touches = " and ".join(case.hazards)
+        lines.append(
+            f"This case touches {touches}: its numbers are screening estimates from the model, not a "
+            "verified design. Check a chosen design against the applicable codes and standards and "
+            "have it reviewed by a qualified, licensed professional before anything is built, bought "
+            "or put in service."
+        )
+    return lines
 
 
 def _run_folder(case, out: str | None) -> str:
