@@ -137,7 +137,11 @@ def test_page_lists_the_case_the_run_and_every_design(run_folder):
     ):
         assert needed in text, needed
     body = text.split('<table id="front-table">')[1].split("</table>")[0]
-    heads = [re.sub(r"<[^>]+>", "", h) for h in re.findall(r"<th[^>]*>(.*?)</th>", body)]
+    # a heading as the screen shows it: the printed copy of its words (last in the cell) left out
+    heads = [
+        re.sub(r"<[^>]+>", "", re.sub(r'<span class="printed".*$', "", h))
+        for h in re.findall(r"<th[^>]*>(.*?)</th>", body)
+    ]
     column = next(k for k, h in enumerate(heads) if h.startswith("resistance"))
     assert heads[column] == "resistance [K/W]"
     rows = re.findall(r"<tr[^>]*>(.*?)</tr>", body.split("<tbody>")[1])
@@ -690,6 +694,58 @@ def test_page_prints_to_a_tidy_pdf(browser, tmp_path):
     # A4 is 210 x 297 mm = 595.3 x 841.9 pt (ISO 216)
     assert all(abs(float(w) - 595.3) < 2 and abs(float(h) - 841.9) < 2 for w, h in boxes)
     assert len(boxes) >= 3
+
+
+def test_printed_tables_repeat_their_headings_and_never_split_a_word(browser, tmp_path):
+    """A front table over two printed pages shows its column headings again on the next page as
+    text (Chromium leaves a button's text out of a repeated heading row), and a heading breaks only
+    after an underscore, never inside a word ('fin_thickness' as 'fin_' and 'thickness')."""
+    pdftotext = shutil.which("pdftotext")
+    if pdftotext is None:
+        reason = (
+            "pdftotext is not installed (apt-get install -y poppler-utils); the PDF was not read"
+        )
+        if os.environ.get("TRADEWISE_REQUIRE_BROWSER") == "1":
+            pytest.fail(reason)
+        pytest.skip(reason)
+    f1 = np.linspace(0, 1, 60)
+    table = pd.DataFrame(
+        {
+            "cost": 100 + 900 * f1,
+            "mass": 2 + 8 * (1 - np.sqrt(f1)),
+            "fin_thickness": 0.8 + f1,
+            "base_temperature": 60 + 20 * f1,
+        }
+    )
+    front = Front.from_table(
+        table,
+        [Objective("cost", "min", "EUR"), Objective("mass", "min", "kg")],
+        variables=["fin_thickness", "base_temperature"],
+        info=RunInfo(title="Print"),
+    )
+    page = tmp_path / "review.html"
+    page.write_text(build_report(front), encoding="utf-8")
+    browser.open(page)
+    browser.send("Emulation.setEmulatedMedia", media="print")
+    try:
+        pdf = base64.b64decode(
+            browser.send("Page.printToPDF", printBackground=True, preferCSSPageSize=True)["data"]
+        )
+    finally:
+        browser.send("Emulation.setEmulatedMedia", media="")
+    (tmp_path / "review.pdf").write_bytes(pdf)
+    text = subprocess.run(
+        [pdftotext, "-layout", str(tmp_path / "review.pdf"), "-"],
+        capture_output=True, text=True, check=True,
+    ).stdout  # fmt: skip
+    # a table row: 'row N' or a design number, then numbers; its page must show the headings
+    row = re.compile(r"^\s*(row )?\d+\s+.*\d\.\d+\s+\d+\.\d+\s*$", re.M)
+    with_rows = [page for page in text.split("\f") if len(row.findall(page)) >= 5]
+    assert len(with_rows) >= 2, "the front table should run over at least two pages"
+    for printed in with_rows:
+        assert re.search(r"^\s*design\s", printed, re.M), "table rows printed without headings"
+        assert re.search(r"thickness\b", printed) and re.search(r"temperature\b", printed)
+        assert not re.search(r"\b(desi|thick|temper|tempera)\s*$", printed, re.M)
 
 
 # ------------------------------------------------------------------------------- templates and escaping
