@@ -280,6 +280,38 @@ def test_whatif_command_prints_the_answer_and_writes_the_front(constr_run, tmp_p
     )
 
 
+def test_whatif_on_a_set_of_seeds_judges_every_seed_s_evaluations(tmp_path):
+    """`whatif` on a run folder of `run --seeds 2` (CONSTR, Deb 2001) answers from both seeds'
+    archived evaluations: its front is what a plain dominance check finds in their union under the
+    new limit, and each design keeps its evaluation number and the seed that found it."""
+    folder = tmp_path / "set"
+    ran = CliRunner().invoke(
+        main,
+        ["run", str(CASES / "constr"), "--seeds", "2", "--evaluations", "600", "--out", str(folder), "--quiet"],
+    )  # fmt: skip
+    assert ran.exit_code == 0, ran.output
+    out = tmp_path / "loosened.csv"
+    said = CliRunner().invoke(main, ["whatif", str(folder), "--limit", "g1>=5", "--out", str(out)])
+    assert said.exit_code == 0, said.output
+    assert said.output.startswith("What if g1 >= 5 (the case has g1 >= 6: loosened)?")
+    assert "Of the 1,200 archived designs that evaluated" in said.output
+    written = pd.read_csv(out)
+    with tradewise.store.open_store(folder / "archive.sqlite", create=False) as archive:
+        union = pd.concat([archive.evaluations(1), archive.evaluations(2)], ignore_index=True)
+    ok = union[(union["status"] == "ok") & (union["g1"] >= 5) & (union["g2"] >= 1)]
+    points = ok[["f1", "f2"]].to_numpy(dtype=float)
+    no_worse = (points[None, :, :] <= points[:, None, :]).all(axis=2)
+    better = (points[None, :, :] < points[:, None, :]).any(axis=2)
+    expected = np.unique(points[~(no_worse & better).any(axis=1)], axis=0)  # a cached design twice
+    found = written[["f1", "f2"]].to_numpy(dtype=float)
+    found = found[np.lexsort(found.T[::-1])]
+    assert found.shape == expected.shape
+    np.testing.assert_allclose(found, expected, rtol=1e-8)
+    assert set(written["seed"]) == {1, 2}
+    by_run = union.set_index("eval_id")["run_id"]
+    assert all(by_run[e] == s for e, s in zip(written["eval_id"], written["seed"], strict=True))
+
+
 def test_whatif_command_needs_the_archive(constr_run, tmp_path):
     """A run folder without its archive gives exit status 2 and one Error: line saying it is needed."""
     folder = tmp_path / "no-archive"

@@ -866,9 +866,11 @@ def plot_command(run, kind, out, design, variables, minimise, maximise) -> None:
             front = read_front(path)
         history = evaluations = None
     else:
-        from tradewise.runfolder import read_run
+        from tradewise.runfolder import read_run, read_seed_evaluations
 
         front, history, evaluations = read_run(run, evaluations="front" in kinds)
+        if front.info.seeds is not None and "front" in kinds:
+            evaluations = read_seed_evaluations(run, front)  # every seed's, behind the merged front
     row = None
     if design is not None:
         ids = [str(i) for i in front.design_ids()]
@@ -965,10 +967,12 @@ def report_command(run, out, shortlist_path) -> None:
 
     from tradewise.front import read_front, read_table
     from tradewise.report import write_report
-    from tradewise.runfolder import read_run, read_seeds
+    from tradewise.runfolder import read_run, read_seed_evaluations, read_seeds
 
     _check_out(out, _run_inputs(run) + ([*_front_inputs(shortlist_path)] if shortlist_path else []))
     front, history, evaluations = read_run(run)
+    if front.info.seeds is not None:
+        evaluations = read_seed_evaluations(run, front)  # every seed's, behind the merged front
     seeds, surfaces = read_seeds(run, front)
     shortlist = None
     if shortlist_path:
@@ -1106,15 +1110,13 @@ def whatif_command(run, limits, out) -> None:
     """
     from tradewise.diagnose import what_if
     from tradewise.errors import DataError
-    from tradewise.runfolder import read_run
+    from tradewise.runfolder import read_run, read_seed_evaluations
 
     _check_out(out, _run_inputs(run), with_json=True)
     front, _, evaluations = read_run(run)
     if front.info.seeds is not None:
-        raise DataError(
-            f"{run}: is the merged front of a set of seeds, which a what-if does not read yet; "
-            "it needs the archive of one run, as a run folder of `tradewise run` without --seeds has"
-        )
+        # the merged front of a set of seeds: every seed's evaluations are judged again together
+        evaluations = read_seed_evaluations(run, front)
     if evaluations is None:
         raise DataError(
             f"{run}: no archive of the run's evaluations found beside its front.json; a what-if "

@@ -311,6 +311,40 @@ def read_run(run: str | Path, *, evaluations: bool = True):
     return front, history, table
 
 
+def read_seed_evaluations(run: str | Path, front: Front):
+    """Every evaluation of every seed of a run folder written by ``run --seeds K``, as one table with
+    the seed in ``front.info.seeds.column`` (None when the folder has no archive or no seeds.csv).
+
+    The seeds' runs share one archive (their ``run_id`` is in seeds.csv) and its evaluation numbers,
+    so a design keeps the one name the merged front gives it.
+    """
+    folder = Path(run)
+    info = front.info
+    if info.seeds is None or not info.store or not (folder / info.store).is_file():
+        return None
+    seeds, _ = read_seeds(folder, front)
+    if seeds is None or "run_id" not in seeds.columns or "seed" not in seeds.columns:
+        return None
+    tables = []
+    with open_store(folder / info.store, create=False) as archive:
+        for seed, run_id in zip(seeds["seed"], seeds["run_id"], strict=True):
+            if pd.isna(run_id):
+                continue  # a seed that never started has no run
+            record = archive.run(int(run_id))
+            if info.case_hash and record["case_hash"] != info.case_hash:
+                raise DataError(
+                    f"{folder / info.store}: run {int(run_id)} (seed {seed}) is of the case "
+                    f"{record['case_title']!r}, not of the case of {folder / 'front.json'}; put the "
+                    "set's own archive beside its front.json"
+                )
+            table = archive.evaluations(int(run_id))
+            table.insert(0, info.seeds.column, int(seed))
+            tables.append(table)
+    if not tables:
+        return None
+    return pd.concat(tables, ignore_index=True)
+
+
 def read_seeds(run: str | Path, front: Front):
     """seeds.csv and the attainment surfaces of a run folder written by ``run --seeds K`` (None where absent)."""
     folder = Path(run)
