@@ -765,9 +765,11 @@ def _separation_line(front, gaps: dict, given: dict, *, top: int, shown: int) ->
         else f"; {fmt.share(DISTINCT_SHARE, 0)} of an objective's range on the front where no "
         "tolerance is given, a rule of thumb of our own"
     )
+    first = front.objectives[0].name
     fewer = (
         f" Only {shown} {'design stands' if shown == 1 else 'designs are that far'} apart, "
-        f"fewer than the {top} asked for."
+        f"fewer than the {top} asked for; smaller tolerances (such as --tolerance "
+        f"{first}={fmt.number(gaps[first] / 4)}) show designs closer together."
         if shown < top
         else ""
     )
