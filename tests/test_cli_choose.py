@@ -338,7 +338,10 @@ def test_pick_top_says_when_fewer_designs_are_apart(front_folder):
     result = run("pick", front_folder, "--top", "3", "--tolerance", "cost=100,mass=100")
     assert result.exit_code == 0
     assert shown_rows(result.stdout) == [2]
-    assert "Only 1 design stands apart, fewer than the 3 asked for; smaller tolerances" in result.stdout
+    assert (
+        "Only 1 design stands apart, fewer than the 3 asked for; smaller tolerances"
+        in result.stdout
+    )
 
 
 def test_method_names_forgive_case_and_spelling(front_folder):
