@@ -499,3 +499,32 @@ def test_each_shortlisted_design_is_an_item_that_goes_to_it_or_takes_it_off(zdt1
     second.children[2].click()
     assert state.shortlist == [2]
     assert len(picker._shortlist.children) == 1
+
+
+def test_the_ask_button_shows_the_archive_s_answer_under_the_rules(tmp_path):
+    """Opened on a run folder with its archive (CONSTR, Deb 2001), the picker's 'Ask the archive'
+    shows diagnose.what_if's lines for the rules in force; without an archive it is off."""
+    pytest.importorskip("ipywidgets")
+    import tradewise
+    from support import CASES
+    from tradewise.diagnose import what_if
+    from tradewise.notebook import Picker
+    from tradewise.runfolder import read_run
+
+    folder = tmp_path / "run"
+    result = tradewise.run(
+        CASES / "constr", evaluations=800, seed=2, store=folder / "archive.sqlite"
+    )
+    tradewise.save_run(result, folder)
+    picker = Picker(folder, clickable=False)
+    assert not picker.buttons["ask archive"].disabled
+    picker.buttons["ask archive"].click()  # no rule yet: one sentence, nothing else changes
+    assert "no rule given and none in force" in picker._answer.value
+    picker._rule_text.value = "g1 >= 5"
+    picker.buttons["ask archive"].click()
+    front, _, archive = read_run(folder)
+    shown = html.unescape(re.sub("<[^>]+>", "\n", picker._answer.value)).split("\n")
+    for line in what_if(archive, front, ["g1 >= 5"]).lines():
+        assert line in shown
+    csv_only = Picker(str(folder / "front.csv"), clickable=False)
+    assert csv_only.buttons["ask archive"].disabled and "No archive" in csv_only._answer.value

@@ -601,3 +601,37 @@ def test_moves_name_a_run_s_designs_by_their_evaluation_number():
     state = PickerState(front.with_table(table))
     state.select(2)
     assert state.describe_moves()[0].startswith("design 19 to design 7 (next on the front)")
+
+
+# ------------------------------------------------------------------------------------- what-if
+def test_what_if_in_the_picker_gives_the_command_line_answer(tmp_path):
+    """On a run folder of CONSTR (Deb 2001) with its archive, the picker's what-if under the rules in
+    force gives exactly the answer of diagnose.what_if (and so of `tradewise whatif`); the state's
+    own limits and pick are untouched; a front CSV has no archive to ask and says so."""
+    from support import CASES
+    from tradewise.diagnose import what_if
+    from tradewise.runfolder import read_run
+
+    folder = tmp_path / "run"
+    result = tradewise.run(
+        CASES / "constr", evaluations=1500, seed=1, store=folder / "archive.sqlite"
+    )
+    tradewise.save_run(result, folder)
+    front, history, evaluations = load_picker_source(folder)
+    assert evaluations is not None and len(evaluations) == 1500 and history is not None
+    state = PickerState(front, evaluations=evaluations)
+    state.add_limit("g1 >= 5")
+    before = (state.kept_rows, state.pick)
+    answer = state.what_if()
+    _, _, archive = read_run(folder)
+    expected = what_if(archive, front, ["g1 >= 5"])
+    assert answer.lines() == expected.lines() and answer.joined == expected.joined
+    assert answer.joined  # loosening the binding limit lets archived designs join
+    assert (state.kept_rows, state.pick) == before
+    assert state.what_if("f2 <= 4").lines() == what_if(archive, front, ["f2 <= 4"]).lines()
+    bare = PickerState(load_picker_source(folder / "front.csv")[0])
+    with pytest.raises(DataError, match="no archive of evaluations"):
+        bare.what_if("g1 >= 5")
+    state.clear_limits()
+    with pytest.raises(DataError, match="no rule given and none in force"):
+        state.what_if()

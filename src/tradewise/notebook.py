@@ -333,8 +333,29 @@ class Picker:
         )
         self._representatives = self._representatives_table()
         self._reps = w.HTML()
+        ask = w.Button(
+            description="Ask the archive",
+            icon="search",
+            tooltip="What the front would be under the rules in force, from every archived design",
+            layout=w.Layout(width="150px"),
+            disabled=state.evaluations is None,
+        )
+        ask.on_click(lambda _b: self.ask_archive())
+        self.buttons["ask archive"] = ask
+        self._answer = w.HTML(
+            "<div style='color:#5b6470'>With rules in force, ask the archive what the front would "
+            "be: a loosened constraint lets designs off the front join it.</div>"
+            if state.evaluations is not None
+            else "<div style='color:#5b6470'>No archive beside this front, so no what-if.</div>"
+        )
         side = w.VBox(
-            [self._reps, self._pins],
+            [
+                self._reps,
+                self._pins,
+                w.HTML("<div style='font-weight:600;margin-top:8px'>What if</div>"),
+                ask,
+                self._answer,
+            ],
             layout=w.Layout(
                 flex="0 1 380px", padding="0 0 0 12px", border_left="3px solid #c9d3cf"
             ),
@@ -456,6 +477,16 @@ class Picker:
         return write_review(self.state, path)
 
     # ----------------------------------------------------------------------- events
+    def ask_archive(self) -> None:
+        """Show what the archive says the front would be under the rules in force."""
+        try:
+            answer = self.state.what_if()
+        except DataError as exc:
+            self._answer.value = f"<div>{_error(str(exc))}</div>"
+            return
+        items = "".join(f"<li>{escape(line)}</li>" for line in answer.lines())
+        self._answer.value = f"<ul style='margin:2px 0;padding-left:18px'>{items}</ul>"
+
     def _act(self, action: Callable[..., Any], *args: Any) -> None:
         try:
             action(*args)

@@ -58,7 +58,8 @@ def load_picker_source(source: Any) -> tuple[Front, pd.DataFrame | None, pd.Data
     -------
     front, history, evaluations
         ``history`` and ``evaluations`` are None where the source has none
-        (a run folder gives its ``history.csv`` but not its archive).
+        (a run folder gives its ``history.csv`` and, where it is beside it,
+        every evaluation in its archive; a front CSV gives neither).
 
     Raises
     ------
@@ -71,14 +72,14 @@ def load_picker_source(source: Any) -> tuple[Front, pd.DataFrame | None, pd.Data
         return source.front, getattr(source, "history", None), getattr(source, "evaluations", None)
     if isinstance(source, str | Path):
         path = Path(source)
-        front = read_front(path)
-        history = None
-        if path.is_dir() and (path / "history.csv").is_file():
-            try:
-                history = pd.read_csv(path / "history.csv")
-            except (OSError, ValueError) as exc:
-                raise DataError(f"{path / 'history.csv'}: cannot be read as CSV ({exc})") from None
-        return front, history, None
+        if path.is_dir():
+            from tradewise.runfolder import read_run, read_seed_evaluations
+
+            front, history, evaluations = read_run(path)
+            if front.info.seeds is not None:
+                evaluations = read_seed_evaluations(path, front)
+            return front, history, evaluations
+        return read_front(path), None, None
     raise DataError(
         f"picker source: got a {type(source).__name__}; expected a search result, a Front, "
         "a run folder or a front CSV with its .json beside it"
@@ -337,6 +338,38 @@ class PickerState:
         """Drop every limit."""
         self._limits = []
         self._update()
+
+    def what_if(self, rules=None):
+        """What the archive says the front would be under ``rules`` (default: the limits in force).
+
+        Unlike the limits, which only narrow the front shown, this judges every
+        archived evaluation again, so a loosened constraint lets designs that
+        were off the front join it (:func:`tradewise.diagnose.what_if`). The
+        state is not changed.
+
+        Raises
+        ------
+        DataError
+            When the picker has no archive of evaluations (it was opened on a
+            front CSV, or a run folder without its archive.sqlite), no rule is
+            given or in force, or a rule cannot be used.
+        """
+        from tradewise.diagnose import what_if
+
+        if self.evaluations is None:
+            raise DataError(
+                "what-if: the picker has no archive of evaluations to ask; open it on a run folder "
+                "with its archive.sqlite, or on the result of tradewise.run"
+            )
+        if rules is None:
+            rules = list(self._limits)
+        elif isinstance(rules, str | Limit):
+            rules = [rules]
+        if not rules:
+            raise DataError(
+                "what-if: no rule given and none in force; give one, such as 'mass <= 5'"
+            )
+        return what_if(self.evaluations, self.front, rules)
 
     @property
     def limits(self) -> list[Limit]:
