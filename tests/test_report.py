@@ -665,15 +665,32 @@ def test_front_table_sorts_with_the_inline_script(browser, tmp_path):
 
 
 @pytest.mark.browser
+def _print_front(table: pd.DataFrame, variables: list[str]) -> Front:
+    return Front.from_table(
+        table,
+        [Objective("cost", "min", "EUR"), Objective("mass", "min", "kg")],
+        variables=variables,
+        info=RunInfo(title="Print"),
+    )
+
+
+def _printed(browser, page: Path) -> bytes:
+    """The page as Chromium prints it to PDF (print media, the page's own A4 size)."""
+    browser.open(page)
+    browser.send("Emulation.setEmulatedMedia", media="print")
+    try:
+        return base64.b64decode(
+            browser.send("Page.printToPDF", printBackground=True, preferCSSPageSize=True)["data"]
+        )
+    finally:
+        browser.send("Emulation.setEmulatedMedia", media="")
+
+
 def test_page_prints_to_a_tidy_pdf(browser, tmp_path):
     """Printed, the whole front table shows (no scroll box), figures keep their size, and the PDF has A4 pages."""
     f1 = np.linspace(0, 1, 120)
     table = pd.DataFrame({"cost": 100 + 900 * f1, "mass": 2 + 8 * (1 - np.sqrt(f1))})
-    front = Front.from_table(
-        table,
-        [Objective("cost", "min", "EUR"), Objective("mass", "min", "kg")],
-        info=RunInfo(title="Print"),
-    )
+    front = _print_front(table, [])
     page = tmp_path / "review.html"
     page.write_text(build_report(front), encoding="utf-8")
     browser.open(page)
@@ -717,22 +734,11 @@ def test_printed_tables_repeat_their_headings_and_never_split_a_word(browser, tm
             "base_temperature": 60 + 20 * f1,
         }
     )
-    front = Front.from_table(
-        table,
-        [Objective("cost", "min", "EUR"), Objective("mass", "min", "kg")],
-        variables=["fin_thickness", "base_temperature"],
-        info=RunInfo(title="Print"),
-    )
     page = tmp_path / "review.html"
-    page.write_text(build_report(front), encoding="utf-8")
-    browser.open(page)
-    browser.send("Emulation.setEmulatedMedia", media="print")
-    try:
-        pdf = base64.b64decode(
-            browser.send("Page.printToPDF", printBackground=True, preferCSSPageSize=True)["data"]
-        )
-    finally:
-        browser.send("Emulation.setEmulatedMedia", media="")
+    page.write_text(
+        build_report(_print_front(table, ["fin_thickness", "base_temperature"])), encoding="utf-8"
+    )
+    pdf = _printed(browser, page)
     (tmp_path / "review.pdf").write_bytes(pdf)
     text = subprocess.run(
         [pdftotext, "-layout", str(tmp_path / "review.pdf"), "-"],
