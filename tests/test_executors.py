@@ -551,6 +551,31 @@ def test_dask_survives_a_worker_that_dies(case, dask_cluster):
             assert (status, results, message) == expected[i]
 
 
+@pytest.mark.cluster
+def test_dask_sends_a_quick_model_in_shares_and_still_blames_only_the_design_that_kills(
+    case, dask_cluster
+):
+    """A model quicker than a tenth of a second a design goes to Dask a few designs a task after its
+    first batch (a task's round trip is paid once a share); a share whose design kills its worker is
+    sent again a design a task, so only that design fails and its neighbours complete."""
+    model = make_model(case(("ok", "crash")))
+    quick = [{"x": x / 40, "mode": "ok"} for x in range(1, 25)]
+    expected = _outcomes(InProcess(), model, quick)
+    assert _outcomes(dask_cluster, model, quick) == expected  # one design a task: measured
+    tasks = dask_cluster._tasks(model, len(quick))
+    assert len(tasks) < len(quick) and sorted(sum(tasks, [])) == list(range(len(quick)))
+    assert _outcomes(dask_cluster, model, quick) == expected  # in shares
+    crash = [d | {"sleep": 0.0} for d in CRASH_BATCH] + quick
+    assert any(len(task) > 1 and 4 in task for task in dask_cluster._tasks(model, len(crash)))
+    got = _outcomes(dask_cluster, model, crash)
+    fine = _outcomes(InProcess(), model, [d | {"mode": "ok"} for d in crash])
+    for i, (status, results, message) in enumerate(got):
+        if i == 4:
+            assert status == "failed" and "Dask worker died" in message
+        else:
+            assert (status, results, message) == fine[i]
+
+
 def test_run_with_raising_nan_and_crashing_python_model(case, tmp_path):
     """Through the command line with --workers 2: a model that raises, returns NaN, or kills its worker;
     the run completes, each failure is stored with its message, and the summary counts them."""
