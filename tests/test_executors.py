@@ -20,7 +20,7 @@ from click.testing import CliRunner
 import tradewise
 from tradewise.case import load_case
 from tradewise.cli import main
-from tradewise.errors import TradewiseError
+from tradewise.errors import ModelError, TradewiseError
 from tradewise.executors import (
     POOL_SLOWDOWN_TO_WARN,
     DaskCluster,
@@ -166,6 +166,50 @@ def test_a_whole_run_is_identical_on_every_backend(case, dask_cluster):
         pd.testing.assert_frame_equal(_front_table(result), _front_table(reference), obj=name)
         assert result.hypervolume == reference.hypervolume
         assert (result.n_evals, result.n_failed) == (reference.n_evals, reference.n_failed)
+
+
+@pytest.mark.cluster
+def test_a_cluster_started_for_a_run_begins_on_a_pool_and_moves_to_the_cluster(case):
+    """run(dask=True) starts the cluster behind the search: the batches that begin before it is up go to
+    a process pool, the next ones to the cluster, with the in-process outcomes throughout; a whole run
+    started so gives the in-process front."""
+    model = make_model(case())
+    executor = make_executor(2, dask=True)
+    try:
+        assert isinstance(executor, DaskCluster) and executor.workers == 2
+        expected = _outcomes(InProcess(), model, BATCH)
+        assert _outcomes(executor, model, BATCH) == expected
+        assert (executor.on_pool, executor.on_cluster) == (len(BATCH), 0)  # it was still starting
+        executor._starting.join()
+        assert _outcomes(executor, model, BATCH) == expected
+        assert (executor.on_pool, executor.on_cluster) == (len(BATCH), len(BATCH))
+    finally:
+        executor.close()
+    loaded = case()
+    by_dask, in_process = tradewise.run(loaded, dask=True, workers=2), tradewise.run(loaded)
+    pd.testing.assert_frame_equal(_front_table(by_dask), _front_table(in_process))
+    assert (by_dask.n_evals, by_dask.n_failed) == (in_process.n_evals, in_process.n_failed)
+
+
+def test_a_cluster_that_cannot_start_behind_the_run_says_so_at_the_next_batch(case, monkeypatch):
+    """The start-up's error is raised by the first batch that begins after it failed, and the pool of
+    the meantime is stopped."""
+    pytest.importorskip("dask.distributed")
+
+    def fail(self, n):
+        raise ModelError("no cluster today")
+
+    monkeypatch.setattr(DaskCluster, "_start_local", fail)
+    model = make_model(case())
+    executor = make_executor(2, dask=True)
+    try:
+        assert _outcomes(executor, model, BATCH[:2]) == _outcomes(InProcess(), model, BATCH[:2])
+        executor._starting.join()
+        with pytest.raises(ModelError, match="no cluster today"):
+            _outcomes(executor, model, BATCH[:2])
+        assert executor._pool is None
+    finally:
+        executor.close()
 
 
 BATCH_MODEL = """
@@ -505,6 +549,31 @@ def test_dask_survives_a_worker_that_dies(case, dask_cluster):
             assert status == "failed" and "Dask worker died" in message
         else:
             assert (status, results, message) == expected[i]
+
+
+@pytest.mark.cluster
+def test_dask_sends_a_quick_model_in_shares_and_still_blames_only_the_design_that_kills(
+    case, dask_cluster
+):
+    """A model quicker than a tenth of a second a design goes to Dask a few designs a task after its
+    first batch (a task's round trip is paid once a share); a share whose design kills its worker is
+    sent again a design a task, so only that design fails and its neighbours complete."""
+    model = make_model(case(("ok", "crash")))
+    quick = [{"x": x / 40, "mode": "ok"} for x in range(1, 25)]
+    expected = _outcomes(InProcess(), model, quick)
+    assert _outcomes(dask_cluster, model, quick) == expected  # one design a task: measured
+    tasks = dask_cluster._tasks(model, len(quick))
+    assert len(tasks) < len(quick) and sorted(sum(tasks, [])) == list(range(len(quick)))
+    assert _outcomes(dask_cluster, model, quick) == expected  # in shares
+    crash = [d | {"sleep": 0.0} for d in CRASH_BATCH] + quick
+    assert any(len(task) > 1 and 4 in task for task in dask_cluster._tasks(model, len(crash)))
+    got = _outcomes(dask_cluster, model, crash)
+    fine = _outcomes(InProcess(), model, [d | {"mode": "ok"} for d in crash])
+    for i, (status, results, message) in enumerate(got):
+        if i == 4:
+            assert status == "failed" and "Dask worker died" in message
+        else:
+            assert (status, results, message) == fine[i]
 
 
 def test_run_with_raising_nan_and_crashing_python_model(case, tmp_path):

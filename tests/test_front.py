@@ -16,9 +16,11 @@ from tradewise.case import Objective
 from tradewise.errors import DataError
 from tradewise.front import (
     Front,
+    column_extremes,
     front_from_csv,
     hypervolume,
     hypervolume_problem,
+    merge_nondominated,
     nondominated,
     read_front,
     read_table,
@@ -77,6 +79,55 @@ def test_nondominated_matches_brute_force_and_pymoo(m):
         signed = points * np.where(maximise, -1.0, 1.0)
         pymoo_front = NonDominatedSorting().do(signed, only_non_dominated_front=True)
         assert sorted(pymoo_front.tolist()) == np.flatnonzero(reference).tolist(), trial
+
+
+@pytest.mark.parametrize("m", [2, 3, 4, 5])
+def test_merging_into_a_front_agrees_with_filtering_everything(m):
+    """merge_nondominated gives exactly moocore's answer on the old front stacked above the new points,
+    for fronts above the size where it sorts them into cells: spheres, rounded spheres (ties), new
+    points copying old ones and each other, and new points that beat many old ones."""
+    rng = np.random.default_rng(10 + m)
+    for trial in range(12):
+
+        def sphere(n, trial=trial):
+            points = np.abs(rng.normal(size=(n, m)))
+            points /= np.linalg.norm(points, axis=1)[:, None]
+            if trial % 3 == 1:
+                points = np.round(points * 3000) / 3000  # ties and exact duplicates
+            return points
+
+        old = sphere(int(rng.integers(2500, 4000)))
+        old = old[nondominated(old)]
+        new = sphere(int(rng.integers(20, 150)))
+        if trial % 3 == 2:
+            new *= rng.uniform(0.97, 1.05, size=(len(new), 1))  # some beat old points, some lose
+        new[:4] = old[:4]  # copies of old points: the old ones stay
+        new[4:7] = new[10]  # copies among the new points: the first stays
+        if trial % 4 == 3:
+            new[7:12] *= 0.5  # far better: many old points go
+        keep_old, keep_new = merge_nondominated(old, new)
+        whole = nondominated(np.vstack([old, new]))
+        assert len(old) >= 1000, trial
+        assert np.array_equal(keep_old, whole[: len(old)]), trial
+        assert np.array_equal(keep_new, whole[len(old) :]), trial
+
+
+def test_merging_into_a_small_front_and_an_empty_one():
+    """Small fronts and empty inputs give moocore's answer too."""
+    old = np.array([[1.0, 3.0], [3.0, 1.0]])
+    keep_old, keep_new = merge_nondominated(old, np.array([[2.0, 2.0], [0.5, 3.5], [3.0, 1.0]]))
+    assert keep_old.tolist() == [True, True] and keep_new.tolist() == [True, True, False]
+    keep_old, keep_new = merge_nondominated(old, np.empty((0, 2)))
+    assert keep_old.tolist() == [True, True] and keep_new.tolist() == []
+    keep_old, keep_new = merge_nondominated(np.empty((0, 2)), old)
+    assert keep_old.tolist() == [] and keep_new.tolist() == [True, True]
+
+
+def test_column_extremes_are_numpys_least_and_greatest():
+    """column_extremes gives what min and max along the first axis give."""
+    points = np.random.default_rng(1).normal(size=(500, 4))
+    low, high = column_extremes(points)
+    assert np.array_equal(low, points.min(axis=0)) and np.array_equal(high, points.max(axis=0))
 
 
 def test_front_from_table_keeps_other_columns_and_drops_copies():

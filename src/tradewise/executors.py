@@ -44,6 +44,10 @@ POOL_SLOWDOWN_TO_WARN = 2.0
 #: Designs measured (in batches that did not start the pool) before the pool is judged.
 _JUDGE_AFTER = 16
 _log = logging.getLogger("tradewise")
+#: On Dask, a model quicker than this (its median time a design in the last batch) gets tasks of
+#: several designs, each task about this long: every task costs a round trip to the scheduler (5-10
+#: ms measured on a local cluster), which a 0.05 s model would otherwise pay once a design.
+_TASK_SECONDS = 0.1
 
 Model = Callable[[dict[str, Any]], Outcome]
 
@@ -164,6 +168,10 @@ class ProcessPool(InProcess):
                 max_workers=self.workers, initializer=_watch_parent, initargs=(os.getpid(),)
             )
         return self._pool
+
+    def start(self) -> None:
+        """Start the worker processes now rather than with the first batch."""
+        self._get_pool().submit(int).result()
 
     def _drop_pool(self) -> None:
         if self._pool is not None:
@@ -332,47 +340,107 @@ class DaskCluster(InProcess):
     its own ``allowed-failures`` setting applies. The case folder must be at
     the same path on every worker machine.
 
+    Starting a local cluster takes seconds (importing dask, then each worker
+    process imports it again). With ``pool_while_starting`` the cluster is
+    started in the background and the generations that begin before it is
+    ready are evaluated on a local :class:`ProcessPool` of as many workers
+    (the same machine, the same environment, and a worker that dies is
+    survived there too); the first generation that begins once the cluster
+    is up goes to it, and the pool is stopped.
+
     Parameters
     ----------
     workers : int, optional
         Worker processes of the local cluster (default: one per CPU).
     scheduler : str, optional
         Address of a running scheduler, e.g. ``tcp://10.0.0.5:8786``.
+    pool_while_starting : bool
+        Start a local cluster in the background, evaluating on a process
+        pool meanwhile (:func:`make_executor` asks for this).
     """
 
     name = "dask"
 
-    def __init__(self, workers: int | None = None, *, scheduler: str | None = None) -> None:
-        try:
-            import dask
-            from dask.distributed import Client, LocalCluster
-        except ImportError:
-            raise ModelError(
-                "--dask/--scheduler: dask.distributed is not installed; install the cluster extra: "
-                "pip install 'tradewise[cluster]'"
-            ) from None
+    def __init__(
+        self,
+        workers: int | None = None,
+        *,
+        scheduler: str | None = None,
+        pool_while_starting: bool = False,
+    ) -> None:
         self._cluster = None
         self._client = None
+        self._pool: ProcessPool | None = None
+        self._starting: threading.Thread | None = None
+        self._start_error: BaseException | None = None
+        #: Designs evaluated on the cluster, and on the pool while the cluster started.
+        self.on_cluster = 0
+        self.on_pool = 0
+        self._pace: tuple[Any, float] | None = None  # (model, its median time a design last batch)
         if scheduler:
+            Client = _dask_client()
             try:
                 self._client = Client(scheduler, timeout="20s")
             except (OSError, TimeoutError) as exc:
                 raise ModelError(f"--scheduler {scheduler}: cannot connect ({exc})") from None
-        else:
-            if workers is not None and workers < 1:
-                raise CaseError(f"workers: got {workers!r}, allowed: a whole number, 1 or more")
-            n = workers or os.cpu_count() or 1
-            settings = {
-                "distributed.scheduler.allowed-failures": 1,
-                "distributed.scheduler.worker-saturation": 1.0,
-            }
-            with dask.config.set(settings):
-                self._cluster = LocalCluster(
-                    n_workers=n, threads_per_worker=1, processes=True, dashboard_address=None
-                )
-            self._client = Client(self._cluster)
-        self.workers = len(self._client.scheduler_info().get("workers", {})) or (workers or 1)
+            self.workers = len(self._client.scheduler_info().get("workers", {})) or (workers or 1)
+            self._ready_or_close()
+            return
+        if workers is not None and workers < 1:
+            raise CaseError(f"workers: got {workers!r}, allowed: a whole number, 1 or more")
+        n = workers or os.cpu_count() or 1
+        self.workers = n
+        if not pool_while_starting:
+            self._ready_or_close(n)
+            return
+        import importlib.util
+
+        if importlib.util.find_spec("distributed") is None:
+            _dask_client()  # says what to install
+        self._pool = ProcessPool(n)
+        self._pool._cost.told = True  # its notice speaks of --workers; the pool is only a bridge
+        # The pool's processes are forked now, before a thread of this process starts importing dask.
+        self._pool.start()
+        # Started with the first batch: by then the search has done its own importing (pymoo), which
+        # would otherwise take turns with dask's on the interpreter lock and hold up that batch.
+        self._starting = threading.Thread(
+            target=self._start_behind, args=(n,), name="tradewise-dask-start", daemon=True
+        )
+
+    def _start_local(self, n: int) -> None:
+        """Start a local cluster of ``n`` worker processes and prepare them (blocking)."""
+        Client = _dask_client()
+        import dask
+        from dask.distributed import LocalCluster
+
+        settings = {
+            "distributed.scheduler.allowed-failures": 1,
+            "distributed.scheduler.worker-saturation": 1.0,
+        }
+        with dask.config.set(settings):
+            self._cluster = LocalCluster(
+                n_workers=n, threads_per_worker=1, processes=True, dashboard_address=None
+            )
+        self._client = Client(self._cluster)
+        self.workers = len(self._client.scheduler_info().get("workers", {})) or n
         self._prepare_workers()
+
+    def _ready_or_close(self, n: int | None = None) -> None:
+        """Start the local cluster of ``n`` workers (or only prepare the workers); close on failure."""
+        try:
+            if n is None:
+                self._prepare_workers()
+            else:
+                self._start_local(n)
+        except BaseException:
+            self.close()
+            raise
+
+    def _start_behind(self, n: int) -> None:
+        try:
+            self._start_local(n)
+        except BaseException as exc:  # told by the next run() or close()
+            self._start_error = exc
 
     def _prepare_workers(self) -> None:
         """Import tradewise's model code on every worker now, as part of starting up.
@@ -384,7 +452,6 @@ class DaskCluster(InProcess):
         try:
             self._client.run(_import_models)
         except Exception as exc:
-            self.close()
             raise ModelError(
                 f"Dask workers cannot run tradewise models ({type(exc).__name__}: {exc}); install tradewise "
                 "in the workers' environment"
@@ -392,28 +459,101 @@ class DaskCluster(InProcess):
 
     def run(self, model: Model, designs: Sequence[dict[str, Any]]) -> Iterator[tuple[int, Outcome]]:
         """Yield ``(position, outcome)`` for each design as it completes."""
+        if self._pool is not None:
+            starting = self._starting
+            if starting is not None and starting.ident is None:
+                starting.start()  # and this batch goes to the pool, however quick the start
+            elif starting is None or not starting.is_alive():
+                starting = None
+            if starting is not None:
+                self.on_pool += len(designs)
+                yield from self._paced(model, self._pool.run(model, designs))
+                return
+            self._pool.close()
+            self._pool = None
+            if self._start_error is not None:
+                error, self._start_error = self._start_error, None
+                self.close()
+                raise error
+        self.on_cluster += len(designs)
+        yield from self._paced(model, self._run_on_cluster(model, designs))
+
+    def _paced(self, model: Model, results: Iterator[tuple[int, Outcome]]):
+        """Pass ``results`` on, keeping the model's median time a design for the next batch."""
+        durations = []
+        for i, outcome in results:
+            if isinstance(outcome, Outcome) and outcome.status == "ok":
+                durations.append(outcome.duration)
+            yield i, outcome
+        if durations and not getattr(model, "batch", False):
+            self._pace = (model, sorted(durations)[len(durations) // 2])
+
+    def _tasks(self, model: Model, n: int) -> list[list[int]]:
+        """The positions of ``n`` designs grouped into the tasks of one batch.
+
+        One design a task, unless the model (the same object as in the last
+        batch) took less than :data:`_TASK_SECONDS` a design: then tasks of
+        about that long, the last two designs a worker one a task so that the
+        workers finish together.
+        """
+        singles = [[i] for i in range(n)]
+        if self._pace is None or self._pace[0] is not model:
+            return singles
+        tail = 2 * self.workers
+        size = min(
+            int(_TASK_SECONDS / max(self._pace[1], 1e-6)),
+            max(1, (n - tail) // self.workers),
+        )
+        if size < 2:
+            return singles
+        head = max(0, n - tail)
+        return [list(range(a, min(a + size, head))) for a in range(0, head, size)] + [
+            [i] for i in range(head, n)
+        ]
+
+    def _run_on_cluster(
+        self, model: Model, designs: Sequence[dict[str, Any]]
+    ) -> Iterator[tuple[int, Outcome]]:
         from dask.distributed import KilledWorker, as_completed
 
+        tasks = self._tasks(model, len(designs))
         # One call for the whole generation: Dask then sees one large group of independent tasks and
         # queues them on the scheduler, handing each worker its next task only when it is free, so
         # a slow design never holds quick ones back behind it.
-        submitted = self._client.map(
-            model, designs, key=[f"tradewise-evaluate-{uuid.uuid4().hex}" for _ in designs]
-        )
-        futures = {future: i for i, future in enumerate(submitted)}
+        keys = [f"tradewise-evaluate-{uuid.uuid4().hex}" for _ in tasks]
+        if len(tasks) == len(designs):
+            submitted = self._client.map(model, designs, key=keys)
+        else:
+            shares = [[designs[i] for i in task] for task in tasks]
+            submitted = self._client.map(_evaluate_share, [model] * len(tasks), shares, key=keys)
+        # A task of one design gives its outcome; a task of several (a share) their list.
+        futures = {
+            future: (task, len(tasks) < len(designs))
+            for future, task in zip(submitted, tasks, strict=True)
+        }
         tries = dict.fromkeys(range(len(designs)), 1)
         # Results are fetched as soon as each task finishes and the task is then released, so a
         # worker that dies later cannot take a finished result with it (Dask would compute it again).
         collector = as_completed(list(futures), with_results=True, raise_errors=False)
         try:
             for future, result in collector:
-                i = futures.pop(future)
+                task, shared = futures.pop(future)
                 status = future.status
                 del future
                 if status == "finished":
-                    yield i, result
+                    for i, outcome in zip(task, result if shared else [result], strict=True):
+                        yield i, outcome
                     continue
                 error = result[1] if isinstance(result, tuple) else result
+                if len(task) > 1:
+                    # A share that failed is sent again a design a task, so that a design that kills
+                    # its worker is told from its neighbours as when it was sent alone.
+                    for i in task:
+                        again = self._client.submit(model, designs[i], pure=False)
+                        futures[again] = ([i], False)
+                        collector.add(again)
+                    continue
+                (i,) = task
                 if isinstance(error, KilledWorker):
                     yield (
                         i,
@@ -428,7 +568,7 @@ class DaskCluster(InProcess):
                 elif tries[i] < 2:
                     tries[i] += 1
                     again = self._client.submit(model, designs[i], pure=False)
-                    futures[again] = i
+                    futures[again] = ([i], False)
                     collector.add(again)
                 else:
                     yield (
@@ -445,10 +585,36 @@ class DaskCluster(InProcess):
 
     def close(self) -> None:
         """Leave the scheduler; stop the local cluster if this object started it."""
+        if self._pool is not None:
+            self._pool.close()
+            self._pool = None
+        if self._starting is not None:
+            if self._starting.ident is not None:
+                self._starting.join()  # a cluster half started cannot be stopped; let it come up
+            self._starting = None
         if self._client is not None:
             self._client.close()
+            self._client = None
         if self._cluster is not None:
             self._cluster.close()
+            self._cluster = None
+
+
+def _dask_client():
+    """dask.distributed's Client class (ModelError naming the extra to install when it is missing)."""
+    try:
+        from dask.distributed import Client
+    except ImportError:
+        raise ModelError(
+            "--dask/--scheduler: dask.distributed is not installed; install the cluster extra: "
+            "pip install 'tradewise[cluster]'"
+        ) from None
+    return Client
+
+
+def _evaluate_share(model: Model, designs: Sequence[dict[str, Any]]) -> list[Outcome]:
+    """Run on a Dask worker: evaluate a few designs of a quick model, one after another."""
+    return [model(design) for design in designs]
 
 
 def _import_models() -> None:
@@ -494,7 +660,7 @@ def make_executor(
     InProcess(workers=1)
     """
     if scheduler or dask:
-        return DaskCluster(workers, scheduler=scheduler)
+        return DaskCluster(workers, scheduler=scheduler, pool_while_starting=not scheduler)
     if workers and workers > 1:
         return ProcessPool(workers)
     return InProcess()

@@ -34,6 +34,8 @@ from tradewise.runinfo import FRONT_FORMAT, RunInfo, check_format, check_front_k
 __all__ = [
     "Front",
     "nondominated",
+    "merge_nondominated",
+    "column_extremes",
     "hypervolume",
     "hv_contributions",
     "hypervolume_box",
@@ -186,6 +188,152 @@ def nondominated(
     )
 
 
+def column_extremes(points: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """The least and the greatest value of each column of a 2-D array.
+
+    The same values as ``points.min(axis=0)`` and ``points.max(axis=0)``,
+    taken a column at a time: numpy reduces a tall array of a few columns
+    along its first axis a row at a time, about 40 times slower (17,000 rows
+    of 3 columns: 1.1 ms against 30 us, measured).
+
+    Examples
+    --------
+    >>> low, high = column_extremes(np.array([[1.0, 5.0], [3.0, 2.0]]))
+    >>> low.tolist(), high.tolist()
+    ([1.0, 2.0], [3.0, 5.0])
+    """
+    columns = np.asarray(points, dtype=float).T
+    return (
+        np.array([column.min() for column in columns]),
+        np.array([column.max() for column in columns]),
+    )
+
+
+#: Below this many points in the old front :func:`merge_nondominated` asks moocore about the
+#: whole merged set; from it on, only the cells of old points that can touch a new point are compared.
+MERGE_CELLS_FROM = 1000
+
+
+def merge_nondominated(old: np.ndarray, new: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
+    """Which rows of a non-dominated set ``old`` and of new points ``new`` form their merged front.
+
+    All objectives are minimised; ``old`` holds no two equal rows and no row
+    that another dominates. The answer is exactly :func:`nondominated` of
+    ``old`` stacked above ``new``, split in two masks (of equal rows the first
+    is kept, so an old row wins over an equal new one), but the cost for a
+    large old front grows with its size only through a few passes over its
+    values, not with a non-dominated sort of all of it.
+
+    How: a new point that survives must be non-dominated among the new
+    points, and no old point may be at least as good in every objective; an
+    old point goes when one of these survivors is at least as good in every
+    objective (any new point that beats it is itself beaten or matched by a
+    survivor). The old points are put in cells of a grid on all objectives
+    but the last (at most three), and each cell keeps its least and greatest
+    values; a point is compared only with the cells whose extremes allow an
+    answer. A front is a surface, so a new point meets only a few cells.
+
+    Examples
+    --------
+    >>> keep_old, keep_new = merge_nondominated(np.array([[1.0, 3.0], [3.0, 1.0]]),
+    ...                                         np.array([[2.0, 2.0], [3.0, 3.0], [1.0, 3.0]]))
+    >>> keep_old.tolist(), keep_new.tolist()
+    ([True, True], [True, False, False])
+    """
+    old = np.asarray(old, dtype=float)
+    new = np.asarray(new, dtype=float)
+    n, k = len(old), len(new)
+    if k == 0:
+        return np.ones(n, dtype=bool), np.zeros(0, dtype=bool)
+    if n < MERGE_CELLS_FROM or not (np.isfinite(new).all() and np.isfinite(old).all()):
+        mask = nondominated(np.vstack([old, new]))
+        return mask[:n], mask[n:]
+    keep_new = nondominated(new)
+    grid = _CellGrid(old)
+    candidates = np.flatnonzero(keep_new)
+    met = grid.touching(new[candidates], at_least_as_good=True)
+    if met is None:
+        mask = nondominated(np.vstack([old, new]))
+        return mask[:n], mask[n:]
+    keep_new[candidates[met[0]]] = False
+    survivors = new[keep_new]
+    keep_old = np.ones(n, dtype=bool)
+    if len(survivors):
+        beaten = grid.touching(survivors, at_least_as_good=False)
+        if beaten is None:
+            mask = nondominated(np.vstack([old, new]))
+            return mask[:n], mask[n:]
+        keep_old[beaten[1]] = False
+    return keep_old, keep_new
+
+
+class _CellGrid:
+    """Points sorted into the cells of a grid on their first (at most three) coordinates.
+
+    Each cell knows the least and greatest value of its points in every
+    coordinate, so that :meth:`touching` compares a query point only with the
+    points of cells that can hold an answer.
+    """
+
+    # Cells per point aimed at, and the most cells (the cell numbers stay 16-bit integers, which
+    # numpy sorts by counting, in time proportional to the number of points).
+    _POINTS_A_CELL = 8
+    _MOST_CELLS = 32_000
+    # More pairs to compare than this many per point of the grid: give up (moocore is quicker).
+    _PAIRS_A_POINT = 8
+
+    def __init__(self, points: np.ndarray) -> None:
+        n, m = points.shape
+        axes = max(1, min(m - 1, 3))
+        side = max(2, int((n / self._POINTS_A_CELL) ** (1 / axes)))
+        side = min(side, int(self._MOST_CELLS ** (1 / axes)))
+        low, high = column_extremes(points[:, :axes])
+        width = np.where(high > low, high - low, 1.0)
+        cell = np.zeros(n, dtype=np.int16)
+        for j in range(axes):
+            index = ((points[:, j] - low[j]) * (side / width[j])).astype(np.int16)  # >= 0: floor
+            np.clip(index, 0, side - 1, out=index)
+            cell *= side
+            cell += index
+        self.order = np.argsort(cell, kind="stable")
+        sorted_cells = cell[self.order]
+        self.starts = np.flatnonzero(np.r_[True, sorted_cells[1:] != sorted_cells[:-1]])
+        self.counts = np.diff(np.r_[self.starts, n])
+        self.columns = np.take(points, self.order, axis=0).T.copy()  # one row a coordinate
+        self.low = np.minimum.reduceat(self.columns, self.starts, axis=1)
+        self.high = np.maximum.reduceat(self.columns, self.starts, axis=1)
+        self.n = n
+
+    def touching(
+        self, queries: np.ndarray, *, at_least_as_good: bool
+    ) -> tuple[np.ndarray, np.ndarray] | None:
+        """Pairs (query row, point row) where the point is at least as good as the query in every
+        coordinate (``at_least_as_good``), or the query at least as good as the point; each query
+        row and each point row given once, in increasing order. ``None`` when there would be too
+        many pairs to compare."""
+        cells = np.ones((len(queries), len(self.starts)), dtype=bool)
+        for j, values in enumerate(queries.T):
+            if at_least_as_good:
+                cells &= self.low[j][None, :] <= values[:, None]
+            else:
+                cells &= self.high[j][None, :] >= values[:, None]
+        q, c = np.divmod(np.flatnonzero(cells), len(self.starts))
+        sizes = self.counts[c]
+        total = int(sizes.sum())
+        if total > self._PAIRS_A_POINT * self.n:
+            return None
+        query = np.repeat(q, sizes)
+        ends = np.cumsum(sizes)
+        position = np.arange(total) + np.repeat(self.starts[c] - (ends - sizes), sizes)
+        hit = np.ones(total, dtype=bool)
+        for j, values in enumerate(queries.T):
+            if at_least_as_good:
+                hit &= self.columns[j][position] <= values[query]
+            else:
+                hit &= self.columns[j][position] >= values[query]
+        return np.unique(query[hit]), np.unique(self.order[position[hit]])
+
+
 def hypervolume(
     points: Any, reference: Sequence[float], maximise: bool | Sequence[bool] = False
 ) -> float:
@@ -228,7 +376,8 @@ def hypervolume_box(
     if len(points) == 0:
         return math.nan
     flags = np.asarray(_flags(maximise, points.shape[1]), dtype=bool)
-    ideal = np.where(flags, points.max(axis=0), points.min(axis=0))
+    low, high = column_extremes(points)
+    ideal = np.where(flags, high, low)
     sides = np.where(
         flags, ideal - np.asarray(reference, dtype=float), np.asarray(reference) - ideal
     )

@@ -37,11 +37,12 @@ from tradewise.errors import ModelError, StoreError
 from tradewise.executors import InProcess, make_executor, run_designs
 from tradewise.front import (
     Front,
+    column_extremes,
     design_table,
     hypervolume,
     hypervolume_box,
     hypervolume_share,
-    nondominated,
+    merge_nondominated,
     reference_point,
 )
 from tradewise.models import Outcome, make_model
@@ -341,12 +342,18 @@ class _Run:
         # Values equal to 1e-9 of the objective's scale count as ties, so floating-point noise
         # (cos(pi/2) is 6e-17, not 0) cannot keep an unconverged design on the front. The front's
         # rounded values are kept, so only the new designs are rounded.
-        new_ties = np.round(new_points / self.scale, 9)
-        ties = np.vstack([self.front_ties, new_ties])
-        mask = nondominated(ties, self.maximise)
-        self.front_rows = np.concatenate([self.front_rows, np.asarray(fresh, dtype=np.int64)])[mask]
-        self.front_pts = np.vstack([self.front_pts, new_points])[mask]
-        self.front_ties = ties[mask]
+        # The rounded values are kept minimised (maximised objectives negated) for the merge.
+        new_ties = np.round(new_points / self.scale, 9) * np.where(self.maximise, -1.0, 1.0)
+        keep_old, keep_new = merge_nondominated(self.front_ties, new_ties)
+        if keep_old.all() and not keep_new.any():
+            return
+        # Rows picked by position: numpy picks rows of a 2-D array by a mask several times slower.
+        old, new = np.flatnonzero(keep_old), np.flatnonzero(keep_new)
+        self.front_rows = np.concatenate(
+            [self.front_rows[old], np.asarray(fresh, dtype=np.int64)[new]]
+        )
+        self.front_pts = np.vstack([self.front_pts.take(old, axis=0), new_points[new]])
+        self.front_ties = np.vstack([self.front_ties.take(old, axis=0), new_ties[new]])
         self._exact_hv = None
 
     def front_points(self) -> np.ndarray:
@@ -393,7 +400,7 @@ class _Run:
         new, old = self.snapshots[-1], self.snapshots[-1 - window]
         if not len(new[0]):
             return math.inf
-        low, high = new[0].min(axis=0), new[0].max(axis=0)
+        low, high = column_extremes(new[0])
         hv_new = _normalised_hypervolume(new, low, high)
         if hv_new <= 0:
             return math.inf
