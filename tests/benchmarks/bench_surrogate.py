@@ -7,8 +7,9 @@ to reach 95 % of it; then, per problem, the medians over seeds, the ratio of the
 search's evaluations to the surrogate's, and the surrogate's own time per proposed design
 (model fitting and searching, from history.csv's model_seconds) next to the default search's
 time per evaluation in the same run. That time is wall-clock time: on a machine shared with other
-work it grows with the load (BNH's 0.12 s a design read 0.47 s with five other processes on two
-cores), so compare two versions side by side, started together.
+work it grows with the load (DTLZ2 in one run: 0.35 and 0.26 s a design for seeds 1 and 2 with
+about five other busy processes on two cores, 0.075 s for seed 3 once they had ended), so compare
+two versions side by side, started together.
 
 Two objectives pick by the expected hypervolume improvement, three by the hypervolume
 improvement of the predicted values (src/tradewise/surrogate.py gives the measurements behind
