@@ -551,23 +551,6 @@ def seed_population(searcher: Searcher, X: np.ndarray, F: np.ndarray, G: np.ndar
     algorithm._set_optimum()
 
 
-class _Function(Problem):
-    """A vectorised problem over the encoded space, evaluated by a plain function of the rows."""
-
-    def __init__(self, space: Space, function, n_obj: int, n_con: int) -> None:
-        super().__init__(
-            n_var=len(space.xl), n_obj=n_obj, n_ieq_constr=n_con, xl=space.xl, xu=space.xu
-        )
-        self.function = function
-        self.rows = space.repair
-
-    def _evaluate(self, X, out, *args, **kwargs):
-        F, G = self.function(self.rows(X))
-        out["F"] = F
-        if G is not None:
-            out["G"] = G
-
-
 def minimise_function(
     space: Space,
     function,
@@ -585,21 +568,115 @@ def minimise_function(
     without constraints). ``start`` (encoded rows) seeds the first generation;
     random rows fill it up to ``population``. Every row stays on the legal
     values of its variable (the same repair and mutation as a run's search).
+
+    The generation loop is written on numpy arrays (pymoo's SBX and
+    polynomial mutation kernels, moocore's ranks): on a function that costs a
+    millisecond, pymoo's own loop spends about 5 ms a generation on its
+    population objects, which was half of what the surrogate search costs a
+    round. Binary tournament: feasible first, then smaller total violation,
+    lower non-dominated rank, larger crowding distance; survival of the best
+    ``population`` of parents and offspring by the same order (Deb, Pratap,
+    Agarwal and Meyarivan 2002).
     """
-    from pymoo.optimize import minimize
+    from pymoo.operators.crossover.sbx import cross_sbx
+    from pymoo.operators.mutation.pm import mut_pm
 
     rng = np.random.default_rng(seed)
-    first = rng.uniform(space.xl, space.xu, size=(population, len(space.xl)))
+    xl, xu = np.asarray(space.xl, float), np.asarray(space.xu, float)
+    n_var = len(xl)
+    X = rng.uniform(xl, xu, size=(population, n_var))
     if start is not None and len(start):
-        first[: min(len(start), population)] = np.asarray(start, dtype=float)[:population]
-    problem = _Function(space, function, n_obj, n_con)
-    algorithm = NSGA2(
-        pop_size=population,
-        sampling=space.repair(first),
-        crossover=SBX(prob=0.9, eta=15),
-        mutation=MixedMutation(space, eta=20),
-        repair=Rounding(space),
-        eliminate_duplicates=False,  # the caller drops repeats; the pairwise check costs more than it saves
-    )
-    result = minimize(problem, algorithm, ("n_gen", generations), seed=seed, verbose=False)
-    return space.repair(result.pop.get("X"))
+        X[: min(len(start), population)] = np.asarray(start, dtype=float)[:population]
+    X = space.repair(X)
+
+    def evaluate(rows):
+        F, G = function(rows)
+        F = np.asarray(F, float).reshape(len(rows), n_obj)
+        if G is None or not n_con:
+            return F, np.zeros(len(rows))
+        return F, np.clip(np.asarray(G, float).reshape(len(rows), n_con), 0.0, None).sum(axis=1)
+
+    F, cv = evaluate(X)
+    order = _survival_order(F, cv, rng)
+    place = np.empty(population, int)
+    place[order] = np.arange(population)
+    per_variable = min(0.5, 1.0 / n_var)
+    categorical = space.categorical
+    for _ in range(generations):
+        # binary tournaments: the better place wins
+        a, b = rng.integers(0, population, size=(2, population))
+        parents = np.where(place[a] < place[b], a, b)
+        if population % 2:
+            parents = np.append(parents, parents[0])
+        pairs = parents.reshape(-1, 2)
+        mates = np.stack([X[pairs[:, 0]], X[pairs[:, 1]]])
+        n_pairs = len(pairs)
+        children = cross_sbx(
+            mates,
+            xl,
+            xu,
+            np.full((n_pairs, 1), 15.0),
+            np.full((n_pairs, 1), 0.5),
+            np.full((n_pairs, 1), 0.5),
+            random_state=rng,
+        )
+        keep = rng.random(n_pairs) >= 0.9  # a pair that does not cross passes on as it is
+        children[:, keep] = mates[:, keep]
+        children = children.reshape(-1, n_var)[:population]
+        mutated = mut_pm(
+            children,
+            xl,
+            xu,
+            np.full(len(children), 20.0),
+            np.full(len(children), per_variable),
+            at_least_once=False,
+            random_state=rng,
+        )
+        change = rng.random(len(children)) <= 0.9
+        children[change] = mutated[change]
+        for column, levels in categorical:
+            reset = rng.random(len(children)) < per_variable
+            if reset.any():
+                children[reset, column] = rng.integers(0, levels, size=int(reset.sum()))
+        children = space.repair(children)
+        F_new, cv_new = evaluate(children)
+        X = np.vstack([X, children])
+        F = np.vstack([F, F_new])
+        cv = np.concatenate([cv, cv_new])
+        best = _survival_order(F, cv, rng)[:population]
+        X, F, cv = X[best], F[best], cv[best]
+        place = np.arange(population)  # survivors come best first
+    return space.repair(X)
+
+
+def _survival_order(F: np.ndarray, cv: np.ndarray, rng) -> np.ndarray:
+    """Rows best first: feasible, then smaller violation, lower rank, larger crowding distance, ties at random."""
+    import moocore
+
+    rank = np.zeros(len(F))
+    crowding = np.zeros(len(F))
+    feasible = cv <= 0
+    if feasible.any():
+        rows = np.flatnonzero(feasible)
+        ranks = np.asarray(moocore.pareto_rank(F[rows]))
+        rank[rows] = ranks
+        for r in np.unique(ranks):
+            members = rows[ranks == r]
+            crowding[members] = _crowding(F[members])
+    return np.lexsort((rng.random(len(F)), -crowding, rank, cv, ~feasible))
+
+
+def _crowding(F: np.ndarray) -> np.ndarray:
+    """Crowding distance of the points of one front (Deb et al. 2002): the ends are infinite."""
+    n, m = F.shape
+    if n <= 2:
+        return np.full(n, np.inf)
+    distance = np.zeros(n)
+    for k in range(m):
+        order = np.argsort(F[:, k], kind="stable")
+        values = F[order, k]
+        span = values[-1] - values[0]
+        distance[order[[0, -1]]] = np.inf
+        if span > 0:
+            distance[order[1:-1]] += (values[2:] - values[:-2]) / span
+    return distance

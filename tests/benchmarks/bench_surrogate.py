@@ -6,7 +6,14 @@ over the exact front's value) after 50, 100 and 200 evaluations, and the evaluat
 to reach 95 % of it; then, per problem, the medians over seeds, the ratio of the default
 search's evaluations to the surrogate's, and the surrogate's own time per proposed design
 (model fitting and searching, from history.csv's model_seconds) next to the default search's
-time per evaluation in the same run.
+time per evaluation in the same run. That time is wall-clock time: on a machine shared with other
+work it grows with the load (DTLZ2 in one run: 0.35 and 0.26 s a design for seeds 1 and 2 with
+about five other busy processes on two cores, 0.075 s for seed 3 once they had ended), so compare
+two versions side by side, started together.
+
+Two objectives pick by the expected hypervolume improvement, three by the hypervolume
+improvement of the predicted values (src/tradewise/surrogate.py gives the measurements behind
+each choice).
 
 Problems (tests/problems.py): ZDT1 and ZDT2 with 6 variables (Zitzler, Deb and Thiele 2000),
 DTLZ2 with 3 objectives and 6 variables (Deb, Thiele, Laumanns and Zitzler 2002), BNH with two
