@@ -15,6 +15,7 @@ with the loop whose state they report.
 
 from __future__ import annotations
 
+import functools
 import json
 import math
 import platform
@@ -443,14 +444,20 @@ def _thin(points: np.ndarray, most: int) -> np.ndarray:
 
 
 # ---------------------------------------------------------------------------------------- algorithm
-def _versions() -> dict[str, str]:
+@functools.cache
+def _package_versions() -> tuple[tuple[str, str], ...]:
+    """Python's and the packages' versions, looked up once a process (the look-up reads the disk)."""
     versions = {"python": platform.python_version()}
     for package in ("tradewise", "pymoo", "moocore", "numpy", "pandas"):
         try:
             versions[package] = metadata.version(package)
         except metadata.PackageNotFoundError:
             versions[package] = "unknown"
-    return versions
+    return tuple(versions.items())
+
+
+def _versions() -> dict[str, str]:
+    return dict(_package_versions())
 
 
 # ------------------------------------------------------------------------------------------ study

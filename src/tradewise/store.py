@@ -49,6 +49,8 @@ _ID_BLOCK = 4096
 # How long "this case has no evaluations from other runs" is trusted before asking the file again.
 _OTHERS_TTL = 1.0
 _SQLITE_HEADER = b"SQLite format 3\x00"
+# Bytes the pipe to the writer process may hold (Linux allows up to 1 MB to any user by default).
+_PIPE_SIZE = 1 << 20
 #: Seconds to wait for another process to release a locked archive before stopping with a StoreError.
 LOCK_WAIT = 30.0
 #: Seconds of waiting after which the wait is announced (on the "tradewise" logger, which prints to
@@ -165,6 +167,12 @@ class _ProcessLink:
             stdout=subprocess.PIPE,
             stderr=subprocess.PIPE,
         )
+        # A generation's rows of a model with many variables fill the usual 64 kB pipe, so that the
+        # search waited for the writer to read them; a larger pipe (Linux) lets it go on at once.
+        with contextlib.suppress(AttributeError, OSError):
+            import fcntl
+
+            fcntl.fcntl(self.proc.stdin.fileno(), fcntl.F_SETPIPE_SZ, _PIPE_SIZE)
         self.tokens = itertools.count(1)
         self.reserved: list[int] = []
 
@@ -511,7 +519,11 @@ class Store:
             return int(cursor.lastrowid)
 
     def update_run(self, run_id: int, **fields: Any) -> None:
-        """Change a run's ``status``, ``message``, ``reference``, ``settings`` or ``finished``."""
+        """Change a run's ``status``, ``message``, ``reference``, ``settings`` or ``finished``.
+
+        Once the writer runs, the change goes through it like an evaluation
+        (committed at once, or within a tenth of a second, and at :meth:`close`).
+        """
         allowed = {"status", "message", "reference", "settings", "finished"}
         for key in fields:
             if key not in allowed:
@@ -523,8 +535,19 @@ class Store:
             for k, v in fields.items()
         ]
         assignments = ", ".join(f"{key} = ?" for key in fields)
+        sql = f"UPDATE runs SET {assignments} WHERE run_id = ?"
         with self._lock:
-            self._write_now(f"UPDATE runs SET {assignments} WHERE run_id = ?", (*values, run_id))
+            if self._link is None or self._failure is not None:
+                self._write_now(sql, (*values, run_id))
+                return
+            # The writer is running: it applies the change after every evaluation recorded so far
+            # and commits at once, and the search does not wait (a read syncs with the writer first).
+            messages = [("rows", self._rows)] if self._rows else []
+            self._rows = []
+            messages += [("sql", sql, (*values, run_id)), ("commit",)]
+            self._commit_wanted = False
+            link = self._writer()
+            self._call(lambda: link.send(("many", messages)))
 
     def runs(self):
         """One row a run, as a pandas DataFrame: id, case, seed, status, message, counts and times."""
