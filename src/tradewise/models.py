@@ -103,7 +103,9 @@ class PythonModel:
     def __call__(self, design: dict[str, Any]) -> Outcome:
         if self.timeout is not None:
             return _evaluate_guarded(self.file, self.function, self.required, self.timeout, design)
-        return Outcome(**_host.evaluate(self.load(), design, self.required))
+        return Outcome(
+            *_host.call(self._callable or self.load(), design, self.required), _host.worker_name()
+        )
 
 
 class BatchModel:
