@@ -137,8 +137,9 @@ def design_keys(names: list[str], columns: list[list[Any]], *, floats: bool = Fa
     ['t=0.3|w=2']
     """
     if floats:
-        template = "|".join(f"{name}={{:.12g}}" for name in names)
-        return [template.format(*row) for row in zip(*columns, strict=True)]
+        # printf-style %.12g gives what format's .12g gives, a little quicker
+        template = "|".join(f"{name.replace('%', '%%')}=%.12g" for name in names)
+        return [template % row for row in zip(*columns, strict=True)]
     texts = [
         [
             f"{name}={value:.12g}" if type(value) is float else f"{name}={_key_text(value)}"
