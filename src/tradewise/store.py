@@ -22,6 +22,7 @@ import contextlib
 import itertools
 import json
 import logging
+import math
 import pickle
 import select
 import sqlite3
@@ -318,8 +319,8 @@ class Store:
     are committed even if the search process is killed. Each evaluation is
     committed at most about half a second after it was recorded, also while
     the search waits for a slow model; the end of a generation commits at
-    once (or, when generations end faster than ten a second, within a tenth
-    of a second). So a run killed at any moment loses only the designs still
+    once (or, when generations end faster than ten a second, within about
+    two tenths of a second). So a run killed at any moment loses only the designs still
     being evaluated and those finished in its last half second. The file is
     in WAL mode with ``synchronous=NORMAL``: commits survive a killed
     process; a power cut may lose the last commits, never corrupt the file.
@@ -334,6 +335,10 @@ class Store:
         self._rows: list[tuple] = []  # evaluations recorded, not yet handed to the writer
         self._names: tuple[str, ...] = ()  # the variable names of the last design recorded
         self._rows_since = 0.0
+        # Messages (generation rows, states, commits, recorded rows before them) waiting to go to the
+        # writer with the next hand-over, and when the last hand-over was.
+        self._later: list[tuple] = []
+        self._sent_at = -math.inf
         self._commit_wanted = False
         self._link: _ProcessLink | _LocalLink | None = None
         # The writer has answered (set False while a new writer process is untried).
@@ -467,10 +472,26 @@ class Store:
         self._call(link.sync)
 
     def _hand_over(self) -> None:
-        """Send the recorded evaluations to the writer; call with the lock held."""
-        if self._rows:
+        """Send the waiting messages and recorded evaluations to the writer; call with the lock held."""
+        if self._later:
+            messages, self._later = self._later, []
+            if self._rows:
+                messages.append(("rows", self._rows))
+                self._rows = []
+            self._send(("many", messages))
+        elif self._rows:
             rows, self._rows = self._rows, []
             self._send(("rows", rows))
+        else:
+            return
+        self._sent_at = time.monotonic()
+
+    def _queue(self, messages: list[tuple]) -> None:
+        """Put ``messages`` after everything recorded so far, to go with the next hand-over; call with the lock held."""
+        if self._rows:
+            self._later.append(("rows", self._rows))
+            self._rows = []
+        self._later += messages
 
     def _tick_loop(self) -> None:
         """Hand over evaluations that have waited long enough while the search waits for a slow model."""
@@ -479,7 +500,10 @@ class Store:
                 if self._failure is not None or self._link is None:
                     return
                 try:
-                    if self._rows and time.monotonic() - self._rows_since >= _HAND_OVER_EVERY:
+                    now = time.monotonic()
+                    if (self._rows and now - self._rows_since >= _HAND_OVER_EVERY) or (
+                        self._later and now - self._sent_at >= _HAND_OVER_EVERY
+                    ):
                         self._hand_over()
                     if self._commit_wanted:
                         self._hand_over()
@@ -606,11 +630,9 @@ class Store:
                 return
             # The writer is running: it applies the change after every evaluation recorded so far
             # and commits at once, and the search does not wait (a read syncs with the writer first).
-            messages = [("rows", self._rows)] if self._rows else []
-            self._rows = []
-            messages += [("sql", sql, (*values, run_id)), ("commit",)]
+            self._queue([("sql", sql, (*values, run_id)), ("commit",)])
             self._commit_wanted = False
-            self._send(("many", messages))
+            self._hand_over()
 
     def runs(self):
         """One row a run, as a pandas DataFrame: id, case, seed, status, message, counts and times."""
@@ -843,14 +865,16 @@ class Store:
     ) -> None:
         """Record one generation's summary (and the search state to resume from), and have it committed.
 
-        The writer commits it, with every evaluation recorded before it, at
-        once (or within a tenth of a second of its last commit); the caller
-        does not wait.
+        It goes to the writer at once, with every evaluation recorded before
+        it, when the last hand-over is a tenth of a second old, and otherwise
+        with the next one, within about a tenth of a second (generations of a
+        quick model end many times a second, and each hand-over wakes the
+        writer process); the writer commits it at once (or within a tenth of
+        a second of its last commit). The caller does not wait.
         """
         generation = int(row["generation"])
         with self._lock:
-            messages = [("rows", self._rows)] if self._rows else []
-            self._rows = []
+            messages = []
             messages.append(
                 (
                     "sql",
@@ -868,7 +892,9 @@ class Store:
                 )
             messages.append(("commit",))
             self._commit_wanted = False
-            self._send(("many", messages))
+            self._queue(messages)
+            if time.monotonic() - self._sent_at >= _HAND_OVER_EVERY:
+                self._hand_over()
 
     def save_state(self, run_id: int, generation: int, state: bytes) -> None:
         """Keep the search state reached after ``generation`` (one state a run: the newest).
@@ -876,20 +902,17 @@ class Store:
         Committed by the writer within a tenth of a second, and at :meth:`close`.
         """
         with self._lock:
-            self._hand_over()
-            self._send(
-                (
-                    "many",
-                    [
-                        (
-                            "sql",
-                            "INSERT OR REPLACE INTO states (run_id, generation, blob) VALUES (?, ?, ?)",
-                            (run_id, generation, state),
-                        ),
-                        ("commit",),
-                    ],
-                )
+            self._queue(
+                [
+                    (
+                        "sql",
+                        "INSERT OR REPLACE INTO states (run_id, generation, blob) VALUES (?, ?, ?)",
+                        (run_id, generation, state),
+                    ),
+                    ("commit",),
+                ]
             )
+            self._hand_over()
 
     def add_predictions(self, run_id: int, generation: int, rows: list[tuple]) -> None:
         """Record what a surrogate run's models predicted for designs it then evaluated.
@@ -909,8 +932,8 @@ class Store:
             for row in rows
         ]
         with self._lock:
+            self._queue(messages)
             self._hand_over()
-            self._send(("many", messages))
 
     def predictions(self, run_id: int):
         """What a surrogate run's models predicted beside the real results, one row a design and name."""
