@@ -93,6 +93,7 @@ class Space:
         self.xl = np.asarray(low, dtype=float)
         self.xu = np.asarray(high, dtype=float)
         self.discrete = np.asarray(discrete, dtype=bool)
+        self._any_discrete = bool(self.discrete.any())
         self._names = [v.name for v in case.variables]
         self._kinds = [v.kind for v in case.variables]
         self._options = [v.options for v in case.variables]
@@ -116,6 +117,8 @@ class Space:
         return float(np.prod(self._round_high - self._round_low + 1))
 
     def repair(self, X: np.ndarray) -> np.ndarray:
+        if not self._any_discrete:  # reals only: clipping alone (it makes the new array)
+            return np.clip(np.asarray(X, dtype=float), self._round_low, self._round_high)
         X = np.array(X, dtype=float, copy=True)
         X[:, self.discrete] = np.round(X[:, self.discrete])
         return np.clip(X, self._round_low, self._round_high)

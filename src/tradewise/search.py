@@ -928,21 +928,26 @@ def _evaluate(
 
 def _values(case: Case, keys: list[str], outcomes: dict[str, Outcome], n_con: int):
     """Objective values (minimised) and constraint values (``<= 0`` met) of the designs, in order."""
-    F = np.zeros((len(keys), len(case.objectives)))
-    G = np.zeros((len(keys), n_con)) if n_con else None
-    for r, key in enumerate(keys):
+    n_obj = len(case.objectives)
+    signs = [(o.name, o.maximise) for o in case.objectives]
+    constraints = case.constraints
+    # Rows built as lists and made arrays once: a generation's values in one numpy call each.
+    failed_f = [0.0] * n_obj if n_con else [_FAILED_OBJECTIVE] * n_obj
+    failed_g = [0.0] * (n_con - 1) + [_FAILED_PENALTY] if n_con else []
+    met = [0.0] * (n_con - len(constraints))  # the failure column of a design that did not fail
+    F_rows, G_rows = [], []
+    for key in keys:
         outcome = outcomes[key]
         if outcome.status != "ok":
-            if n_con:
-                G[r, -1] = _FAILED_PENALTY
-            else:
-                F[r, :] = _FAILED_OBJECTIVE
+            F_rows.append(failed_f)
+            G_rows.append(failed_g)
             continue
         results = outcome.results
-        for j, o in enumerate(case.objectives):
-            F[r, j] = -results[o.name] if o.maximise else results[o.name]
-        for j, c in enumerate(case.constraints):
-            G[r, j] = c.violation(results[c.name])
+        F_rows.append([-results[name] if flip else results[name] for name, flip in signs])
+        if n_con:
+            G_rows.append([c.violation(results[c.name]) for c in constraints] + met)
+    F = np.array(F_rows, dtype=float).reshape(len(keys), n_obj)
+    G = np.array(G_rows, dtype=float).reshape(len(keys), n_con) if n_con else None
     return F, G
 
 
