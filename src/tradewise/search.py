@@ -872,10 +872,11 @@ def _propose(run: _Run, searcher: Searcher, number: int) -> _Proposal | None:
         designs = [designs[i] for i in keep]
         keys = [keys[i] for i in keep]
         fresh = fresh[:room]
+    to_evaluate = set(fresh)  # a list's membership test is a scan per key
     served = {
         k: run.memo[k] if k in run.memo else archived[k]
         for k in dict.fromkeys(keys)
-        if k not in fresh
+        if k not in to_evaluate
     }
     return _Proposal(number, designs, keys, served, fresh, first_row=len(run.records))
 
@@ -886,9 +887,13 @@ def _evaluate(
     """Record the served designs, take over the interrupted run's, evaluate the rest; every outcome by key."""
     designs, keys, generation = proposal.designs, proposal.keys, proposal.number
     outcomes: dict[str, Outcome] = {}
+    # Each key's first place in the generation, found in one pass (keys.index is a scan per key).
+    positions: dict[str, int] = {}
+    for i, key in enumerate(keys):
+        positions.setdefault(key, i)
     for key, outcome in proposal.served.items():
         row = run.record(
-            designs[keys.index(key)],
+            designs[positions[key]],
             key,
             outcome,
             generation,
@@ -899,7 +904,6 @@ def _evaluate(
         outcomes[key] = outcome
         if on_evaluation:
             on_evaluation(row)
-    positions = {k: keys.index(k) for k in proposal.fresh}
     for key in sorted(
         (k for k in proposal.fresh if k in run.adopt), key=lambda k: run.adopt[k].outcome.eval_id
     ):
