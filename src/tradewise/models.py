@@ -6,6 +6,7 @@ import atexit
 import contextlib
 import itertools
 import json
+import operator
 import os
 import queue
 import re
@@ -143,8 +144,9 @@ class BatchModel:
         """The designs as the DataFrame the function receives: one row a design, a column a variable."""
         import pandas as pd
 
-        rows = [[design[c] for c in self.columns] for design in designs]
-        if set(map(type, itertools.chain.from_iterable(rows))) == {float}:
+        pick = operator.itemgetter(*self.columns)  # a design's values in column order, in one call
+        rows = [pick(design) for design in designs] if len(self.columns) > 1 else []
+        if rows and set(map(type, itertools.chain.from_iterable(rows))) == {float}:
             # Reals only (the usual batch model): one block of floats, built at once.
             return pd.DataFrame(np.array(rows, dtype=float), columns=self.columns)
         return pd.DataFrame.from_records(designs, columns=self.columns)
