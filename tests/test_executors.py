@@ -18,6 +18,7 @@ import pytest
 from click.testing import CliRunner
 
 import tradewise
+from support import CASES
 from tradewise.case import load_case
 from tradewise.cli import main
 from tradewise.errors import ModelError, TradewiseError
@@ -136,6 +137,57 @@ def test_process_pool_gives_the_in_process_results(case):
     assert "ValueError: cannot size x=0.300" in expected[2][2] and "finite number" in expected[4][2]
     with ProcessPool(2) as pool:
         assert _outcomes(pool, model, BATCH) == expected
+
+
+def test_a_batch_answer_of_finite_float_arrays_is_checked_as_the_full_checks_would():
+    """The quick path for a dict of exactly the required finite float arrays gives what the full checks
+    give; any other answer (an extra output, integers, a NaN, a missing name, a short array) takes the
+    full checks."""
+    import numpy as np
+
+    from tradewise import models
+
+    n, required = 6, ["mass", "cost"]
+    rng = np.random.default_rng(3)
+    answers = [
+        {"mass": rng.random(n), "cost": rng.random(n).astype(np.float32)},
+        {"mass": rng.random((n, 1)), "cost": rng.random(n)},
+        {"mass": rng.random(n), "cost": rng.random(n), "note": np.arange(n)},
+        {"mass": rng.random(n), "cost": np.arange(n)},
+        {"mass": np.r_[rng.random(n - 1), np.nan], "cost": rng.random(n)},
+        {"mass": rng.random(n)},
+        {"mass": rng.random(n), "cost": rng.random(n - 1)},
+    ]
+    quick = [models._finite_floats(raw, n, required) is not None for raw in answers]
+    assert quick == [True, True, False, False, False, False, False]
+    for raw in answers:
+        checked = models.check_table(raw, n, required)
+        original = models._finite_floats
+        try:
+            models._finite_floats = lambda *args: None
+            assert models.check_table(raw, n, required) == checked
+        finally:
+            models._finite_floats = original
+
+
+def test_a_batch_model_gets_the_table_from_records_would_give():
+    """Reals only or mixed kinds, the designs reach a batch model as DataFrame.from_records builds them."""
+    import numpy as np
+
+    from tradewise._pymoo import Space
+    from tradewise.models import BatchModel
+
+    for name in ("zdt1-batch", "mixed"):
+        case = load_case(CASES / name)
+        space = Space(case)
+        rows = np.random.default_rng(5).uniform(space.xl, space.xu, size=(12, len(space.xl)))
+        designs = space.decode_all(space.repair(rows))
+        model = BatchModel(case)
+        pd.testing.assert_frame_equal(
+            model.table(designs),
+            pd.DataFrame.from_records(designs, columns=model.columns),
+            check_exact=True,
+        )
 
 
 @pytest.mark.cluster

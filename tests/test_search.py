@@ -243,6 +243,19 @@ def test_first_generation_all_failed_stops_with_the_first_message(make_case):
         tradewise.run(folder, evaluations=100)
 
 
+def test_keys_of_reals_formatted_at_once_are_the_one_design_keys():
+    """design_keys of a space of reals (printf-style, a design at a time) gives design_key's text, also
+    for extreme values and a name holding a percent sign."""
+    from tradewise.search import design_keys
+
+    names = ["t", "w%x", "n"]
+    columns = [[0.1 + 0.2, 1e300, -0.0], [5e-324, math.inf, 123456789012.5], [1e-5, 2.0, 1 / 3]]
+    expected = [
+        design_key(dict(zip(names, row, strict=True))) for row in zip(*columns, strict=True)
+    ]
+    assert design_keys(names, columns, floats=True) == expected
+
+
 def test_missing_key_is_a_failure(make_case):
     """A model that forgets an objective fails that design with a message naming the key."""
     folder = make_case(

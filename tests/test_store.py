@@ -217,6 +217,26 @@ def test_without_a_writer_process_the_store_writes_itself(tmp_path, monkeypatch,
         assert store.count_evaluations(run_id) == 5
 
 
+def test_a_writer_process_that_never_answers_is_replaced_and_loses_nothing(tmp_path, monkeypatch):
+    """The search does not wait for a new writer process; one that never answers (here a program that
+    sleeps a second without reading) is replaced by the writer in this process, which gets every row,
+    generation row and state sent to the silent one."""
+    from tradewise import _archive_writer
+
+    silent = tmp_path / "silent.py"
+    silent.write_text("import time\ntime.sleep(1)\n")
+    monkeypatch.setattr(_archive_writer, "__file__", str(silent))
+    path = tmp_path / "a.sqlite"
+    with open_store(path) as store:
+        run_id = _start(store)
+        for generation in range(1, 81):  # more messages than are kept before waiting for an answer
+            _add(store, run_id, f"k{generation}", generation=generation)
+            store.add_generation(run_id, {"generation": generation}, state=b"s%d" % generation)
+        assert store.count_evaluations(run_id) == 80
+        assert store.state(run_id) == (80, b"s80")
+        assert len(store.history(run_id)) == 80
+
+
 def test_a_failing_writer_is_one_store_error(tmp_path):
     """When the writer cannot write (here the table was dropped behind its back), the next call says so in
     one line naming the file and SQLite's message."""

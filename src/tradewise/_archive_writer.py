@@ -71,6 +71,7 @@ class Writer:
     def apply(self, message):
         kind = message[0]
         if kind == "rows":
+            # each design as the tuple of its variable names and the tuple of its values
             self.db.executemany(
                 INSERT,
                 [
@@ -79,7 +80,7 @@ class Writer:
                         run,
                         case,
                         key,
-                        encode(design),
+                        encode(dict(zip(names, values, strict=True))),
                         encode(results),
                         status,
                         text,
@@ -89,7 +90,7 @@ class Writer:
                         source,
                         created,
                     )
-                    for i, run, case, key, design, results, status, text, duration, gen, worker, source, created in message[
+                    for i, run, case, key, names, values, results, status, text, duration, gen, worker, source, created in message[
                         1
                     ]
                 ],

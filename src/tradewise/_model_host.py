@@ -66,12 +66,18 @@ def check_results(raw: Any, required: list[str]) -> tuple[dict[str, Any], str]:
                 {},
                 f"model result has no {name!r} (got keys: {', '.join(map(str, raw)) or 'none'})",
             )
-        value = _plain_number(raw[name])
+        value = raw[name]
+        if type(value) is float and value - value == 0.0:  # the usual answer: a finite float
+            results[name] = value
+            continue
+        value = _plain_number(value)
         if isinstance(value, bool) or not isinstance(value, int | float):
             return {}, f"model result {name!r} is {value!r}, expected a number"
         if not math.isfinite(value):
             return {}, f"model result {name!r} is {value!r}, expected a finite number"
         results[name] = float(value)
+    if len(raw) == len(results):
+        return results, ""  # no outputs beside the objectives and constraints
     for key, value in raw.items():
         if key in results:
             continue
@@ -88,15 +94,20 @@ def evaluate(function, design: dict[str, Any], required: list[str]) -> dict[str,
 
     Returns the fields of an outcome: status, results, message, duration, worker.
     """
+    return _fields(*call(function, design, required))
+
+
+def call(function, design: dict[str, Any], required: list[str]) -> tuple[str, dict, str, float]:
+    """:func:`evaluate` without the worker's name: status, results, message and duration."""
     start = time.perf_counter()
     try:
         raw = function(dict(design))
     except (Exception, SystemExit) as exc:  # the designer's model may raise or exit; record it
         message = f"{type(exc).__name__}: {exc}{_innermost_frame(exc)}"
-        return _fields("failed", {}, message, time.perf_counter() - start)
+        return "failed", {}, message, time.perf_counter() - start
     duration = time.perf_counter() - start
     results, problem = check_results(raw, required)
-    return _fields("failed" if problem else "ok", results, problem, duration)
+    return "failed" if problem else "ok", results, problem, duration
 
 
 def _fields(status: str, results: dict[str, Any], message: str, duration: float) -> dict[str, Any]:

@@ -15,6 +15,7 @@ with the loop whose state they report.
 
 from __future__ import annotations
 
+import functools
 import json
 import math
 import platform
@@ -137,8 +138,9 @@ def design_keys(names: list[str], columns: list[list[Any]], *, floats: bool = Fa
     ['t=0.3|w=2']
     """
     if floats:
-        template = "|".join(f"{name}={{:.12g}}" for name in names)
-        return [template.format(*row) for row in zip(*columns, strict=True)]
+        # printf-style %.12g gives what format's .12g gives, a little quicker
+        template = "|".join(f"{name.replace('%', '%%')}=%.12g" for name in names)
+        return [template % row for row in zip(*columns, strict=True)]
     texts = [
         [
             f"{name}={value:.12g}" if type(value) is float else f"{name}={_key_text(value)}"
@@ -450,14 +452,20 @@ def _thin(points: np.ndarray, most: int) -> np.ndarray:
 
 
 # ---------------------------------------------------------------------------------------- algorithm
-def _versions() -> dict[str, str]:
+@functools.cache
+def _package_versions() -> tuple[tuple[str, str], ...]:
+    """Python's and the packages' versions, looked up once a process (the look-up reads the disk)."""
     versions = {"python": platform.python_version()}
     for package in ("tradewise", "pymoo", "moocore", "numpy", "pandas"):
         try:
             versions[package] = metadata.version(package)
         except metadata.PackageNotFoundError:
             versions[package] = "unknown"
-    return versions
+    return tuple(versions.items())
+
+
+def _versions() -> dict[str, str]:
+    return dict(_package_versions())
 
 
 # ------------------------------------------------------------------------------------------ study
@@ -871,10 +879,11 @@ def _propose(run: _Run, searcher: Searcher, number: int) -> _Proposal | None:
         designs = [designs[i] for i in keep]
         keys = [keys[i] for i in keep]
         fresh = fresh[:room]
+    to_evaluate = set(fresh)  # a list's membership test is a scan per key
     served = {
         k: run.memo[k] if k in run.memo else archived[k]
         for k in dict.fromkeys(keys)
-        if k not in fresh
+        if k not in to_evaluate
     }
     return _Proposal(number, designs, keys, served, fresh, first_row=len(run.records))
 
@@ -885,9 +894,13 @@ def _evaluate(
     """Record the served designs, take over the interrupted run's, evaluate the rest; every outcome by key."""
     designs, keys, generation = proposal.designs, proposal.keys, proposal.number
     outcomes: dict[str, Outcome] = {}
+    # Each key's first place in the generation, found in one pass (keys.index is a scan per key).
+    positions: dict[str, int] = {}
+    for i, key in enumerate(keys):
+        positions.setdefault(key, i)
     for key, outcome in proposal.served.items():
         row = run.record(
-            designs[keys.index(key)],
+            designs[positions[key]],
             key,
             outcome,
             generation,
@@ -898,7 +911,6 @@ def _evaluate(
         outcomes[key] = outcome
         if on_evaluation:
             on_evaluation(row)
-    positions = {k: keys.index(k) for k in proposal.fresh}
     for key in sorted(
         (k for k in proposal.fresh if k in run.adopt), key=lambda k: run.adopt[k].outcome.eval_id
     ):
@@ -927,21 +939,26 @@ def _evaluate(
 
 def _values(case: Case, keys: list[str], outcomes: dict[str, Outcome], n_con: int):
     """Objective values (minimised) and constraint values (``<= 0`` met) of the designs, in order."""
-    F = np.zeros((len(keys), len(case.objectives)))
-    G = np.zeros((len(keys), n_con)) if n_con else None
-    for r, key in enumerate(keys):
+    n_obj = len(case.objectives)
+    signs = [(o.name, o.maximise) for o in case.objectives]
+    constraints = case.constraints
+    # Rows built as lists and made arrays once: a generation's values in one numpy call each.
+    failed_f = [0.0] * n_obj if n_con else [_FAILED_OBJECTIVE] * n_obj
+    failed_g = [0.0] * (n_con - 1) + [_FAILED_PENALTY] if n_con else []
+    met = [0.0] * (n_con - len(constraints))  # the failure column of a design that did not fail
+    F_rows, G_rows = [], []
+    for key in keys:
         outcome = outcomes[key]
         if outcome.status != "ok":
-            if n_con:
-                G[r, -1] = _FAILED_PENALTY
-            else:
-                F[r, :] = _FAILED_OBJECTIVE
+            F_rows.append(failed_f)
+            G_rows.append(failed_g)
             continue
         results = outcome.results
-        for j, o in enumerate(case.objectives):
-            F[r, j] = -results[o.name] if o.maximise else results[o.name]
-        for j, c in enumerate(case.constraints):
-            G[r, j] = c.violation(results[c.name])
+        F_rows.append([-results[name] if flip else results[name] for name, flip in signs])
+        if n_con:
+            G_rows.append([c.violation(results[c.name]) for c in constraints] + met)
+    F = np.array(F_rows, dtype=float).reshape(len(keys), n_obj)
+    G = np.array(G_rows, dtype=float).reshape(len(keys), n_con) if n_con else None
     return F, G
 
 
