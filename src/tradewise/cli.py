@@ -371,9 +371,10 @@ def resume_command(store, run_id, evaluations, out, case, workers, dask, schedul
     """Continue an interrupted run from its archive, or extend a finished one.
 
     STORE is the run folder, or the archive file of the run (archive.sqlite
-    in its run folder, or the file given to `run --store`). Nothing already evaluated is evaluated again, and a run stopped part-way
-    ends with the front it would have had without the stop. The run folder
-    is written again.
+    in its run folder, or the file given to `run --store`). Nothing already
+    evaluated is evaluated again, and a run stopped part-way ends with the
+    front it would have had without the stop. The run folder is written
+    again.
     """
     from pathlib import Path
 
@@ -868,11 +869,9 @@ def plot_command(run, kind, out, design, variables, minimise, maximise) -> None:
             front = read_front(path)
         history = evaluations = None
     else:
-        from tradewise.runfolder import read_run, read_seed_evaluations
+        from tradewise.runfolder import read_run
 
         front, history, evaluations = read_run(run, evaluations="front" in kinds)
-        if front.info.seeds is not None and "front" in kinds:
-            evaluations = read_seed_evaluations(run, front)  # every seed's, behind the merged front
     row = None
     if design is not None:
         ids = [str(i) for i in front.design_ids()]
@@ -969,12 +968,10 @@ def report_command(run, out, shortlist_path) -> None:
 
     from tradewise.front import read_front, read_table
     from tradewise.report import write_report
-    from tradewise.runfolder import read_run, read_seed_evaluations, read_seeds
+    from tradewise.runfolder import read_run, read_seeds
 
     _check_out(out, _run_inputs(run) + ([*_front_inputs(shortlist_path)] if shortlist_path else []))
     front, history, evaluations = read_run(run)
-    if front.info.seeds is not None:
-        evaluations = read_seed_evaluations(run, front)  # every seed's, behind the merged front
     seeds, surfaces = read_seeds(run, front)
     shortlist = None
     if shortlist_path:
@@ -1112,13 +1109,10 @@ def whatif_command(run, limits, out) -> None:
     """
     from tradewise.diagnose import what_if
     from tradewise.errors import DataError
-    from tradewise.runfolder import read_run, read_seed_evaluations
+    from tradewise.runfolder import read_run
 
     _check_out(out, _run_inputs(run), with_json=True)
-    front, _, evaluations = read_run(run)
-    if front.info.seeds is not None:
-        # the merged front of a set of seeds: every seed's evaluations are judged again together
-        evaluations = read_seed_evaluations(run, front)
+    front, _, evaluations = read_run(run)  # for a set of seeds, every seed's evaluations
     if evaluations is None:
         raise DataError(
             f"{run}: no archive of the run's evaluations found beside its front.json; a what-if "

@@ -73,12 +73,9 @@ def load_picker_source(source: Any) -> tuple[Front, pd.DataFrame | None, pd.Data
     if isinstance(source, str | Path):
         path = Path(source)
         if path.is_dir():
-            from tradewise.runfolder import read_run, read_seed_evaluations
+            from tradewise.runfolder import read_run
 
-            front, history, evaluations = read_run(path)
-            if front.info.seeds is not None:
-                evaluations = read_seed_evaluations(path, front)
-            return front, history, evaluations
+            return read_run(path)
         return read_front(path), None, None
     raise DataError(
         f"picker source: got a {type(source).__name__}; expected a search result, a Front, "

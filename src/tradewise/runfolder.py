@@ -273,7 +273,13 @@ def seed_attainment(result: Any):
 
 
 def read_run(run: str | Path, *, evaluations: bool = True):
-    """The front, the history and (from the archive, when it is there) every evaluation of a run folder."""
+    """The front, the history and (from the archive, when it is there) every evaluation of a run folder.
+
+    For the merged front of a set of seeds (``run --seeds K``) the evaluations
+    are every seed's, with the seed in ``front.info.seeds.column``: the seeds'
+    runs share one archive and its evaluation numbers, so a design keeps the
+    one name the merged front gives it.
+    """
     folder = Path(run)
     if not folder.is_dir():
         raise DataError(f"{folder}: not a run folder; give the folder that `tradewise run` wrote")
@@ -289,71 +295,60 @@ def read_run(run: str | Path, *, evaluations: bool = True):
                 "see least_infeasible.csv there"
             )
     front = read_front(folder)
-    history = None
-    if (folder / "history.csv").is_file():
-        try:
-            history = pd.read_csv(folder / "history.csv")
-        except (OSError, ValueError) as exc:
-            raise DataError(f"{folder / 'history.csv'}: cannot be read as CSV ({exc})") from None
+    history = _read_csv(folder / "history.csv")
     table = None
-    store_name, run_id = front.info.store, front.info.run_id
-    if evaluations and store_name and run_id is not None and (folder / store_name).is_file():
+    store_name, ours = front.info.store, front.info.case_hash
+    runs = _runs_of(folder, front)
+    if evaluations and store_name and runs and (folder / store_name).is_file():
+        tables = []
         with open_store(folder / store_name, create=False) as archive:
-            record = archive.run(int(run_id))
-            ours = front.info.case_hash
-            if ours and record["case_hash"] != ours:
-                raise DataError(
-                    f"{folder / store_name}: run {run_id} of this archive is of the case "
-                    f"{record['case_title']!r} ({record['case_hash']}), but {meta_path} is of the case "
-                    f"{front.info.title!r} ({ours}); put the run's own archive beside its front.json"
-                )
-            table = archive.evaluations(int(run_id))
+            for seed, run_id in runs:
+                record = archive.run(run_id)
+                if ours and record["case_hash"] != ours:
+                    which = f"run {run_id}" + (f" (seed {seed})" if seed is not None else "")
+                    raise DataError(
+                        f"{folder / store_name}: {which} of this archive is of the case "
+                        f"{record['case_title']!r} ({record['case_hash']}), but {meta_path} is of the case "
+                        f"{front.info.title!r} ({ours}); put the run's own archive beside its front.json"
+                    )
+                part = archive.evaluations(run_id)
+                if seed is not None:
+                    part.insert(0, front.info.seeds.column, seed)
+                tables.append(part)
+        table = tables[0] if len(tables) == 1 else pd.concat(tables, ignore_index=True)
     return front, history, table
 
 
-def read_seed_evaluations(run: str | Path, front: Front):
-    """Every evaluation of every seed of a run folder written by ``run --seeds K``, as one table with
-    the seed in ``front.info.seeds.column`` (None when the folder has no archive or no seeds.csv).
+def _read_csv(path: Path) -> pd.DataFrame | None:
+    """A CSV file of the run folder, or None where it is absent; unreadable is one DataError."""
+    if not path.is_file():
+        return None
+    try:
+        return pd.read_csv(path)
+    except (OSError, ValueError) as exc:
+        raise DataError(f"{path}: cannot be read as CSV ({exc})") from None
 
-    The seeds' runs share one archive (their ``run_id`` is in seeds.csv) and its evaluation numbers,
-    so a design keeps the one name the merged front gives it.
-    """
-    folder = Path(run)
-    info = front.info
-    if info.seeds is None or not info.store or not (folder / info.store).is_file():
-        return None
-    seeds, _ = read_seeds(folder, front)
+
+def _runs_of(folder: Path, front: Front) -> list[tuple[int | None, int]]:
+    """(seed, run id) of the archive's runs behind ``front``: its one run (seed None), or each
+    seed's that started, from seeds.csv, for the merged front of a set of seeds."""
+    if front.info.seeds is None:
+        return [] if front.info.run_id is None else [(None, int(front.info.run_id))]
+    seeds = _read_csv(folder / "seeds.csv")
     if seeds is None or "run_id" not in seeds.columns or "seed" not in seeds.columns:
-        return None
-    tables = []
-    with open_store(folder / info.store, create=False) as archive:
-        for seed, run_id in zip(seeds["seed"], seeds["run_id"], strict=True):
-            if pd.isna(run_id):
-                continue  # a seed that never started has no run
-            record = archive.run(int(run_id))
-            if info.case_hash and record["case_hash"] != info.case_hash:
-                raise DataError(
-                    f"{folder / info.store}: run {int(run_id)} (seed {seed}) is of the case "
-                    f"{record['case_title']!r}, not of the case of {folder / 'front.json'}; put the "
-                    "set's own archive beside its front.json"
-                )
-            table = archive.evaluations(int(run_id))
-            table.insert(0, info.seeds.column, int(seed))
-            tables.append(table)
-    if not tables:
-        return None
-    return pd.concat(tables, ignore_index=True)
+        return []
+    return [
+        (int(seed), int(run_id))
+        for seed, run_id in zip(seeds["seed"], seeds["run_id"], strict=True)
+        if not pd.isna(run_id)  # a seed that never started has no run
+    ]
 
 
 def read_seeds(run: str | Path, front: Front):
     """seeds.csv and the attainment surfaces of a run folder written by ``run --seeds K`` (None where absent)."""
     folder = Path(run)
-    seeds = surfaces = None
-    if (folder / "seeds.csv").is_file():
-        try:
-            seeds = pd.read_csv(folder / "seeds.csv")
-        except (OSError, ValueError) as exc:
-            raise DataError(f"{folder / 'seeds.csv'}: cannot be read as CSV ({exc})") from None
+    seeds = _read_csv(folder / "seeds.csv")
+    surfaces = None
     if (folder / "attainment.csv").is_file():
         surfaces, _ = read_table(folder / "attainment.csv")
     elif len(front.objectives) <= 3:

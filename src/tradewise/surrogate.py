@@ -286,11 +286,12 @@ class GaussianProcess:
         """Take ``value`` at ``z`` as if observed, hyperparameters unchanged (the kriging believer)."""
         from sklearn.gaussian_process import GaussianProcessRegressor
 
+        if self.sign:
+            if not self.sign * value > 0:
+                return  # a believed value of the wrong sign for a log model: nothing to learn from it
+            value = math.log(self.sign * value)
         Z = np.vstack([self.regressor.X_train_, np.atleast_2d(z)])
-        u = np.log(self.sign * value) if self.sign and self.sign * value > 0 else value
-        if self.sign and not self.sign * value > 0:
-            return  # a believed value of the wrong sign for a log model: nothing to learn from it
-        t = np.append(self.regressor.y_train_, (u - self.mean) / self.scale)
+        t = np.append(self.regressor.y_train_, (value - self.mean) / self.scale)
         self.regressor = GaussianProcessRegressor(self.kernel, optimizer=None, normalize_y=False)
         self.regressor.fit(Z, t)
 
@@ -838,22 +839,20 @@ class SurrogateSearcher:
         if ok.all():
             self._works = None
             return
-        X = np.asarray(self._X)
-        rows = np.arange(len(X))
+        rows = np.arange(len(ok))
         if len(rows) > USE_CAP:
             failed, worked = rows[~ok], rows[ok]
             keep_failed = self.rng.permutation(failed)[: USE_CAP // 2]
             keep_worked = self.rng.permutation(worked)[: USE_CAP - len(keep_failed)]
             rows = np.sort(np.concatenate([keep_failed, keep_worked]))
+        Z = features(self.space, np.asarray(self._X)[rows])
         if self._works is None:
             # A length scale of at least a tenth of a range: a failure speaks for its neighbourhood.
             # Left free, the fit shrinks it to the spacing of the designs (a step is its best
             # explanation), and between two failed designs the model knows nothing again.
-            self._works = GaussianProcess(
-                len(features(self.space, X[:1])[0]), seed=self.seed, shortest=_WORKS_SHORTEST
-            )
-        tune = self._works.regressor is None or len(X) < _TUNE_ALWAYS
-        self._works.fit(features(self.space, X[rows]), np.where(ok[rows], 1.0, -1.0), tune=tune)
+            self._works = GaussianProcess(Z.shape[1], seed=self.seed, shortest=_WORKS_SHORTEST)
+        tune = self._works.regressor is None or len(ok) < _TUNE_ALWAYS
+        self._works.fit(Z, np.where(ok[rows], 1.0, -1.0), tune=tune)
 
     def _works_probability(self, Z: np.ndarray) -> np.ndarray:
         """The probability that an evaluation at each row of features ``Z`` gives results."""
