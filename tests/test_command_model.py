@@ -12,6 +12,7 @@ import tempfile
 import time
 from pathlib import Path
 
+import pandas as pd
 import pytest
 from click.testing import CliRunner
 
@@ -295,6 +296,15 @@ def test_run_with_failing_command_model_completes_and_counts_failures(tmp_path, 
     assert "not valid JSON" in by_mode["badjson"][1]
     assert all(s != "ok" for mode, s, _ in failed if mode != "ok")
     assert f"{len(failed)} evaluation(s) failed" in result.output
+    n_timeout = sum(s == "timeout" for _, s, _ in failed)
+    assert f"{n_timeout} ran past the timeout" in result.output
+    assert f"{len(failed) - n_timeout} with an error" in result.output
+    # failed.csv: one row per failed evaluation, its status and message, then the design
+    table = pd.read_csv(out / "failed.csv", keep_default_na=False)  # an option is named "nan"
+    assert list(table.columns[:4]) == ["eval_id", "generation", "status", "message"]
+    assert "mode" in table.columns
+    listed = sorted(zip(table["mode"], table["status"], table["message"], strict=True))
+    assert listed == sorted(failed)
 
 
 @pytest.mark.skipif(os.name != "posix", reason="process groups are POSIX")

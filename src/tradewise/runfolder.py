@@ -2,7 +2,9 @@
 
 ``front.csv`` and ``front.json`` (the front and what describes it),
 ``representatives.csv`` (a few designs that stand for the front), ``history.csv``
-(one row a generation), ``least_infeasible.csv`` when nothing was feasible, and for a set of seeds ``seeds.csv``, ``seeds/seed-N/``,
+(one row a generation), ``least_infeasible.csv`` when nothing was feasible,
+``failed.csv`` when evaluations failed or ran past the timeout, and for a set of seeds
+``seeds.csv``, ``seeds/seed-N/``,
 ``attainment.csv`` and, for two objectives, ``disagreement.csv``. The
 archive (``archive.sqlite``) is the store's.
 """
@@ -59,6 +61,7 @@ DATA_FILES = frozenset(
         "representatives.csv",
         "least_infeasible.csv",
         "least_infeasible.json",
+        "failed.csv",
         "seeds.csv",
         "attainment.csv",
         "disagreement.csv",
@@ -177,7 +180,42 @@ def save_run(result: Any, folder: str | Path) -> dict[str, Path]:
     path = folder / "history.csv"
     result.history.to_csv(path, index=False)
     written["history"] = path
+    failed = _write_failed(result, folder, front.units)
+    if failed is not None:
+        written["failed"] = failed
     return written
+
+
+FAILED_FILE = "failed.csv"
+
+
+def _write_failed(result: Any, folder: Path, units: dict[str, str]) -> Path | None:
+    """Write ``failed.csv``: every evaluation that failed or ran past its timeout, with its message.
+
+    Columns: ``eval_id``, ``generation``, ``status``, ``message``, then the
+    design's variables with front.csv's unit headers. Where a model breaks is
+    part of what a review asks; without the file it is only in the archive.
+    A run without failures leaves no such file (an old one is removed).
+    """
+    path = folder / FAILED_FILE
+    table = getattr(result, "evaluations", None)
+    rows = None
+    if table is not None and len(table) and "status" in table.columns:
+        rows = table[table["status"] != "ok"]
+        if "cached" in rows.columns:
+            rows = rows[~rows["cached"].astype(bool)]
+    if rows is None or not len(rows):
+        if path.exists():
+            path.unlink()
+        return None
+    case = getattr(result, "case", None)
+    names = [v.name for v in case.variables] if case is not None else []
+    head = [c for c in ("eval_id", "generation", "status", "message") if c in rows.columns]
+    out = rows[head + [n for n in names if n in rows.columns]]
+    out.rename(columns=lambda c: column_header(str(c), units.get(str(c), ""))).to_csv(
+        path, index=False
+    )
+    return path
 
 
 def _representative_count(result: Any) -> int:

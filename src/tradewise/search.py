@@ -962,6 +962,27 @@ def _values(case: Case, keys: list[str], outcomes: dict[str, Outcome], n_con: in
     return F, G
 
 
+def _failure_sentence(records: pd.DataFrame) -> str:
+    """How many evaluations failed, told apart: past the timeout, and the commonest error messages."""
+    bad = records[records["status"] != "ok"]
+    if "cached" in bad.columns:
+        bad = bad[~bad["cached"].astype(bool)]
+    timed_out = int((bad["status"] == "timeout").sum())
+    errors = bad.loc[bad["status"] != "timeout", "message"].fillna("").astype(str)
+    kinds = []
+    if timed_out:
+        kinds.append(f"{timed_out} ran past the timeout")
+    if len(errors):
+        counts = errors.value_counts()
+        top = ", ".join(f"{n} x {m}" for m, n in counts.head(2).items())
+        more = f"; {len(counts) - 2} other message(s)" if len(counts) > 2 else ""
+        kinds.append(f"{len(errors)} with an error ({top}{more})")
+    return (
+        f"{len(bad)} evaluation(s) failed: {'; '.join(kinds)}. They count as infeasible; "
+        "a run folder lists them with their designs in failed.csv."
+    )
+
+
 def _update(run: _Run, proposal: _Proposal, clock: float) -> dict[str, Any]:
     """After a generation: the front, how settled it is, the reference point, and the history row."""
     new_rows = list(range(proposal.first_row, len(run.records)))
@@ -1121,7 +1142,7 @@ def _finish(
             "turn the rule off) or stall_tolerance lower in [search] and run again."
         )
     if run.n_failed:
-        parts.append(f"{run.n_failed} evaluation(s) failed (first: {run.first_failure}).")
+        parts.append(_failure_sentence(records))
     if len(front):
         parts.append(_front_sentence(front, run.reference))
     else:
