@@ -974,9 +974,12 @@ def _failure_sentence(records: pd.DataFrame) -> str:
         kinds.append(f"{timed_out} ran past the timeout")
     if len(errors):
         counts = errors.value_counts()
-        top = ", ".join(f"{n} x {m}" for m, n in counts.head(2).items())
-        more = f"; {len(counts) - 2} other message(s)" if len(counts) > 2 else ""
-        kinds.append(f"{len(errors)} with an error ({top}{more})")
+        if len(counts) == 1:
+            kinds.append(f"{len(errors)} with the error {counts.index[0]}")
+        else:
+            top = ", ".join(f"{n} x {m}" for m, n in counts.head(2).items())
+            more = f"; {len(counts) - 2} other message(s)" if len(counts) > 2 else ""
+            kinds.append(f"{len(errors)} with an error (commonest: {top}{more})")
     return (
         f"{len(bad)} evaluation(s) failed: {'; '.join(kinds)}. They count as infeasible; "
         "a run folder lists them with their designs in failed.csv."
