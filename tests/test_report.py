@@ -151,6 +151,34 @@ def test_page_lists_the_case_the_run_and_every_design(run_folder):
     np.testing.assert_allclose(shown, front.table["resistance"].to_numpy(), rtol=1e-12)
 
 
+def test_failed_evaluations_are_told_apart_on_the_page():
+    """The run facts count timeouts and errors apart, commonest message first, fresh evaluations only."""
+    front = small_front({"n_failed": 4})
+    evaluations = pd.DataFrame(
+        {
+            "status": ["ok", "failed", "failed", "timeout", "failed", "failed"],
+            "message": ["", "ValueError: no root", "ValueError: no root", "late", "KeyError: m", "ValueError: no root"],
+            # the last one is a design reused from the archive: it failed once, in its own run
+            "source_id": [None, None, None, None, None, 7],
+        }
+    )  # fmt: skip
+    told = _run_entry(build_report(front, evaluations=evaluations), "failed evaluations")
+    assert told.startswith(
+        "4 evaluation(s) failed: 1 ran past the timeout; 3 with an error "
+        "(commonest: 2 x ValueError: no root, 1 x KeyError: m)"
+    ), told
+    assert "failed.csv" in told
+    plain = _run_entry(build_report(front), "failed evaluations")
+    assert plain.startswith("4 (stored with their message")
+
+
+def _run_entry(text: str, label: str) -> str:
+    """The value beside ``label`` in the page's list of run facts, as a reader sees it."""
+    found = re.search(rf"<dt>{re.escape(label)}</dt><dd>([^<]*)</dd>", text)
+    assert found, label
+    return html.unescape(found.group(1))
+
+
 def test_knee_and_picks_on_the_page_are_those_of_choose():
     """The knee and the compromise designs named on the page are the ones tradewise.choose picks."""
     front = small_front()

@@ -28,7 +28,7 @@ import math
 import sys
 from typing import Any
 
-__all__ = ["DIGITS", "MISSING", "number", "quantity", "share", "value", "seconds"]
+__all__ = ["DIGITS", "MISSING", "number", "quantity", "share", "value", "seconds", "failures"]
 
 #: Significant digits a person reads (CSV files keep them all).
 DIGITS = 4
@@ -146,3 +146,35 @@ def _item(x: Any) -> Any:
     if numpy is not None and isinstance(x, numpy.generic):
         return x.item()
     return x
+
+
+def failures(n_timeout: int, messages: list[str]) -> str:
+    """What failed, told apart: how many ran past the timeout, how many raised, and the commonest errors.
+
+    ``messages`` holds one message for each evaluation that failed otherwise
+    than by the timeout. Empty text when nothing failed.
+
+    Examples
+    --------
+    >>> failures(2, ["ValueError: x", "ValueError: x", "KeyError: m"])
+    '5 evaluation(s) failed: 2 ran past the timeout; 3 with an error (commonest: 2 x ValueError: x, 1 x KeyError: m)'
+    >>> failures(0, ["ValueError: x"])
+    '1 evaluation(s) failed: 1 with the error ValueError: x'
+    """
+    kinds = []
+    if n_timeout:
+        kinds.append(f"{n_timeout} ran past the timeout")
+    if messages:
+        counts: dict[str, int] = {}
+        for message in messages:
+            counts[message] = counts.get(message, 0) + 1
+        ranked = sorted(counts.items(), key=lambda item: -item[1])
+        if len(ranked) == 1:
+            kinds.append(f"{len(messages)} with the error {ranked[0][0]}")
+        else:
+            top = ", ".join(f"{n} x {m}" for m, n in ranked[:2])
+            more = f"; {len(ranked) - 2} other message(s)" if len(ranked) > 2 else ""
+            kinds.append(f"{len(messages)} with an error (commonest: {top}{more})")
+    if not kinds:
+        return ""
+    return f"{n_timeout + len(messages)} evaluation(s) failed: {'; '.join(kinds)}"

@@ -252,7 +252,7 @@ def build_report(
         "shortlist": _shortlist(front, listed, marks),
         "picks": _picks(front, marks),
         "binds": _binds(front, evaluations),
-        "run": _run(front, history, spread),
+        "run": _run(front, history, spread, evaluations),
         "representatives": _representatives(front, marks, listed),
         "front_table": _front_table(front, marks, listed),
         "assumptions": _assumptions(front),
@@ -762,7 +762,9 @@ def _picks(front: Front, marks: dict[str, Any]) -> dict[str, Any]:
     }
 
 
-def _run(front: Front, history, spread: dict[str, Any] | None) -> dict[str, Any]:
+def _run(
+    front: Front, history, spread: dict[str, Any] | None, evaluations: pd.DataFrame | None = None
+) -> dict[str, Any]:
     """How the search ran: its message, its settings and counts as (label, value), and the seeds."""
     info, settings = front.info, front.info.settings
     several = bool(spread) or info.n_seeds > 1
@@ -798,10 +800,7 @@ def _run(front: Front, history, spread: dict[str, Any] | None) -> dict[str, Any]
     if info.stop_reason:
         entries.append(("why it stopped", str(info.stop_reason)))
     if info.n_failed is not None:
-        entries.append((
-            "failed evaluations",
-            f"{_fmt(info.n_failed)} (stored with their message and treated as infeasible)",
-        ))  # fmt: skip
+        entries.append(("failed evaluations", _failed_text(info.n_failed, evaluations)))
     if info.n_cached:
         n = int(info.n_cached)
         said = f"{n} design{'s' if n != 1 else ''} seen before {'were' if n != 1 else 'was'}"
@@ -853,6 +852,25 @@ _SEED_COLUMNS = {
     "front_size": "designs on its front",
     "hypervolume": "share of the merged front's box",
 }
+
+
+def _failed_text(n_failed: Any, evaluations: pd.DataFrame | None) -> str:
+    """The failed evaluations told apart by kind when the archive's evaluations are at hand."""
+    plain = f"{_fmt(n_failed)} (stored with their message and treated as infeasible)"
+    if not n_failed or evaluations is None or "status" not in evaluations.columns:
+        return plain
+    bad = evaluations[evaluations["status"] != "ok"]
+    if "source_id" in bad.columns:
+        bad = bad[bad["source_id"].isna()]  # designs reused from the archive failed once, there
+    timeout = bad["status"] == "timeout"
+    told = _format.failures(
+        int(timeout.sum()), bad.loc[~timeout, "message"].fillna("").astype(str).tolist()
+    )
+    if not told:
+        return plain
+    return (
+        f"{told}; each is stored with its message and design (failed.csv) and treated as infeasible"
+    )
 
 
 def _seeds(front: Front, spread: dict[str, Any]) -> dict[str, Any]:

@@ -963,25 +963,14 @@ def _values(case: Case, keys: list[str], outcomes: dict[str, Outcome], n_con: in
 
 
 def _failure_sentence(records: pd.DataFrame) -> str:
-    """How many evaluations failed, told apart: past the timeout, and the commonest error messages."""
+    """How many evaluations failed, told apart (:func:`tradewise.format.failures`), and where they are listed."""
     bad = records[records["status"] != "ok"]
     if "cached" in bad.columns:
         bad = bad[~bad["cached"].astype(bool)]
     timed_out = int((bad["status"] == "timeout").sum())
-    errors = bad.loc[bad["status"] != "timeout", "message"].fillna("").astype(str)
-    kinds = []
-    if timed_out:
-        kinds.append(f"{timed_out} ran past the timeout")
-    if len(errors):
-        counts = errors.value_counts()
-        if len(counts) == 1:
-            kinds.append(f"{len(errors)} with the error {counts.index[0]}")
-        else:
-            top = ", ".join(f"{n} x {m}" for m, n in counts.head(2).items())
-            more = f"; {len(counts) - 2} other message(s)" if len(counts) > 2 else ""
-            kinds.append(f"{len(errors)} with an error (commonest: {top}{more})")
+    errors = bad.loc[bad["status"] != "timeout", "message"].fillna("").astype(str).tolist()
     return (
-        f"{len(bad)} evaluation(s) failed: {'; '.join(kinds)}. They count as infeasible; "
+        f"{_format.failures(timed_out, errors)}. They count as infeasible; "
         "a run folder lists them with their designs in failed.csv."
     )
 
