@@ -389,6 +389,27 @@ def test_contributions_of_a_staircase():
     assert front.contributions([4, 4]).tolist() == pytest.approx([1.0, 1.0, 1.0])
 
 
+def test_three_objective_rates_on_a_plateau_name_the_level_objective_once():
+    """An objective that is level near a design (two standard sizes) gives one line, not a rate against each other objective.
+
+    Designs on a + b = 2 at c = 0 and on a + b = 1 at c = 1 (none dominates another): near a design
+    of the first level, c does not move and the rate of a per b with c held is 1 (by hand).
+    """
+    t = np.linspace(0.0, 2.0, 11)
+    u = np.linspace(0.0, 1.0, 11)
+    points = [(x, 2.0 - x, 0.0) for x in t] + [(x, 1.0 - x, 1.0) for x in u]
+    front = make_front(points, ["min"] * 3, ["a", "b", "c"])
+    at = int(np.flatnonzero((front.table["c"] == 0) & (front.table["a"] == 1.0))[0])
+    rates = tradeoff_rates(front, at)
+    level = rates[rates["give"] == rates["gain"]]
+    assert level["text"].tolist() == [
+        "c is 0 on this design and its 6 nearest neighbours: it does not trade here"
+    ]
+    pair = rates[(rates["give"] == "a") & (rates["gain"] == "b")]
+    assert pair["rate"].to_numpy() == pytest.approx([1.0])
+    assert len(rates) == 2  # no line for a or b against c
+
+
 def test_three_objective_rates_from_three_designs():
     """Three designs fix a plane: (1,2,3), (3,2,1), (2,3,1) lie on a + b + c = 6, all rates 1."""
     # Normal by hand: (2, 0, -2) x (1, 1, -2) = (2, 2, 2). With two designs no plane is fixed.

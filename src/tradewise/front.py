@@ -1108,13 +1108,40 @@ def _rates_on_local_plane(
         dist = np.sqrt(((scaled - scaled[i]) ** 2).sum(axis=1))
         dist[i] = np.inf
         near = np.argsort(dist, kind="stable")[:k]
+        patch = scaled[np.concatenate([[i], near])]
+        # An objective that takes one value on the whole patch (a standard size, a plateau of
+        # the front) fixes no direction: the plane is fitted in the others, and the objective
+        # is said once to stay put instead of giving a rate of it against every other one.
+        level = (np.ptp(patch, axis=0) <= 1e-12) & (k >= m - 1)
+        varying = np.flatnonzero(~level)
         normal = np.full(m, np.nan)
-        if k >= m - 1:  # the design and m - 1 neighbours fix a plane
-            patch = scaled[np.concatenate([[i], near])]
-            normal = np.linalg.svd(patch - patch.mean(axis=0))[2][-1]
-            normal = -normal if normal.sum() < 0 else normal
+        if k >= m - 1 and len(varying) >= 2:  # the design and m - 1 neighbours fix a plane
+            part = patch[:, varying]
+            found = np.linalg.svd(part - part.mean(axis=0))[2][-1]
+            normal[varying] = -found if found.sum() < 0 else found
+        fitted = bool(np.isfinite(normal[varying]).all()) and len(varying) >= 2
+        for c in np.flatnonzero(level):
+            name = front.objectives[c].name
+            rows.append(
+                {
+                    "design": int(i),
+                    "neighbour": -1,
+                    "gain": name,
+                    "give": name,
+                    "gain_amount": math.nan,
+                    "give_amount": math.nan,
+                    "rate": math.nan,
+                    "per": math.nan,
+                    "text": (
+                        f"{name} is {_format.quantity(points[i, c], front.units.get(name))} on this "
+                        f"design and its {k} nearest neighbour{'s' if k != 1 else ''}: it does not trade here"
+                    ),
+                }
+            )
         for a in range(m):
             for b in range(a + 1, m):
+                if level[a] or level[b]:
+                    continue
                 # along the plane with the others held: n_a dF_a + n_b dF_b = 0 in scaled units
                 rate = (span[a] * normal[b]) / (normal[a] * span[b]) if normal[a] != 0 else math.nan
                 steps = np.abs(points[near, b] - points[i, b]).tolist()
@@ -1129,9 +1156,7 @@ def _rates_on_local_plane(
                         "give_amount": rate * per,
                         "rate": rate,
                         "per": per,
-                        "text": _plane_text(
-                            front, a, b, rate, per, fitted=not np.isnan(normal).any()
-                        ),
+                        "text": _plane_text(front, a, b, rate, per, fitted=fitted),
                     }
                 )
     return rows
@@ -1141,6 +1166,9 @@ def _plane_text(front: Front, a: int, b: int, rate: float, per: float, *, fitted
     give, gain = front.objectives[a].name, front.objectives[b].name
     if not fitted:
         return f"too few designs to estimate the rate of {give} per {gain}"
+    if not math.isfinite(rate):
+        # the local plane does not move in give: no amount of it buys gain with the others held
+        return f"{give} and {gain} do not trade off here with the others held"
     return _rate_text(front, give, gain, rate, per) + (" (others held)" if rate >= 0 else "")
 
 
