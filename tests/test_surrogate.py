@@ -59,6 +59,37 @@ def test_model_agrees_with_a_kriging_solve_by_hand():
     assert np.allclose(model.predict(X)[0], y, atol=1e-2 * spread)
 
 
+def test_conditioning_agrees_with_scikit_learn():
+    """Our conditioning (Cholesky factor, weights, likelihood, predictions) equals scikit-learn's
+    regressor with the same kernel and its optimiser off, also after a believed point."""
+    from sklearn.gaussian_process import GaussianProcessRegressor
+
+    rng = np.random.default_rng(5)
+    X = rng.random((30, 3))
+    y = np.sin(5 * X[:, 0]) * X[:, 1] + X[:, 2]
+    model = GaussianProcess(3)
+    model.fit(X, y)
+    # hyperparameters of a well-conditioned kernel matrix, so round-off stays far below the tolerances
+    model.kernel = model.kernel.clone_with_theta(np.log([1.5, 0.3, 0.5, 0.8, 1e-4]))
+    model.fit(X, y, tune=False)
+    z = np.array([0.3, 0.6, 0.2])
+    model.believe(z, 1.5)
+    Z = np.vstack([X, z])
+    t = np.append((y - model.mean) / model.scale, (1.5 - model.mean) / model.scale)
+    theirs = GaussianProcessRegressor(model.kernel, optimizer=None).fit(Z, t)
+    ours = model.regressor
+    assert np.allclose(ours.L_, theirs.L_, rtol=1e-10, atol=1e-12)
+    assert np.allclose(ours.alpha_, theirs.alpha_, rtol=1e-8, atol=1e-10)
+    assert ours.log_marginal_likelihood_value_ == pytest.approx(
+        theirs.log_marginal_likelihood_value_, rel=1e-10
+    )
+    new = rng.random((9, 3))
+    mu, sd = theirs.predict(new, return_std=True)
+    got_mu, got_sd = model.predict(new)
+    assert np.allclose(got_mu, model.mean + model.scale * mu, rtol=1e-8, atol=1e-10)
+    assert np.allclose(got_sd, model.scale * sd, rtol=1e-6, atol=1e-10)
+
+
 def test_believed_point_pins_the_model_there():
     """After the kriging believer takes a value at a point, the model predicts it there with little doubt."""
     rng = np.random.default_rng(1)
