@@ -71,7 +71,17 @@ Choices made here, and why:
   (seed 1: g 0.007), whose seeds also spread least. A larger candidate search
   (100 by 30 generations), refitting every round, finer search operators
   or every design the search met as a candidate each moved the median by
-  less than the seeds differ (0.88 to 0.91).
+  less than the seeds differ (0.88 to 0.91). What held it back was how close
+  the picks came to the front, not which candidate was picked: the picked
+  designs' median distance term g over evaluations 100-200 was 0.01-0.026,
+  and the same designs moved onto the front would have scored 0.93. So each
+  pick is now polished by a compass search on the criterion (:meth:`_polish`,
+  twelve steps from a twentieth of each range, judged at the mean plus one
+  standard deviation: judged at the mean, one seed of three ran into the f1
+  model's optimistic mistakes at a corner of the front and stalled at 0.50).
+  Seeds 1-5 after 100 and 200 evaluations: 0.86/0.93, 0.85/0.93, 0.81/0.91,
+  0.81/0.93, 0.87/0.93 (median g after 100 evaluations 0.0005-0.015); before,
+  seeds 1-3, 0.81/0.90, 0.75/0.88, 0.75/0.90.
 - Four or more objectives: as three, with a 48-draw Monte Carlo estimate
   of the expected improvement on the 40 candidates first by the lower
   bounds' non-dominated rank (not measured since the change above).
@@ -146,6 +156,7 @@ _CONFIDENCE = 1.0  # two objectives: candidates from the front of the lower boun
 _SEARCH_POPULATION = 40
 _TUNE_ALWAYS = FIT_CAP  # up to this many designs the hyperparameters are refitted every round
 _SEARCH_GENERATIONS = 20
+_POLISH_STEPS = 12  # three objectives: compass-search steps from each picked design
 _FAILED_PENALTY = 1e6  # as in the search: a failed design's extra constraint column
 _FAILED_OBJECTIVE = 1e30
 _WORKS_SHORTEST = 0.1  # shortest length scale of the model of where evaluations fail (unit inputs)
@@ -1018,6 +1029,17 @@ class SurrogateSearcher:
             score = score * works
             score[picked] = -np.inf
             best = int(np.argmax(score))
+            if n_obj == 3 and _POLISH_STEPS:
+                x = self._polish(pool[best], models, np.asarray(believed), ideal, span, ref)
+                if _rows_key(x) not in self._keys:
+                    pool[best] = x
+                    Z[best] = features(self.space, x[None])[0]
+                    mu[best], sd[best] = (a[0] for a in self._predict(Z[best : best + 1]))
+                    if picked:
+                        mu_b[best], sd_b[best] = (
+                            a[0] for a in self._predict(Z[best : best + 1], models)
+                        )
+                    works[best] = self._works_probability(Z[best : best + 1])[0]
             picked.append(best)
             if len(picked) == n_picks:
                 break
@@ -1026,6 +1048,40 @@ class SurrogateSearcher:
             if self._feasibility(mu_b[best : best + 1], sd_b[best : best + 1])[0] >= 0.5:
                 believed.append((mu_b[best, :n_obj] - ideal) / span)
         return pool[picked], mu[picked], sd[picked]
+
+    def _polish(self, x, models, front, ideal, span, ref) -> np.ndarray:
+        """A compass search from the picked row ``x`` on the criterion: steps of a twentieth of
+        each variable's range along one variable at a time, halved when no step improves.
+
+        Why: on DTLZ2 the picked designs sat a median distance term g of 0.01-0.016 from the
+        front over evaluations 100-200 (the candidate search stops short of the models' own
+        optimum), which alone cost about 0.035 of the hypervolume after 200.
+        """
+        xl, xu = self.space.xl, self.space.xu
+        skip = {column for column, _ in self.space.categorical}
+        movable = [i for i in range(len(x)) if i not in skip and xu[i] > xl[i]]
+        n_obj = self.n_obj
+        front = front.reshape(-1, n_obj)
+        best, fraction = np.asarray(x, float), 0.05
+        for _ in range(_POLISH_STEPS):
+            trials = np.repeat(best[None], 1 + 2 * len(movable), axis=0)
+            for k, i in enumerate(movable):
+                trials[1 + 2 * k, i] += fraction * (xu[i] - xl[i])
+                trials[2 + 2 * k, i] -= fraction * (xu[i] - xl[i])
+            trials = self.space.repair(trials)
+            Z = features(self.space, trials)
+            mu, sd = self._predict(Z, models)
+            # Judged at the pessimistic end of each prediction (mean plus one standard deviation):
+            # on the mean alone the search ran into a model's optimistic mistakes.
+            worst = mu.copy()
+            worst[:, :n_obj] += sd[:, :n_obj]
+            score = self._score(worst, sd, front, ideal, span, ref) * self._works_probability(Z)
+            k = int(np.argmax(score))
+            if k and score[k] > score[0]:
+                best = trials[k]
+            else:
+                fraction /= 2
+        return best
 
     def _score(self, mu, sd, front, ideal, span, ref) -> np.ndarray:
         m = (mu[:, : self.n_obj] - ideal) / span
