@@ -548,3 +548,24 @@ def test_polish_brings_a_three_objective_pick_to_the_models_front(tmp_path):
     searcher.batch = 2
     rows, _, _ = searcher._infill()
     assert len(rows) == 2 and not np.array_equal(rows[0], rows[1])
+
+
+def test_hyperparameters_fitted_on_a_share_of_the_rows_must_explain_all_of_them():
+    """A refit on a share of the rows keeps whichever hyperparameters, new or earlier, give all
+    the rows the greater likelihood (scikit-learn's likelihood for the earlier ones)."""
+    from sklearn.gaussian_process import GaussianProcessRegressor
+
+    rng = np.random.default_rng(6)
+    X = rng.random((80, 3))
+    y = np.sin(4 * X[:, 0]) + 3 * (X[:, 1] - 0.5) ** 2 + X[:, 2]
+    model = GaussianProcess(3)
+    model.fit(X[:40], y[:40])
+    earlier = model.kernel
+    # the share: rows where the second input hardly varies, so it looks irrelevant there
+    share = np.flatnonzero(np.abs(X[:, 1] - 0.5) < 0.1)
+    model.fit(X, y, tune=True, fit_on=share)
+    t = (y - model.mean) / model.scale
+    theirs = GaussianProcessRegressor(earlier, optimizer=None).fit(X, t)
+    assert model.regressor.log_marginal_likelihood_value_ >= (
+        theirs.log_marginal_likelihood_value_ - 1e-8
+    )
