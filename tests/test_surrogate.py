@@ -22,6 +22,7 @@ from tradewise.surrogate import (
     expected_improvement_2d,
     expected_improvement_exact,
     expected_improvement_mc,
+    features,
     hypervolume_improvement,
     probability_of_feasibility,
     start_size,
@@ -57,6 +58,37 @@ def test_model_agrees_with_a_kriging_solve_by_hand():
     assert np.allclose(got_sd, spread * np.sqrt(var), rtol=1e-6, atol=1e-9)
     # and at a training point the model all but reproduces the data
     assert np.allclose(model.predict(X)[0], y, atol=1e-2 * spread)
+
+
+def test_conditioning_agrees_with_scikit_learn():
+    """Our conditioning (Cholesky factor, weights, likelihood, predictions) equals scikit-learn's
+    regressor with the same kernel and its optimiser off, also after a believed point."""
+    from sklearn.gaussian_process import GaussianProcessRegressor
+
+    rng = np.random.default_rng(5)
+    X = rng.random((30, 3))
+    y = np.sin(5 * X[:, 0]) * X[:, 1] + X[:, 2]
+    model = GaussianProcess(3)
+    model.fit(X, y)
+    # hyperparameters of a well-conditioned kernel matrix, so round-off stays far below the tolerances
+    model.kernel = model.kernel.clone_with_theta(np.log([1.5, 0.3, 0.5, 0.8, 1e-4]))
+    model.fit(X, y, tune=False)
+    z = np.array([0.3, 0.6, 0.2])
+    model.believe(z, 1.5)
+    Z = np.vstack([X, z])
+    t = np.append((y - model.mean) / model.scale, (1.5 - model.mean) / model.scale)
+    theirs = GaussianProcessRegressor(model.kernel, optimizer=None).fit(Z, t)
+    ours = model.regressor
+    assert np.allclose(ours.L_, theirs.L_, rtol=1e-10, atol=1e-12)
+    assert np.allclose(ours.alpha_, theirs.alpha_, rtol=1e-8, atol=1e-10)
+    assert ours.log_marginal_likelihood_value_ == pytest.approx(
+        theirs.log_marginal_likelihood_value_, rel=1e-10
+    )
+    new = rng.random((9, 3))
+    mu, sd = theirs.predict(new, return_std=True)
+    got_mu, got_sd = model.predict(new)
+    assert np.allclose(got_mu, model.mean + model.scale * mu, rtol=1e-8, atol=1e-10)
+    assert np.allclose(got_sd, model.scale * sd, rtol=1e-6, atol=1e-10)
 
 
 def test_believed_point_pins_the_model_there():
@@ -472,3 +504,68 @@ def test_an_output_spanning_decades_is_modelled_in_its_logarithm():
     mixed = GaussianProcess(2)
     mixed.fit_either(X, y - 50.0)
     assert mixed.sign == 0.0
+
+
+def test_polish_brings_a_three_objective_pick_to_the_models_front(tmp_path):
+    """DTLZ2 (Deb, Thiele, Laumanns and Zitzler 2002) with 4 variables, models fitted on 40 designs:
+    a pick with distance term g = 0.08 comes out of the compass search with a smaller g and a
+    larger criterion; a two-worker round on it proposes two distinct designs."""
+    from tradewise._pymoo import Space
+    from tradewise.case import load_case
+    from tradewise.surrogate import SurrogateSearcher
+
+    case = load_case(write_problem(tmp_path / "dtlz2", "dtlz2", 4))
+    space = Space(case)
+    searcher = SurrogateSearcher(case, space, population=None, seed=3)
+    rng = np.random.default_rng(3)
+    X = rng.random((40, 4))
+
+    def dtlz2(X):
+        g = ((X[:, 2:] - 0.5) ** 2).sum(axis=1)
+        a, b = X[:, 0] * math.pi / 2, X[:, 1] * math.pi / 2
+        return (1 + g)[:, None] * np.column_stack(
+            [np.cos(a) * np.cos(b), np.cos(a) * np.sin(b), np.sin(a)]
+        )
+
+    searcher._X, searcher._Y = list(X), list(dtlz2(X))
+    searcher._ok = [True] * len(X)
+    _, Y = searcher._fit()
+    front, ideal, span = searcher._scale(Y)
+    ref = np.full(3, 1.1)
+    x = np.array([0.4, 0.6, 0.7, 0.3])
+    polished = searcher._polish(x, searcher._models, front, ideal, span, ref)
+
+    def g(row):
+        return float(((row[2:] - 0.5) ** 2).sum())
+
+    # both rows judged together, as the search judges its steps (the criterion's fallbacks apply
+    # to a whole set of rows at once)
+    mu, sd = searcher._predict(features(space, np.vstack([polished, x])))
+    mu[:, :3] += sd[:, :3]
+    after, before = searcher._score(mu, sd, front, ideal, span, ref)
+    assert g(polished) < g(x)
+    assert after > before
+    searcher.batch = 2
+    rows, _, _ = searcher._infill()
+    assert len(rows) == 2 and not np.array_equal(rows[0], rows[1])
+
+
+def test_hyperparameters_fitted_on_a_share_of_the_rows_must_explain_all_of_them():
+    """A refit on a share of the rows keeps whichever hyperparameters, new or earlier, give all
+    the rows the greater likelihood (scikit-learn's likelihood for the earlier ones)."""
+    from sklearn.gaussian_process import GaussianProcessRegressor
+
+    rng = np.random.default_rng(6)
+    X = rng.random((80, 3))
+    y = np.sin(4 * X[:, 0]) + 3 * (X[:, 1] - 0.5) ** 2 + X[:, 2]
+    model = GaussianProcess(3)
+    model.fit(X[:40], y[:40])
+    earlier = model.kernel
+    # the share: rows where the second input hardly varies, so it looks irrelevant there
+    share = np.flatnonzero(np.abs(X[:, 1] - 0.5) < 0.1)
+    model.fit(X, y, tune=True, fit_on=share)
+    t = (y - model.mean) / model.scale
+    theirs = GaussianProcessRegressor(earlier, optimizer=None).fit(X, t)
+    assert model.regressor.log_marginal_likelihood_value_ >= (
+        theirs.log_marginal_likelihood_value_ - 1e-8
+    )

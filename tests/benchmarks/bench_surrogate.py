@@ -12,8 +12,9 @@ about five other busy processes on two cores, 0.075 s for seed 3 once they had e
 two versions side by side, started together.
 
 Two objectives pick by the expected hypervolume improvement, three by the hypervolume
-improvement of the predicted values (src/tradewise/surrogate.py gives the measurements behind
-each choice).
+improvement of the predicted values, each pick then polished by a compass search on that
+criterion (src/tradewise/surrogate.py gives the measurements behind each choice). On a shared
+machine, compare the surrogate's overhead as CPU time of two versions run side by side.
 
 Problems (tests/problems.py): ZDT1 and ZDT2 with 6 variables (Zitzler, Deb and Thiele 2000),
 DTLZ2 with 3 objectives and 6 variables (Deb, Thiele, Laumanns and Zitzler 2002), BNH with two
