@@ -667,17 +667,13 @@ def _unrepeated(X: np.ndarray, *others: np.ndarray) -> np.ndarray:
     """The rows of ``X`` that repeat no earlier row of it and no row of ``others`` (pymoo's rule)."""
     if len(X) == 0:
         return X
-    D = cdist(X, X)
-    D[np.triu_indices(len(X))] = np.inf
-    D[np.isnan(D)] = np.inf
-    X = X[~np.any(D <= _SAME, axis=1)]
+    earlier = np.tri(len(X), k=-1, dtype=bool)  # pymoo's distances to later rows and to itself: inf
+    X = X[~((cdist(X, X) <= _SAME) & earlier).any(axis=1)]
     for other in others:
         if len(other):
             if len(X) == 0:
                 break
-            D = cdist(X, other)
-            D[np.isnan(D)] = np.inf
-            X = X[~np.any(D <= _SAME, axis=1)]
+            X = X[~(cdist(X, other) <= _SAME).any(axis=1)]
     return X
 
 
