@@ -10,10 +10,10 @@ numpy arrays with pymoo's kernels (SBX, polynomial mutation, crowding
 distance) and moocore's non-dominated ranks; only the loop around them is
 ours. pymoo's own loop keeps the population as objects, one per design, and
 its bookkeeping on them (reading and setting values design by design,
-tournaments over objects, duplicate checks) cost about as much as a whole
-plain pymoo run of a quick model, so the run's own work had no room left
-(bench_speed: 10,000 evaluations of a trivial model took about 1.7 times
-pymoo's plain loop). The array loop is pymoo 0.6.2's NSGA-II step for step,
+tournaments over objects, duplicate checks) cost 9-11 ms of CPU a
+generation of 100, about as much as a whole plain pymoo run of a trivial
+model, so the run's own work had no room left; on arrays a generation costs
+2-3 ms (DEVELOPERS.md has the measurements). The array loop is pymoo 0.6.2's NSGA-II step for step,
 random draws included: the same seed proposes the same designs, bit for bit
 (tests/test_pymoo_adapter.py runs both side by side), and states saved by
 either resume in the other. Four or more objectives run pymoo's NSGA-III
