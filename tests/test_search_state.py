@@ -98,13 +98,13 @@ def _real_designs(store: Path, names: list[str]) -> pd.DataFrame:
 def spy(monkeypatch):
     """Count how often a resume rebuilds the search from a saved state."""
     calls = []
-    original = adapter.restore_state
+    for searcher in (adapter.Searcher, adapter.PymooSearcher):
 
-    def counting(*args, **kwargs):
-        calls.append(kwargs.get("where"))
-        return original(*args, **kwargs)
+        def counting(self, state, *, where, original=searcher.restore):
+            calls.append(where)
+            return original(self, state, where=where)
 
-    monkeypatch.setattr("tradewise._pymoo.restore_state", counting)
+        monkeypatch.setattr(searcher, "restore", counting)
     return calls
 
 

@@ -1,9 +1,23 @@
 """The adapter to pymoo: the only module where pymoo types appear.
 
 It holds the encoding of a case's mixed variables as one real vector
-(:class:`Space`), the operators and algorithms (NSGA-II for two or three
-objectives, NSGA-III beyond), a :class:`Searcher` that drives one algorithm by
-ask and tell on plain numpy arrays, and the search state as plain data.
+(:class:`Space`), the operators and algorithms, the searchers a run drives by
+propose and tell on plain numpy arrays (:func:`make_searcher`), and the
+search state as plain data.
+
+For two and three objectives :class:`Searcher` runs NSGA-II's generation on
+numpy arrays with pymoo's kernels (SBX, polynomial mutation, crowding
+distance) and moocore's non-dominated ranks; only the loop around them is
+ours. pymoo's own loop keeps the population as objects, one per design, and
+its bookkeeping on them (reading and setting values design by design,
+tournaments over objects, duplicate checks) cost 9-11 ms of CPU a
+generation of 100, about as much as a whole plain pymoo run of a trivial
+model, so the run's own work had no room left; on arrays a generation costs
+2-3 ms (DEVELOPERS.md has the measurements). The array loop is pymoo 0.6.2's NSGA-II step for step,
+random draws included: the same seed proposes the same designs, bit for bit
+(tests/test_pymoo_adapter.py runs both side by side), and states saved by
+either resume in the other. Four or more objectives run pymoo's NSGA-III
+(:class:`PymooSearcher`).
 
 An archive is data: nothing read from it may run code. So the state a run
 resumes from is not the pickled algorithm but what the algorithm's next
@@ -23,6 +37,7 @@ import json
 import math
 from typing import Any
 
+import moocore
 import numpy as np
 from pymoo.algorithms.moo.nsga2 import NSGA2
 from pymoo.algorithms.moo.nsga3 import NSGA3
@@ -30,12 +45,14 @@ from pymoo.core.population import Population
 from pymoo.core.problem import Problem
 from pymoo.core.repair import Repair
 from pymoo.core.termination import NoTermination
-from pymoo.operators.crossover.sbx import SBX
-from pymoo.operators.mutation.pm import PM
+from pymoo.operators.crossover.sbx import SBX, cross_sbx
+from pymoo.operators.mutation.pm import PM, mut_pm
 from pymoo.operators.sampling.rnd import FloatRandomSampling
+from pymoo.operators.survival.rank_and_crowding.metrics import calc_crowding_distance
 from pymoo.problems.static import StaticProblem
 from pymoo.util.ref_dirs import get_reference_directions
 from pymoo.util.ref_dirs.reduction import ReductionBasedReferenceDirectionFactory
+from scipy.spatial.distance import cdist
 
 from tradewise._plain import plain
 from tradewise.case import Case
@@ -45,6 +62,8 @@ __all__ = [
     "STATE_FORMAT",
     "Space",
     "Searcher",
+    "PymooSearcher",
+    "make_searcher",
     "default_population",
     "algorithm_name",
     "n_constraint_columns",
@@ -213,25 +232,16 @@ class MixedMutation(PM):
 
     def _do(self, problem, X, *args, random_state=None, **kwargs):
         Xp = super()._do(problem, X, *args, random_state=random_state, **kwargs)
-        for column, levels in self.space.categorical:
-            reset = random_state.random(len(Xp)) < min(0.5, 1.0 / problem.n_var)
-            if reset.any():
-                Xp[reset, column] = random_state.integers(0, levels, size=int(reset.sum()))
+        reset_choices(self.space, Xp, random_state, min(0.5, 1.0 / problem.n_var))
         return Xp
 
 
-class _NSGA2(NSGA2):
-    """pymoo's NSGA-II without its own record of the best designs (``opt``), which the search never reads.
-
-    After every generation pymoo's NSGA-II picks the designs of rank 0 out
-    of the population (about 0.5 ms a generation, 5 % of its own time in a
-    run of 100 designs a generation); the search keeps its own front of
-    every design evaluated instead. Mating and survival do not look at
-    ``opt``, so the designs proposed are the same.
-    """
-
-    def _set_optimum(self, **kwargs):
-        pass
+def reset_choices(space: Space, X: np.ndarray, rng: np.random.Generator, rate: float) -> None:
+    """Redraw each choice and flag of the rows of ``X`` (in place) with probability ``rate``."""
+    for column, levels in space.categorical:
+        reset = rng.random(len(X)) < rate
+        if reset.any():
+            X[reset, column] = rng.integers(0, levels, size=int(reset.sum()))
 
 
 def default_population(n_obj: int) -> int:
@@ -259,14 +269,19 @@ def tune_operators(algorithm, refine: float, n_obj: int) -> None:
     mating = getattr(algorithm, "mating", None)
     if mating is None:
         return
+    mating.crossover.eta, mating.mutation.eta = operator_indices(refine, n_obj)
+
+
+def operator_indices(refine: float, n_obj: int) -> tuple[float, float]:
+    """The distribution indices (SBX, polynomial mutation) :func:`tune_operators` sets."""
     if n_obj <= 2:
-        mating.mutation.eta, mating.crossover.eta = 20.0, 30.0
-        return
-    mating.crossover.eta = 30.0
-    mating.mutation.eta = 5.0 + 95.0 * min(max(refine, 0.0), 1.0)
+        return 30.0, 20.0
+    return 30.0, 5.0 + 95.0 * min(max(refine, 0.0), 1.0)
 
 
 def make_algorithm(case: Case, space: Space, population: int | None, seed: int):
+    """pymoo's algorithm for the case: NSGA-III for four or more objectives; for two or three the
+    NSGA-II that :class:`Searcher` follows step for step (tests drive both side by side)."""
     repair = Rounding(space)
     n_obj = len(case.objectives)
     population = population or default_population(n_obj)
@@ -278,7 +293,7 @@ def make_algorithm(case: Case, space: Space, population: int | None, seed: int):
         eliminate_duplicates=True,
     )
     if n_obj <= 3:
-        return _NSGA2(pop_size=population, **common), algorithm_name(n_obj)
+        return NSGA2(pop_size=population, **common), algorithm_name(n_obj)
     # pymoo's energy method starts from 10,000 points on the simplex and their full distance matrix
     # (about 800 MB whatever the population); a start sized to the population gives equally spread
     # directions (measured: closest two of 120 in 4 objectives 0.193 apart, against 0.194) in ~25 MB.
@@ -316,13 +331,356 @@ def n_constraint_columns(case: Case) -> int:
     return len(case.constraints) + 1 if case.constraints else 0
 
 
+def make_searcher(case: Case, space: Space, *, population: int | None, seed: int):
+    """The case's genetic search: :class:`Searcher` (NSGA-II) for two or three objectives,
+    :class:`PymooSearcher` (pymoo's NSGA-III) beyond."""
+    if len(case.objectives) <= 3:
+        return Searcher(case, space, population=population, seed=seed)
+    return PymooSearcher(case, space, population=population, seed=seed)
+
+
+# pymoo 0.6.2's NSGA-II as make_algorithm configures it: SBX applied to a pair with probability 0.9,
+# to each variable of it with 0.5, its two children swapped per variable with 0.5; the mutated copy
+# of a child kept with probability 0.9 (PM's default); offspring nearer than 1e-16 to another design
+# (Euclidean) are duplicates; mating is tried at most 100 times to fill a generation.
+_CROSS_PAIR, _CROSS_VARIABLE, _CROSS_SWAP = 0.9, 0.5, 0.5
+_MUTATE_CHILD = 0.9
+_SAME = 1e-16
+_MATING_ROUNDS = 100
+
+
 class Searcher:
-    """One pymoo genetic algorithm for a case, driven by ask and tell on plain numpy arrays.
+    """NSGA-II for a case, on plain numpy arrays, driven by propose and tell.
 
     :meth:`propose` gives the next generation's encoded, repaired designs;
     :meth:`keep` drops some of them (a budget cut short); :meth:`tell` gives
     back their objective values (minimised: maximised objectives negated)
     and constraint values (``<= 0`` is met) in the same order.
+
+    The generation is pymoo 0.6.2's NSGA-II step by step, as
+    :func:`make_algorithm` configures it, with pymoo's own kernels for SBX,
+    polynomial mutation and crowding distance and moocore's non-dominated
+    ranks, drawing the same random numbers in the same order: a random
+    uniform first generation; binary tournaments (the smaller constraint
+    violation wins, then Pareto dominance, then the larger crowding
+    distance, ties at random); SBX and polynomial mutation with a reset of
+    choices and flags; rounding; offspring that repeat a design of the
+    population or of the generation dropped and mating repeated until the
+    generation is full; survival of the feasible by rank and crowding
+    distance, then of the least infeasible. So a seed proposes exactly the
+    designs pymoo's loop would (tests/test_pymoo_adapter.py checks it), and a
+    state saved by an earlier release, which drove pymoo's objects, resumes
+    here. What pymoo's loop spends on its population objects (about as
+    much as the whole run of a quick model) is not spent.
+    """
+
+    def __init__(self, case: Case, space: Space, *, population: int | None, seed: int) -> None:
+        self.space = space
+        self.n_obj = len(case.objectives)
+        self.n_con = n_constraint_columns(case)
+        self.name = algorithm_name(self.n_obj)
+        self.size = population or default_population(self.n_obj)
+        self.rng = np.random.default_rng(seed)
+        self.eta_crossover, self.eta_mutation = 15.0, 20.0  # make_algorithm's, until tuned
+        self.n_iter = 0
+        self.n_eval = 0
+        n_var = len(space.xl)
+        self._xl, self._xu = np.asarray(space.xl, float), np.asarray(space.xu, float)
+        self._rate = min(0.5, 1.0 / n_var)  # pymoo's per-variable mutation probability
+        # The population, best first as survival left it, with its marks (NaN: none).
+        self.X: np.ndarray | None = None
+        self.F = np.empty((0, self.n_obj))
+        self.G = np.empty((0, self.n_con))
+        self.cv = np.empty(0)
+        self.rank = np.empty(0)
+        self.crowding = np.empty(0)
+        self._pending: np.ndarray | None = None
+
+    # -- the face the run loop drives --------------------------------------------------------
+    def tune(self, refine: float) -> None:
+        self.eta_crossover, self.eta_mutation = operator_indices(refine, self.n_obj)
+
+    def propose(self) -> np.ndarray | None:
+        """The next designs to evaluate (one encoded row each), or ``None`` when mating gives none."""
+        if self.X is None:
+            X = self._xl + (self._xu - self._xl) * self.rng.random((self.size, len(self._xl)))
+            X = _unrepeated(self.space.repair(X))
+        else:
+            X = self._offspring(self.size)
+            if len(X) == 0:
+                return None
+        self._pending = X
+        return X
+
+    def keep(self, rows: list[int]) -> None:
+        self._pending = self._pending[rows]
+
+    def tell(self, F: np.ndarray, G: np.ndarray | None) -> None:
+        X, self._pending = self._pending, None
+        F = np.asarray(F, dtype=float).reshape(len(X), self.n_obj)
+        G = (
+            np.asarray(G, dtype=float).reshape(len(X), self.n_con)
+            if self.n_con
+            else np.empty((len(X), 0))
+        )
+        self.n_eval += len(X)
+        if self.X is None:
+            self._survive(X, F, G, len(X))
+            self.n_iter = 2
+        else:
+            self._survive(
+                np.vstack([self.X, X]), np.vstack([self.F, F]), np.vstack([self.G, G]), self.size
+            )
+            self.n_iter += 1
+
+    def survivors(self) -> np.ndarray:
+        """The encoded designs of the surviving population."""
+        return self.X if self.X is not None else np.empty((0, len(self._xl)))
+
+    @property
+    def started(self) -> bool:
+        """Whether there is a population (after the first generation, a seeding or a restore)."""
+        return self.X is not None
+
+    def seed(self, X: np.ndarray, F: np.ndarray, G: np.ndarray | None) -> None:
+        """Start from designs already evaluated: survival picks the population from them."""
+        X = np.asarray(X, dtype=float)
+        F = np.asarray(F, dtype=float).reshape(len(X), self.n_obj)
+        G = np.asarray(G, dtype=float) if self.n_con else np.empty((len(X), 0))
+        self.n_eval += len(X)
+        self._survive(X, F, G, min(len(X), self.size))
+        self.n_iter = 1
+
+    def state(self, *, generation: int, eval_ids: list[int | None]) -> bytes:
+        """The search state after ``generation`` as JSON bytes (see the module docstring)."""
+        return encode_state(self.state_data(generation=generation, eval_ids=eval_ids))
+
+    def state_data(self, *, generation: int, eval_ids: list[int | None] | None) -> dict[str, Any]:
+        """The search state as plain data, in the form pymoo's NSGA-II state was saved."""
+        X = self.survivors()
+        rank = [None if np.isnan(r) else int(r) for r in self.rank.tolist()]
+        crowding = [None if np.isnan(c) else c for c in self.crowding.tolist()]
+        return {
+            "format": STATE_FORMAT,
+            "generation": int(generation),
+            "n_iter": int(self.n_iter),
+            "n_eval": int(self.n_eval),
+            "random": plain(self.rng.bit_generator.state),
+            "X": _matrix(X),
+            "F": _matrix(self.F),
+            "G": _matrix(self.G) if self.n_con else None,
+            "marks": {
+                "crowding": {"kind": "float", "values": crowding},
+                "rank": {"kind": "int", "values": rank},
+            },
+            "eval_ids": list(eval_ids) if eval_ids is not None else None,
+        }
+
+    def restore(self, state: dict[str, Any], *, where: str) -> None:
+        """Take up the saved ``state`` (this searcher's, or one pymoo's NSGA-II saved).
+
+        Raises :class:`StoreError` naming ``where`` when the state does not
+        fit the case (another number of variables, objectives or constraints).
+        """
+        n_var = len(self._xl)
+        X = _array(state, "X", where)
+        F = _array(state, "F", where)
+        n = len(X)
+        if X.ndim != 2 or X.shape[1] != n_var or F.shape != (n, self.n_obj) or n == 0:
+            raise StoreError(
+                f"{where}: the saved search state does not fit the case "
+                f"({n_var} variables, {self.n_obj} objectives)"
+            )
+        G = np.empty((n, 0))
+        if self.n_con:
+            G = _array(state, "G", where)
+            if G.shape != (n, self.n_con):
+                raise StoreError(
+                    f"{where}: the saved search state does not fit the case's "
+                    f"{self.n_con} constraint columns"
+                )
+        marks = state.get("marks") or {}
+        if not isinstance(marks, dict):
+            raise StoreError(f"{where}: the saved search state's marks are not a table")
+        columns = {}
+        for name in ("rank", "crowding"):  # what NSGA-II reads; other marks are pymoo's records
+            column = marks.get(name, {"values": [None] * n})
+            if not isinstance(column, dict) or len(column.get("values") or []) != n:
+                raise StoreError(f"{where}: the saved search state's mark {name!r} is malformed")
+            try:
+                columns[name] = np.array(
+                    [np.nan if v is None else _float(v) for v in column["values"]], dtype=float
+                )
+            except StoreError:
+                raise StoreError(
+                    f"{where}: the saved search state's mark {name!r} is malformed"
+                ) from None
+        n_iter = _count(state, "n_iter", where)
+        n_eval = _count(state, "n_eval", where)
+        try:
+            self.rng.bit_generator.state = state["random"]
+        except (KeyError, TypeError, ValueError) as exc:
+            raise StoreError(
+                f"{where}: the saved random generator state cannot be used ({exc})"
+            ) from None
+        self.X, self.F, self.G = X, F, G
+        self.cv = _violation(G)
+        self.rank, self.crowding = columns["rank"], columns["crowding"]
+        self.n_iter, self.n_eval = n_iter, n_eval
+
+    # -- one generation ----------------------------------------------------------------------
+    def _offspring(self, n_offspring: int) -> np.ndarray:
+        """Mate until ``n_offspring`` new designs (or the rounds run out), as pymoo's mating does."""
+        off = np.empty((0, len(self._xl)))
+        for _ in range(_MATING_ROUNDS):
+            wanted = n_offspring - len(off)
+            parents = self._tournaments(-(-wanted // 2))
+            children = self.space.repair(self._mutate(self._cross(parents)))
+            off = np.vstack([off, _unrepeated(children, self.X, off)[:wanted]])
+            if len(off) >= n_offspring:
+                break
+        return off
+
+    def _tournaments(self, n_pairs: int) -> np.ndarray:
+        """Parents of ``n_pairs`` pairs, (n_pairs, 2) rows of the population, by binary tournaments."""
+        rng, n = self.rng, len(self.X)
+        n_draws = 4 * n_pairs
+        entrants = np.concatenate([rng.permutation(n) for _ in range(math.ceil(n_draws / n))])
+        a, b = entrants[:n_draws].reshape(-1, 2).T
+        cv_a, cv_b = self.cv[a], self.cv[b]
+        winner = np.full(len(a), -1)
+        infeasible = (cv_a > 0.0) | (cv_b > 0.0)
+        winner[infeasible & (cv_a < cv_b)] = a[infeasible & (cv_a < cv_b)]
+        winner[infeasible & (cv_b < cv_a)] = b[infeasible & (cv_b < cv_a)]
+        F_a, F_b = self.F[a], self.F[b]
+        a_better, b_better = (F_a < F_b).any(axis=1), (F_b < F_a).any(axis=1)
+        open_ = ~infeasible & (a_better == b_better)  # neither dominates: crowding decides
+        first = ~infeasible & a_better & ~b_better
+        second = ~infeasible & b_better & ~a_better
+        winner[first], winner[second] = a[first], b[second]
+        d_a, d_b = self.crowding[a], self.crowding[b]
+        winner[open_ & (d_a > d_b)] = a[open_ & (d_a > d_b)]
+        winner[open_ & (d_b > d_a)] = b[open_ & (d_b > d_a)]
+        # Ties go to a coin, one draw a tie in tournament order (the draws pymoo makes).
+        for i in np.flatnonzero(winner < 0).tolist():
+            winner[i] = (a[i], b[i])[int(rng.integers(0, 2))]
+        return winner.reshape(n_pairs, 2)
+
+    def _cross(self, parents: np.ndarray) -> np.ndarray:
+        """SBX on each pair (pymoo's kernel); rows: every pair's first child, then every second."""
+        rng, n_pairs = self.rng, len(parents)
+        mates = np.stack([self.X[parents[:, 0]], self.X[parents[:, 1]]])
+        crossed = rng.random(n_pairs) < _CROSS_PAIR
+        children = mates.copy()
+        if crossed.any():
+            rng.random((n_pairs, 1))  # SBX's draw for exchanging children, which is always on
+            Q = cross_sbx(
+                mates,
+                self._xl,
+                self._xu,
+                np.full((n_pairs, 1), self.eta_crossover),
+                np.full((n_pairs, 1), _CROSS_VARIABLE),
+                np.full((n_pairs, 1), _CROSS_SWAP),
+                random_state=rng,
+            )
+            children[:, crossed] = Q[:, crossed]
+        return children.reshape(-1, len(self._xl))
+
+    def _mutate(self, X: np.ndarray) -> np.ndarray:
+        """Polynomial mutation (pymoo's kernel) and the reset of choices and flags (MixedMutation)."""
+        rng, n = self.rng, len(X)
+        mutated = mut_pm(
+            X,
+            self._xl,
+            self._xu,
+            np.full(n, self.eta_mutation),
+            np.full(n, self._rate),
+            at_least_once=False,
+            random_state=rng,
+        )
+        reset_choices(self.space, mutated, rng, self._rate)
+        chosen = rng.random(n) <= _MUTATE_CHILD
+        X = X.copy()
+        X[chosen] = mutated[chosen]
+        return X
+
+    def _survive(self, X: np.ndarray, F: np.ndarray, G: np.ndarray, n_survive: int) -> None:
+        """Keep ``n_survive`` of the designs: the feasible by rank and crowding, then the least infeasible."""
+        cv = _violation(G)
+        rank, crowding = np.full(len(X), np.nan), np.full(len(X), np.nan)
+        n_survive = min(n_survive, len(X))
+        if self.n_con:
+            feasible = np.flatnonzero(cv <= 0.0)
+            infeasible = np.flatnonzero(~(cv <= 0.0))
+            infeasible = infeasible[np.argsort(cv[infeasible])]
+        else:
+            feasible, infeasible = np.arange(len(X)), np.empty(0, dtype=int)
+        kept = np.empty(0, dtype=int)
+        if len(feasible):
+            chosen, front_rank, front_crowding = _rank_and_crowding(
+                F[feasible], min(len(feasible), n_survive), self.rng
+            )
+            rank[feasible], crowding[feasible] = front_rank, front_crowding
+            kept = feasible[chosen]
+        kept = np.concatenate([kept, infeasible[: n_survive - len(kept)]])
+        self.X, self.F, self.G, self.cv = X[kept], F[kept], G[kept], cv[kept]
+        self.rank, self.crowding = rank[kept], crowding[kept]
+
+
+def _violation(G: np.ndarray) -> np.ndarray:
+    """Total constraint violation of each row (pymoo's: the sum of the positive values)."""
+    return np.maximum(0.0, G).sum(axis=1) if G.shape[1] else np.zeros(len(G))
+
+
+def _rank_and_crowding(F: np.ndarray, n_survive: int, rng: np.random.Generator):
+    """pymoo's RankAndCrowding on arrays: the rows that survive, in order, and every ranked row's marks.
+
+    Whole fronts are taken in rank order (moocore's ranks, each front's rows
+    in index order) until one does not fit; that one is cut by crowding
+    distance (pymoo's kernel), ties broken by a random permutation.
+    """
+    ranks = np.asarray(moocore.pareto_rank(F))
+    rank, crowding = np.full(len(F), np.nan), np.full(len(F), np.nan)
+    survivors: list[np.ndarray] = []
+    n_kept = 0
+    for k in range(int(ranks.max()) + 1):
+        front = np.flatnonzero(ranks == k)
+        distance = (
+            np.full(len(front), np.inf)
+            if len(front) <= 2
+            else calc_crowding_distance(F[front].astype(float))
+        )
+        rank[front], crowding[front] = k, distance
+        if n_kept + len(front) > n_survive:
+            n_remove = n_kept + len(front) - n_survive
+            shuffled = rng.permutation(len(distance))
+            order = np.flip(shuffled[np.argsort(distance[shuffled], kind="quicksort")])
+            front = front[order[:-n_remove]]
+        survivors.append(front)
+        n_kept += len(front)
+        if n_kept >= n_survive:
+            break
+    return np.concatenate(survivors), rank, crowding
+
+
+def _unrepeated(X: np.ndarray, *others: np.ndarray) -> np.ndarray:
+    """The rows of ``X`` that repeat no earlier row of it and no row of ``others`` (pymoo's rule)."""
+    if len(X) == 0:
+        return X
+    earlier = np.tri(len(X), k=-1, dtype=bool)  # pymoo's distances to later rows and to itself: inf
+    X = X[~((cdist(X, X) <= _SAME) & earlier).any(axis=1)]
+    for other in others:
+        if len(other):
+            if len(X) == 0:
+                break
+            X = X[~(cdist(X, other) <= _SAME).any(axis=1)]
+    return X
+
+
+class PymooSearcher:
+    """One pymoo genetic algorithm for a case (NSGA-III for four or more objectives), by ask and tell.
+
+    The same face as :class:`Searcher`, on pymoo's population objects.
     """
 
     def __init__(self, case: Case, space: Space, *, population: int | None, seed: int) -> None:
@@ -362,11 +720,24 @@ class Searcher:
 
     def survivors(self) -> np.ndarray:
         """The encoded designs of the surviving population."""
-        return self.algorithm.pop.get("X")
+        pop = self.algorithm.pop
+        return pop.get("X") if pop is not None and len(pop) else np.empty((0, len(self.space.xl)))
+
+    @property
+    def started(self) -> bool:
+        """Whether there is a population (after the first generation, a seeding or a restore)."""
+        return self.algorithm.is_initialized
+
+    def seed(self, X: np.ndarray, F: np.ndarray, G: np.ndarray | None) -> None:
+        """Start from designs already evaluated: survival picks the population from them."""
+        _seed_algorithm(self.algorithm, X, F, G)
 
     def state(self, *, generation: int, eval_ids: list[int | None]) -> bytes:
         """The search state after ``generation`` as JSON bytes (see the module docstring)."""
-        return encode_state(search_state(self.algorithm, generation=generation, eval_ids=eval_ids))
+        return encode_state(self.state_data(generation=generation, eval_ids=eval_ids))
+
+    def state_data(self, *, generation: int, eval_ids: list[int | None] | None) -> dict[str, Any]:
+        return search_state(self.algorithm, generation=generation, eval_ids=eval_ids)
 
     def restore(self, state: dict[str, Any], *, where: str) -> None:
         restore_state(self.algorithm, state, where=where)
@@ -542,14 +913,18 @@ def _count(state: dict[str, Any], key: str, where: str) -> int:
     return value
 
 
-def seed_population(searcher: Searcher, X: np.ndarray, F: np.ndarray, G: np.ndarray | None) -> None:
+def seed_population(searcher, X: np.ndarray, F: np.ndarray, G: np.ndarray | None) -> None:
     """Start ``searcher`` from designs already evaluated (encoded ``X`` with their values).
 
     The survival step picks the population from them (rank and crowding), so
     the next :meth:`Searcher.propose` mates designs the archive holds instead
     of drawing a random first generation.
     """
-    algorithm = searcher.algorithm
+    searcher.seed(X, F, G)
+
+
+def _seed_algorithm(algorithm, X: np.ndarray, F: np.ndarray, G: np.ndarray | None) -> None:
+    """:func:`seed_population` for a pymoo algorithm."""
     problem = algorithm.problem
     values = {"F": F} if G is None else {"F": F, "G": G}
     pop = Population.new(X=np.asarray(X, dtype=float))

@@ -32,7 +32,7 @@ import pandas as pd
 
 from tradewise import format as _format
 from tradewise._plain import plain
-from tradewise._pymoo import Searcher, Space, decode_state, default_population
+from tradewise._pymoo import Searcher, Space, decode_state, default_population, make_searcher
 from tradewise.case import Case, load_case
 from tradewise.errors import ModelError, StoreError
 from tradewise.executors import InProcess, make_executor, run_designs
@@ -665,7 +665,9 @@ def _searcher(case: Case):
         return SurrogateSearcher(
             case, Space(case), population=case.search.population, seed=case.search.seed
         )
-    return Searcher(case, Space(case), population=case.search.population, seed=case.search.seed)
+    return make_searcher(
+        case, Space(case), population=case.search.population, seed=case.search.seed
+    )
 
 
 def _recorded_settings(case: Case, seed_set: dict[str, Any] | None) -> dict[str, Any]:

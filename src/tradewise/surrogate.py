@@ -113,12 +113,12 @@ from scipy.stats import qmc
 from tradewise._plain import plain
 from tradewise._pymoo import (
     STATE_FORMAT,
+    PymooSearcher,
     Searcher,
     Space,
+    make_searcher,
     minimise_function,
     n_constraint_columns,
-    restore_state,
-    search_state,
     seed_population,
 )
 from tradewise.case import Case
@@ -665,7 +665,7 @@ class SurrogateSearcher:
         self.round = 0
         self.batch = 1
         self.run = None
-        self.fallback: Searcher | None = None
+        self.fallback: Searcher | PymooSearcher | None = None
         self.reason = ""
         self.n_model_rounds = 0
         self.seconds = 0.0
@@ -708,11 +708,7 @@ class SurrogateSearcher:
     def _fallback_running(self) -> bool:
         """Whether the NSGA-II that took over has a population yet (it has none between the
         round that gave up on the models and its first proposal)."""
-        return (
-            self.fallback is not None
-            and self.fallback_seeded
-            and getattr(self.fallback.algorithm, "pop", None) is not None
-        )
+        return self.fallback is not None and self.fallback_seeded and self.fallback.started
 
     # -- propose and tell ---------------------------------------------------------------
     def propose(self) -> np.ndarray | None:
@@ -802,9 +798,7 @@ class SurrogateSearcher:
             "round": self.round,
             "random": plain(self.rng.bit_generator.state),
             "reason": self.reason,
-            "fallback": search_state(
-                self.fallback.algorithm, generation=generation, eval_ids=eval_ids
-            )
+            "fallback": self.fallback.state_data(generation=generation, eval_ids=eval_ids)
             if self._fallback_running()
             else None,
         }
@@ -823,7 +817,7 @@ class SurrogateSearcher:
         if state.get("reason"):
             self._give_up(str(state["reason"]), quiet=True)
             if isinstance(state.get("fallback"), dict):
-                restore_state(self.fallback.algorithm, state["fallback"], where=where)
+                self.fallback.restore(state["fallback"], where=where)
                 self.fallback_seeded = True
 
     # -- inside ----------------------------------------------------------------------------
@@ -1208,7 +1202,9 @@ class SurrogateSearcher:
 
     def _give_up(self, reason: str, *, quiet: bool = False) -> None:
         self.reason = reason
-        self.fallback = Searcher(self.case, self.space, population=self.population, seed=self.seed)
+        self.fallback = make_searcher(
+            self.case, self.space, population=self.population, seed=self.seed
+        )
         self.fallback_seeded = False
         self.name = "NSGA-II (after Gaussian-process models)"
         if not quiet:
