@@ -607,7 +607,7 @@ def test_dask_survives_a_worker_that_dies(case, dask_cluster):
 def test_dask_sends_a_quick_model_in_shares_and_still_blames_only_the_design_that_kills(
     case, dask_cluster
 ):
-    """A model quicker than a tenth of a second a design goes to Dask a few designs a task after its
+    """A model quicker than an eighth of a second a design goes to Dask a few designs a task after its
     first batch (a task's round trip is paid once a share); a share whose design kills its worker is
     sent again a design a task, so only that design fails and its neighbours complete."""
     model = make_model(case(("ok", "crash")))

@@ -5,6 +5,7 @@ from __future__ import annotations
 import hashlib
 import json
 import os
+import shutil
 import signal
 import sqlite3
 import subprocess
@@ -239,6 +240,24 @@ def test_cli_second_run_reports_the_archive(folder, tmp_path):
     assert CliRunner().invoke(main, args).exit_code == 0
     meta = json.loads((tmp_path / "r" / "front.json").read_text())
     assert meta["n_cached"] >= 30 and meta["n_evals"] == 30
+
+
+def test_resume_of_a_run_in_an_archive_of_schema_1(tmp_path):
+    """A run interrupted in an archive of the release before schema 2 resumes to its budget: every stored row
+    kept as it was and taken over, nothing the archive holds (of either run) evaluated again."""
+    old = Path(__file__).parent / "fixtures" / "archive-v1"
+    shutil.copytree(old, tmp_path / "old")
+    store = tmp_path / "old" / "archive.sqlite"
+    before = _real_rows(store)
+    result = tradewise.resume(store, run_id=1, case=tmp_path / "old" / "case")
+    after = _real_rows(store)
+    assert result.status == "budget" and result.n_evals == 300
+    kept = after.set_index("eval_id").loc[before["eval_id"]].reset_index()
+    pd.testing.assert_frame_equal(kept[before.columns], before)
+    assert (after["run_id"] == 1).sum() == 300
+    assert after.groupby(["case_hash", "design_key"]).size().max() == 1
+    with sqlite3.connect(store) as db:
+        assert db.execute("SELECT value FROM meta WHERE key = 'schema'").fetchone() == ("2",)
 
 
 # ---------------------------------------------------------------------------- wrong stores

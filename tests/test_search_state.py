@@ -18,6 +18,7 @@ import tradewise
 import tradewise._pymoo as adapter
 from tradewise.case import load_case
 from tradewise.cli import main
+from tradewise.store import open_store
 
 MIXED_MODEL = """
 def evaluate(design):
@@ -85,13 +86,9 @@ def _many_case(make_case, m: int, *, population: int = 24, evaluations: int = 96
 
 
 def _real_designs(store: Path, names: list[str]) -> pd.DataFrame:
-    with sqlite3.connect(store) as db:
-        rows = db.execute(
-            "SELECT design, generation FROM evaluations WHERE source_id IS NULL ORDER BY eval_id"
-        )
-        return pd.DataFrame([{**json.loads(d), "generation": g} for d, g in rows])[
-            names + ["generation"]
-        ]
+    with open_store(store, create=False) as archive:
+        table = archive.evaluations()
+    return table[~table["cached"]][names + ["generation"]].reset_index(drop=True)
 
 
 @pytest.fixture

@@ -3,21 +3,31 @@
 from __future__ import annotations
 
 import hashlib
+import json
+import shutil
 import sqlite3
 import subprocess
 import sys
 import textwrap
 import threading
 import time
+from pathlib import Path
 
+import pandas as pd
 import pytest
 from click.testing import CliRunner
 
 import tradewise
 from support import GOOD_MODEL, GOOD_TOML
+from tradewise import _archive_writer
 from tradewise.cli import main
 from tradewise.errors import StoreError
 from tradewise.store import SCHEMA_VERSION, open_store
+
+# An archive of schema 1 written by the release before schema 2 (tradewise 0.1.0): run 1 of the
+# case beside it interrupted after 130 evaluations (its state saved after generation 1), run 2
+# (seed 5) finished.
+OLD_ARCHIVE = Path(__file__).parent / "fixtures" / "archive-v1"
 
 
 def _start(store, case_hash="h1"):
@@ -281,6 +291,165 @@ def test_lookup_leaving_out_the_own_run(tmp_path):
         store.flush()
         time.sleep(1.05)  # "no other runs" is trusted for a second only
         assert set(store.lookup("h1", ["k1", "k2"], exclude_run=one)) == {"k2"}
+
+
+def test_lookup_compares_the_whole_key_where_digests_meet(tmp_path):
+    """A row whose key digest equals the asked key's but whose key differs is not served (a digest collision)."""
+    path = tmp_path / "a.sqlite"
+    with open_store(path) as store:
+        run_id = _start(store)
+        _add(store, run_id, "k1")
+        store.flush()
+    with sqlite3.connect(path) as db:
+        db.execute(
+            "UPDATE evaluations SET key_digest = ?", (_archive_writer.key_digest("h1", "k2"),)
+        )
+    with open_store(path) as store:
+        assert store.lookup("h1", ["k2"]) == {}
+        assert store.lookup("h1", ["k1"]) == {}  # its row now carries another key's digest
+        db_plan = store._db.execute(
+            "EXPLAIN QUERY PLAN SELECT eval_id FROM evaluations WHERE key_digest IN (1, 2)"
+            " AND case_hash = 'h1' AND source_id IS NULL AND run_id <> 3"
+        ).fetchall()
+        assert "evaluations_by_digest" in str(db_plan)
+
+
+# ------------------------------------------------------------------------------- designs
+def test_designs_of_reals_are_packed_and_read_back_bit_for_bit(tmp_path):
+    """A design of finite reals in the run's variables is kept as 8-byte floats and read back exactly; one
+    with an integer, a flag, a choice, NaN or other names is kept as JSON, as before."""
+    path = tmp_path / "a.sqlite"
+    designs = [
+        {"x": 0.1 + 0.2, "y": 5e-324},
+        {"x": -0.0, "y": 1.7976931348623157e308},
+        {"x": 3, "y": 0.5},
+        {"x": True, "y": 0.5},
+        {"x": "anodised", "y": 0.5},
+        {"x": float("nan"), "y": 0.5},
+        {"y": 0.5, "x": 0.25},
+    ]
+    with open_store(path) as store:
+        run_id = _start(store)
+        for i, design in enumerate(designs):
+            store.add_evaluation(
+                run_id,
+                case_hash="h1",
+                design_key=f"k{i}",
+                design=design,
+                results={"cost": 1.0},
+                status="ok",
+                message="",
+                duration=0.1,
+                generation=1,
+            )
+        table = store.evaluations(run_id)
+    with sqlite3.connect(path) as db:
+        kinds = [
+            r[0] for r in db.execute("SELECT typeof(design) FROM evaluations ORDER BY eval_id")
+        ]
+        (names,) = db.execute("SELECT variables FROM runs").fetchone()
+    assert kinds == ["blob", "blob"] + ["text"] * 5 and json.loads(names) == ["x", "y"]
+    got = table[["x", "y"]].to_dict("records")
+    assert [r["x"] for r in got[:5]] == [0.1 + 0.2, -0.0, 3, True, "anodised"]
+    assert str(got[1]["x"]) == "-0.0" and got[0]["y"] == 5e-324
+    assert got[1]["y"] == 1.7976931348623157e308 and got[6] == {"x": 0.25, "y": 0.5}
+    assert got[5]["x"] is None  # JSON has no NaN: stored as null, as before
+
+
+def test_a_run_of_reals_reads_back_what_it_evaluated(tmp_path):
+    """Every design of a run of real variables is packed, and the archive gives back exactly the values the run
+    holds in memory."""
+    case = tradewise.load_case(Path(__file__).parent / "cases" / "zdt1").with_search(
+        stall_generations=0
+    )
+    result = tradewise.run(case, evaluations=200, population=20, store=tmp_path / "a.sqlite")
+    with sqlite3.connect(tmp_path / "a.sqlite") as db:
+        kinds = {r[0] for r in db.execute("SELECT typeof(design) FROM evaluations")}
+    assert kinds == {"blob"}
+    with open_store(tmp_path / "a.sqlite", create=False) as store:
+        table = store.evaluations(result.run_id)
+    names = ["eval_id", *case.variable_names, *case.objective_names]
+    assert table[names].equals(result.evaluations[names].reset_index(drop=True))
+
+
+# ------------------------------------------------------------------- archives of schema 1
+def _rows(path):
+    with sqlite3.connect(path) as db:
+        return db.execute(
+            "SELECT eval_id, run_id, case_hash, design_key, design, results, status, message,"
+            " duration, generation, worker, source_id, created FROM evaluations ORDER BY eval_id"
+        ).fetchall()
+
+
+def _schema(path):
+    with sqlite3.connect(path) as db:
+        version = db.execute("SELECT value FROM meta WHERE key = 'schema'").fetchone()[0]
+        indexes = {r[0] for r in db.execute("SELECT name FROM sqlite_master WHERE type = 'index'")}
+    return int(version), indexes
+
+
+def test_schema_1_archive_is_read_without_a_change(tmp_path):
+    """Reading an archive of schema 1 (its runs, evaluations, history and state) leaves its file as it was."""
+    path = tmp_path / "archive.sqlite"
+    shutil.copy(OLD_ARCHIVE / "archive.sqlite", path)
+    before = _digest(path)
+    with open_store(path, create=False) as store:
+        assert len(store.evaluations(1)) == 130 and len(store.evaluations(2)) == 60
+        assert store.state(1)[0] == 1 and len(store.history(2)) == 3
+        assert store.runs()["status"].tolist() == ["interrupted", "budget"]
+    assert _digest(path) == before
+    assert _schema(path) == (1, {"evaluations_by_key", "evaluations_by_run"} | _AUTO)
+
+
+_AUTO = {"sqlite_autoindex_meta_1", "sqlite_autoindex_generations_1"}
+
+
+def test_schema_1_archive_is_upgraded_by_its_first_evaluation_and_keeps_every_row(tmp_path):
+    """The first evaluation written to an archive of schema 1 upgrades it to schema 2 (the digest index in place
+    of the key index); every stored row keeps every value, its designs are found by key, and the file reads
+    back its old (JSON) designs beside the new (packed) one."""
+    path = tmp_path / "archive.sqlite"
+    shutil.copy(OLD_ARCHIVE / "archive.sqlite", path)
+    old = _rows(path)
+    with open_store(path, create=False) as store:
+        table = store.evaluations()
+    with open_store(path) as store:
+        run_id = _start(store)
+        _add(store, run_id, "k1", value=0.1 + 0.2)
+    assert _schema(path) == (2, {"evaluations_by_digest", "evaluations_by_run"} | _AUTO)
+    rows = _rows(path)
+    assert rows[: len(old)] == old and len(rows) == len(old) + 1 and isinstance(rows[-1][4], bytes)
+    real = [r for r in old if r[11] is None]
+    with open_store(path) as store:
+        found = store.lookup(old[0][2], [r[3] for r in real])
+        now = store.evaluations()
+    assert {k: v["eval_id"] for k, v in found.items()} == {r[3]: r[0] for r in real}
+    assert now["x"].iloc[-1] == 0.1 + 0.2
+    # the new row's columns (x, cost) widen the old ones' types (integers with a gap become floats)
+    pd.testing.assert_frame_equal(now.iloc[:-1][table.columns], table, check_dtype=False)
+
+
+def test_schema_upgrade_is_one_transaction(tmp_path, monkeypatch):
+    """An upgrade that fails halfway (as a killed process would) leaves the archive at schema 1, every
+    evaluation as it was."""
+    path = tmp_path / "archive.sqlite"
+    shutil.copy(OLD_ARCHIVE / "archive.sqlite", path)
+    old = _rows(path)
+    seen = []
+
+    def failing(case_hash, key):
+        seen.append(key)
+        if len(seen) > 100:
+            raise RuntimeError("stopped halfway")
+        return 0
+
+    monkeypatch.setattr(_archive_writer, "key_digest", failing)
+    with open_store(path) as store, pytest.raises(sqlite3.OperationalError):
+        _start(store)
+        store.flush()
+    assert _schema(path)[0] == 1 and _rows(path) == old
+    with sqlite3.connect(path) as db:
+        assert "key_digest" not in {r[1] for r in db.execute("PRAGMA table_info(evaluations)")}
 
 
 def test_discard_after_keeps_real_evaluations(tmp_path):

@@ -45,9 +45,13 @@ POOL_SLOWDOWN_TO_WARN = 2.0
 _JUDGE_AFTER = 16
 _log = logging.getLogger("tradewise")
 #: On Dask, a model quicker than this (its median time a design in the last batch) gets tasks of
-#: several designs, each task about this long: every task costs a round trip to the scheduler (5-10
-#: ms measured on a local cluster), which a 0.05 s model would otherwise pay once a design.
-_TASK_SECONDS = 0.1
+#: several designs, each task about this long: every task costs a round trip to the scheduler, a
+#: gap in which its worker waits, which a 0.05 s model would otherwise pay once a design. Gaps
+#: between one worker's designs on a local cluster of 2 (240 designs of 0.05 s, tasks queued on
+#: the scheduler, 2 CPUs at load 3-6): tasks of about 0.1 s, median 8-12 ms, 1.8-3.1 s in all;
+#: about 0.25 s, median 0.1 ms, 0.4-0.9 s in all (the last two designs a worker still go one a
+#: task); holding two tasks a worker instead was no quicker.
+_TASK_SECONDS = 0.25
 
 Model = Callable[[dict[str, Any]], Outcome]
 
@@ -492,7 +496,7 @@ class DaskCluster(InProcess):
         """The positions of ``n`` designs grouped into the tasks of one batch.
 
         One design a task, unless the model (the same object as in the last
-        batch) took less than :data:`_TASK_SECONDS` a design: then tasks of
+        batch) took less than half of :data:`_TASK_SECONDS` a design: then tasks of
         about that long, the last two designs a worker one a task so that the
         workers finish together.
         """

@@ -40,7 +40,7 @@ from tradewise.errors import StoreError
 
 __all__ = ["Store", "open_store", "SCHEMA_VERSION"]
 
-SCHEMA_VERSION = 1
+SCHEMA_VERSION = 2
 # Evaluations wait at most this long in this process before they go to the writer, which commits
 # them at most 0.4 s later (COMMIT_EVERY in the writer program): together well within a second.
 _HAND_OVER_EVERY = 0.1
@@ -63,6 +63,14 @@ LOCK_WAIT = 30.0
 LOCK_NOTICE = 1.0
 _log = logging.getLogger("tradewise")
 
+# Schema 2 (schema 1 was written by tradewise 0.1.0):
+# - evaluations are indexed by key_digest (_archive_writer.key_digest of the case hash and the design
+#   key) instead of (case_hash, design_key) itself; a look-up compares the whole key;
+# - a design is a JSON object of its variables' values, or, when every value is a finite float, those
+#   values as little-endian 8-byte floats (_archive_writer.pack_design) in the order the run's
+#   `variables` (a JSON list of names, recorded with its first evaluation) gives.
+# An archive of schema 1 is read as it is and upgraded before its first evaluation is written
+# (_upgrade): two columns and an index are added, an index is dropped, no stored value changes.
 _SCHEMA = """
 CREATE TABLE IF NOT EXISTS meta (key TEXT PRIMARY KEY, value TEXT);
 CREATE TABLE IF NOT EXISTS runs (
@@ -78,7 +86,8 @@ CREATE TABLE IF NOT EXISTS runs (
     message TEXT,
     reference TEXT,
     started REAL,
-    finished REAL
+    finished REAL,
+    variables TEXT
 );
 CREATE TABLE IF NOT EXISTS evaluations (
     eval_id INTEGER PRIMARY KEY AUTOINCREMENT,
@@ -93,9 +102,10 @@ CREATE TABLE IF NOT EXISTS evaluations (
     generation INTEGER,
     worker TEXT,
     source_id INTEGER,
-    created REAL
+    created REAL,
+    key_digest INTEGER
 );
-CREATE INDEX IF NOT EXISTS evaluations_by_key ON evaluations (case_hash, design_key);
+CREATE INDEX IF NOT EXISTS evaluations_by_digest ON evaluations (key_digest);
 CREATE INDEX IF NOT EXISTS evaluations_by_run ON evaluations (run_id);
 CREATE TABLE IF NOT EXISTS generations (
     run_id INTEGER NOT NULL REFERENCES runs(run_id),
@@ -328,9 +338,10 @@ class Store:
     the same time never collide (the ids of one run may jump between blocks).
     """
 
-    def __init__(self, path: Path, connection: sqlite3.Connection) -> None:
+    def __init__(self, path: Path, connection: sqlite3.Connection, version: int) -> None:
         self.path = path
         self._db = connection  # reads, and the rare writes made after a sync with the writer
+        self._version = version  # the archive's schema: 1 until upgraded by the first evaluation
         self._lock = threading.RLock()
         self._rows: list[tuple] = []  # evaluations recorded, not yet handed to the writer
         self._names: tuple[str, ...] = ()  # the variable names of the last design recorded
@@ -408,6 +419,9 @@ class Store:
     def _start_writer(self) -> None:
         """Start the writer process (without waiting for it); call with the lock held."""
         if self._link is None:
+            if self._version < SCHEMA_VERSION:
+                _patiently(self.path, self._db, lambda: _upgrade(self._db))
+                self._version = SCHEMA_VERSION
             try:
                 self._link = _ProcessLink(self.path)
                 self._proven = False
@@ -766,16 +780,22 @@ class Store:
         with self._lock:
             if exclude_run is not None and not self._has_others(case_hash, exclude_run):
                 return found
+            wanted = set(keys)
+            column = "key_digest" if self._version >= 2 else "design_key"
             for start in range(0, len(keys), 500):
                 chunk = keys[start : start + 500]
+                if self._version >= 2:
+                    chunk = [_archive_writer.key_digest(case_hash, key) for key in chunk]
                 marks = ",".join("?" * len(chunk))
                 rows = self._db.execute(
                     f"SELECT eval_id, design_key, results, status, message, duration, worker FROM evaluations"
-                    f" WHERE case_hash = ? AND source_id IS NULL AND design_key IN ({marks}){skip} ORDER BY eval_id",
-                    (case_hash, *chunk, *tail),
+                    f" WHERE {column} IN ({marks}) AND case_hash = ? AND source_id IS NULL{skip}"
+                    " ORDER BY eval_id",
+                    (*chunk, case_hash, *tail),
                 ).fetchall()
                 for eval_id, key, results, status, message, duration, worker in rows:
-                    if key not in found:
+                    # a digest names a key but for a chance of 1 in 2**64: the key itself decides
+                    if key in wanted and key not in found:
                         found[key] = {
                             "eval_id": eval_id,
                             "results": json.loads(results) if results else {},
@@ -823,6 +843,14 @@ class Store:
         elif case_hash is not None:
             query += " WHERE case_hash = ?"
             params = (case_hash,)
+        variables = {}  # run id -> the names its packed designs hold values of
+        if self._version >= 2:
+            variables = {
+                rid: tuple(json.loads(names))
+                for rid, names in self._query(
+                    "SELECT run_id, variables FROM runs WHERE variables IS NOT NULL"
+                )
+            }
         records = []
         for (
             eval_id,
@@ -846,7 +874,15 @@ class Store:
                 "worker": worker or "",
                 "cached": source is not None,
             }
-            record.update(json.loads(design))
+            if isinstance(design, bytes):
+                try:
+                    record.update(_archive_writer.unpack_design(variables.get(rid, ()), design))
+                except ValueError as exc:
+                    raise StoreError(
+                        f"{self.path}: evaluation {eval_id} cannot be read ({exc})"
+                    ) from None
+            else:
+                record.update(json.loads(design))
             if results:
                 record.update(json.loads(results))
             records.append(record)
@@ -1040,7 +1076,7 @@ def open_store(path: str | Path, *, create: bool = True) -> Store:
     db = None
     try:
         db = sqlite3.connect(path, timeout=LOCK_WAIT, check_same_thread=False)
-        _patiently(path, db, lambda: _prepare(path, db, create=create))
+        version = _patiently(path, db, lambda: _prepare(path, db, create=create))
     except StoreError:
         if db is not None:
             db.close()
@@ -1049,15 +1085,17 @@ def open_store(path: str | Path, *, create: bool = True) -> Store:
         if db is not None:
             db.close()
         raise StoreError(f"{path}: cannot be used as an archive ({exc})") from None
-    return Store(path, db)
+    return Store(path, db, version)
 
 
-def _prepare(path: Path, db: sqlite3.Connection, *, create: bool) -> None:
+def _prepare(path: Path, db: sqlite3.Connection, *, create: bool) -> int:
+    """Check the file, make it an archive if it is empty, and return its schema version."""
     # Look before writing anything: switching to WAL or adding tables would change a foreign file.
     tables = {r[0] for r in db.execute("SELECT name FROM sqlite_master WHERE type = 'table'")}
     tables.discard("sqlite_sequence")
+    version = SCHEMA_VERSION
     if tables:
-        _check_tables(path, db, tables)
+        version = _check_tables(path, db, tables)
     elif not create:
         raise StoreError(
             f"{path}: is an empty SQLite file, not an archive written by `tradewise run`"
@@ -1070,9 +1108,10 @@ def _prepare(path: Path, db: sqlite3.Connection, *, create: bool) -> None:
             "INSERT OR IGNORE INTO meta (key, value) VALUES ('schema', ?)", (str(SCHEMA_VERSION),)
         )
         db.commit()
+    return version
 
 
-def _check_tables(path: Path, db: sqlite3.Connection, tables: set[str]) -> None:
+def _check_tables(path: Path, db: sqlite3.Connection, tables: set[str]) -> int:
     if not _TABLES.issubset(tables):
         shown = ", ".join(sorted(tables)[:6]) + (", ..." if len(tables) > 6 else "")
         raise StoreError(
@@ -1087,3 +1126,36 @@ def _check_tables(path: Path, db: sqlite3.Connection, tables: set[str]) -> None:
         raise StoreError(
             f"{path}: archive schema {row[0]} was written by a newer tradewise; this one reads up to {SCHEMA_VERSION}"
         )
+    return int(row[0])
+
+
+def _upgrade(db: sqlite3.Connection) -> None:
+    """Bring an archive of schema 1 to schema 2, in one transaction (a crash leaves schema 1).
+
+    Adds each evaluation's key digest and its index, drops the index on the
+    keys themselves (which only repeated what the rows hold), and adds the runs'
+    ``variables``, empty for the runs already there: every stored value stays as
+    it was. An archive another process upgraded meanwhile is left alone.
+    """
+    db.create_function("tradewise_key_digest", 2, _archive_writer.key_digest, deterministic=True)
+    db.execute("BEGIN IMMEDIATE")
+    try:
+        (version,) = db.execute("SELECT value FROM meta WHERE key = 'schema'").fetchone()
+        if int(version) < 2:
+            columns = {row[1] for row in db.execute("PRAGMA table_info(evaluations)")}
+            if "key_digest" not in columns:
+                db.execute("ALTER TABLE evaluations ADD COLUMN key_digest INTEGER")
+            if "variables" not in {row[1] for row in db.execute("PRAGMA table_info(runs)")}:
+                db.execute("ALTER TABLE runs ADD COLUMN variables TEXT")
+            db.execute(
+                "UPDATE evaluations SET key_digest = tradewise_key_digest(case_hash, design_key)"
+            )
+            db.execute(
+                "CREATE INDEX IF NOT EXISTS evaluations_by_digest ON evaluations (key_digest)"
+            )
+            db.execute("DROP INDEX IF EXISTS evaluations_by_key")
+            db.execute("UPDATE meta SET value = '2' WHERE key = 'schema'")
+        db.commit()
+    except BaseException:
+        db.rollback()
+        raise
