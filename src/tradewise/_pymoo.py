@@ -71,6 +71,7 @@ __all__ = [
     "decode_state",
     "search_state",
     "restore_state",
+    "restore_random",
     "seed_population",
     "minimise_function",
 ]
@@ -482,23 +483,9 @@ class Searcher:
         Raises :class:`StoreError` naming ``where`` when the state does not
         fit the case (another number of variables, objectives or constraints).
         """
-        n_var = len(self._xl)
-        X = _array(state, "X", where)
-        F = _array(state, "F", where)
+        X, F, G = saved_tables(state, len(self._xl), self.n_obj, self.n_con, where=where)
         n = len(X)
-        if X.ndim != 2 or X.shape[1] != n_var or F.shape != (n, self.n_obj) or n == 0:
-            raise StoreError(
-                f"{where}: the saved search state does not fit the case "
-                f"({n_var} variables, {self.n_obj} objectives)"
-            )
-        G = np.empty((n, 0))
-        if self.n_con:
-            G = _array(state, "G", where)
-            if G.shape != (n, self.n_con):
-                raise StoreError(
-                    f"{where}: the saved search state does not fit the case's "
-                    f"{self.n_con} constraint columns"
-                )
+        G = np.empty((n, 0)) if G is None else G
         marks = state.get("marks") or {}
         if not isinstance(marks, dict):
             raise StoreError(f"{where}: the saved search state's marks are not a table")
@@ -517,12 +504,7 @@ class Searcher:
                 ) from None
         n_iter = _count(state, "n_iter", where)
         n_eval = _count(state, "n_eval", where)
-        try:
-            self.rng.bit_generator.state = state["random"]
-        except (KeyError, TypeError, ValueError) as exc:
-            raise StoreError(
-                f"{where}: the saved random generator state cannot be used ({exc})"
-            ) from None
+        restore_random(self.rng, state, where=where)
         self.X, self.F, self.G = X, F, G
         self.cv = _violation(G)
         self.rank, self.crowding = columns["rank"], columns["crowding"]
@@ -798,23 +780,9 @@ def restore_state(algorithm, state: dict[str, Any], *, where: str) -> None:
     the algorithm (another number of variables, objectives or constraints).
     """
     problem = algorithm.problem
-    X = _array(state, "X", where)
-    F = _array(state, "F", where)
+    X, F, G = saved_tables(state, problem.n_var, problem.n_obj, problem.n_ieq_constr, where=where)
     n = len(X)
-    if X.ndim != 2 or X.shape[1] != problem.n_var or F.shape != (n, problem.n_obj) or n == 0:
-        raise StoreError(
-            f"{where}: the saved search state does not fit the case "
-            f"({problem.n_var} variables, {problem.n_obj} objectives)"
-        )
-    values = {"F": F}
-    if problem.n_ieq_constr:
-        G = _array(state, "G", where)
-        if G.shape != (n, problem.n_ieq_constr):
-            raise StoreError(
-                f"{where}: the saved search state does not fit the case's "
-                f"{problem.n_ieq_constr} constraint columns"
-            )
-        values["G"] = G
+    values = {"F": F} if G is None else {"F": F, "G": G}
     pop = Population.new(X=X)
     algorithm.evaluator.eval(StaticProblem(problem, **values), pop)
     marks = state.get("marks") or {}
@@ -834,12 +802,7 @@ def restore_state(algorithm, state: dict[str, Any], *, where: str) -> None:
     algorithm.is_initialized = True
     algorithm.n_iter = _count(state, "n_iter", where)
     algorithm.evaluator.n_eval = _count(state, "n_eval", where)
-    try:
-        algorithm.random_state.bit_generator.state = state["random"]
-    except (KeyError, TypeError, ValueError) as exc:
-        raise StoreError(
-            f"{where}: the saved random generator state cannot be used ({exc})"
-        ) from None
+    restore_random(algorithm.random_state, state, where=where)
     norm = getattr(getattr(algorithm, "survival", None), "norm", None)
     saved_norm = state.get("normalisation")
     if norm is not None and isinstance(saved_norm, dict):
@@ -849,6 +812,42 @@ def restore_state(algorithm, state: dict[str, Any], *, where: str) -> None:
     if hasattr(algorithm.survival, "opt"):
         algorithm.survival.opt = pop[pop.get("rank") == 0] if "rank" in marks else pop
     algorithm._set_optimum()
+
+
+def saved_tables(
+    state: dict[str, Any], n_var: int, n_obj: int, n_con: int, *, where: str
+) -> tuple[np.ndarray, np.ndarray, np.ndarray | None]:
+    """The population's encoded designs, objective and constraint values (None without constraints) from a saved state.
+
+    Raises :class:`StoreError` naming ``where`` when they do not fit the case
+    (another number of variables, objectives or constraints).
+    """
+    X = _array(state, "X", where)
+    F = _array(state, "F", where)
+    n = len(X)
+    if X.ndim != 2 or X.shape[1] != n_var or F.shape != (n, n_obj) or n == 0:
+        raise StoreError(
+            f"{where}: the saved search state does not fit the case "
+            f"({n_var} variables, {n_obj} objectives)"
+        )
+    if not n_con:
+        return X, F, None
+    G = _array(state, "G", where)
+    if G.shape != (n, n_con):
+        raise StoreError(
+            f"{where}: the saved search state does not fit the case's {n_con} constraint columns"
+        )
+    return X, F, G
+
+
+def restore_random(rng: np.random.Generator, state: dict[str, Any], *, where: str) -> None:
+    """Put ``rng`` in the saved state's random generator state, or raise :class:`StoreError` naming ``where``."""
+    try:
+        rng.bit_generator.state = state["random"]
+    except (KeyError, TypeError, ValueError) as exc:
+        raise StoreError(
+            f"{where}: the saved random generator state cannot be used ({exc})"
+        ) from None
 
 
 def encode_state(state: dict[str, Any]) -> bytes:

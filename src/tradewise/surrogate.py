@@ -119,6 +119,7 @@ from tradewise._pymoo import (
     make_searcher,
     minimise_function,
     n_constraint_columns,
+    restore_random,
     seed_population,
 )
 from tradewise.case import Case
@@ -808,12 +809,7 @@ class SurrogateSearcher:
         if state.get("kind") != "surrogate" or not isinstance(state.get("round"), int):
             raise StoreError(f"{where}: the saved search state is not one of a surrogate run")
         self.round = state["round"]
-        try:
-            self.rng.bit_generator.state = state["random"]
-        except (KeyError, TypeError, ValueError) as exc:
-            raise StoreError(
-                f"{where}: the saved random generator state cannot be used ({exc})"
-            ) from None
+        restore_random(self.rng, state, where=where)
         if state.get("reason"):
             self._give_up(str(state["reason"]), quiet=True)
             if isinstance(state.get("fallback"), dict):
