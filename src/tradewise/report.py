@@ -807,7 +807,8 @@ def _run(
         entries.append(("served from the archive", said + " not evaluated again"))
     if front.reference is not None:
         ref = ", ".join(
-            f"{o.name} {_fmt(r)}" for o, r in zip(front.objectives, front.reference, strict=True)
+            f"{o.name} {_format.quantity(r, o.unit)}"
+            for o, r in zip(front.objectives, front.reference, strict=True)
         )
         source = f" ({info.reference_source})" if info.reference_source else ""
         entries.append((
