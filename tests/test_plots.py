@@ -80,7 +80,7 @@ def history_table(n: int = 30) -> pd.DataFrame:
             "evaluations": evaluations,
             "hypervolume": 0.8 * (1 - np.exp(-evaluations / 300)),
             "front_size": np.minimum(np.arange(1, n + 1) * 3, 40),
-            "failed": [0] * (n - 1) + [2],
+            "failed": [0] * (n - 3) + [1, 2, 2],  # evaluations failed so far
         }
     )
 
@@ -295,6 +295,18 @@ def test_history_lines_carry_the_history_and_mark_the_stop():
     ]
     texts = " ".join(t.get_text() for t in top.texts)
     assert "stopped after 1200 evaluations" in texts and "stopped improving" in texts
+
+
+def test_history_note_counts_failures_once_per_run():
+    """history.csv's failed column counts failures so far: the note gives the last count of each run
+    (2 for one run, 2 + 2 + 2 for three seeds), not the sum of the column."""
+    one = plots.plot_history(history_table(), stop_reason="budget used", budget=1200)
+    notes = [t.get_text() for t in one.axes[1].texts if "failed" in t.get_text()]
+    assert notes == ["2 evaluation(s) failed during the run"]
+    three = pd.concat([history_table().assign(seed=k) for k in (1, 2, 3)], ignore_index=True)
+    fig = plots.plot_history(three, stop_reason="budget used", budget=1200)
+    notes = [t.get_text() for t in fig.axes[1].texts if "failed" in t.get_text()]
+    assert notes == ["6 evaluation(s) failed during the runs"]
 
 
 def test_history_with_seeds_draws_one_line_per_seed_and_a_star_at_each_end():

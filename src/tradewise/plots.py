@@ -1308,12 +1308,16 @@ def plot_history(
                 color="#55555c",
             )
         if "failed" in history.columns:
-            failed = int(pd.to_numeric(history["failed"], errors="coerce").fillna(0).sum())
+            # history.csv counts the failures so far, so a run's count is its largest value
+            counts = pd.to_numeric(history["failed"], errors="coerce").fillna(0).to_numpy()
+            failed = int(sum(counts[rows].max() for _, rows in runs if len(rows)))
             if failed:
                 bottom.annotate(
-                    f"{failed} evaluation(s) failed during the run",
-                    (0.01, 0.04),
+                    f"{failed} evaluation(s) failed during the "
+                    + ("run" if len(runs) == 1 else "runs"),
+                    (0.01, 0.96),
                     xycoords="axes fraction",
+                    va="top",
                     fontsize=8,
                     color=PALETTE["ink"],
                 )
