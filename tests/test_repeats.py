@@ -164,6 +164,19 @@ def test_cli_run_with_seeds_in_parallel(tmp_path):
     assert "Single seeds of" in compared.output and "(3 seeds)" in compared.output
 
 
+def test_cli_seeds_with_a_relative_out_keeps_each_seed_folder(tmp_path, monkeypatch):
+    """`run --seeds 2 --out runs/a` given relative to the working folder keeps seeds/seed-N/ (the
+    clean-up of an earlier run's files compared a relative folder with resolved paths and removed
+    them), and a second run into the same folder keeps them too."""
+    monkeypatch.chdir(tmp_path)
+    command = ["run", str(CASES / "zdt1"), "--seeds", "2", "--evaluations", "120", "--out", "runs/a", "--quiet"]  # fmt: skip
+    for _ in range(2):
+        cli = CliRunner().invoke(main, command)
+        assert cli.exit_code == 0, cli.output
+        for seed in (1, 2):
+            assert (tmp_path / "runs" / "a" / "seeds" / f"seed-{seed}" / "front.json").is_file()
+
+
 # ------------------------------------------------------------------ against published fronts
 @pytest.mark.slow
 def test_zdt1_median_attainment_surface_near_the_true_front():

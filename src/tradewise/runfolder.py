@@ -104,7 +104,8 @@ def remove_stale(folder: str | Path, written: Mapping[str, Path] | Sequence[Path
 
         for child in sorted(seeds.glob("seed-*")):
             ours = (child / "front.json").is_file() or (child / "least_infeasible.csv").is_file()
-            if child.is_dir() and ours and not any(child in p.parents for p in kept):
+            # kept holds resolved paths: a relative --out must be resolved to be found among them
+            if child.is_dir() and ours and not any(child.resolve() in p.parents for p in kept):
                 shutil.rmtree(child)
                 removed.append(child)
         if not any(seeds.iterdir()):
