@@ -33,6 +33,8 @@ from tradewise.runinfo import FRONT_FORMAT, RunInfo, check_format, check_front_k
 
 __all__ = [
     "Front",
+    "failed_rows",
+    "failures_text",
     "nondominated",
     "merge_nondominated",
     "column_extremes",
@@ -76,6 +78,27 @@ ROW_COLUMN = "data_row"
 def design_table(table: pd.DataFrame) -> pd.DataFrame:
     """``table`` without the bookkeeping columns (:data:`BOOKKEEPING_COLUMNS`)."""
     return table.drop(columns=[c for c in BOOKKEEPING_COLUMNS if c in table.columns])
+
+
+def failed_rows(evaluations: pd.DataFrame) -> pd.DataFrame:
+    """The evaluations of a run's table that failed or ran past the timeout, each counted once:
+    a design reused from the archive (``cached``, or a ``source_id``) failed where it was made."""
+    if "status" not in evaluations.columns:
+        return evaluations.iloc[:0]
+    bad = evaluations[evaluations["status"] != "ok"]
+    if "cached" in bad.columns:
+        return bad[~bad["cached"].astype(bool)]
+    if "source_id" in bad.columns:
+        return bad[bad["source_id"].isna()]
+    return bad
+
+
+def failures_text(evaluations: pd.DataFrame) -> str:
+    """:func:`tradewise.format.failures` of the table's :func:`failed_rows` (empty when none)."""
+    bad = failed_rows(evaluations)
+    timeout = bad["status"] == "timeout" if len(bad) else pd.Series(dtype=bool)
+    messages = bad.loc[~timeout, "message"].fillna("").astype(str).tolist() if len(bad) else []
+    return _format.failures(int(timeout.sum()), messages)
 
 
 _HEADER = re.compile(r"^(?P<name>.*?) \[(?P<unit>[^\[\]]*)\]$")

@@ -44,6 +44,7 @@ from tradewise.errors import DataError
 from tradewise.front import (
     ROW_COLUMN,
     Front,
+    failures_text,
     hypervolume_box,
     objective_matrix,
     tradeoff_rates,
@@ -858,15 +859,7 @@ _SEED_COLUMNS = {
 def _failed_text(n_failed: Any, evaluations: pd.DataFrame | None) -> str:
     """The failed evaluations told apart by kind when the archive's evaluations are at hand."""
     plain = f"{_fmt(n_failed)} (stored with their message and treated as infeasible)"
-    if not n_failed or evaluations is None or "status" not in evaluations.columns:
-        return plain
-    bad = evaluations[evaluations["status"] != "ok"]
-    if "source_id" in bad.columns:
-        bad = bad[bad["source_id"].isna()]  # designs reused from the archive failed once, there
-    timeout = bad["status"] == "timeout"
-    told = _format.failures(
-        int(timeout.sum()), bad.loc[~timeout, "message"].fillna("").astype(str).tolist()
-    )
+    told = failures_text(evaluations) if n_failed and evaluations is not None else ""
     if not told:
         return plain
     return (

@@ -26,6 +26,7 @@ from tradewise.front import (
     Front,
     column_header,
     design_table,
+    failed_rows,
     objective_matrix,
     read_front,
     read_table,
@@ -200,11 +201,7 @@ def _write_failed(result: Any, folder: Path, units: dict[str, str]) -> Path | No
     """
     path = folder / FAILED_FILE
     table = getattr(result, "evaluations", None)
-    rows = None
-    if table is not None and len(table) and "status" in table.columns:
-        rows = table[table["status"] != "ok"]
-        if "cached" in rows.columns:
-            rows = rows[~rows["cached"].astype(bool)]
+    rows = failed_rows(table) if table is not None else None
     if rows is None or not len(rows):
         if path.exists():
             path.unlink()

@@ -40,6 +40,7 @@ from tradewise.front import (
     Front,
     column_extremes,
     design_table,
+    failures_text,
     hypervolume,
     hypervolume_box,
     hypervolume_share,
@@ -964,19 +965,6 @@ def _values(case: Case, keys: list[str], outcomes: dict[str, Outcome], n_con: in
     return F, G
 
 
-def _failure_sentence(records: pd.DataFrame) -> str:
-    """How many evaluations failed, told apart (:func:`tradewise.format.failures`), and where they are listed."""
-    bad = records[records["status"] != "ok"]
-    if "cached" in bad.columns:
-        bad = bad[~bad["cached"].astype(bool)]
-    timed_out = int((bad["status"] == "timeout").sum())
-    errors = bad.loc[bad["status"] != "timeout", "message"].fillna("").astype(str).tolist()
-    return (
-        f"{_format.failures(timed_out, errors)}. They count as infeasible; "
-        "a run folder lists them with their designs in failed.csv."
-    )
-
-
 def _update(run: _Run, proposal: _Proposal, clock: float) -> dict[str, Any]:
     """After a generation: the front, how settled it is, the reference point, and the history row."""
     new_rows = list(range(proposal.first_row, len(run.records)))
@@ -1136,7 +1124,10 @@ def _finish(
             "turn the rule off) or stall_tolerance lower in [search] and run again."
         )
     if run.n_failed:
-        parts.append(_failure_sentence(records))
+        parts.append(
+            f"{failures_text(records)}. They count as infeasible; a run folder lists them with "
+            "their designs in failed.csv."
+        )
     if len(front):
         parts.append(_front_sentence(front, run.reference))
     else:
