@@ -569,3 +569,20 @@ def test_hyperparameters_fitted_on_a_share_of_the_rows_must_explain_all_of_them(
     assert model.regressor.log_marginal_likelihood_value_ >= (
         theirs.log_marginal_likelihood_value_ - 1e-8
     )
+
+
+def test_a_rejected_log_model_predicts_as_the_plain_model():
+    """An output of one sign spanning decades is tried in its logarithm; when leave-one-out prefers
+    the output as it is, the model put back predicts exactly as a plain fit (it once kept the log
+    fit's length scales and factor beside the plain fit's weights: misses of 22 on values below 1)."""
+    rng = np.random.default_rng(0)
+    Z = rng.random((30, 2))
+    y = np.abs(np.where(Z[:, 0] < 0.05, 1e-17, Z[:, 0]) + 0.3 * np.sin(6 * Z[:, 1]) + 0.31) + 1e-12
+    either = GaussianProcess(2, seed=1)
+    either.fit_either(Z, y)
+    assert either.sign == 0.0  # the logarithm was tried and turned down
+    plain = GaussianProcess(2, seed=1)
+    plain.fit(Z, y)
+    probe = rng.random((20, 2))
+    for a, b in zip(either.predict(probe), plain.predict(probe), strict=True):
+        np.testing.assert_allclose(a, b, rtol=1e-9, atol=1e-12)

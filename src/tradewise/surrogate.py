@@ -107,6 +107,7 @@ from typing import Any
 import moocore
 import numpy as np
 from scipy.linalg import solve_triangular
+from scipy.spatial.distance import cdist
 from scipy.special import ndtr
 from scipy.stats import qmc
 
@@ -253,11 +254,9 @@ class GaussianProcess:
 
     def _leave_one_out_miss(self, y: np.ndarray) -> float:
         """Mean absolute miss of the leave-one-out predictions, in the output's units."""
-        from scipy.linalg import cho_solve
-
         r = self.regressor
-        inverse = cho_solve((r.L_, True), np.eye(len(r.y_train_)), check_finite=False)
-        t = r.y_train_ - r.alpha_ / np.diag(inverse)
+        # diag(K^-1) from the inverse factor the conditioning kept: K^-1 = U^T U with U = L^-1
+        t = r.y_train_ - r.alpha_ / np.einsum("ij,ij->j", r.unfactor, r.unfactor)
         return float(np.mean(np.abs(self._back(self.mean + self.scale * t) - y)))
 
     def _back(self, u: np.ndarray) -> np.ndarray:
@@ -291,12 +290,14 @@ class GaussianProcess:
                 # 194 before), the f1 model missed by more than the mean, and the run went on
                 # as NSGA-II.
                 self._condition(Z, t)
-                fresh = self.regressor.log_marginal_likelihood_value_
-                self.kernel, after = before, self.kernel
+                fresh = self.regressor
+                self.kernel = before
                 self._condition(Z, t)
-                if fresh >= self.regressor.log_marginal_likelihood_value_:
-                    self.kernel = after
-                    self._condition(Z, t)
+                if (
+                    fresh.log_marginal_likelihood_value_
+                    >= self.regressor.log_marginal_likelihood_value_
+                ):
+                    self.kernel, self.regressor = fresh.kernel_, fresh
                 return
         self._condition(Z, t)
 
@@ -309,17 +310,15 @@ class GaussianProcess:
         tests compare the two.
         """
         values = np.exp(self.kernel.theta)
-        self._amplitude, self._noise = float(values[0]), float(values[-1])
-        self._lengths = values[1:-1]
+        amplitude, noise, lengths = float(values[0]), float(values[-1]), values[1:-1]
         # What predict needs, once a fit rather than once a call: the inputs divided by the
         # length scales, and the inverse of the Cholesky factor (a product instead of a solve).
-        self._train = Z / self._lengths
-        K = _matern(self._amplitude, _squared_distances(self._train, self._train))
-        K[np.diag_indices(len(t))] += self._noise + 1e-10
+        train = Z / lengths
+        K = _matern(amplitude, _squared_distances(train, train))
+        K[np.diag_indices(len(t))] += noise + 1e-10
         factor = np.linalg.cholesky(K)
         alpha = solve_triangular(factor, t, lower=True, check_finite=False)
         alpha = solve_triangular(factor, alpha, lower=True, trans=1, check_finite=False)
-        self._unfactor = solve_triangular(factor, np.eye(len(t)), lower=True, check_finite=False)
         self.regressor = Conditioned(
             X_train_=Z,
             y_train_=t,
@@ -329,6 +328,11 @@ class GaussianProcess:
             log_marginal_likelihood_value_=-0.5 * float(t @ alpha)
             - float(np.log(np.diag(factor)).sum())
             - 0.5 * len(t) * math.log(2 * math.pi),
+            amplitude=amplitude,
+            noise=noise,
+            lengths=lengths,
+            scaled_train=train,
+            unfactor=solve_triangular(factor, np.eye(len(t)), lower=True, check_finite=False),
         )
 
     def predict(self, Z: np.ndarray) -> tuple[np.ndarray, np.ndarray]:
@@ -337,10 +341,10 @@ class GaussianProcess:
         # kernel objects (this runs thousands of times a round).
         r = self.regressor
         Z = np.atleast_2d(Z)
-        cross = _matern(self._amplitude, _squared_distances(Z / self._lengths, self._train))
+        cross = _matern(r.amplitude, _squared_distances(Z / r.lengths, r.scaled_train))
         mu = cross @ r.alpha_
-        v = self._unfactor @ cross.T
-        var = (self._amplitude + self._noise) - np.einsum("ij,ij->j", v, v)
+        v = r.unfactor @ cross.T
+        var = (r.amplitude + r.noise) - np.einsum("ij,ij->j", v, v)
         sd = np.sqrt(np.maximum(var, 1e-24))
         if self.sign:
             # the median of the log-normal, and its spread to first order (the delta method)
@@ -361,7 +365,9 @@ class GaussianProcess:
 
 @dataclass(frozen=True)
 class Conditioned:
-    """A model conditioned on its data, under the names scikit-learn's fitted regressor uses."""
+    """A model conditioned on its data, under the names scikit-learn's fitted regressor uses,
+    and with what :meth:`GaussianProcess.predict` reads of it, so that keeping or putting back a
+    conditioned model is one assignment."""
 
     X_train_: np.ndarray
     y_train_: np.ndarray  # standardised
@@ -369,11 +375,14 @@ class Conditioned:
     alpha_: np.ndarray  # K^-1 y_train_
     kernel_: Any
     log_marginal_likelihood_value_: float
+    amplitude: float
+    noise: float
+    lengths: np.ndarray
+    scaled_train: np.ndarray  # X_train_ divided by the length scales
+    unfactor: np.ndarray  # the inverse of L_
 
 
 def _squared_distances(A: np.ndarray, B: np.ndarray) -> np.ndarray:
-    from scipy.spatial.distance import cdist
-
     return cdist(A, B, "sqeuclidean")
 
 
