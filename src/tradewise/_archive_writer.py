@@ -132,43 +132,20 @@ class Writer:
     def apply(self, message):
         kind = message[0]
         if kind == "rows":
-            # each design as the tuple of its variable names and the tuple of its values
+            # a row as handed over: (eval_id, run, case hash, key, names, values, results, then
+            # the status, message, duration, generation, worker, source and time as stored)
             design = self.design
             self.db.executemany(
                 INSERT,
                 [
                     (
-                        i,
-                        run,
-                        case,
-                        key,
-                        key_digest(case, key),
-                        design(run, names, values),
-                        encode(results),
-                        status,
-                        text,
-                        duration,
-                        gen,
-                        worker,
-                        source,
-                        created,
+                        *row[:4],
+                        key_digest(row[2], row[3]),
+                        design(row[1], row[4], row[5]),
+                        encode(row[6]),
+                        *row[7:],
                     )
-                    for (
-                        i,
-                        run,
-                        case,
-                        key,
-                        names,
-                        values,
-                        results,
-                        status,
-                        text,
-                        duration,
-                        gen,
-                        worker,
-                        source,
-                        created,
-                    ) in message[1]
+                    for row in message[1]
                 ],
             )
             self.touch()
