@@ -12,7 +12,6 @@ from tradewise._pymoo import (
     decode_state,
     make_searcher,
     n_constraint_columns,
-    seed_population,
 )
 from tradewise.case import load_case
 from tradewise.errors import StoreError
@@ -181,7 +180,7 @@ def test_seeding_from_evaluated_designs_agrees_with_pymoos_survival(make_case):
     states, proposals = [], []
     for kind in (Searcher, PymooSearcher):
         searcher = kind(case, space, population=case.search.population, seed=4)
-        seed_population(searcher, X, F, G)
+        searcher.seed(X, F, G)
         states.append(decode_state(searcher.state(generation=0, eval_ids=None)))
         proposals.append(searcher.propose())
     assert states[0] == states[1]

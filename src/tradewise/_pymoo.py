@@ -72,7 +72,6 @@ __all__ = [
     "search_state",
     "restore_state",
     "restore_random",
-    "seed_population",
     "minimise_function",
 ]
 
@@ -912,18 +911,10 @@ def _count(state: dict[str, Any], key: str, where: str) -> int:
     return value
 
 
-def seed_population(searcher, X: np.ndarray, F: np.ndarray, G: np.ndarray | None) -> None:
-    """Start ``searcher`` from designs already evaluated (encoded ``X`` with their values).
-
-    The survival step picks the population from them (rank and crowding), so
-    the next :meth:`Searcher.propose` mates designs the archive holds instead
-    of drawing a random first generation.
-    """
-    searcher.seed(X, F, G)
-
-
 def _seed_algorithm(algorithm, X: np.ndarray, F: np.ndarray, G: np.ndarray | None) -> None:
-    """:func:`seed_population` for a pymoo algorithm."""
+    """Start a pymoo algorithm from designs already evaluated: its survival step picks the
+    population from them (rank and crowding), so the next proposal mates designs the archive
+    holds instead of drawing a random first generation."""
     problem = algorithm.problem
     values = {"F": F} if G is None else {"F": F, "G": G}
     pop = Population.new(X=np.asarray(X, dtype=float))

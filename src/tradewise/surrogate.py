@@ -121,7 +121,6 @@ from tradewise._pymoo import (
     minimise_function,
     n_constraint_columns,
     restore_random,
-    seed_population,
 )
 from tradewise.case import Case
 from tradewise.errors import StoreError
@@ -1236,7 +1235,7 @@ class SurrogateSearcher:
                 G[ok, j] = [c.violation(v) for v in Y[ok, self.n_obj + j]]
             G[~ok, -1] = _FAILED_PENALTY
             F[~ok] = 0.0
-        seed_population(self.fallback, X, F, G)
+        self.fallback.seed(X, F, G)
 
 
 def _copy(model: GaussianProcess) -> GaussianProcess:
