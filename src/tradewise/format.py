@@ -26,6 +26,7 @@ from __future__ import annotations
 
 import math
 import sys
+from collections import Counter
 from typing import Any
 
 __all__ = ["DIGITS", "MISSING", "number", "quantity", "share", "value", "seconds", "failures"]
@@ -165,10 +166,7 @@ def failures(n_timeout: int, messages: list[str]) -> str:
     if n_timeout:
         kinds.append(f"{n_timeout} ran past the timeout")
     if messages:
-        counts: dict[str, int] = {}
-        for message in messages:
-            counts[message] = counts.get(message, 0) + 1
-        ranked = sorted(counts.items(), key=lambda item: -item[1])
+        ranked = Counter(messages).most_common()  # commonest first, ties in order of appearance
         if len(ranked) == 1:
             kinds.append(f"{len(messages)} with the error {ranked[0][0]}")
         else:

@@ -96,8 +96,10 @@ def failed_rows(evaluations: pd.DataFrame) -> pd.DataFrame:
 def failures_text(evaluations: pd.DataFrame) -> str:
     """:func:`tradewise.format.failures` of the table's :func:`failed_rows` (empty when none)."""
     bad = failed_rows(evaluations)
-    timeout = bad["status"] == "timeout" if len(bad) else pd.Series(dtype=bool)
-    messages = bad.loc[~timeout, "message"].fillna("").astype(str).tolist() if len(bad) else []
+    if not len(bad):
+        return ""
+    timeout = bad["status"] == "timeout"
+    messages = bad.loc[~timeout, "message"].fillna("").astype(str).tolist()
     return _format.failures(int(timeout.sum()), messages)
 
 
